@@ -1,0 +1,18 @@
+"""ionochem: photochemistry of one ionospheric altitude column from a plain-text reaction list."""
+
+from ionochem.errors import (
+    Error,
+    InputError,
+    MechanismError,
+    ReactionListError,
+    ScenarioError,
+    SolverError,
+    TableRangeError,
+)
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Error", "InputError", "MechanismError", "ReactionListError", "ScenarioError",
+    "SolverError", "TableRangeError", "__version__",
+]
