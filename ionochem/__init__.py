@@ -16,3 +16,7 @@ __all__ = [
     "Error", "InputError", "MechanismError", "ReactionListError", "ScenarioError",
     "SolverError", "TableRangeError", "__version__",
 ]
+
+from ionochem.model import Model, load_mechanism, load_scenario  # noqa: E402
+
+__all__ += ["Model", "load_mechanism", "load_scenario"]

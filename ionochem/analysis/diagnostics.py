@@ -1,0 +1,137 @@
+"""Diagnostics practitioners read beside the densities of a steady column.
+
+- ``lifetime`` (species, altitude): chemical lifetime n / L, s.
+- ``diffusion_time`` (altitude): plasma diffusion time H_p² / D_a for O+, s, and
+  ``pce_doubtful`` (species, altitude): lifetime longer than that time, where photochemical
+  equilibrium is doubtful and transport would matter.
+- ``volume_emission_rate`` (emission, altitude): photons cm-3 s-1 of O+(2P) 7320 Å,
+  O+(2D) 3726/3729 Å and N(2D) 5200 Å, from the radiative reactions of the list.
+- ``ionization_rate`` and ``recombination_rate`` (altitude): electron production and loss,
+  and their column integrals' balance in the attributes.
+- ``dark`` (altitude) and ``solar_zenith_angle``.
+
+It reads only the model's arrays and the dataset being built; it never re-reads files.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ionochem.mechanism.mechanism import ELECTRON
+
+K_B = 1.380649e-23          # J K-1 (CODATA 2018, exact)
+AMU = 1.66053906660e-27     # kg (CODATA 2018)
+G0 = 9.80665                # m s-2 standard gravity (CGPM 1901)
+R_EARTH_KM = 6371.0         # mean Earth radius (IUGG, from memory)
+
+# Ion–neutral momentum-transfer collision coefficients for O+, cm3 s-1, non-resonant
+# (Schunk & Nagy 2009, Ionospheres, 2nd ed., table 4.4; from memory).
+_C_OPLUS = {"N2": 6.82e-10, "O2": 6.64e-10, "He": 1.32e-10, "N": 4.62e-10, "H": 6.61e-11}
+
+EMISSIONS = (
+    # (name, upper state, lower state, wavelength label)
+    ("OII_7320", "O+(2P)", "O+(2D)", "7320 Å (O+ 2P→2D, 7320/7330 doublet)"),
+    ("OII_3726_3729", "O+(2D)", "O+", "3726/3729 Å (O+ 2D→4S)"),
+    ("NI_5200", "N(2D)", "N", "5200 Å (N 2D→4S)"),
+)
+
+
+def oplus_diffusion_time(env):
+    """Ambipolar diffusion time H_p²/D_a of O+ on the grid, s.
+
+    D_a = k_B (Te + Ti) / (m_O+ ν), H_p = k_B (Te + Ti) / (m_O+ g) (Schunk & Nagy 2009,
+    ch. 5, from memory). ν sums the non-resonant coefficients above and the resonant O+–O
+    collision frequency 3.67e-11 n(O) Tr^0.5 (1 − 0.064 log10 Tr)², Tr = (Ti + Tn)/2
+    (Schunk & Nagy 2009, table 4.5; from memory).
+    """
+    m = 16.0 * AMU
+    z = env.altitude_km
+    g = G0 * (R_EARTH_KM / (R_EARTH_KM + z)) ** 2
+    Tr = 0.5 * (env.Ti + env.Tn)
+    nu = np.zeros_like(z, dtype=float)
+    for s, c in _C_OPLUS.items():
+        if s in env.neutrals:
+            nu += c * env.neutrals[s]
+    if "O" in env.neutrals:
+        nu += 3.67e-11 * env.neutrals["O"] * np.sqrt(Tr) * (1 - 0.064 * np.log10(Tr)) ** 2
+    kT = K_B * (env.Te + env.Ti)
+    with np.errstate(divide="ignore"):
+        D = kT / (m * nu)                   # m2 s-1
+        H = kT / (m * g)                    # m
+        return H ** 2 / D
+
+
+def add_steady_diagnostics(model, ds):
+    """Add the diagnostics listed in the module docstring to ``ds`` in place."""
+    env = model.environment
+    mech = model.mechanism
+    dens = ds["density"]
+    loss = ds["loss"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        life = np.where(loss.values > 0, dens.values / loss.values, np.inf)
+    roles = ds["role"].values
+    life[roles == "fixed"] = np.nan
+    ds["lifetime"] = (("species", "altitude"), life,
+                      {"units": "s", "long_name": "chemical lifetime n/L"})
+    tau_d = oplus_diffusion_time(env)
+    ds["diffusion_time"] = ("altitude", tau_d,
+                            {"units": "s", "long_name": "O+ ambipolar diffusion time H_p^2/D_a"})
+    doubtful = (life > tau_d[None, :]) & np.isfinite(life) & (dens.values > 0)
+    ds["pce_doubtful"] = (("species", "altitude"), doubtful.astype(np.int8),
+                          {"long_name": "photochemical equilibrium doubtful: lifetime longer "
+                           "than the diffusion time", "flag_values": np.array([0, 1], np.int8),
+                           "flag_meanings": "equilibrium_plausible equilibrium_doubtful"})
+
+    rates = ds["reaction_rate"].values            # (R, A)
+    ver = []
+    labels = []
+    for name, upper, lower, label in EMISSIONS:
+        total = np.zeros(rates.shape[1])
+        found = False
+        for j, r in enumerate(model._rxns):
+            reac = [sp.name for sp, c in r.reactants for _ in range(c)]
+            prod = [sp.name for sp, c in r.products for _ in range(c)]
+            if reac == [upper] and prod == [lower]:
+                total += rates[j]
+                found = True
+        if found:
+            ver.append(total)
+            labels.append((name, label))
+    if ver:
+        ds["volume_emission_rate"] = (("emission", "altitude"), np.array(ver),
+                                      {"units": "photons cm-3 s-1",
+                                       "long_name": "volume emission rate"})
+        ds.coords["emission"] = ("emission", np.array([n for n, _ in labels], dtype=object))
+        ds.coords["emission_line"] = ("emission", np.array([lab for _, lab in labels],
+                                                           dtype=object))
+
+    # Ionization–recombination balance from the electron row of the stoichiometry.
+    if ELECTRON in mech.all_species:
+        nu_e = mech.nu_all[mech.index(ELECTRON)]
+        ion = np.clip(nu_e, 0, None) @ rates
+        rec = np.clip(-nu_e, 0, None) @ rates
+        ds["ionization_rate"] = ("altitude", ion, {"units": "cm-3 s-1",
+                                                   "long_name": "electron production"})
+        ds["recombination_rate"] = ("altitude", rec, {"units": "cm-3 s-1",
+                                                      "long_name": "electron loss"})
+        z_cm = env.altitude_km * 1e5
+        col_ion = np.trapezoid(ion, z_cm) if ion.size > 1 else float(ion.sum())
+        col_rec = np.trapezoid(rec, z_cm) if rec.size > 1 else float(rec.sum())
+        ds.attrs["column_ionization_cm2_s"] = float(col_ion)
+        ds.attrs["column_recombination_cm2_s"] = float(col_rec)
+        ds.attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
+            else 0.0
+
+    dark = env.dark(None)
+    ds["dark"] = ("altitude", dark.astype(np.int8),
+                  {"long_name": "no direct sunlight reaches the level",
+                   "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})
+    ds["solar_zenith_angle"] = ((), float(env.solar_zenith_angle(None)),
+                                {"units": "degree", "long_name": "solar zenith angle"})
+    if env.electron_density is not None and mech.balance_ion is not None:
+        b = list(ds["species"].values).index(mech.balance_ion)
+        neg = ds["density"].values[b] < 0
+        ds["balance_negative"] = ("altitude", neg.astype(np.int8),
+                                  {"long_name": f"{mech.balance_ion} = Ne - other ions "
+                                   "would be negative", "flag_values": np.array([0, 1], np.int8),
+                                   "flag_meanings": "ok negative"})

@@ -1,0 +1,228 @@
+"""The physical column a mechanism is solved in: grid, neutrals, temperatures, sources.
+
+:func:`build_environment` reads what a scenario asks for — tabulated or NRLMSIS neutrals,
+tabulated, neutral or parametric temperatures, prescribed production, a given electron
+density, and the sun (zenith angle, EUV photo and photoelectron rates) — and returns an
+:class:`Environment` of plain arrays on the altitude grid. Photo rates may follow time
+(``sources(time_s)``), so transient runs see the sun set.
+
+It knows reactions only by the channel names they ask for (``"photo:O->O+(2D)"``); it never
+reads a reaction list.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ionochem.errors import ScenarioError
+
+NEUTRAL_SPECIES = ("N2", "O2", "O", "N", "NO", "He", "H", "Ar")
+
+
+@dataclass
+class Environment:
+    """Arrays on the altitude grid, all shaped (altitude,).
+
+    Attributes
+    ----------
+    altitude_km : ndarray
+    neutrals : dict[str, ndarray]
+        Fixed neutral densities, cm-3.
+    Tn, Te, Ti, Tv : ndarray
+        Neutral, electron, ion and N2 vibrational temperatures, K.
+    ion_drift_m_s : float
+        Ion–neutral drift speed entering the effective temperature, m s-1.
+    ti_includes_drift : bool
+        True when Ti was modelled with frictional heating (the drift term is then already in
+        Ti and is not added again to Teff).
+    prescribed : dict[str, ndarray]
+        Volume production rates for reactions written ``k = prescribed``, cm-3 s-1.
+    electron_density : ndarray or None
+        Given Ne (cm-3) in ``electrons = "table"`` mode.
+    sun : object or None
+        Photo-rate calculator (``ionochem.environment.sun.SunColumn``) when the scenario has
+        a sun.
+    warnings : list[str]
+    """
+
+    altitude_km: np.ndarray
+    neutrals: dict
+    Tn: np.ndarray
+    Te: np.ndarray
+    Ti: np.ndarray
+    Tv: np.ndarray
+    ion_drift_m_s: float = 0.0
+    ti_includes_drift: bool = False
+    prescribed: dict = field(default_factory=dict)
+    electron_density: np.ndarray | None = None
+    sun: object | None = None
+    warnings: list = field(default_factory=list)
+    info: dict = field(default_factory=dict)
+
+    @property
+    def time_dependent(self) -> bool:
+        return self.sun is not None and self.sun.time_dependent
+
+    def sources(self, time_s=None) -> dict:
+        """Photo and photoelectron rates per absorber molecule (s-1) by channel key."""
+        if self.sun is None:
+            return {}
+        return self.sun.sources(time_s)
+
+    def solar_zenith_angle(self, time_s=None):
+        """Solar zenith angle, degrees (NaN when the scenario has no sun)."""
+        if self.sun is None:
+            return np.nan
+        return self.sun.zenith_deg(time_s)
+
+    def dark(self, time_s=None) -> np.ndarray:
+        """Levels where no sunlight arrives (the ray to the sun meets the solid Earth)."""
+        if self.sun is None:
+            return np.zeros(self.altitude_km.size, bool)
+        return self.sun.dark(time_s)
+
+
+def build_environment(scenario, needs=frozenset()) -> Environment:
+    """Build the column a scenario describes.
+
+    Parameters
+    ----------
+    scenario : ionochem.io.scenario.Scenario
+    needs : set of str
+        What the mechanism asks for: channel keys ``"photo:…"``/``"photoelectron:…"``,
+        ``"prescribed:ID"`` for prescribed reactions, species names it uses.
+    """
+    from ionochem.io.tables import read_profile_table
+
+    grid = np.asarray(scenario.altitude_km, float)
+    file = scenario.source
+    messages = []
+    neutrals_cfg = scenario.neutrals
+    if neutrals_cfg.model == "table":
+        table = read_profile_table(neutrals_cfg.table, grid, columns=None,
+                                   where="neutrals.table", scenario_file=file,
+                                   nonnegative=True)
+        if "Tn_K" not in table:
+            raise ScenarioError("the neutral table has no Tn_K column", file=file,
+                                key="neutrals.table")
+        Tn = table.pop("Tn_K")
+        neutrals = {k: v for k, v in table.items() if k != "altitude_km"}
+        profile_source = None
+    else:
+        from ionochem.environment.neutral_source import msis_column
+        neutrals, Tn, profile_source = msis_column(scenario, grid, needs)
+
+    temps = scenario.temperatures
+    ttable = None
+    want_cols = []
+    if temps.electron == "table":
+        want_cols.append("Te_K")
+    if temps.ion == "table":
+        want_cols.append("Ti_K")
+    if getattr(temps, "vibrational", "neutral") == "table":
+        want_cols.append("Tv_K")
+    if want_cols:
+        ttable = read_profile_table(temps.table, grid, columns=want_cols,
+                                    where="temperatures.table", scenario_file=file)
+    drift = float(temps.ion_drift_m_s)
+    ti_includes_drift = False
+    if temps.electron == "table":
+        Te = ttable["Te_K"]
+    elif temps.electron == "neutral":
+        Te = Tn.copy()
+    else:
+        Te = None
+    if temps.ion == "table":
+        Ti = ttable["Ti_K"]
+    elif temps.ion == "neutral":
+        Ti = Tn.copy()
+    else:
+        Ti = None
+    if Te is None or Ti is None:
+        from ionochem.environment.temperatures import parametric_profile
+        day = _day_factor(scenario)
+        Te_p, Ti_p = parametric_profile(grid, Tn, daytime=day, **_profile_kwargs(temps))
+        Te = Te_p if Te is None else Te
+        Ti = Ti_p if Ti is None else Ti
+    if drift > 0:
+        from ionochem.environment.temperatures import (
+            check_tabulated_ti,
+            frictional_ion_temperature,
+            mean_neutral_mass_amu,
+        )
+        m_n = mean_neutral_mass_amu(neutrals)
+        if temps.ion == "table":
+            cold = check_tabulated_ti(Ti, Tn, drift, m_n, grid)
+            if len(cold):
+                messages.append(
+                    f"{file}: temperatures.table: tabulated Ti is colder than frictional "
+                    f"heating by a {drift:g} m/s drift implies at {len(cold)} level(s) "
+                    f"({_span(cold)} km); the drift term is still applied once in Teff")
+        else:
+            Ti = frictional_ion_temperature(Ti, drift, m_n)
+            ti_includes_drift = True
+    for name, arr in (("Tn", Tn), ("Te", Te), ("Ti", Ti)):
+        if np.any(~np.isfinite(arr)) or np.any(arr <= 0):
+            raise ScenarioError(f"{name} must be positive and finite on the grid",
+                                file=file, key="temperatures")
+    if getattr(temps, "vibrational", "neutral") == "table":
+        Tv = ttable["Tv_K"]
+    else:
+        Tv = Tn.copy()
+
+    prescribed = {}
+    wanted = sorted(n.split(":", 1)[1] for n in needs if n.startswith("prescribed:"))
+    if wanted:
+        if scenario.production.table is None:
+            raise ScenarioError(
+                f"reactions {', '.join(wanted)} use k = prescribed but the scenario has no "
+                "[production] table", file=file, key="production.table")
+        prescribed = read_profile_table(scenario.production.table, grid, columns=wanted,
+                                        where="production.table", scenario_file=file,
+                                        nonnegative=True)
+
+    ne = None
+    if scenario.solve.electrons == "table":
+        t = read_profile_table(scenario.solve.electron_table, grid, columns=["Ne"],
+                               where="solve.electron_table", scenario_file=file,
+                               nonnegative=True)
+        ne = t["Ne"]
+
+    env = Environment(altitude_km=grid, neutrals=neutrals, Tn=Tn, Te=Te, Ti=Ti, Tv=Tv,
+                      ion_drift_m_s=drift, ti_includes_drift=ti_includes_drift,
+                      prescribed=prescribed, electron_density=ne, warnings=messages)
+    if any(n.startswith(("photo:", "photoelectron:")) for n in needs):
+        from ionochem.environment.sun import SunColumn
+        env.sun = SunColumn(scenario, env, needs, profile_source)
+        env.warnings.extend(env.sun.warnings)
+    for m in messages:
+        warnings.warn(m, stacklevel=2)
+    return env
+
+
+def _span(levels):
+    levels = np.asarray(levels)
+    return f"{levels.min():g}–{levels.max():g}"
+
+
+def _day_factor(scenario):
+    """Cosine of the zenith angle clipped at 0, or 1 when the scenario has no sun."""
+    if scenario.location is None or scenario.time is None:
+        return 1.0
+    from ionochem.environment.geometry import solar_zenith_angle_deg
+    chi = float(solar_zenith_angle_deg(np.datetime64(scenario.time.utc.replace(tzinfo=None)),
+                                       scenario.location.latitude_deg,
+                                       scenario.location.longitude_deg))
+    return max(np.cos(np.radians(chi)), 0.0)
+
+
+def _profile_kwargs(temps):
+    prof = getattr(temps, "profile", None)
+    if prof is None:
+        return {}
+    if isinstance(prof, dict):
+        return dict(prof)
+    return {k: v for k, v in vars(prof).items() if v is not None}

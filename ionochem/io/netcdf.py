@@ -1,0 +1,65 @@
+"""Atomic netCDF writing: a temporary file in the target folder, then a rename.
+
+An interrupted run therefore never leaves a half-written file where a good one was.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from ionochem.errors import InputError
+
+
+def _encodable(ds):
+    """Copy of ``ds`` with object (string) arrays as fixed strings and bools as int8."""
+    out = ds.copy()
+    for name in list(out.variables):
+        var = out[name]
+        if var.dtype == object:
+            out[name] = var.astype(str)
+        elif var.dtype == bool:
+            out[name] = var.astype(np.int8)
+    for key, val in list(out.attrs.items()):
+        if isinstance(val, bool):
+            out.attrs[key] = int(val)
+        elif val is None:
+            out.attrs[key] = ""
+    return out
+
+
+def write_netcdf(ds, path) -> Path:
+    """Write ``ds`` to ``path`` atomically (NETCDF4 format); returns the path."""
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise InputError(f"output folder {folder} does not exist", file=str(path))
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    os.close(fd)
+    try:
+        _encodable(ds).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path
+
+
+def atomic_write_bytes(path, data: bytes) -> Path:
+    """Write bytes atomically (used for figures and text reports)."""
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path

@@ -1,0 +1,289 @@
+"""Tabulated rate coefficients k(T) referred to by ``table("file.csv", "column")``.
+
+A rate table is a CSV file: ``#`` comment lines (and blank lines) may come anywhere, the first
+other row is the header, the first column is the temperature the rate depends on (``Te``,
+``Ti``, ``Tn`` or ``Teff``, optionally with the unit suffix ``_K``), in K, strictly increasing
+and positive; every other column is a rate coefficient (positive). A column ``<col>_low`` and
+``<col>_high`` next to ``<col>`` give its uncertainty band.
+
+Values are interpolated linearly in log k versus log T. Outside the tabulated range the lookup
+fails with :class:`~ionochem.errors.TableRangeError` unless extrapolation was asked for, which
+continues the end segments in log-log.
+
+Every problem in a table is reported as :class:`~ionochem.errors.ReactionListError` at the
+*referring* reaction's file and line, with the table's name in the message. This module
+knows nothing about reactions beyond that file and line.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ionochem.errors import ReactionListError, TableRangeError
+
+__all__ = ["RateTable", "load_rate_table", "clear_cache", "TEMPERATURE_COLUMNS"]
+
+TEMPERATURE_COLUMNS = ("Te", "Ti", "Tn", "Teff")
+_TEMP_HEADER = re.compile(r"(Te|Ti|Tn|Teff)(_K)?")
+_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+_MAX_BYTES = 10_000_000
+# Relative slack when checking the range, so a temperature equal to an end point up to
+# rounding is not refused *(common practice)*.
+_RTOL = 1e-9
+
+_CACHE: dict[tuple, RateTable] = {}
+
+
+@dataclass(frozen=True, eq=False)
+class RateTable:
+    """One column of a rate table, ready to interpolate.
+
+    Attributes
+    ----------
+    name : str
+        The table's name as written in the reaction list.
+    path : Path
+        Resolved path of the CSV file.
+    column : str
+        Column name.
+    variable : str
+        Temperature the rate depends on: ``"Te"``, ``"Ti"``, ``"Tn"`` or ``"Teff"``.
+    temperature_K : ndarray
+        Tabulated temperatures (K), strictly increasing.
+    values : ndarray
+        Rate coefficients at those temperatures (units of the reaction's k).
+    low, high : ndarray or None
+        Uncertainty band columns ``<column>_low`` / ``<column>_high``, or None.
+    """
+
+    name: str
+    path: Path
+    column: str
+    variable: str
+    temperature_K: np.ndarray
+    values: np.ndarray
+    low: np.ndarray | None
+    high: np.ndarray | None
+
+    @property
+    def has_bands(self) -> bool:
+        """True when the table gives ``_low`` and ``_high`` columns for this column."""
+        return self.low is not None
+
+    def interpolate(self, temperature_K, *, extrapolate: bool = False, band: int = 0,
+                    file=None, line=None) -> np.ndarray:
+        """Interpolate the table at the given temperatures.
+
+        Parameters
+        ----------
+        temperature_K : array_like
+            Temperatures (K), any shape.
+        extrapolate : bool
+            Continue the end segments linearly in log k versus log T outside the table.
+        band : {0, 1, 2}
+            0 for the central column, 1 for ``_low``, 2 for ``_high`` (the central column
+            when the table has no band).
+        file, line
+            The referring reaction, for the error.
+
+        Returns
+        -------
+        ndarray
+            Rate coefficients, the shape of ``temperature_K``.
+
+        Raises
+        ------
+        TableRangeError
+            A temperature outside the table (without ``extrapolate``) or not positive.
+        """
+        T = np.asarray(temperature_K, dtype=float)
+        y = self.values
+        if band == 1 and self.low is not None:
+            y = self.low
+        elif band == 2 and self.high is not None:
+            y = self.high
+        flat = T.reshape(-1)
+        bad = ~np.isfinite(flat) | (flat <= 0)
+        if bad.any():
+            raise TableRangeError(
+                f"{self.variable} = {flat[bad][0]!r} K cannot be looked up in rate table "
+                f"'{self.name}' (temperatures must be finite and positive)",
+                file=file, line=line)
+        lo, hi = self.temperature_K[0], self.temperature_K[-1]
+        if not extrapolate:
+            outside = (flat < lo * (1 - _RTOL)) | (flat > hi * (1 + _RTOL))
+            if outside.any():
+                worst = flat[outside]
+                value = worst.min() if worst.min() < lo else worst.max()
+                raise TableRangeError(
+                    f"{self.variable} = {value:.6g} K is outside rate table '{self.name}' "
+                    f"(column '{self.column}', {lo:.6g} to {hi:.6g} K); add \"extrapolate\" "
+                    "as the third table() argument to allow extrapolation",
+                    file=file, line=line)
+            flat = np.clip(flat, lo, hi)
+        lx = np.log(self.temperature_K)
+        ly = np.log(y)
+        lt = np.log(flat)
+        out = np.interp(lt, lx, ly)
+        if extrapolate:
+            below = lt < lx[0]
+            above = lt > lx[-1]
+            if below.any():
+                s = (ly[1] - ly[0]) / (lx[1] - lx[0])
+                out[below] = ly[0] + s * (lt[below] - lx[0])
+            if above.any():
+                s = (ly[-1] - ly[-2]) / (lx[-1] - lx[-2])
+                out[above] = ly[-1] + s * (lt[above] - lx[-1])
+        return np.exp(out).reshape(T.shape)
+
+
+def clear_cache() -> None:
+    """Forget every loaded table (tests use it)."""
+    _CACHE.clear()
+
+
+def _fail(name, message, file, line):
+    raise ReactionListError(f"rate table '{name}': {message}", file=file, line=line)
+
+
+def _number(cell: str, what: str, row_line: int, name, file, line) -> float:
+    text = cell.strip()
+    if not _NUMBER.fullmatch(text):
+        _fail(name, f"line {row_line}: {what} '{text}' is not a number", file, line)
+    value = float(text)
+    if not np.isfinite(value):
+        _fail(name, f"line {row_line}: {what} '{text}' is too large", file, line)
+    return value
+
+
+def load_rate_table(path, column: str, *, file=None, line=None, name: str | None = None
+                    ) -> RateTable:
+    """Load one column of a rate table (cached per file and column).
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file, already resolved against the reaction file's folder.
+    column : str
+        Column to read.
+    file, line
+        The referring reaction (every error is reported there).
+    name : str, optional
+        The table's name as written in the reaction list (defaults to ``path``).
+
+    Returns
+    -------
+    RateTable
+
+    Raises
+    ------
+    ReactionListError
+        Missing or unreadable file, not UTF-8, bad header, missing column, a value that is not
+        a positive number, temperatures not strictly increasing.
+    """
+    path = Path(path)
+    name = str(path) if name is None else name
+    try:
+        st = path.stat()
+    except OSError:
+        _fail(name, f"file not found (looked for {path})", file, line)
+    key = (str(path.resolve()), column, st.st_mtime_ns, st.st_size)
+    cached = _CACHE.get(key)
+    if cached is not None:
+        if cached.name == name:
+            return cached
+        return RateTable(name, *[getattr(cached, f) for f in
+                                 ("path", "column", "variable", "temperature_K", "values",
+                                  "low", "high")])
+    if not path.is_file():
+        _fail(name, f"not a file ({path})", file, line)
+    if st.st_size > _MAX_BYTES:
+        _fail(name, f"larger than {_MAX_BYTES} bytes", file, line)
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        _fail(name, f"cannot be read ({exc.strerror})", file, line)
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        bad_line = data[:exc.start].count(b"\n") + 1
+        _fail(name, f"not valid UTF-8 (line {bad_line})", file, line)
+    if "\x00" in text:
+        bad_line = text[:text.index("\x00")].count("\n") + 1
+        _fail(name, f"contains a NUL byte (line {bad_line})", file, line)
+    text = text.removeprefix("\ufeff")
+    rows: list[tuple[int, list[str]]] = []
+    try:
+        for number, raw in enumerate(text.splitlines(), start=1):
+            stripped = raw.strip()
+            if not stripped or stripped.startswith("#"):
+                continue
+            cells = next(csv.reader(io.StringIO(raw)))
+            rows.append((number, [c.strip() for c in cells]))
+    except csv.Error as exc:
+        _fail(name, f"CSV error: {exc}", file, line)
+    if not rows:
+        _fail(name, "no header row", file, line)
+    header_line, header = rows[0]
+    m = _TEMP_HEADER.fullmatch(header[0])
+    if not m:
+        _fail(name, f"the first column must be the temperature (Te, Ti, Tn or Teff, "
+                    f"optionally with _K), found '{header[0]}'", file, line)
+    variable = m.group(1)
+    if len(set(header)) != len(header):
+        _fail(name, "repeated column name in the header", file, line)
+    if column == header[0]:
+        _fail(name, f"column '{column}' is the temperature column", file, line)
+    if column not in header:
+        _fail(name, f"no column '{column}' (columns: {', '.join(header[1:])})", file, line)
+    idx = header.index(column)
+    lo_name, hi_name = f"{column}_low", f"{column}_high"
+    has_lo, has_hi = lo_name in header, hi_name in header
+    if has_lo != has_hi:
+        _fail(name, f"column '{lo_name if has_lo else hi_name}' needs its partner "
+                    f"'{hi_name if has_lo else lo_name}'", file, line)
+    cols = [0, idx] + ([header.index(lo_name), header.index(hi_name)] if has_lo else [])
+    table = []
+    for row_line, cells in rows[1:]:
+        if len(cells) != len(header):
+            _fail(name, f"line {row_line} has {len(cells)} values, the header has "
+                        f"{len(header)}", file, line)
+        vals = [_number(cells[c], header[c], row_line, name, file, line) for c in cols]
+        if vals[0] <= 0:
+            _fail(name, f"line {row_line}: temperature {vals[0]:g} K is not positive",
+                  file, line)
+        for c, v in zip(cols[1:], vals[1:], strict=True):
+            if v <= 0:
+                _fail(name, f"line {row_line}: {header[c]} = {v:g} is not positive "
+                            "(rates are interpolated in log k)", file, line)
+        table.append(vals)
+    if len(table) < 2:
+        _fail(name, "needs at least two rows of values", file, line)
+    arr = np.array(table, dtype=float)
+    T = arr[:, 0]
+    steps = np.diff(T)
+    if (steps <= 0).any():
+        i = int(np.argmax(steps <= 0)) + 1
+        _fail(name, f"temperatures must be strictly increasing ({header[0]} = {T[i]:g} "
+                    f"after {T[i - 1]:g}, line {rows[1 + i][0]})", file, line)
+    values = arr[:, 1]
+    low = high = None
+    if has_lo:
+        low, high = arr[:, 2], arr[:, 3]
+        wrong = (low > values) | (high < values)
+        if wrong.any():
+            i = int(np.argmax(wrong))
+            _fail(name, f"line {rows[1 + i][0]}: the band {lo_name} .. {hi_name} must "
+                        f"contain {column}", file, line)
+    for a in (T, values, low, high):
+        if a is not None:
+            a.setflags(write=False)
+    result = RateTable(name, path, column, variable, T, values, low, high)
+    _CACHE[key] = result
+    return result

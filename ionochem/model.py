@@ -1,0 +1,390 @@
+"""A mechanism bound to an environment: rate coefficients, tendency, Jacobian, solutions.
+
+``Model(scenario)`` reads the scenario's reaction list, applies the scenario's changes, builds
+the environment (neutrals, temperatures, sun) and compiles the mechanism; ``solve()`` and
+``integrate()`` then do only chemistry. This is the only module that joins the mechanism
+stage to the environment stage; the solvers below it see arrays and callables.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from ionochem.errors import InputError, MechanismError, TableRangeError
+from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
+
+SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
+
+
+def load_mechanism(path):
+    """Parse a reaction list (``*.reactions``) into a :class:`ReactionList`."""
+    from ionochem.mechanism.parser import parse_reaction_list
+    return parse_reaction_list(path)
+
+
+def load_scenario(path):
+    """Read and validate a scenario file (``*.toml``)."""
+    from ionochem.io.scenario import load_scenario as _load
+    return _load(path)
+
+
+def channel_of(reaction) -> str:
+    """Channel name of a photo or photoelectron reaction: ``"N2->N2+"``, ``"N2->N(2D)+N"``.
+
+    The absorber is the single neutral reactant; the channel is named by the first ion
+    product (a vibrational level by its family's base name), or, for a dissociation with no
+    ion, by its products, excited states first.
+    """
+    absorbers = [sp for sp, c in reaction.reactants if sp.name not in (ELECTRON, THIRD_BODY)]
+    if len(absorbers) != 1 or absorbers[0].charge != 0 or reaction.reactants[0][1] != 1:
+        raise MechanismError(
+            f"reaction {reaction.id}: a photo or photoelectron rate needs exactly one neutral "
+            "reactant (the absorber)", file=reaction.file, line=reaction.line)
+    absorber = absorbers[0].name
+    ions = [sp for sp, _ in reaction.products if sp.charge > 0]
+    if ions:
+        return f"{absorber}->{ions[0].base}"
+    prods = sorted({sp.name for sp, _ in reaction.products},
+                   key=lambda n: ("(" not in n, n))
+    return f"{absorber}->{'+'.join(prods)}"
+
+
+class Model:
+    """A reaction list solved in the column a scenario describes.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        From :func:`load_scenario`.
+    mechanism : ReactionList, optional
+        From :func:`load_mechanism`; default the scenario's own ``reactions``.
+    environment : Environment, optional
+        Reuse an already-built column (for changed copies of a model).
+
+    Attributes
+    ----------
+    species : list of str
+        Solved species, the column order of ``n``.
+    reactions : list of str
+        Reaction ids in order.
+    """
+
+    def __init__(self, scenario, mechanism=None, *, environment=None, _changes=None):
+        from ionochem.environment.column import build_environment
+        self.scenario = scenario
+        if mechanism is None:
+            mechanism = load_mechanism(scenario.reactions)
+        self.reaction_list = mechanism
+        rxns = list(mechanism.reactions)
+        self._rxns = rxns
+        self.reactions = [r.id for r in rxns]
+        self._id_index = {r.id: j for j, r in enumerate(rxns)}
+        changes = _changes
+        if changes is None:
+            changes = (dict(scenario.changes.set), dict(scenario.changes.scale), "scenario")
+        self.changes = {"set": dict(changes[0]), "scale": dict(changes[1])}
+        self._k_expr = [r.k for r in rxns]
+        self._scale = np.ones(len(rxns))
+        self._apply_changes(*changes)
+
+        needs = set()
+        for r, expr in zip(rxns, self._k_expr):
+            for kind in SOURCE_KINDS:
+                if kind in expr.variables:
+                    needs.add(f"prescribed:{r.id}" if kind == "prescribed"
+                              else f"{kind}:{channel_of(r)}")
+            for sp, _ in (*r.reactants, *r.products):
+                needs.add(sp.name)
+        self._needs = frozenset(needs)
+        if environment is None:
+            environment = build_environment(scenario, self._needs)
+        self.environment = environment
+        env = environment
+        self.mechanism = Mechanism(mechanism, fixed=env.neutrals,
+                                   electrons=scenario.solve.electrons,
+                                   balance_ion=scenario.solve.balance_ion)
+        mech = self.mechanism
+        problems = mech.structural_problems()
+        if problems:
+            name, r = problems[0]
+            raise MechanismError(
+                f"{name} is produced (by {r.id}) but never lost; declare it fixed by giving "
+                "its density in the neutral source, or add its loss", file=r.file, line=r.line)
+        self.species = list(mech.solved)
+        self.altitude_km = env.altitude_km
+        self.warnings = list(env.warnings) + list(getattr(mechanism, "warnings", []))
+        A = env.altitude_km.size
+        given = np.zeros((A, len(mech.given)))
+        total_neutral = sum(env.neutrals.values())
+        for g, name in enumerate(mech.given):
+            if name == ELECTRON:
+                given[:, g] = env.electron_density
+            elif name == THIRD_BODY:
+                given[:, g] = total_neutral
+            else:
+                given[:, g] = env.neutrals[name]
+        self.given = given
+        self._level_fractions = self._vibrational_fractions()
+        self._source_reactions = [j for j, e in enumerate(self._k_expr)
+                                  if e.variables & {"photo", "photoelectron"}]
+        self._k_static = self._evaluate_k(time_s=None)
+
+    # ---------------------------------------------------------------- changes
+    def _ids_for(self, key):
+        if key in self._id_index:
+            return [self._id_index[key]]
+        families = getattr(self.reaction_list, "families", {})
+        for fam, members in families.items():
+            if key in (fam, fam.split("(")[0]):
+                return [self._id_index[m] for m in members]
+        raise InputError(f"no reaction with id {key!r} in {self.reaction_list.path}")
+
+    def _apply_changes(self, set_dict, scale, origin):
+        from ionochem.mechanism.expressions import compile_expression
+        base_dir = Path(self.reaction_list.path).parent if self.reaction_list.path else Path(".")
+        where = self.scenario.source if origin == "scenario" else "--set"
+        for key, text in set_dict.items():
+            for j in self._ids_for(key):
+                r = self._rxns[j]
+                self._k_expr[j] = compile_expression(str(text), file=where, line=None,
+                                                     base_dir=base_dir, level=r.level)
+        for key, factor in scale.items():
+            factor = float(factor)
+            if not np.isfinite(factor) or factor < 0:
+                raise InputError(f"scale factor for {key} must be a non-negative number")
+            for j in self._ids_for(key):
+                self._scale[j] *= factor
+
+    def with_changes(self, set_dict=None, scale=None):
+        """A new model with some rate expressions replaced and some rates scaled.
+
+        Parameters
+        ----------
+        set_dict : dict[str, str]
+            Reaction id (or family id, for all its levels) → new rate expression.
+        scale : dict[str, float]
+            Reaction id (or family id) → multiplicative factor on k.
+
+        The changes add to those the scenario already makes. The environment is reused
+        unless the new expressions need sources the old ones did not.
+        """
+        merged_set = dict(self.changes["set"])
+        merged_set.update(set_dict or {})
+        merged_scale = dict(self.changes["scale"])
+        for key, f in (scale or {}).items():
+            merged_scale[key] = merged_scale.get(key, 1.0) * float(f)
+        new = Model(self.scenario, self.reaction_list, environment=self.environment,
+                    _changes=(merged_set, merged_scale, "api"))
+        if not new._needs <= self._needs:
+            new = Model(self.scenario, self.reaction_list,
+                        _changes=(merged_set, merged_scale, "api"))
+        return new
+
+    # ---------------------------------------------------------------- rates
+    def _vibrational_fractions(self):
+        """Share of each family level in photo/photoelectron production of that family."""
+        levels = {}
+        for r, e in zip(self._rxns, self._k_expr):
+            if e.variables & {"photo", "photoelectron"}:
+                ions = [sp for sp, _ in r.products if sp.charge > 0 and sp.vib is not None]
+                if ions:
+                    levels.setdefault(ions[0].base, set()).add(ions[0].vib)
+        out = {}
+        for base, lv in levels.items():
+            if base != "N2+":
+                raise MechanismError(f"no vibrational split of photo production is known for "
+                                     f"{base}; write its levels' rates explicitly")
+            from ionochem.environment.n2plus_levels import n2plus_level_fractions
+            lv = sorted(lv)
+            if lv != list(range(lv[0], lv[-1] + 1)) or lv[0] != 0:
+                raise MechanismError("photo production of N2+ levels must cover v = 0..top")
+            out[base] = dict(zip(lv, n2plus_level_fractions(lv)))
+        return out
+
+    def _temperature_env(self, r, temps=None):
+        env = self.environment
+        Te, Ti, Tn, Tv = temps if temps is not None else (env.Te, env.Ti, env.Tn, env.Tv)
+        d = {"Te": Te, "Ti": Ti, "Tn": Tn, "Tv": Tv}
+        if r.level is not None:
+            d["v"] = float(r.level)
+        return d
+
+    def _teff(self, r, Ti, Tn):
+        from ionochem.environment.temperatures import effective_temperature
+        heavy = [sp for sp, c in r.reactants for _ in range(c)
+                 if sp.name not in (ELECTRON, THIRD_BODY)]
+        ions = [sp for sp in heavy if sp.charge != 0]
+        neutrals = [sp for sp in heavy if sp.charge == 0]
+        if len(ions) != 1 or len(neutrals) != 1:
+            raise MechanismError(f"reaction {r.id} uses Teff but does not have exactly one ion "
+                                 "and one neutral reactant", file=r.file, line=r.line)
+        env = self.environment
+        return effective_temperature(ions[0].mass_amu, neutrals[0].mass_amu, Ti, Tn,
+                                     env.ion_drift_m_s,
+                                     ti_includes_drift=env.ti_includes_drift)
+
+    def _source_value(self, r, expr, sources):
+        env = self.environment
+        out = {}
+        if "prescribed" in expr.variables:
+            P = env.prescribed[r.id]
+            denom = np.ones_like(P)
+            for sp, c in r.reactants:
+                if sp.name not in env.neutrals:
+                    raise MechanismError(f"reaction {r.id} is prescribed but its reactant "
+                                         f"{sp.name} is not a fixed neutral", file=r.file,
+                                         line=r.line)
+                denom = denom * env.neutrals[sp.name] ** c
+            with np.errstate(divide="ignore", invalid="ignore"):
+                out["prescribed"] = np.where(denom > 0, P / denom, 0.0)
+        for kind in ("photo", "photoelectron"):
+            if kind in expr.variables:
+                ch = channel_of(r)
+                key = f"{kind}:{ch}"
+                if key not in sources:
+                    avail = ", ".join(sorted(k for k in sources if k.startswith(kind)))
+                    raise MechanismError(f"reaction {r.id}: the environment has no {kind} "
+                                         f"channel {ch} (available: {avail or 'none'})",
+                                         file=r.file, line=r.line)
+                val = sources[key]
+                ions = [sp for sp, _ in r.products if sp.charge > 0]
+                if ions and ions[0].vib is not None:
+                    val = val * self._level_fractions[ions[0].base][ions[0].vib]
+                out[kind] = val
+        return out
+
+    def _evaluate_one(self, j, sources, temps=None):
+        r, expr = self._rxns[j], self._k_expr[j]
+        d = self._temperature_env(r, temps)
+        if "Teff" in expr.variables:
+            d["Teff"] = self._teff(r, d["Ti"], d["Tn"])
+        d.update(self._source_value(r, expr, sources))
+        try:
+            k = np.asarray(expr.evaluate(d), float)
+        except TableRangeError:
+            raise
+        except FloatingPointError as exc:  # pragma: no cover - numpy raises only if asked
+            raise MechanismError(f"rate of {r.id} cannot be evaluated: {exc}",
+                                 file=r.file, line=r.line) from None
+        k = np.broadcast_to(k, np.broadcast_shapes(k.shape, d["Tn"].shape)) * self._scale[j]
+        bad = ~np.isfinite(k) | (k < 0)
+        if bad.any():
+            alt = self.environment.altitude_km[np.nonzero(np.atleast_1d(bad).any(
+                axis=tuple(range(bad.ndim - 1))))[0][0]] if bad.ndim else float("nan")
+            raise MechanismError(f"rate coefficient of {r.id} is negative or not finite "
+                                 f"(first at {alt:g} km): check its expression",
+                                 file=r.file, line=r.line)
+        return k
+
+    def _evaluate_k(self, time_s=None, temps=None):
+        sources = self.environment.sources(time_s) if self._source_reactions else {}
+        cols = []
+        with np.errstate(all="ignore"):
+            for j in range(len(self._rxns)):
+                cols.append(self._evaluate_one(j, sources, temps))
+        return np.stack(cols, axis=-1)
+
+    def rate_coefficients(self, time_s=None):
+        """Rate coefficients k, shape (altitude, reaction), in cm3 s-1 / s-1 / cm6 s-1."""
+        if time_s is None:
+            return self._k_static
+        if not self.environment.time_dependent or not self._source_reactions:
+            return self._k_static
+        k = self._k_static.copy()
+        sources = self.environment.sources(time_s)
+        with np.errstate(all="ignore"):
+            for j in self._source_reactions:
+                k[:, j] = self._evaluate_one(j, sources)
+        return k
+
+    # ---------------------------------------------------------------- chemistry
+    def tendency(self, n, time_s=None):
+        """dn/dt of the solved species, cm-3 s-1; ``n`` shaped (altitude, species)."""
+        return self.mechanism.tendency(np.asarray(n, float), self.rate_coefficients(time_s),
+                                       self.given)
+
+    def jacobian(self, n, time_s=None):
+        """J[a, i, j] = ∂f_i/∂n_j, shape (altitude, species, species), s-1."""
+        return self.mechanism.jacobian(np.asarray(n, float), self.rate_coefficients(time_s),
+                                       self.given)
+
+    def steady_densities(self, k=None, given=None, *, rtol=None):
+        """Steady solved densities for rate coefficients ``k`` (B, R) without a dataset.
+
+        ``k`` and ``given`` default to the model's own (one row per altitude); they may
+        stack several samples of the column as extra rows. Returns a ``SteadyResult``.
+        """
+        from ionochem.solve.steady import solve_steady
+        k = self._k_static if k is None else k
+        given = self.given if given is None else given
+        mech = self.mechanism
+        S = len(mech.solved)
+        if rtol is None:
+            rtol = getattr(self.scenario.solve, "rtol", 1e-10)
+
+        def tendency(n, rows):
+            return mech.tendency(n, k[rows], given[rows])
+
+        def jacobian(n, rows):
+            return mech.jacobian(n, k[rows], given[rows])
+
+        def gross(n, rows):
+            P, L = mech.production_loss(n, k[rows], given[rows])
+            return P[:, :S], L[:, :S]
+
+        names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
+        return solve_steady(np.zeros((k.shape[0], S)), tendency, jacobian, gross, rtol=rtol,
+                            level_names=[f"{a:g} km" for a in names])
+
+    def solve(self):
+        """Steady state (photochemical equilibrium) at every level → ``xarray.Dataset``."""
+        from ionochem.io.dataset import steady_dataset
+        res = self.steady_densities()
+        return steady_dataset(self, res)
+
+    def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
+        """Integrate in time from ``initial`` (default: zero ion densities).
+
+        Parameters
+        ----------
+        times_s : array_like
+            Output times, s after the scenario's time (t = 0).
+        initial : ndarray (altitude, species) or Dataset, optional
+        method : {"BDF", "Radau"}
+        rtol : float
+        atol : float, optional
+            Absolute tolerance, cm-3 (default 1e-8 of the peak production over 1 s, or 1e-6).
+
+        Returns
+        -------
+        xarray.Dataset with a ``time`` dimension.
+        """
+        from ionochem.io.dataset import transient_dataset
+        from ionochem.solve.transient import integrate
+        mech = self.mechanism
+        A, S = self.altitude_km.size, len(mech.solved)
+        if initial is None:
+            n0 = np.zeros((A, S))
+        elif hasattr(initial, "data_vars"):
+            n0 = np.stack([initial["density"].sel(species=s).values for s in mech.solved], -1)
+        else:
+            n0 = np.asarray(initial, float).reshape(A, S)
+        if atol is None:
+            atol = 1e-6
+
+        def tendency(t, n):
+            return mech.tendency(n, self.rate_coefficients(t), self.given)
+
+        def jacobian(t, n):
+            return mech.jacobian(n, self.rate_coefficients(t), self.given)
+
+        times = np.asarray(times_s, float)
+        out = integrate(times, n0, tendency, jacobian, method=method, rtol=rtol, atol=atol)
+        return transient_dataset(self, times, out)
+
+    def sensitivity(self, **kw):
+        """Normalized sensitivities ∂ln n_i/∂ln k_j at steady state (see analysis)."""
+        from ionochem.analysis.sensitivity import sensitivity
+        return sensitivity(self, **kw)
