@@ -155,7 +155,7 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         )
         m_n = mean_neutral_mass_amu(neutrals)
         if temps.ion == "table":
-            cold = check_tabulated_ti(Ti, Tn, drift, m_n, grid)
+            cold = check_tabulated_ti(Ti, Tn, drift, m_n, altitude_km=grid)
             if len(cold):
                 messages.append(
                     f"{file}: temperatures.table: tabulated Ti is colder than frictional "

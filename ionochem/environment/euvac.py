@@ -16,7 +16,6 @@ values adjusted to 1 AU, as the model was built on them.
 
 from __future__ import annotations
 
-import csv
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
@@ -24,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import InputError
+from ionochem.io.tables import read_csv_columns
 
 DATA_DIR = Path(__file__).resolve().parent.parent / "data"
 EUVAC_TABLE_PATH = DATA_DIR / "euvac.csv"
@@ -32,59 +32,6 @@ EUVAC_TABLE_PATH = DATA_DIR / "euvac.csv"
 EUVAC_FACTOR_FLOOR = 0.8
 #: Unit of the F74113 column of the packaged table, photons cm-2 s-1.
 F74113_UNIT_PHOTONS_CM2_S = 1.0e9
-
-
-def read_commented_csv(path: str | Path) -> dict[str, np.ndarray | list[str]]:
-    """Read a CSV table with ``#`` comment lines before (or among) the rows.
-
-    Parameters
-    ----------
-    path : str or Path
-        A UTF-8 text file: optional ``#`` comment lines, one header row of column names,
-        then data rows. Nothing in the file is executed.
-
-    Returns
-    -------
-    dict
-        Column name -> float array when every entry parses as a number, else a list of the
-        raw strings. Column order follows the header.
-
-    Raises
-    ------
-    InputError
-        When the file is missing, has no header, or a row has the wrong number of fields.
-    """
-    path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise InputError(f"cannot read table: {exc.strerror or exc}", file=path) from None
-    rows: list[tuple[int, list[str]]] = []
-    for lineno, raw in enumerate(text.splitlines(), start=1):
-        stripped = raw.strip()
-        if not stripped or stripped.startswith("#"):
-            continue
-        fields = next(csv.reader([raw]))
-        rows.append((lineno, [f.strip() for f in fields]))
-    if not rows:
-        raise InputError("table has no header row", file=path)
-    header_line, header = rows[0]
-    if len(set(header)) != len(header):
-        raise InputError("duplicate column names in the header", file=path, line=header_line)
-    columns: dict[str, list[str]] = {name: [] for name in header}
-    for lineno, fields in rows[1:]:
-        if len(fields) != len(header):
-            raise InputError(f"row has {len(fields)} fields, the header has {len(header)}",
-                             file=path, line=lineno)
-        for name, value in zip(header, fields, strict=True):
-            columns[name].append(value)
-    out: dict[str, np.ndarray | list[str]] = {}
-    for name, values in columns.items():
-        try:
-            out[name] = np.array([float(v) for v in values], dtype=float)
-        except ValueError:
-            out[name] = values
-    return out
 
 
 @dataclass(frozen=True)
@@ -121,7 +68,8 @@ def euvac_table() -> dict[str, np.ndarray]:
         ``F74113_photons_cm2_s`` (photons cm-2 s-1) and ``A_i`` (per F10.7 unit),
         each an array of shape (37,). The arrays are read-only.
     """
-    raw = read_commented_csv(EUVAC_TABLE_PATH)
+    header, data, _ = read_csv_columns(EUVAC_TABLE_PATH)
+    raw = dict(zip(header, data.T, strict=True))
     table = {
         "bin": np.asarray(raw["bin"], dtype=int),
         "wl_lo_A": np.asarray(raw["wl_lo_A"], dtype=float),

@@ -96,11 +96,14 @@ def steady_dataset(model, res):
     loss = np.zeros_like(dens)
     prod[:, :len(keep)] = P[:, keep]
     loss[:, :len(keep)] = L[:, keep]
-    for t, tot in enumerate(mech.derived):
+    stoich = np.zeros((len(names), len(model.reactions)))
+    stoich[:len(keep)] = mech.nu_all[keep]
+    for tot in mech.derived:
         # A total's production and loss exclude the exchanges among its members.
         members = [mech.index(m) for m in tot.members]
         nu = mech.nu_all[members].sum(axis=0)
         col = names.index(tot.name)
+        stoich[col] = nu
         prod[:, col] = rates @ np.clip(nu, 0, None)
         loss[:, col] = rates @ np.clip(-nu, 0, None)
     from ionochem.solve.steady import METHOD_NAMES
@@ -118,6 +121,9 @@ def steady_dataset(model, res):
                                   "long_name": "rate coefficient"}),
             "reaction_rate": (("reaction", "altitude"), rates.T,
                               {"units": "cm-3 s-1", "long_name": "volume reaction rate"}),
+            "net_stoichiometry": (("species", "reaction"), stoich,
+                                  {"units": "1", "long_name": "net stoichiometric coefficient "
+                                   "(products minus reactants)"}),
             "residual": ("altitude", res.residual,
                          {"units": "1", "long_name": "largest relative residual "
                           "|f_i|/(P_i+L_i) of the steady state"}),

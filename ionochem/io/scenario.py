@@ -285,11 +285,12 @@ class Output:
 
     Attributes
     ----------
-    budget : tuple of (str, float)
-        Production/loss budgets to report, as (species name, altitude in km).
+    budget : tuple of str
+        Production/loss budgets to report, each ``"SPECIES@KM"`` as written (checked with
+        :func:`parse_budget`; the altitude lies within the grid).
     """
 
-    budget: tuple[tuple[str, float], ...] = ()
+    budget: tuple[str, ...] = ()
 
 
 #: Profile tables a scenario can name: scenario key -> (section attribute, field).
@@ -470,8 +471,8 @@ class Scenario:
             out[key] = self.read_table(key, columns, nonnegative=nonneg)
         if "neutrals.table" in out and "Tn_K" not in out["neutrals.table"]:
             present = ", ".join(["altitude_km", *out["neutrals.table"]])
-            raise self.error(f"{self.neutrals.table.name}: missing column Tn_K (the neutral "
-                             f"temperature, K); the table has: {present}",
+            raise self.error(f"{self.neutrals.table.name}: the neutral table has no Tn_K "
+                             f"column (the neutral temperature, K); it has: {present}",
                              key="neutrals.table")
         return out
 
@@ -1003,13 +1004,13 @@ class _Validator:
             for item in items:
                 self.string(item, bkey)
                 try:
-                    species, km = parse_budget(item)
+                    _, km = parse_budget(item)
                 except ValueError as exc:
                     raise self.fail(bkey, str(exc)) from None
                 if not lo - 1e-9 <= km <= hi + 1e-9:
                     raise self.fail(bkey, f"{item!r}: {km:g} km is outside the grid "
                                           f"({lo:g} to {hi:g} km)")
-                budget.append((species, km))
+                budget.append(item.strip())
         return Output(budget=tuple(budget))
 
 

@@ -16,15 +16,12 @@ from __future__ import annotations
 
 import hashlib
 import re
-import unicodedata
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from ionochem.errors import ReactionListError
 from ionochem.mechanism.expressions import CompiledExpr, compile_expression
 from ionochem.mechanism.species import (
-    PHOTON,
-    THIRD_BODY,
     Species,
     format_elements,
     parse_species,
@@ -192,24 +189,23 @@ class ReactionList:
 
 # --------------------------------------------------------------------------- lines
 
+_BAD_CHAR = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u2028\u2029"
+                       "\ud800-\udfff\ufffe\uffff]|\r(?!\n)")
+
+
 def _check_characters(text: str, path: str) -> None:
-    for i, ch in enumerate(text):
-        if ch in "\t\n":
-            continue
-        bad = None
-        if ch == "\x00":
-            bad = "a NUL byte (U+0000); a reaction list is plain text"
-        elif ch == "\r":
-            if text[i + 1:i + 2] == "\n":
-                continue
-            bad = "a carriage return (U+000D) that does not end a line"
-        else:
-            cat = unicodedata.category(ch)
-            if cat in ("Cc", "Cs", "Zl", "Zp") or ch in "\ufffe\uffff":
-                bad = f"the control character U+{ord(ch):04X}"
-        if bad is not None:
-            line = text.count("\n", 0, i) + 1
-            raise ReactionListError(f"contains {bad}", file=path, line=line)
+    m = _BAD_CHAR.search(text)
+    if m is None:
+        return
+    ch = m.group(0)
+    if ch == "\x00":
+        bad = "a NUL byte (U+0000); a reaction list is plain text"
+    elif ch == "\r":
+        bad = "a carriage return (U+000D) that does not end a line"
+    else:
+        bad = f"the control character U+{ord(ch):04X}; a reaction list is plain text"
+    line = text.count("\n", 0, m.start()) + 1
+    raise ReactionListError(f"contains {bad}", file=path, line=line)
 
 
 def _strip_comment(line: str) -> str:
@@ -230,6 +226,8 @@ def _entries(text: str, path: str):
     buf: list[str] = []
     start = 0
     lines = text.split("\n")
+    if lines and lines[-1] == "":
+        lines.pop()  # the newline that ends the last line
     for number, raw in enumerate(lines, start=1):
         body = _strip_comment(raw.removesuffix("\r")).rstrip()
         if buf and not body.strip() and not body.endswith("\\"):
@@ -419,9 +417,23 @@ def _parse_fields(fields: list[str], ctx: _Context) -> dict[str, object]:
     return out
 
 
-def _compile(text, ctx: _Context, level, what):
-    expr = compile_expression(text, file=ctx.path, line=ctx.line, base_dir=ctx.base_dir,
-                              level=level)
+def _compile_raw(text, ctx: _Context, level, what) -> CompiledExpr:
+    try:
+        return compile_expression(text, file=ctx.path, line=ctx.line, base_dir=ctx.base_dir,
+                                  level=level)
+    except ReactionListError as exc:
+        prefix = "in expression: "
+        if exc.message.startswith(prefix):
+            raise ReactionListError(f"in {what}: {exc.message[len(prefix):]}",
+                                    file=exc.file, line=exc.line) from None
+        raise
+
+
+def _compile(text, ctx: _Context, level, what) -> CompiledExpr:
+    return _validate(_compile_raw(text, ctx, level, what), ctx, level, what)
+
+
+def _validate(expr: CompiledExpr, ctx: _Context, level, what) -> CompiledExpr:
     if expr.value is not None:
         if what == "k" and expr.value < 0:
             ctx.fail(f"k = {expr.value:g} is negative")
@@ -430,7 +442,8 @@ def _compile(text, ctx: _Context, level, what):
     if what != "k" and expr.source is not None:
         ctx.fail(f"'{expr.source}' can only be used in k")
     if level is None and "v" in expr.variables:
-        ctx.fail(f"{what} uses the family level v, but this reaction is not a family")
+        ctx.fail(f"{what} uses the family level v, but this reaction is not a family"
+                 if what != "@default f" else "'@default f' cannot use the family level v")
     return expr
 
 
@@ -463,7 +476,8 @@ class _Reader:
         value = m.group(2).strip()
         if not value:
             ctx.fail("'@default f' has no expression")
-        self.default_f = _compile(value, ctx, None, "f")
+        expr = _compile(value, ctx, None, "@default f")
+        self.default_f = _validate(expr, ctx, None, "f")
         self.default_line = ctx.line
 
     def entry(self, text: str):
@@ -510,10 +524,9 @@ class _Reader:
         shared: dict[str, CompiledExpr | None] = {}
         for name in ("k", "f"):
             if name in opts:
-                expr = compile_expression(opts[name], file=ctx.path, line=ctx.line,
-                                          base_dir=ctx.base_dir, level=None)
-                shared[name] = None if "v" in expr.variables else _compile(
-                    opts[name], ctx, a, name)
+                expr = _compile_raw(opts[name], ctx, None, name)
+                shared[name] = None if "v" in expr.variables else _validate(
+                    expr, ctx, None, name)
         for level in range(a, b + 1):
             member = f"{plain}(v={level})"
             ids.append(member)
@@ -562,7 +575,6 @@ def _warnings(reactions, path) -> list[ReactionWarning]:
 
 
 def _parse(text: str, path: str, base_dir: Path, digest: str) -> ReactionList:
-    _check_characters(text, path)
     text = text.removeprefix("\ufeff")
     reader = _Reader(path, base_dir)
     for number, entry in _entries(text, path):
@@ -643,5 +655,6 @@ def parse_reaction_list(path) -> ReactionList:
         raise ReactionListError(f"not valid UTF-8 (byte 0x{data[exc.start]:02x} at column "
                                 f"{col}); reaction lists are UTF-8 text",
                                 file=name, line=line) from None
+    _check_characters(text, name)
     digest = hashlib.sha256(data).hexdigest()
     return _parse(text, name, p.parent, digest)

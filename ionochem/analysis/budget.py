@@ -1,0 +1,64 @@
+"""Production and loss budget of one species at one altitude, ranked with shares.
+
+Users read these to see why a density, or a sensitivity, is what it is. Works on a result
+dataset alone (``reaction_rate`` and ``net_stoichiometry``), so it applies to files written
+earlier too.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ionochem.errors import InputError
+
+
+@dataclass
+class Budget:
+    species: str
+    altitude_km: float
+    density: float
+    production: list      # (reaction id, equation, rate cm-3 s-1, share %)
+    loss: list
+
+
+def budget_table(ds, species: str, altitude_km: float) -> Budget:
+    """Rank the reactions producing and destroying ``species`` at the level nearest
+    ``altitude_km``; shares are percentages of the gross production or loss."""
+    names = list(ds["species"].values)
+    if species not in names:
+        raise InputError(f"budget: no species {species!r} in the result "
+                         f"(species: {', '.join(names)})", file="--budget")
+    alt = ds["altitude"].values
+    if not alt.min() - 1e-9 <= altitude_km <= alt.max() + 1e-9:
+        raise InputError(f"budget: {altitude_km:g} km is outside the grid "
+                         f"{alt.min():g}-{alt.max():g} km", file="--budget")
+    a = int(np.argmin(np.abs(alt - altitude_km)))
+    nu = ds["net_stoichiometry"].sel(species=species).values
+    rate = ds["reaction_rate"].values[:, a]
+    contrib = nu * rate
+    ids = list(ds["reaction"].values)
+    eqs = list(ds["equation"].values)
+
+    def ranked(mask, values):
+        total = values[mask].sum()
+        order = [j for j in np.argsort(-values) if mask[j] and values[j] > 0]
+        return [(ids[j], eqs[j], float(values[j]),
+                 100.0 * float(values[j]) / total if total > 0 else 0.0) for j in order]
+
+    return Budget(species, float(alt[a]), float(ds["density"].sel(species=species).values[a]),
+                  ranked(contrib > 0, contrib), ranked(contrib < 0, -contrib))
+
+
+def format_budget(b: Budget, top: int = 10) -> str:
+    lines = [f"budget of {b.species} at {b.altitude_km:g} km (density {b.density:.3e} cm-3)"]
+    for title, rows in (("production", b.production), ("loss", b.loss)):
+        total = sum(r[2] for r in rows)
+        lines.append(f"  {title}: {total:.3e} cm-3 s-1")
+        for rid, eq, val, share in rows[:top]:
+            lines.append(f"    {share:6.2f} %  {val:10.3e}  {rid:<14} {eq}")
+        if len(rows) > top:
+            rest = sum(r[3] for r in rows[top:])
+            lines.append(f"    {rest:6.2f} %  ({len(rows) - top} more)")
+    return "\n".join(lines)

@@ -1,0 +1,227 @@
+"""The engine against analytic solutions and independent solvers (scipy).
+
+All columns here are synthetic, with invented rates and densities.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import scipy.optimize
+from scipy.integrate import solve_ivp
+
+import ionochem
+
+ALT = np.linspace(100.0, 300.0, 21)
+Q = 50.0 * np.exp((ALT - 100.0) / 80.0)          # invented production, cm-3 s-1
+TE = np.linspace(250.0, 2500.0, ALT.size)
+
+
+ONE_ION = """\
+P1: O -> O+ + e | k = prescribed | ref = invented test
+R1: O+ + e -> O | k = 2.0e-7*(300/Te)^0.7 | ref = invented test
+"""
+
+
+def _one_ion(column):
+    return column(ONE_ION, ALT, neutrals={"O": 1e10 * np.exp(-(ALT - 100) / 50)},
+                  Tn=np.linspace(200, 1000, ALT.size), Te=TE, production={"P1": Q})
+
+
+def test_one_ion_steady_state_is_sqrt_q_over_alpha(column):
+    """n = sqrt(q/α(Te)) at every level to 1e-8 (analytic balance q = α n²)."""
+    ds = ionochem.Model(ionochem.load_scenario(_one_ion(column))).solve()
+    alpha = 2.0e-7 * (300 / TE) ** 0.7
+    n = ds["density"].sel(species="O+").values
+    np.testing.assert_allclose(n, np.sqrt(Q / alpha), rtol=1e-8)
+    np.testing.assert_array_equal(ds["density"].sel(species="e").values, n)
+
+
+def test_one_ion_transient_follows_tanh(column):
+    """From zero, n(t) = sqrt(q/α) tanh(sqrt(qα) t) to 1e-5 (analytic solution of
+    dn/dt = q − α n²)."""
+    model = ionochem.Model(ionochem.load_scenario(_one_ion(column)))
+    alpha = 2.0e-7 * (300 / TE) ** 0.7
+    times = np.array([0.5, 2.0, 10.0, 60.0, 300.0])
+    ds = model.integrate(times, rtol=1e-10, atol=1e-8)
+    n = ds["density"].sel(species="O+").values            # (time, altitude)
+    exact = np.sqrt(Q / alpha)[None] * np.tanh(np.sqrt(Q * alpha)[None] * times[:, None])
+    np.testing.assert_allclose(n, exact, rtol=1e-5)
+
+
+CHAIN = """\
+# a chain of six ions: production of A+, charge transfer down the chain, recombination
+P1: N2 -> N2+ + e | k = prescribed | ref = invented test
+C1: N2+ + O -> O+ + N2 | k = 1.0e-10 | ref = invented test
+C2: O+ + O2 -> O2+ + O | k = 2.0e-11*(300/Teff)^0.5 | ref = invented test
+C3: O+ + N2 -> NO+ + N | k = 1.2e-12 | ref = invented test
+C4: N2+ + O2 -> O2+ + N2 | k = 5.0e-11*(300/Teff) | ref = invented test
+C5: O2+ + NO -> NO+ + O2 | k = 4.4e-10 | ref = invented test
+C6: O2+ + N -> NO+ + O | k = 1.2e-10 | ref = invented test
+C7: O+ + H -> H+ + O | k = 6.0e-10 | ref = invented test
+C8: H+ + O -> O+ + H | k = 5.3e-10 | ref = invented test
+D1: N2+ + e -> N + N | k = 2.2e-7*(300/Te)^0.39 | ref = invented test
+D2: O2+ + e -> O + O | k = 1.95e-7*(300/Te)^0.7 | ref = invented test
+D3: NO+ + e -> N + O | k = 4.0e-7*(300/Te)^0.5 | ref = invented test
+D4: O+ + e -> O | k = 3.7e-12*(250/Te)^0.7 | ref = invented test
+D5: H+ + e -> H | k = 4.0e-12*(250/Te)^0.7 | ref = invented test
+"""
+
+
+def _chain_model(column):
+    h = np.exp(-(ALT - 100) / 40)
+    neutrals = {"N2": 1e13 * h, "O2": 2e12 * h ** 1.2, "O": 5e11 * np.exp(-(ALT - 100) / 60),
+                "NO": 1e8 * h, "N": 1e9 * h, "H": 1e6 * np.ones_like(ALT)}
+    path = column(CHAIN, ALT, neutrals=neutrals, Tn=np.linspace(200, 1000, ALT.size), Te=TE,
+                  Ti=np.linspace(200, 1200, ALT.size), production={"P1": 10 * Q})
+    return ionochem.Model(ionochem.load_scenario(path))
+
+
+def test_chain_newton_equals_scipy_root_and_long_integration(column):
+    """Newton's steady state equals scipy.optimize.root (hybr, same equations) and
+    scipy.integrate.solve_ivp (Radau) run to 1e7 s, to 1e-7 relative (independent solvers)."""
+    model = _chain_model(column)
+    ds = model.solve()
+    n = np.stack([ds["density"].sel(species=s).values for s in model.species], -1)
+    assert len(model.species) >= 5
+    for a in range(0, ALT.size, 5):
+        def f(x, a=a):
+            return model.tendency(_row(n, a, x))[a]
+
+        root = scipy.optimize.root(f, n[a] * 1.3, method="hybr", options={"xtol": 1e-13})
+        assert root.success
+        np.testing.assert_allclose(root.x, n[a], rtol=1e-7)
+
+        def rhs(t, y, a=a):
+            return model.tendency(_row(n, a, y))[a]
+
+        sol = solve_ivp(rhs, (0, 1e7), np.zeros(n.shape[1]), method="Radau", rtol=1e-11,
+                        atol=1e-10, jac=lambda t, y, a=a: model.jacobian(_row(n, a, y))[a])
+        np.testing.assert_allclose(sol.y[:, -1], n[a], rtol=1e-7)
+
+
+def _row(n, a, x):
+    full = n.copy()
+    full[a] = x
+    return full
+
+
+def test_analytic_jacobian_equals_central_differences(column):
+    """J = ∂f/∂n against central finite differences of the tendency, to 1e-6 relative to
+    the Jacobian's scale (numerical differentiation, independent of the analytic form)."""
+    model = _chain_model(column)
+    rng = np.random.default_rng(1)
+    n = 10 ** rng.uniform(1, 5, size=(ALT.size, len(model.species)))
+    J = model.jacobian(n)
+    fd = np.zeros_like(J)
+    for j in range(n.shape[1]):
+        h = 1e-6 * n[:, j]
+        up, dn = n.copy(), n.copy()
+        up[:, j] += h
+        dn[:, j] -= h
+        fd[:, :, j] = (model.tendency(up) - model.tendency(dn)) / (2 * h[:, None])
+    scale = np.abs(J).max(axis=(1, 2), keepdims=True)
+    np.testing.assert_allclose(J / scale, fd / scale, atol=1e-6)
+
+
+def test_electrons_equal_charge_weighted_ion_sum(column):
+    """Ne = Σ q_i n_i to 1e-12 (charge neutrality, DESIGN.md §4)."""
+    model = _chain_model(column)
+    ds = model.solve()
+    ions = [s for s in model.species if s.endswith("+")]
+    total = sum(ds["density"].sel(species=s).values for s in ions)
+    np.testing.assert_allclose(ds["density"].sel(species="e").values, total, rtol=1e-12)
+
+
+FAMILY = """\
+P1(v): N2 -> N2+(v) + e | k = prescribed | levels v = 0..2 | ref = invented test
+C1(v): N2+(v) + O -> NO+ + N | k = 1.4e-10*(300/Teff)^0.44 | levels v = 0..2 | ref = invented
+D1(v): N2+(v) + e -> N + N | k = 2.2e-7*(300/Te)^0.39 | levels v = 0..2 | ref = invented test
+D2: NO+ + e -> N + O | k = 4.0e-7*(300/Te)^0.5 | ref = invented test
+"""
+
+UNRESOLVED = """\
+P1: N2 -> N2+ + e | k = prescribed | ref = invented test
+C1: N2+ + O -> NO+ + N | k = 1.4e-10*(300/Teff)^0.44 | ref = invented test
+D1: N2+ + e -> N + N | k = 2.2e-7*(300/Te)^0.39 | ref = invented test
+D2: NO+ + e -> N + O | k = 4.0e-7*(300/Te)^0.5 | ref = invented test
+"""
+
+
+def test_family_with_identical_rates_sums_to_unresolved_species(column):
+    """Σ_v N2+(v) equals the unresolved N2+ to 1e-10 when every level has the total rates
+    (exact: the summed equations are the unresolved ones)."""
+    neutrals = {"N2": 1e12 * np.exp(-(ALT - 100) / 40), "O": 1e11 * np.ones_like(ALT),
+                "N": 1e8 * np.ones_like(ALT)}
+    common = dict(neutrals=neutrals, Tn=np.linspace(200, 1000, ALT.size), Te=TE)
+    fam = column(FAMILY, ALT, production={"P1(v=0)": 0.5 * Q, "P1(v=1)": 0.3 * Q,
+                                          "P1(v=2)": 0.2 * Q},
+                 name="fam", **common)
+    unr = column(UNRESOLVED, ALT, production={"P1": Q}, name="unr", **common)
+    ds_f = ionochem.Model(ionochem.load_scenario(fam)).solve()
+    ds_u = ionochem.Model(ionochem.load_scenario(unr)).solve()
+    assert ds_f["role"].sel(species="N2+").item() == "derived"
+    np.testing.assert_allclose(ds_f["density"].sel(species="N2+").values,
+                               ds_u["density"].sel(species="N2+").values, rtol=1e-10)
+    np.testing.assert_allclose(ds_f["density"].sel(species="NO+").values,
+                               ds_u["density"].sel(species="NO+").values, rtol=1e-10)
+
+
+def test_dark_levels_solve_to_zero(column):
+    """Levels with no production at all give zero ion densities without error."""
+    q = np.where(ALT < 150, 0.0, Q)
+    path = column(ONE_ION, ALT, neutrals={"O": 1e10 * np.ones_like(ALT)}, Tn=500.0, Te=TE,
+                  production={"P1": q})
+    ds = ionochem.Model(ionochem.load_scenario(path)).solve()
+    n = ds["density"].sel(species="O+").values
+    assert np.all(n[ALT < 150] == 0.0)
+    alpha = 2.0e-7 * (300 / TE) ** 0.7
+    np.testing.assert_allclose(n[ALT >= 150], np.sqrt(q / alpha)[ALT >= 150], rtol=1e-8)
+
+
+def test_produced_but_never_lost_species_is_refused(column):
+    """A solved species with production and no loss is an error telling the user to fix it."""
+    text = ONE_ION + "X1: O+ + e -> O | k = 1e-12 | ref = invented\n" \
+        "X2: O+ + N2 -> NO+ + N | k = 1e-12 | ref = invented\n"
+    path = column(text, ALT, neutrals={"O": 1e10 * np.ones_like(ALT),
+                                       "N2": 1e10 * np.ones_like(ALT)},
+                  Tn=500.0, production={"P1": Q})
+    with pytest.raises(ionochem.MechanismError, match="never lost.*fixed"):
+        ionochem.Model(ionochem.load_scenario(path))
+
+
+def test_electron_table_mode_balances_ion(column, tmp_path):
+    """With Ne given, O+ = Ne − other ions and the others are in equilibrium at that Ne
+    (checked against the closed-form N2+ balance q = (k_C[O] + α Ne) n)."""
+    ne = 1e5 * np.ones_like(ALT)
+    (tmp_path / "ne.csv").write_text("altitude_km,Ne\n" + "\n".join(
+        f"{a},{v}" for a, v in zip(ALT, ne)) + "\n")
+    text = UNRESOLVED + "D4: O+ + e -> O | k = 3.7e-12 | ref = invented\n" \
+        "C9: O+ + N2 -> NO+ + N | k = 1e-12 | ref = invented\n"
+    neutrals = {"N2": 1e12 * np.exp(-(ALT - 100) / 40), "O": 1e11 * np.ones_like(ALT),
+                "N": 1e8 * np.ones_like(ALT)}
+    path = column(text, ALT, neutrals=neutrals, Tn=600.0, Te=TE, production={"P1": Q},
+                  extra='[solve]\nelectrons = "table"\nelectron_table = "ne.csv"\n')
+    model = ionochem.Model(ionochem.load_scenario(path))
+    ds = model.solve()
+    d = ds["density"]
+    kc = 1.4e-10 * (300 / 600.0) ** 0.44
+    alpha = 2.2e-7 * (300 / TE) ** 0.39
+    np.testing.assert_allclose(d.sel(species="N2+").values,
+                               Q / (kc * neutrals["O"] + alpha * ne), rtol=1e-9)
+    others = d.sel(species="N2+").values + d.sel(species="NO+").values
+    np.testing.assert_allclose(d.sel(species="O+").values, ne - others, rtol=1e-12)
+    assert ds["role"].sel(species="O+").item() == "balance"
+
+
+def test_with_changes_scales_and_replaces_rates(column):
+    """Halving recombination raises n by sqrt(2) (analytic n = sqrt(q/α)); a replaced
+    expression is used as written."""
+    model = ionochem.Model(ionochem.load_scenario(_one_ion(column)))
+    base = model.solve()["density"].sel(species="O+").values
+    half = model.with_changes(scale={"R1": 0.5}).solve()["density"].sel(species="O+").values
+    np.testing.assert_allclose(half / base, np.sqrt(2.0), rtol=1e-8)
+    const = model.with_changes({"R1": "1e-7"}).solve()["density"].sel(species="O+").values
+    np.testing.assert_allclose(const, np.sqrt(Q / 1e-7), rtol=1e-8)
+    with pytest.raises(ionochem.InputError):
+        model.with_changes(scale={"NOPE": 2.0})
