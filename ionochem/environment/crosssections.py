@@ -100,7 +100,7 @@ reactions; fluxes are at 1 AU until the caller scales them (:meth:`Spectrum.scal
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 from types import MappingProxyType
@@ -216,8 +216,10 @@ def _bin_average(wl_lo_A, wl_hi_A, func, samples: int = 201) -> np.ndarray:
     """Average ``func(wavelength_A)`` over each bin (flat flux in wavelength); a line is
     evaluated at its wavelength."""
     t = np.linspace(0.0, 1.0, samples)
+    w = np.full(samples, 1.0 / (samples - 1))
+    w[[0, -1]] *= 0.5  # trapezoid weights on [0, 1]
     wl = wl_lo_A[:, None] + (wl_hi_A - wl_lo_A)[:, None] * t[None, :]
-    return np.trapezoid(func(wl), t, axis=-1)
+    return func(wl) @ w
 
 
 @dataclass(frozen=True)
@@ -245,7 +247,6 @@ class Spectrum:
     sigma_abs_cm2: Mapping[str, np.ndarray]
     sigma_channel_cm2: Mapping[str, np.ndarray]
     source: str = ""
-    _frozen: bool = field(default=True, repr=False, compare=False)
 
     def __post_init__(self):
         lo = np.array(self.wl_lo_A, dtype=float)

@@ -47,7 +47,7 @@ _FIELDS = ("k", "f", "ref", "levels")
 
 
 class ReactionWarning(str):
-    """A warning about a reaction list: the text ``"file:line: warning: message"``.
+    """A warning about a reaction list: the text ``"file:line: message"``.
 
     Attributes ``file``, ``line`` and ``message`` hold the parts.
     """
@@ -58,7 +58,7 @@ class ReactionWarning(str):
 
     def __new__(cls, message: str, file, line):
         where = str(file) if line is None else f"{file}:{line}"
-        self = super().__new__(cls, f"{where}: warning: {message}")
+        self = super().__new__(cls, f"{where}: {message}")
         self.file = str(file)
         self.line = line
         self.message = message
