@@ -683,9 +683,10 @@ class _Validator:
     def file(self, value, key: str) -> Path:
         """A path to an existing file, resolved against the scenario's folder."""
         self.string(value, key)
-        p = Path(value)
+        p = Path(value).expanduser()
         if not p.is_absolute():
             p = self.base / p
+        p = p.resolve()
         if not p.exists():
             raise self.fail(key, f"file not found: {value} (looked for {p})")
         if not p.is_file():

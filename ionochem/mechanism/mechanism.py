@@ -135,6 +135,12 @@ class Mechanism:
             E[S, :] = -q / qb                        # n_b = (Ne - sum_i q_i n_i) / q_b
         self.E = E
         self._n_given = len(self.given)
+        # Jacobian kernel: J[b, i, j] = Σ_m Σ_r ∂r_r/∂n_slot(m) · ν[i, r] · E[slot(m, r), j],
+        # stored as G[(m, r), (i, j)] so the Jacobian of every level is one matrix product.
+        G = np.zeros((MAX_REACTANT_SLOTS, R, S, S))
+        for m in range(MAX_REACTANT_SLOTS):
+            G[m] = self.nu.T[:, :, None] * E[slots[:, m]][:, None, :]
+        self._G = G.reshape(MAX_REACTANT_SLOTS * R, S * S)
 
         self.derived = self._derived_totals()
 
@@ -260,9 +266,13 @@ class Mechanism:
         through their affine dependence on the solved densities.
         """
         n_all = self.full_densities(n, given)
-        D = self.rate_derivatives(k, n_all)          # (B, R, N+1)
-        DE = D @ self.E                              # (B, R, S)
-        return np.einsum("ir,brj->bij", self.nu, DE, optimize=True)
+        vals = [n_all[:, self.slots[:, m]] for m in range(MAX_REACTANT_SLOTS)]
+        partial = np.empty((k.shape[0], MAX_REACTANT_SLOTS, k.shape[1]))
+        partial[:, 0] = k * vals[1] * vals[2]
+        partial[:, 1] = k * vals[0] * vals[2]
+        partial[:, 2] = k * vals[0] * vals[1]
+        S = len(self.solved)
+        return (partial.reshape(k.shape[0], -1) @ self._G).reshape(-1, S, S)
 
     def rate_sensitivity_columns(self, n, k, given):
         """∂f/∂ln k_j = ν_j r_j for every reaction, shape (B, S, R)."""

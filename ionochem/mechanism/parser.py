@@ -345,12 +345,12 @@ def _parse_side(text: str, side: str, level: int | None, ctx: _Context):
         if sp.is_photon and side == "left":
             ctx.fail("hv on the left: write a photo process as 'O -> O+ + e | k = photo' "
                      "(the photon is implied by k = photo)")
-        if sp.is_third_body and count != 1:
-            ctx.fail("M (third body) may appear only once on a side")
         if sp.name in merged:
             merged[sp.name][1] += count
         else:
             merged[sp.name] = [sp, count]
+        if sp.is_third_body and merged[sp.name][1] != 1:
+            ctx.fail("M (third body) may appear only once on a side")
     return tuple((sp, n) for sp, n in merged.values() if not sp.is_photon)
 
 

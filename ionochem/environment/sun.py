@@ -1,0 +1,177 @@
+"""The sun over the column: zenith angle, attenuated EUV, photo and photoelectron rates.
+
+:class:`SunColumn` joins the pieces of this stage — solar geometry (``geometry``), the
+photon spectrum and cross sections (``euvac``, ``crosssections``), slant columns through
+spherical shells (``slant``), photo frequencies (``photorates``) and photoelectron impact
+(``secondary``) — into per-channel rates on the grid at any time of a run.
+
+For transient runs the rates are computed on a time lattice (every ``lattice_s`` seconds)
+and interpolated linearly in between, so the stiff integrator sees a continuous right-hand
+side and each lattice node is computed once.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ionochem.errors import ScenarioError
+
+#: Spacing of the time lattice of photo rates in transient runs, s (a choice: the zenith
+#: angle changes by at most 0.125° in 30 s).
+LATTICE_S = 30.0
+
+
+def _extend_down(alt, dens):
+    """Continue a tabulated profile exponentially down to 0 km for rays past 90°.
+
+    Each species keeps the scale height of its two lowest nodes (clamped to 1–100 km), a
+    documented approximation used only for the part of grazing rays below the table.
+    """
+    if alt[0] <= 0.0:
+        return alt, dens
+    new = np.arange(0.0, alt[0], 1.0)
+    out = {}
+    for k, n in dens.items():
+        n = np.asarray(n, float)
+        if n.size > 1 and n[0] > 0 and n[1] > 0 and n[1] != n[0]:
+            H = np.clip((alt[1] - alt[0]) / np.log(n[0] / n[1]), 1.0, 100.0)
+        else:
+            H = 100.0
+        out[k] = np.concatenate([n[0] * np.exp((alt[0] - new) / H), n])
+    return np.concatenate([new, alt]), out
+
+
+class SunColumn:
+    """Photo and photoelectron rates of a scenario's column at any time.
+
+    Parameters
+    ----------
+    scenario : Scenario
+    env : Environment
+        The column being built (grid and neutrals).
+    needs : set of str
+        Channel keys the mechanism asks for (``"photo:O->O+"``, ``"photoelectron:…"``).
+    profile : NeutralProfile or None
+        NRLMSIS on an extended profile (None for tabulated neutrals).
+    """
+
+    def __init__(self, scenario, env, needs, profile=None):
+        from ionochem.environment.crosssections import load_user_spectrum, solar_spectrum
+        scenario.require("location", "time", reason="photo rates (k = photo reactions)")
+        self.scenario = scenario
+        self.warnings = []
+        self.grid = env.altitude_km
+        self.t0 = np.datetime64(scenario.time.utc.replace(tzinfo=None), "us")
+        self.lat = scenario.location.latitude_deg
+        self.lon = scenario.location.longitude_deg
+        photons = scenario.photons
+        if photons.flux == "table":
+            spectrum = load_user_spectrum(photons.spectrum, where="photons.spectrum",
+                                          scenario_file=scenario.source)
+        else:
+            scenario.require("sun", reason="the EUVAC solar flux")
+            kw = {}
+            if photons.lyman_alpha_photons_cm2_s is not None:
+                kw["lyman_alpha_photons_cm2_s"] = photons.lyman_alpha_photons_cm2_s
+            spectrum = solar_spectrum(scenario.sun.f107, scenario.sun.f107a, **kw)
+        self.spectrum = spectrum
+        self.photo_channels = sorted(n.split(":", 1)[1] for n in needs
+                                     if n.startswith("photo:"))
+        self.pe_channels = sorted(n.split(":", 1)[1] for n in needs
+                                  if n.startswith("photoelectron:"))
+        missing = [c for c in self.photo_channels if c not in spectrum.sigma_channel_cm2]
+        if missing:
+            raise ScenarioError(
+                f"the photon spectrum has no cross section for channel(s) "
+                f"{', '.join(missing)} used by k = photo reactions (it has "
+                f"{', '.join(sorted(spectrum.sigma_channel_cm2))})",
+                file=scenario.source, key="photons")
+        self.secondary = bool(photons.secondary)
+        absorbers = sorted(spectrum.sigma_abs_cm2)
+        if profile is not None:
+            alt = np.asarray(profile.altitude_km, float)
+            dens = {a: np.asarray(profile[a], float) for a in absorbers if a in profile}
+        else:
+            alt = env.altitude_km
+            dens = {a: env.neutrals[a] for a in absorbers if a in env.neutrals}
+            lacking = [a for a in ("O", "N2", "O2") if a not in dens]
+            if lacking:
+                self.warnings.append(
+                    f"{scenario.source}: neutrals.table: no {', '.join(lacking)} column; "
+                    "these absorbers are left out of the optical depth")
+            alt, dens = _extend_down(alt, dens)
+        self.profile_alt = alt
+        self.profile = dens
+        # Absorber densities on the grid, for photoelectron sharing.
+        self.local = {k: env.neutrals[k] for k in ("N2", "O2", "O") if k in env.neutrals}
+        self.time_dependent = scenario.solve.mode == "transient"
+        self._cache = {}
+
+    # ------------------------------------------------------------------ geometry
+    def _utc(self, time_s):
+        t = 0.0 if time_s is None else float(time_s)
+        return self.t0 + np.timedelta64(int(round(t * 1e6)), "us")
+
+    def zenith_deg(self, time_s=None):
+        """Geometric solar zenith angle (degrees) at ``time_s`` after the scenario time."""
+        from ionochem.environment.geometry import solar_zenith_angle_deg
+        return float(solar_zenith_angle_deg(self._utc(time_s), self.lat, self.lon))
+
+    # ------------------------------------------------------------------ rates
+    def _node(self, t):
+        """Rates at lattice time t (s): dict of channel → (altitude,), and dark mask."""
+        if t in self._cache:
+            return self._cache[t]
+        from ionochem.environment.geometry import flux_distance_factor
+        from ionochem.environment.photorates import photo_frequencies
+        from ionochem.environment.slant import slant_columns
+        chi = self.zenith_deg(t)
+        cols = slant_columns(self.grid, chi, self.profile_alt, self.profile)
+        spectrum = self.spectrum.scaled(float(flux_distance_factor(self._utc(t))))
+        dark = np.zeros(self.grid.size, bool)
+        for v in cols.values():
+            dark |= ~np.isfinite(v)
+        out = {}
+        J = photo_frequencies(spectrum, cols, channels=self.photo_channels)
+        for key, val in J.items():
+            out[f"photo:{key}"] = np.where(dark, 0.0, val)
+        if self.pe_channels:
+            pe = self._photoelectron(spectrum, cols)
+            for key in self.pe_channels:
+                if key not in pe:
+                    raise ScenarioError(
+                        f"no photoelectron-impact rate is known for channel {key} (known: "
+                        f"{', '.join(sorted(pe))})", file=self.scenario.source, key="photons")
+                out[f"photoelectron:{key}"] = np.where(dark, 0.0, pe[key])
+        self._cache[t] = (out, dark)
+        return out, dark
+
+    def _photoelectron(self, spectrum, cols):
+        from ionochem.environment.secondary import photoelectron_frequencies
+        if not self.secondary:
+            return {k: np.zeros(self.grid.size) for k in self.pe_channels} | \
+                {k: np.zeros(self.grid.size) for k in _PE_KEYS}
+        return photoelectron_frequencies(spectrum, cols, self.local)
+
+    def _at(self, time_s):
+        if time_s is None or not self.time_dependent:
+            return self._node(0.0)
+        t = float(time_s)
+        lo = np.floor(t / LATTICE_S) * LATTICE_S
+        if abs(t - lo) < 1e-9:
+            return self._node(lo)
+        a, da = self._node(lo)
+        b, db = self._node(lo + LATTICE_S)
+        w = (t - lo) / LATTICE_S
+        return {k: (1 - w) * a[k] + w * b[k] for k in a}, da & db
+
+    def sources(self, time_s=None):
+        """Channel key → rate per absorber molecule (s-1) on the grid."""
+        return self._at(time_s)[0]
+
+    def dark(self, time_s=None):
+        """True at levels the direct sunlight does not reach."""
+        return self._at(time_s)[1]
+
+
+_PE_KEYS = ("N2->N2+", "N2->N+", "O2->O2+", "O->O+", "O->O+(2D)", "O->O+(2P)", "N2->N(2D)+N")

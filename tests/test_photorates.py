@@ -1,0 +1,318 @@
+"""Photoabsorption cross sections, spectra and photo frequencies."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from ionochem.environment.crosssections import (
+    CHANNELS,
+    LYMAN_ALPHA_DEFAULT_PHOTONS_CM2_S,
+    Spectrum,
+    euvac_cross_sections,
+    load_user_spectrum,
+    solar_spectrum,
+    verner_cross_section_cm2,
+)
+from ionochem.environment.photorates import (
+    attenuated_flux,
+    photo_frequencies,
+    photoelectron_energies_eV,
+    unattenuated_frequencies,
+)
+from ionochem.errors import InputError, ScenarioError
+
+HC = 12398.42  # eV angstrom
+
+# --------------------------------------------------------------------------------------
+# (a) Chapman layer
+
+
+def _chapman_setup(chi_deg, *, H_km=40.0, step_km=2.0, sigma_abs=1e-17, eta=0.8):
+    """Isothermal single-absorber plane-parallel atmosphere, monochromatic sun."""
+    z_km = np.arange(0.0, 800.0 + step_km / 2, step_km)
+    H_cm = H_km * 1e5
+    n0 = 1e13
+    n = n0 * np.exp(-z_km / H_km)
+    column = n * H_cm / np.cos(np.radians(chi_deg))  # sec chi * n0 H exp(-z/H), analytic
+    spec = Spectrum(np.array([500.0]), np.array([500.0]), np.array([1e10]),
+                    {"X": np.array([sigma_abs])}, {"X->X+": np.array([eta * sigma_abs])},
+                    "monochromatic test sun (invented)")
+    return z_km, n, column, spec, H_cm, n0
+
+
+@pytest.mark.parametrize("chi_deg", [0.0, 30.0, 60.0])
+def test_chapman_peak_matches_analytic_layer(chi_deg):
+    """Chapman (1931), Proc. Phys. Soc. 43, 26: for an isothermal absorber the production
+    q = n eta sigma I exp(-tau) peaks where tau = 1, at z_m = H ln(n0 sigma H sec chi), with
+    q_max = eta I_inf / (e H sec chi). Grid step H/20."""
+    H_km, sigma, eta, flux = 40.0, 1e-17, 0.8, 1e10
+    z, n, col, spec, H_cm, n0 = _chapman_setup(chi_deg, H_km=H_km, step_km=H_km / 20,
+                                               sigma_abs=sigma, eta=eta)
+    q = n * photo_frequencies(spec, {"X": col})["X->X+"]
+    sec = 1.0 / np.cos(np.radians(chi_deg))
+    q_max = eta * flux / (np.e * H_cm * sec)
+    z_m = H_km * np.log(n0 * sigma * H_cm * sec)
+    i = int(np.argmax(q))
+    assert q[i] == pytest.approx(q_max, rel=0.01)
+    assert abs(z[i] - z_m) <= H_km / 20
+    tau = sigma * col[i]
+    assert abs(np.log(tau)) <= 1.0 / 20 + 1e-12  # tau = 1 within one grid step
+
+
+def test_chapman_profile_shape_over_the_whole_column():
+    """Chapman (1931): q(z)/q_max = exp(1 - y - exp(-y)), y = (z - z_m)/H, at every level of
+    a plane-parallel isothermal atmosphere (chi = 45 degrees)."""
+    H_km, sigma = 40.0, 1e-17
+    z, n, col, spec, H_cm, n0 = _chapman_setup(45.0, H_km=H_km, step_km=2.0, sigma_abs=sigma)
+    sec = np.sqrt(2.0)
+    q = n * photo_frequencies(spec, {"X": col})["X->X+"]
+    z_m = H_km * np.log(n0 * sigma * H_cm * sec)
+    y = (z - z_m) / H_km
+    expected = 0.8 * 1e10 / (np.e * H_cm * sec) * np.exp(1 - y - np.exp(-y))
+    assert np.allclose(q, expected, rtol=1e-9, atol=1e-300)
+
+
+# --------------------------------------------------------------------------------------
+# (b) unattenuated frequencies against Huebner, Keady & Lyon (1992)
+
+# Huebner, Keady & Lyon (1992), Astrophys. Space Sci. 195, 1, photoionization rate
+# coefficients at 1 AU (s-1) for the quiet and the active Sun *(from memory)*.
+HUEBNER_1992 = {
+    "O": (2.1e-7, 5.4e-7),
+    "N2": (3.5e-7, 8.3e-7),
+    "O2": (4.6e-7, 1.1e-6),
+}
+#: F10.7 = F10.7A used here for "quiet" (solar minimum) and "active" (solar maximum).
+F107_QUIET, F107_ACTIVE = 70.0, 200.0
+
+
+def _ion_totals(j):
+    return {"O": j["O->O+"] + j["O->O+(2D)"] + j["O->O+(2P)"], "N2": j["N2->N2+"],
+            "O2": j["O2->O2+"]}
+
+
+@pytest.mark.parametrize("species", ["O", "N2", "O2"])
+def test_unattenuated_ionization_frequencies_match_huebner_1992(species):
+    """EUVAC with F10.7 = F10.7A = 70 (quiet) and 200 (active) gives the photoionization
+    frequencies of O -> O+, N2 -> N2+ and O2 -> O2+ within +-40 % of Huebner, Keady & Lyon
+    (1992), Astrophys. Space Sci. 195, 1 (quiet/active Sun at 1 AU, values from memory),
+    and their active/quiet ratio within 40 %."""
+    spec = solar_spectrum([F107_QUIET, F107_ACTIVE], [F107_QUIET, F107_ACTIVE])
+    j = _ion_totals(unattenuated_frequencies(spec))[species]
+    quiet, active = HUEBNER_1992[species]
+    assert j[0] == pytest.approx(quiet, rel=0.4)
+    assert j[1] == pytest.approx(active, rel=0.4)
+    assert j[1] / j[0] == pytest.approx(active / quiet, rel=0.4)
+
+
+def test_no_ionization_by_lyman_alpha_is_sigma_times_flux():
+    """NO -> NO+ at the top of the atmosphere is sigma(1216) * F(Ly alpha) =
+    2.0e-18 cm2 * 4e11 photons cm-2 s-1 = 8e-7 s-1 (Watanabe 1954; Woods et al. 2000, the
+    default flux, from memory), independent of F10.7."""
+    for f107 in (70.0, 200.0):
+        j = unattenuated_frequencies(solar_spectrum(f107, f107))["NO->NO+"]
+        assert float(j) == pytest.approx(2.0e-18 * 4.0e11, rel=1e-12)
+    assert LYMAN_ALPHA_DEFAULT_PHOTONS_CM2_S == 4.0e11
+    j = unattenuated_frequencies(solar_spectrum(100, 100, lyman_alpha_photons_cm2_s=6e11))
+    assert float(j["NO->NO+"]) == pytest.approx(2.0e-18 * 6e11, rel=1e-12)
+
+
+def test_lyman_alpha_is_attenuated_by_o2_only():
+    """Beer-Lambert: an O2 slant column of 1e20 cm-2 with sigma(O2, 1216) = 1e-20 cm2
+    (Watanabe 1958, from memory) leaves exp(-1) of the Lyman alpha flux; N2 and O columns do
+    not absorb it."""
+    spec = solar_spectrum(100, 100)
+    top = float(unattenuated_frequencies(spec)["NO->NO+"])
+    j = photo_frequencies(spec, {"O2": np.array([1e20]), "N2": np.array([1e25]),
+                                 "O": np.array([1e25])})["NO->NO+"]
+    assert j[0] == pytest.approx(top * np.exp(-1.0), rel=1e-12)
+
+
+# --------------------------------------------------------------------------------------
+# (c) thresholds
+
+# SCIENCE.md section 4 thresholds (NIST ionization energies, from memory), eV.
+THRESHOLDS_EV = {
+    "O->O+": 13.62, "O->O+(2D)": 16.94, "O->O+(2P)": 18.64, "N2->N2+": 15.58,
+    "N2->N+": 24.3, "O2->O2+": 12.07, "O2->O+": 18.7, "NO->NO+": 9.26, "N->N+": 14.53,
+    "He->He+": 24.59,
+}
+
+
+def test_no_cross_section_longward_of_channel_threshold():
+    """SCIENCE.md section 4 (NIST thresholds): every channel of the default spectrum is zero
+    in every bin wholly longward of its threshold (a line beyond it, or a range bin whose
+    short edge is beyond it); a small tolerance of 2 angstrom covers the rounding of the
+    thresholds quoted there."""
+    spec = solar_spectrum(150, 150)
+    checked = 0
+    for key, e_th in THRESHOLDS_EV.items():
+        lam = HC / e_th + 2.0
+        beyond = spec.wl_lo_A > lam
+        sigma = spec.sigma_channel_cm2[key]
+        assert np.all(sigma[beyond] == 0), key
+        assert np.any(sigma[~beyond] > 0), key  # the channel is not empty
+        checked += beyond.sum()
+    assert checked > 50
+
+
+def test_channel_thresholds_agree_with_science_md():
+    """The channel thresholds used in code equal SCIENCE.md section 4 to the digits quoted
+    there (NIST ionization energies)."""
+    for key, e_th in THRESHOLDS_EV.items():
+        assert CHANNELS[key].threshold_eV == pytest.approx(e_th, abs=0.051), key
+
+
+def test_user_spectrum_with_partial_ionization_below_threshold_is_rejected(tmp_path):
+    """A user spectrum giving O -> O+(2D) (threshold 16.94 eV, 732 angstrom) at 800
+    angstrom breaks SCIENCE.md section 4 and must be an input error naming the column."""
+    p = tmp_path / "s.csv"
+    p.write_text("wl_lo_A,wl_hi_A,photons_cm2_s,sigma_abs_O,sigma_ion_O->O+(2D)\n"
+                 "800,850,1e9,4,1\n")
+    with pytest.raises(InputError, match=r"O->O\+\(2D\)"):
+        load_user_spectrum(p)
+
+
+# --------------------------------------------------------------------------------------
+# cross-section table properties
+
+
+def test_o_plus_states_add_up_to_o_total():
+    """The folded O+(4S), O+(2D), O+(2P) channels (4P into 4S, 2P* shared) conserve the
+    Fennelly & Torr (1992) total O photoionization cross section in every bin."""
+    sigma_abs, sigma = euvac_cross_sections()
+    total = sigma["O->O+"] + sigma["O->O+(2D)"] + sigma["O->O+(2P)"]
+    assert np.allclose(total, sigma_abs["O"], rtol=1e-12, atol=0)
+
+
+def test_n2_channels_add_up_to_n2_absorption():
+    """N2 absorption = N2+ + N+ + neutral dissociation (the dissociation cross section is
+    defined as the remainder and must not be negative; Fennelly & Torr 1992 totals)."""
+    sigma_abs, sigma = euvac_cross_sections()
+    dis = sigma["N2->N(2D)+N"]
+    assert np.all(dis >= 0)
+    assert np.allclose(sigma["N2->N2+"] + sigma["N2->N+"] + dis, sigma_abs["N2"], atol=1e-30)
+    # Below the N2 ionization threshold (796 angstrom) every absorbed photon dissociates.
+    bins = np.arange(37)
+    assert np.all(dis[bins[29:34]] == sigma_abs["N2"][29:34])
+
+
+def test_o2_channels_do_not_exceed_absorption():
+    """O2+ + O+ (dissociative) never exceed O2 absorption (Fennelly & Torr 1992)."""
+    sigma_abs, sigma = euvac_cross_sections()
+    assert np.all(sigma["O2->O2+"] + sigma["O2->O+"] <= sigma_abs["O2"] * (1 + 1e-12))
+
+
+def test_verner_fit_reproduces_helium_threshold_cross_section():
+    """Verner et al. (1996), Astrophys. J. 465, 487: He photoionization is about 7.4 Mb at
+    its 24.59 eV threshold (Samson et al. 1994, J. Phys. B 27, 887, from memory) and falls
+    roughly as E^-2 to E^-3 above."""
+    from ionochem.environment.crosssections import VERNER_1996
+
+    s_th = verner_cross_section_cm2(24.6, VERNER_1996["He->He+"])
+    assert s_th == pytest.approx(7.4e-18, rel=0.05)
+    assert verner_cross_section_cm2(24.5, VERNER_1996["He->He+"]) == 0.0
+    assert verner_cross_section_cm2(50.0, VERNER_1996["He->He+"]) < s_th / 3
+
+
+# --------------------------------------------------------------------------------------
+# attenuation, dark levels, broadcasting
+
+
+def test_dark_levels_have_no_photo_rates_in_any_bin():
+    """A ray that meets the Earth (slant column = inf) carries no photons at all, even in a
+    bin no absorber of the spectrum absorbs (Beer-Lambert with infinite path)."""
+    spec = solar_spectrum(120, 120)
+    cols = {"N2": np.array([1e17, np.inf]), "O": np.array([1e16, np.inf]),
+            "O2": np.array([1e16, np.inf])}
+    j = photo_frequencies(spec, cols)
+    for key, v in j.items():
+        assert v[1] == 0.0, key
+        assert np.isfinite(v[0])
+    assert np.all(attenuated_flux(spec, cols)[1] == 0)
+
+
+def test_frequencies_broadcast_over_a_leading_time_axis():
+    """Columns shaped (time, altitude) and fluxes shaped (time, bin) give (time, altitude)
+    frequencies equal to separate single-time calls (the sum over bins is per time)."""
+    spec2 = solar_spectrum([80.0, 180.0], [90.0, 170.0])
+    cols = {"N2": np.array([[1e15, 1e17, 1e18], [1e16, 1e17, np.inf]]),
+            "O2": np.array([[1e14, 1e16, 1e17], [1e15, 1e16, np.inf]]),
+            "O": np.array([[1e15, 1e16, 1e17], [1e15, 1e16, np.inf]])}
+    j = photo_frequencies(spec2, cols)
+    for t, (f, fa) in enumerate(((80.0, 90.0), (180.0, 170.0))):
+        one = photo_frequencies(solar_spectrum(f, fa), {k: v[t] for k, v in cols.items()})
+        for key in j:
+            assert j[key].shape == (2, 3)
+            assert np.allclose(j[key][t], one[key], rtol=1e-12, atol=0)
+
+
+def test_thin_atmosphere_gives_unattenuated_frequencies_and_per_bin_sums():
+    """With zero columns exp(-tau) = 1: photo frequencies equal the unattenuated ones, and
+    the per-bin contributions add up to the total (definition J = sum sigma I)."""
+    spec = solar_spectrum(150, 150)
+    zero = {"N2": np.zeros(2), "O2": np.zeros(2), "O": np.zeros(2)}
+    j = photo_frequencies(spec, zero)
+    jb = photo_frequencies(spec, zero, per_bin=True)
+    top = unattenuated_frequencies(spec)
+    for key in top:
+        assert np.allclose(j[key], top[key], rtol=1e-12)
+        assert np.allclose(jb[key].sum(axis=-1), j[key], rtol=1e-12)
+
+
+def test_photoelectron_energy_of_584_photon_on_o_is_7_6_ev():
+    """h nu - threshold: 584.33 angstrom (21.22 eV) on O -> O+(4S) (13.62 eV) gives a
+    7.6 eV photoelectron (SCIENCE.md section 4)."""
+    spec = solar_spectrum(100, 100)
+    e = photoelectron_energies_eV(spec)
+    i = int(np.flatnonzero(spec.wl_lo_A == 584.33)[0])
+    assert e["O->O+"][i] == pytest.approx(HC / 584.33 - 13.62, abs=0.01)
+    assert e["O->O+"][i] == pytest.approx(7.6, abs=0.05)
+    for key, energies in e.items():
+        assert np.all(energies >= 0), key
+        assert "N2->N(2D)+N" not in e
+
+
+# --------------------------------------------------------------------------------------
+# user spectrum file
+
+
+def test_user_spectrum_round_trip_and_derived_n2_dissociation(tmp_path):
+    """A soft X-ray user file (invented test numbers) is read with Mb -> cm2 conversion; the
+    N2 dissociation cross section is derived as absorption minus ionization; added to EUVAC
+    it contributes sigma * F to the frequencies."""
+    p = tmp_path / "xray.csv"
+    p.write_text("# invented soft X-ray bins for a test\n"
+                 "wl_lo_A,wl_hi_A,photons_cm2_s,sigma_abs_N2,sigma_ion_N2->N2+,"
+                 "sigma_ion_N2->N+,sigma_abs_O,sigma_ion_O->O+\n"
+                 "18,30,2e8,0.6,0.4,0.1,0.3,0.3\n"
+                 "30,50,5e8,1.2,0.8,0.4,0.5,0.5\n")
+    user = load_user_spectrum(p)
+    assert user.n_bins == 2
+    assert np.allclose(user.sigma_abs_cm2["N2"], [0.6e-18, 1.2e-18])
+    assert np.allclose(user.sigma_channel_cm2["N2->N(2D)+N"], [0.1e-18, 0.0], atol=1e-33)
+    combined = solar_spectrum(100, 100).concatenate(user)
+    assert combined.n_bins == 40
+    j_all = unattenuated_frequencies(combined)["N2->N2+"]
+    j_euv = unattenuated_frequencies(solar_spectrum(100, 100))["N2->N2+"]
+    assert float(j_all - j_euv) == pytest.approx(0.4e-18 * 2e8 + 0.8e-18 * 5e8, rel=1e-10)
+
+
+@pytest.mark.parametrize("header,row,match", [
+    ("wl_lo_A,photons_cm2_s", "10,1e8", "wl_hi_A"),
+    ("wl_lo_A,wl_hi_A,photons_cm2_s,sigma_total_O", "10,20,1e8,1", "unknown column"),
+    ("wl_lo_A,wl_hi_A,photons_cm2_s,sigma_ion_O->O+", "10,20,1e8,1", "sigma_abs_O"),
+    ("wl_lo_A,wl_hi_A,photons_cm2_s,sigma_abs_O,sigma_ion_O->O+", "10,20,1e8,1,2",
+     "more than its absorption"),
+    ("wl_lo_A,wl_hi_A,photons_cm2_s", "20,10,1e8", "wl_lo_A <= wl_hi_A"),
+    ("wl_lo_A,wl_hi_A,photons_cm2_s,sigma_abs_O", "10,20,-1e8,1", "negative"),
+])
+def test_user_spectrum_errors_are_reported_with_the_scenario_key(tmp_path, header, row, match):
+    """Malformed spectrum files are scenario errors at the key that names them
+    (DEVELOPERS.md, error conventions), never silently accepted."""
+    p = tmp_path / "bad.csv"
+    p.write_text(header + "\n" + row + "\n")
+    with pytest.raises(ScenarioError, match=match) as info:
+        load_user_spectrum(p, where="photons.spectrum", scenario_file=tmp_path / "s.toml")
+    assert info.value.key == "photons.spectrum"
