@@ -286,8 +286,23 @@ class Model:
                 cols.append(self._evaluate_one(j, sources, temps))
         return np.stack(cols, axis=-1)
 
-    def rate_coefficients(self, time_s=None):
-        """Rate coefficients k, shape (altitude, reaction), in cm3 s-1 / s-1 / cm6 s-1."""
+    def rate_coefficients(self, time_s=None, *, temperatures=None):
+        """Rate coefficients k, shape (altitude, reaction), in cm3 s-1 / s-1 / cm6 s-1.
+
+        Parameters
+        ----------
+        time_s : float, optional
+            Time after the scenario time (transient runs; the sun moves).
+        temperatures : dict, optional
+            Replacement ``Te``, ``Ti``, ``Tn``, ``Tv`` arrays (K, shape (altitude,)); the rates
+            are then re-evaluated (for temperature sensitivities and sampling).
+        """
+        if temperatures is not None:
+            env = self.environment
+            base = {"Te": env.Te, "Ti": env.Ti, "Tn": env.Tn, "Tv": env.Tv}
+            base.update(temperatures)
+            return self._evaluate_k(time_s, temps=(base["Te"], base["Ti"], base["Tn"],
+                                                   base["Tv"]))
         if time_s is None:
             return self._k_static
         if not self.environment.time_dependent or not self._source_reactions:
@@ -298,6 +313,47 @@ class Model:
             for j in self._source_reactions:
                 k[:, j] = self._evaluate_one(j, sources)
         return k
+
+    def uncertainty_factors(self):
+        """One-sigma multiplicative factors f of every rate, shape (altitude, reaction).
+
+        A reaction's own ``f`` expression, else the list's ``@default f``, else 1 (not
+        uncertain), evaluated at each level's temperatures.
+        """
+        default = getattr(self.reaction_list, "default_f", None)
+        out = np.ones_like(self._k_static)
+        with np.errstate(all="ignore"):
+            for j, r in enumerate(self._rxns):
+                expr = r.f if r.f is not None else default
+                if expr is None:
+                    continue
+                d = self._temperature_env(r)
+                if "Teff" in expr.variables:
+                    d["Teff"] = self._teff(r, d["Ti"], d["Tn"])
+                val = np.broadcast_to(np.asarray(expr.evaluate(d), float), out[:, j].shape)
+                if np.any(~np.isfinite(val)) or np.any(val < 1):
+                    raise MechanismError(f"uncertainty factor f of {r.id} must be ≥ 1",
+                                         file=r.file, line=r.line)
+                out[:, j] = val
+        return out
+
+    def rate_bands(self):
+        """Tabulated (low, high) bands of k where a table rate has them: {index: (A,), (A,)}."""
+        out = {}
+        with np.errstate(all="ignore"):
+            for j, (r, expr) in enumerate(zip(self._rxns, self._k_expr)):
+                if not getattr(expr, "_has_bands", False):
+                    continue
+                d = self._temperature_env(r)
+                if "Teff" in expr.variables:
+                    d["Teff"] = self._teff(r, d["Ti"], d["Tn"])
+                d.update(self._source_value(r, expr, self.environment.sources(None)
+                                            if self._source_reactions else {}))
+                band = expr.bands(d)
+                if band is not None:
+                    shape = self._k_static[:, j].shape
+                    out[j] = tuple(np.broadcast_to(b, shape) * self._scale[j] for b in band)
+        return out
 
     # ---------------------------------------------------------------- chemistry
     def tendency(self, n, time_s=None):

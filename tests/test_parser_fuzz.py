@@ -114,7 +114,8 @@ FUNCS = {"exp": np.exp, "log": np.log, "log10": np.log10, "sqrt": np.sqrt, "abs"
 CMPS = {"<": np.less, "<=": np.less_equal, ">": np.greater, ">=": np.greater_equal}
 VARS = ["Te", "Ti", "Tn"]
 
-numbers = st.floats(min_value=0, max_value=1e4, allow_nan=False).map(lambda x: ("num", x))
+numbers = st.one_of(st.integers(0, 4).map(float), st.floats(0, 3),
+                    st.floats(0, 1e4)).map(lambda x: ("num", x))
 leaves = numbers | st.sampled_from(VARS).map(lambda v: ("var", v))
 
 

@@ -138,7 +138,7 @@ def test_minimal_scenario_fills_every_documented_default(base, tmp_path):
             s.photons.lyman_alpha_photons_cm2_s) == ("euvac", True, None, None)
     t = s.temperatures
     assert (t.vibrational, t.ion_drift_m_s, t.table) == ("neutral", 0.0, None)
-    assert t.profile == TemperatureProfile(2500.0, 100.0, 120.0, 80.0)
+    assert t.profile == TemperatureProfile(2800.0, 300.0, 110.0, 60.0)
     assert s.changes.set == {} and s.changes.scale == {} and s.output.budget == ()
     assert s.location is s.time is s.sun is s.geomagnetic is None
     assert s.production.table is None and s.neutrals.no_table is None
@@ -151,6 +151,18 @@ def test_documented_profile_defaults_match_the_code():
         m = re.search(rf"\| `{f.name}` \| [^|]+\| `([0-9.]+)` \|", text)
         assert m, f.name
         assert float(m.group(1)) == f.default
+
+
+def test_profile_defaults_equal_those_of_the_shape_that_uses_them():
+    """The environment module's parametric_profile receives these keys as keyword
+    arguments; a scenario without [temperatures.profile] must run the shape with its own
+    documented defaults (one set of numbers, not two that drift apart)."""
+    import inspect
+
+    from ionochem.environment.temperatures import parametric_profile
+    params = inspect.signature(parametric_profile).parameters
+    for f in dataclasses.fields(TemperatureProfile):
+        assert params[f.name].default == f.default, f.name
 
 
 def test_paths_resolve_against_the_scenario_folder_not_the_cwd(base, tmp_path, monkeypatch):
@@ -384,7 +396,7 @@ def test_profile_parameters_are_stored_with_defaults_for_the_rest(base, tmp_path
     data = _with(base, "temperatures", {"electron": "profile", "ion": "neutral",
                                         "profile": {"te_peak_K": 3000, "scale_km": 40.0}})
     p = scenario_from_dict(data, base_dir=tmp_path).temperatures.profile
-    assert p == TemperatureProfile(te_peak_K=3000.0, ti_offset_K=100.0, base_km=120.0,
+    assert p == TemperatureProfile(te_peak_K=3000.0, ti_offset_K=300.0, base_km=110.0,
                                    scale_km=40.0)
     err = _err(_with(data, "temperatures.profile.scale_km", 0), tmp_path)
     assert err.key == "temperatures.profile.scale_km"

@@ -128,7 +128,10 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         ttable = read_profile_table(temps.table, grid, columns=want_cols,
                                     where="temperatures.table", scenario_file=file)
     drift = float(temps.ion_drift_m_s)
-    ti_includes_drift = False
+    # The Ti the chemistry sees always contains the frictional heating exactly once: a
+    # tabulated Ti is taken as the real (measured) ion temperature, a modelled one is heated
+    # here; Teff then adds the pair's own reduced-mass drift term (St.-Maurice & Torr 1978).
+    ti_includes_drift = True
     if temps.electron == "table":
         Te = ttable["Te_K"]
     elif temps.electron == "neutral":
@@ -163,7 +166,6 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                     f"({_span(cold)} km); the drift term is still applied once in Teff")
         else:
             Ti = frictional_ion_temperature(Ti, drift, m_n)
-            ti_includes_drift = True
     for name, arr in (("Tn", Tn), ("Te", Te), ("Ti", Ti)):
         if np.any(~np.isfinite(arr)) or np.any(arr <= 0):
             raise ScenarioError(f"{name} must be positive and finite on the grid",

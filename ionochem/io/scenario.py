@@ -90,28 +90,28 @@ class Neutrals:
 class TemperatureProfile:
     """``[temperatures.profile]``: parameters of the parametric convenience shape.
 
-    The shape (implemented by the environment module, documented in docs/scenario.md) is
-    ``s(z) = 1 - exp(-(z - base_km)/scale_km)`` above ``base_km`` and 0 below;
-    ``Te = Tn + max(te_peak_K - Tn, 0) * s`` and ``Ti = Tn + ti_offset_K * s``. It is a
-    convenience shape, not an empirical model; the defaults are invented round numbers of
-    the size seen by day at mid latitudes *(common practice)*.
+    The shape itself is implemented (and documented) by
+    :func:`ionochem.environment.temperatures.parametric_profile`, which receives these
+    values as keyword arguments; docs/scenario.md restates it. It is a convenience shape,
+    not an empirical model. The defaults equal that function's defaults, round numbers
+    typical of the mid-latitude ionosphere by day *(common practice)*.
 
     Attributes
     ----------
     te_peak_K : float
-        Electron temperature the shape approaches far above ``base_km`` (K), default 2500.
+        Topside electron temperature by day (K), > 0, default 2800.
     ti_offset_K : float
-        Ion minus neutral temperature far above ``base_km`` (K), default 100.
+        Topside ion minus neutral temperature by day (K), >= 0, default 300.
     base_km : float
-        Altitude below which Te = Ti = Tn (km), default 120.
+        Height where Te starts to depart from Tn (km), >= 0, default 110.
     scale_km : float
-        e-folding height of the approach (km), default 80.
+        e-folding height of the rise of Te (km), > 0, default 60.
     """
 
-    te_peak_K: float = 2500.0
-    ti_offset_K: float = 100.0
-    base_km: float = 120.0
-    scale_km: float = 80.0
+    te_peak_K: float = 2800.0
+    ti_offset_K: float = 300.0
+    base_km: float = 110.0
+    scale_km: float = 60.0
 
 
 @dataclass(frozen=True)
