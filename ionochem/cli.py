@@ -78,7 +78,8 @@ def cmd_run(args):
     for w in model.warnings:
         print(f"warning: {w}", file=sys.stderr)
     if scen.solve.mode == "transient":
-        ds = model.integrate(np.asarray(scen.solve.times_s, float))
+        initial = model.solve() if scen.solve.start == "steady" else None
+        ds = model.integrate(np.asarray(scen.solve.times_s, float), initial=initial)
     else:
         ds = model.solve()
         _print_table(ds)

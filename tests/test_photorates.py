@@ -14,6 +14,13 @@ from ionochem.environment.crosssections import (
     solar_spectrum,
     verner_cross_section_cm2,
 )
+from ionochem.environment.n2plus_levels import (
+    compute_level_fractions,
+    franck_condon_factors,
+    n2plus_level_fractions,
+    radiative_branching,
+    vibrational_levels,
+)
 from ionochem.environment.photorates import (
     attenuated_flux,
     photo_frequencies,
@@ -194,8 +201,9 @@ def test_n2_channels_add_up_to_n2_absorption():
     assert np.all(dis >= 0)
     assert np.allclose(sigma["N2->N2+"] + sigma["N2->N+"] + dis, sigma_abs["N2"], atol=1e-30)
     # Below the N2 ionization threshold (796 angstrom) every absorbed photon dissociates.
-    bins = np.arange(37)
-    assert np.all(dis[bins[29:34]] == sigma_abs["N2"][29:34])
+    longward = np.arange(29, 34)  # EUVAC bins 30-34, 800-1000 angstrom
+    assert np.all(dis[longward] == sigma_abs["N2"][longward])
+    assert np.all(dis[longward] > 0)
 
 
 def test_o2_channels_do_not_exceed_absorption():
@@ -271,7 +279,7 @@ def test_photoelectron_energy_of_584_photon_on_o_is_7_6_ev():
     assert e["O->O+"][i] == pytest.approx(7.6, abs=0.05)
     for key, energies in e.items():
         assert np.all(energies >= 0), key
-        assert "N2->N(2D)+N" not in e
+    assert "N2->N(2D)+N" not in e
 
 
 # --------------------------------------------------------------------------------------
@@ -316,3 +324,80 @@ def test_user_spectrum_errors_are_reported_with_the_scenario_key(tmp_path, heade
     with pytest.raises(ScenarioError, match=match) as info:
         load_user_spectrum(p, where="photons.spectrum", scenario_file=tmp_path / "s.toml")
     assert info.value.key == "photons.spectrum"
+
+
+# --------------------------------------------------------------------------------------
+# N2+ vibrational levels made by photoionization
+
+
+def test_morse_levels_reproduce_measured_fundamental_spacings():
+    """G(1) - G(0) = we - 2 wexe for a Morse oscillator: 2329.9 cm-1 for N2 X, 2174.8 for
+    N2+ X, 1873.7 for N2+ A and 2373.5 for N2+ B (Huber & Herzberg 1979, from memory);
+    the finite-difference solution must give them to 1 cm-1."""
+    for state, dg in (("N2(X)", 2329.9), ("N2+(X)", 2174.8), ("N2+(A)", 1873.7),
+                      ("N2+(B)", 2373.5)):
+        e, _ = vibrational_levels(state, 3)
+        assert e[1] - e[0] == pytest.approx(dg, abs=1.0), state
+
+
+def test_franck_condon_factors_match_gilmore_1992():
+    """Gilmore, Laher & Espy (1992), J. Phys. Chem. Ref. Data 21, 1005 (values from memory):
+    N2 X(0) -> N2+ X(0, 1) = 0.916, 0.080; N2 X(0) -> N2+ B(0, 1) = 0.886, 0.107;
+    N2 X(0) -> N2+ A(0, 1, 2) = 0.29, 0.33, 0.21; N2+ B(0) -> X(0, 1) = 0.66, 0.26."""
+    qx = franck_condon_factors("N2(X)", "N2+(X)")[0]
+    qb = franck_condon_factors("N2(X)", "N2+(B)")[0]
+    qa = franck_condon_factors("N2(X)", "N2+(A)")[0]
+    qbx = franck_condon_factors("N2+(B)", "N2+(X)")[0]
+    assert qx[:2] == pytest.approx([0.916, 0.080], abs=0.01)
+    assert qb[:2] == pytest.approx([0.886, 0.107], abs=0.015)
+    assert qa[:3] == pytest.approx([0.29, 0.33, 0.21], abs=0.03)
+    assert qbx[:2] == pytest.approx([0.66, 0.26], abs=0.02)
+    for q in (qx, qb, qa):
+        assert q.sum() == pytest.approx(1.0, abs=1e-4)  # completeness of the upper levels
+
+
+def test_radiative_branching_rows_are_probabilities():
+    """Each upper level radiates somewhere: branching rows are non-negative and sum to 1."""
+    for upper in ("N2+(A)", "N2+(B)"):
+        b = radiative_branching(upper)
+        assert np.all(b >= 0)
+        assert np.allclose(b.sum(axis=1), 1.0)
+
+
+def test_level_fractions_sum_to_one_non_negative_and_v0_dominant():
+    """The packaged X(v) fractions are a probability distribution (sum 1, >= 0) with v = 0
+    dominant: the N2 X(0) -> N2+ X(0) Franck-Condon factor is 0.92 and the B -> X cascade
+    returns most B ions to v = 0 (Gilmore et al. 1992)."""
+    for levels in ([0], [0, 1], [0, 1, 2, 3, 4], list(range(12))):
+        f = n2plus_level_fractions(levels)
+        assert f.shape == (len(levels),)
+        assert f.sum() == pytest.approx(1.0, abs=1e-12)
+        assert np.all(f >= 0)
+    f = n2plus_level_fractions([0, 1, 2, 3, 4])
+    assert f[0] > 0.5 and np.all(np.diff(f) < 0)
+
+
+def test_top_level_collects_all_higher_levels():
+    """"v = top and above": the top entry is the sum of the table's fractions from top up,
+    and a gap [0, 2, 5] collects v = 2..4 in the middle entry."""
+    full = n2plus_level_fractions(list(range(9)))
+    f4 = n2plus_level_fractions([0, 1, 2, 3, 4])
+    assert np.allclose(f4[:4], full[:4])
+    assert f4[4] == pytest.approx(full[4:].sum(), rel=1e-12)
+    g = n2plus_level_fractions([0, 2, 5])
+    assert g == pytest.approx([full[:2].sum(), full[2:5].sum(), full[5:].sum()])
+    assert np.all(n2plus_level_fractions(list(range(12)))[9:] == 0)
+
+
+def test_packaged_level_table_matches_its_recomputation():
+    """The data file was written by compute_level_fractions(top=8); it must still agree
+    (to its 6 printed decimals) with the documented calculation."""
+    d = compute_level_fractions(8)
+    assert np.allclose(n2plus_level_fractions(list(range(9))), d["fraction"], atol=2e-6)
+
+
+@pytest.mark.parametrize("levels", [[], [1, 2], [0, 2, 2], [0, 3, 1]])
+def test_bad_level_lists_are_rejected(levels):
+    """Levels must start at 0 and increase strictly, else the folding is undefined."""
+    with pytest.raises(InputError):
+        n2plus_level_fractions(levels)

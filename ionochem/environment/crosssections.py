@@ -324,8 +324,8 @@ class Spectrum:
             return {k: np.concatenate([a.get(k, np.zeros(n1)), b.get(k, np.zeros(n2))])
                     for k in (*a, *(k for k in b if k not in a))}
 
-        f1, f2 = np.broadcast_arrays(self.photons_cm2_s[..., :1], other.photons_cm2_s[..., :1])
-        shape = f1.shape[:-1]
+        shape = np.broadcast_shapes(self.photons_cm2_s.shape[:-1],
+                                    other.photons_cm2_s.shape[:-1])
         flux = np.concatenate([np.broadcast_to(self.photons_cm2_s, shape + (n1,)),
                                np.broadcast_to(other.photons_cm2_s, shape + (n2,))], axis=-1)
         return Spectrum(np.concatenate([self.wl_lo_A, other.wl_lo_A]),

@@ -147,11 +147,8 @@ class SunColumn:
         return out, dark
 
     def _photoelectron(self, spectrum, cols):
-        from ionochem.environment.secondary import photoelectron_frequencies
-        if not self.secondary:
-            return {k: np.zeros(self.grid.size) for k in self.pe_channels} | \
-                {k: np.zeros(self.grid.size) for k in _PE_KEYS}
-        return photoelectron_frequencies(spectrum, cols, self.local)
+        from ionochem.environment.secondary import secondary_frequencies
+        return secondary_frequencies(spectrum, cols, self.local, enabled=self.secondary)
 
     def _at(self, time_s):
         if time_s is None or not self.time_dependent:
@@ -173,5 +170,3 @@ class SunColumn:
         """True at levels the direct sunlight does not reach."""
         return self._at(time_s)[1]
 
-
-_PE_KEYS = ("N2->N2+", "N2->N+", "O2->O2+", "O->O+", "O->O+(2D)", "O->O+(2P)", "N2->N(2D)+N")

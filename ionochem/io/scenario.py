@@ -172,6 +172,9 @@ class Solve:
         The ion set to Ne minus the other ions when ``electrons = "table"``, default ``O+``.
     rtol : float
         Steady-state relative convergence tolerance, default 1e-10.
+    start : str
+        Initial state of a transient run: ``"zero"`` (no ions, default) or ``"steady"``
+        (photochemical equilibrium at the scenario's time, t = 0).
     """
 
     mode: str = "steady"
@@ -180,6 +183,7 @@ class Solve:
     electron_table: Path | None = None
     balance_ion: str = "O+"
     rtol: float = 1e-10
+    start: str = "zero"
 
 
 @dataclass(frozen=True)
@@ -868,15 +872,18 @@ class _Validator:
     def solve(self, value) -> Solve:
         key = "solve"
         sec = self.table(value, key, ("mode", "times_s", "electrons", "electron_table",
-                                      "balance_ion", "rtol"))
+                                      "balance_ion", "rtol", "start"))
         mode = self.choice(sec.get("mode", "steady"), f"{key}.mode", ("steady", "transient"))
         times = None
         if mode == "transient":
             if "times_s" not in sec:
                 raise self.fail(f"{key}.times_s", "is required when mode = 'transient'")
             times = self.increasing(sec["times_s"], f"{key}.times_s", what="output time")
+            start = self.choice(sec.get("start", "zero"), f"{key}.start", ("zero", "steady"))
         else:
             self.inapplicable(sec, "times_s", key, "mode = 'transient'")
+            self.inapplicable(sec, "start", key, "mode = 'transient'")
+            start = "zero"
         electrons = self.choice(sec.get("electrons", "neutrality"), f"{key}.electrons",
                                 ("neutrality", "table"))
         etable, balance = None, "O+"
@@ -892,7 +899,7 @@ class _Validator:
         rtol = self.number(sec.get("rtol", 1e-10), f"{key}.rtol", low=0, low_open=True,
                            high=1, high_open=True)
         return Solve(mode=mode, times_s=times, electrons=electrons, electron_table=etable,
-                     balance_ion=balance, rtol=rtol)
+                     balance_ion=balance, rtol=rtol, start=start)
 
     def changes(self, value) -> Changes:
         key = "changes"
