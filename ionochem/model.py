@@ -130,6 +130,15 @@ class Model:
         self._source_reactions = [j for j, e in enumerate(self._k_expr)
                                   if e.variables & {"photo", "photoelectron"}]
         self._k_static = self._evaluate_k(time_s=None)
+        # The expression language allows a source only times constant factors, so a photo
+        # rate is coefficient × source(t): precompute the coefficients once for transient runs.
+        self._src_keys = [f"{'photo' if 'photo' in self._k_expr[j].variables else 'photoelectron'}"
+                          f":{channel_of(self._rxns[j])}" for j in self._source_reactions]
+        if self._source_reactions and self.environment.time_dependent:
+            ones = {k: np.ones(A) for k in self._src_keys}
+            with np.errstate(all="ignore"):
+                self._src_coef = np.stack([self._evaluate_one(j, ones)
+                                           for j in self._source_reactions], -1)
 
     # ---------------------------------------------------------------- changes
     def _ids_for(self, key):
@@ -309,9 +318,8 @@ class Model:
             return self._k_static
         k = self._k_static.copy()
         sources = self.environment.sources(time_s)
-        with np.errstate(all="ignore"):
-            for j in self._source_reactions:
-                k[:, j] = self._evaluate_one(j, sources)
+        k[:, self._source_reactions] = self._src_coef * np.stack(
+            [sources[key] for key in self._src_keys], -1)
         return k
 
     def uncertainty_factors(self):

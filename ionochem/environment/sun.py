@@ -14,11 +14,12 @@ from __future__ import annotations
 
 import numpy as np
 
+from ionochem.environment.slant import EARTH_RADIUS_KM
 from ionochem.errors import ScenarioError
 
 #: Spacing of the time lattice of photo rates in transient runs, s (a choice: the zenith
-#: angle changes by at most 0.125° in 30 s).
-LATTICE_S = 30.0
+#: angle changes by at most 0.25° in 60 s).
+LATTICE_S = 60.0
 
 
 def _extend_down(alt, dens):
@@ -126,6 +127,14 @@ class SunColumn:
         from ionochem.environment.photorates import photo_frequencies
         from ionochem.environment.slant import slant_columns
         chi = self.zenith_deg(t)
+        top = self.grid.max()
+        if chi > 90.0 and (EARTH_RADIUS_KM + top) * np.sin(np.radians(chi)) < EARTH_RADIUS_KM:
+            # The Earth's shadow covers the whole column: no ray reaches any level.
+            zero = np.zeros(self.grid.size)
+            out = {f"photo:{k}": zero for k in self.photo_channels}
+            out.update({f"photoelectron:{k}": zero for k in self.pe_channels})
+            self._cache[t] = (out, np.ones(self.grid.size, bool))
+            return self._cache[t]
         cols = slant_columns(self.grid, chi, self.profile_alt, self.profile)
         spectrum = self.spectrum.scaled(float(flux_distance_factor(self._utc(t))))
         dark = np.zeros(self.grid.size, bool)

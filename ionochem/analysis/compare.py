@@ -1,0 +1,338 @@
+"""Baseline against changed rates: what a new rate coefficient does to the column.
+
+Two models share one environment (same neutrals, temperatures and photon sources); only
+their rate laws differ. :func:`compare` solves both and returns the two density profiles and
+their ratio; :func:`band_summary` reduces the ratio to the few numbers a reader wants first —
+the median and the largest percentage change of each main ion in the E, F1 and lower F2
+regions, and where the largest change sits.
+
+This module calls models; it never reads files. Building the changed model from a
+replacement or alternative reaction list (already parsed) is :func:`changed_model`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+from dataclasses import dataclass
+
+import numpy as np
+import xarray as xr
+
+from ionochem.errors import InputError
+
+#: Altitude bands of the summary, km: the E region (90-150 km), F1 (150-200 km) and the
+#: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*.
+DEFAULT_BANDS = {"E": (90.0, 150.0), "F1": (150.0, 200.0), "F2": (200.0, 300.0)}
+
+#: Main ions summarised (O+(total) stands for O+ when metastable O+ states are solved).
+MAIN_IONS = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
+
+
+def main_species(names):
+    """The main ions present among ``names``: N2+, O2+, NO+, O+(total) or else O+, e."""
+    names = list(names)
+    out = [s for s in MAIN_IONS if s in names]
+    if "O+(total)" in out and "O+" in out:
+        out.remove("O+")
+    return out
+
+
+# ------------------------------------------------------------------ building the change
+def _needs(model):
+    return getattr(model, "_needs", frozenset())
+
+
+def _extra_scales(before, after):
+    """Scale factors of ``after`` relative to ``before`` (both id → factor), changed only."""
+    out = {}
+    for key, f in after.items():
+        base = before.get(key, 1.0)
+        if f != base:
+            out[key] = f / base if base else float("inf")
+    return out
+
+
+def _model_on(baseline, reaction_list):
+    """A model of ``reaction_list`` on the baseline's column (rebuilt when it needs more).
+
+    The scenario's own changes apply to the new list as they did to the baseline; changes
+    the baseline carried beyond them (``with_changes``) are carried over too.
+    """
+    from ionochem import Model
+    from ionochem.errors import MechanismError
+    scen = baseline.scenario
+    try:
+        new = Model(scen, mechanism=reaction_list, environment=baseline.environment)
+        if not _needs(new) <= _needs(baseline):
+            new = None
+    except MechanismError:
+        # The baseline's environment may lack a photo channel or a neutral the other list
+        # needs; a fresh environment for the new list has them (or says why not).
+        new = None
+    if new is None:
+        new = Model(scen, mechanism=reaction_list)
+    extra_set = {k: v for k, v in baseline.changes["set"].items()
+                 if new.changes["set"].get(k) != v}
+    extra_scale = _extra_scales(new.changes["scale"], baseline.changes["scale"])
+    if extra_set or extra_scale:
+        new = new.with_changes(extra_set, scale=extra_scale)
+    return new
+
+
+def is_replacement(baseline_list, other_list) -> bool:
+    """True when ``other_list`` is a set of replacement entries for ``baseline_list``.
+
+    That is when every id of ``other_list`` exists in the baseline and it has fewer
+    entries; otherwise it is a whole alternative list.
+    """
+    ids = set(baseline_list.ids) if hasattr(baseline_list, "ids") else {
+        r.id for r in baseline_list.reactions}
+    other = [r.id for r in other_list.reactions]
+    return len(other) < len(ids) and all(i in ids for i in other)
+
+
+def merge_replacements(baseline_list, replacements):
+    """The baseline reaction list with the entries of ``replacements`` swapped in by id.
+
+    Each replacement entry replaces the whole baseline entry (rate law, uncertainty factor,
+    products and reference); everything else stays. The result's ``sha256`` is that of the
+    two lists together, so provenance tells the merged list apart from the baseline.
+    """
+    new = {r.id: r for r in replacements.reactions}
+    missing = [i for i in new if i not in {r.id for r in baseline_list.reactions}]
+    if missing:
+        raise InputError(f"replacement entries name reactions not in the baseline list: "
+                         f"{', '.join(missing)}", file=str(replacements.path))
+    reactions = tuple(new.get(r.id, r) for r in baseline_list.reactions)
+    sha = hashlib.sha256((baseline_list.sha256 + replacements.sha256).encode()).hexdigest()
+    return dataclasses.replace(baseline_list, reactions=reactions, sha256=sha,
+                               warnings=list(baseline_list.warnings))
+
+
+def changed_model(baseline, *, set_dict=None, scale=None, reaction_lists=()):
+    """The baseline model with rate changes applied, on the same environment.
+
+    Parameters
+    ----------
+    baseline : ionochem.Model
+    set_dict : dict[str, str], optional
+        Reaction id (or family id) → new rate expression.
+    scale : dict[str, float], optional
+        Reaction id (or family id) → factor on k.
+    reaction_lists : sequence of ReactionList, optional
+        Parsed reaction lists applied in order, each either replacement entries (see
+        :func:`is_replacement`) or a whole alternative list.
+
+    Returns
+    -------
+    ionochem.Model
+    """
+    model = baseline
+    for rl in reaction_lists:
+        if is_replacement(model.reaction_list, rl):
+            merged = merge_replacements(model.reaction_list, rl)
+        else:
+            merged = rl
+        model = _model_on(model, merged)
+    if set_dict or scale:
+        model = model.with_changes(dict(set_dict or {}), scale=dict(scale or {}))
+    return model
+
+
+# ------------------------------------------------------------------ the comparison
+def _densities(ds, names):
+    have = list(ds["species"].values)
+    out = np.full((len(names), ds.sizes["altitude"]), np.nan)
+    for i, s in enumerate(names):
+        if s in have:
+            out[i] = ds["density"].sel(species=s).values
+    return out
+
+
+def _change_attrs(baseline, changed, reaction_lists):
+    sets = {k: v for k, v in changed.changes["set"].items()
+            if baseline.changes["set"].get(k) != v}
+    scales = _extra_scales(baseline.changes["scale"], changed.changes["scale"])
+    lists = [str(getattr(rl, "path", rl)) for rl in reaction_lists]
+    if not lists and changed.reaction_list.sha256 != baseline.reaction_list.sha256:
+        lists = [str(changed.reaction_list.path)]
+    return {
+        "changes_set": "; ".join(f"{k} = {v}" for k, v in sets.items()),
+        "changes_scale": "; ".join(f"{k} x {v:g}" for k, v in scales.items()),
+        "changes_reactions": "; ".join(lists),
+        "changed_reaction_list_sha256": changed.reaction_list.sha256,
+    }
+
+
+def compare(baseline_model, changed_model, *, baseline=None, changed=None,
+            reaction_lists=()):
+    """Solve a baseline and a changed model and compare their steady densities.
+
+    Parameters
+    ----------
+    baseline_model, changed_model : ionochem.Model
+        Models on the same altitude grid (normally sharing one environment).
+    baseline, changed : xarray.Dataset, optional
+        Their steady solutions, if already computed.
+    reaction_lists : sequence, optional
+        The reaction lists (or their paths) that made the change, for the attributes.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``density_baseline`` and ``density_changed`` (species, altitude) in cm-3 and
+        ``ratio`` = changed / baseline (NaN where the baseline density is 0, or where the
+        species is absent from one of the models), with the provenance of the baseline and
+        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``.
+    """
+    ds_b = baseline_model.solve() if baseline is None else baseline
+    ds_c = changed_model.solve() if changed is None else changed
+    alt_b, alt_c = ds_b["altitude"].values, ds_c["altitude"].values
+    if alt_b.shape != alt_c.shape or not np.allclose(alt_b, alt_c, rtol=0, atol=1e-9):
+        raise InputError("compare: the baseline and the changed model are on different "
+                         "altitude grids")
+    names = list(ds_b["species"].values)
+    names += [s for s in ds_c["species"].values if s not in names]
+    nb, nc = _densities(ds_b, names), _densities(ds_c, names)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(nb > 0, nc / nb, np.nan)
+    roles_b = dict(zip(ds_b["species"].values, ds_b["role"].values))
+    roles_c = dict(zip(ds_c["species"].values, ds_c["role"].values))
+    roles = [roles_b.get(s, roles_c.get(s, "")) for s in names]
+    out = xr.Dataset(
+        {
+            "density_baseline": (("species", "altitude"), nb,
+                                 {"units": "cm-3", "long_name": "number density, baseline"}),
+            "density_changed": (("species", "altitude"), nc,
+                                {"units": "cm-3", "long_name": "number density, changed "
+                                 "rates"}),
+            "ratio": (("species", "altitude"), ratio,
+                      {"units": "1", "long_name": "changed / baseline density (NaN where "
+                       "the baseline density is zero)"}),
+        },
+        coords={
+            "species": ("species", np.array(names, dtype=object)),
+            "role": ("species", np.array(roles, dtype=object),
+                     {"long_name": "role in the baseline (solved, fixed, electron, balance "
+                      "or derived)"}),
+            "altitude": ds_b["altitude"],
+        },
+        attrs=dict(ds_b.attrs),
+    )
+    # The baseline's own (scenario) changes keep their names with a prefix; the changes
+    # compared take the plain names.
+    for key in ("changes_set", "changes_scale"):
+        out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
+    out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
+    out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
+    return out
+
+
+# ------------------------------------------------------------------ the summary
+@dataclass(frozen=True)
+class BandRow:
+    """Percentage change of one species in one altitude band.
+
+    ``median_pct`` and ``largest_pct`` are 100 (changed/baseline − 1); ``largest_pct`` is
+    the change of largest magnitude, with its sign, found at ``largest_alt_km``. NaN when the
+    band has no level with a baseline density.
+    """
+
+    species: str
+    band: str
+    low_km: float
+    high_km: float
+    levels: int
+    median_pct: float
+    largest_pct: float
+    largest_alt_km: float
+
+
+def parse_bands(text):
+    """``"E=90:150,F1=150:200"`` → ``{"E": (90.0, 150.0), "F1": (150.0, 200.0)}``."""
+    bands = {}
+    for item in (p.strip() for p in str(text).split(",")):
+        if not item:
+            continue
+        name, sep, span = item.partition("=")
+        lo, sep2, hi = span.partition(":")
+        try:
+            if not (sep and sep2 and name.strip()):
+                raise ValueError
+            lo_f, hi_f = float(lo), float(hi)
+        except ValueError:
+            raise InputError(f"band {item!r} must look like NAME=LOW_KM:HIGH_KM (E=90:150)",
+                             file="--bands") from None
+        if not (np.isfinite(lo_f) and np.isfinite(hi_f)) or hi_f <= lo_f:
+            raise InputError(f"band {item!r}: the upper altitude must exceed the lower",
+                             file="--bands")
+        bands[name.strip()] = (lo_f, hi_f)
+    if not bands:
+        raise InputError("no altitude band given", file="--bands")
+    return bands
+
+
+def band_summary(ds, bands=None, species=None):
+    """Median and largest percentage change per species and altitude band.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        From :func:`compare` (needs ``ratio``).
+    bands : dict[str, (float, float)] or sequence of (name, low_km, high_km), optional
+        Altitude bands, km, both ends included; default :data:`DEFAULT_BANDS`.
+    species : sequence of str, optional
+        Default: the main ions present (:func:`main_species`).
+
+    Returns
+    -------
+    list of BandRow
+        Species-major order.
+    """
+    bands = DEFAULT_BANDS if bands is None else bands
+    if not isinstance(bands, dict):
+        bands = {name: (lo, hi) for name, lo, hi in bands}
+    names = list(ds["species"].values)
+    species = main_species(names) if species is None else list(species)
+    unknown = [s for s in species if s not in names]
+    if unknown:
+        raise InputError(f"compare: no species {', '.join(unknown)} in the result")
+    alt = ds["altitude"].values
+    rows = []
+    for s in species:
+        pct = 100.0 * (ds["ratio"].sel(species=s).values - 1.0)
+        for name, (lo, hi) in bands.items():
+            inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
+            vals = pct[inside]
+            good = np.isfinite(vals)
+            if not good.any():
+                rows.append(BandRow(s, name, lo, hi, int(inside.sum()), np.nan, np.nan,
+                                    np.nan))
+                continue
+            i = np.nanargmax(np.abs(np.where(good, vals, np.nan)))
+            rows.append(BandRow(s, name, float(lo), float(hi), int(good.sum()),
+                                float(np.median(vals[good])), float(vals[i]),
+                                float(alt[inside][i])))
+    return rows
+
+
+def format_band_summary(rows, title=None):
+    """The summary as a text table (one line per species and band)."""
+    lines = []
+    if title:
+        lines.append(title)
+    lines.append("percentage change of the changed model against the baseline "
+                 "(100 (changed/baseline - 1))")
+    lines.append(f"  {'species':<10}{'band':<16}{'median %':>11}{'largest %':>12}"
+                 f"{'at km':>9}")
+
+    def pct(x):
+        return f"{x:+.2f}" if np.isfinite(x) else "-"
+
+    for r in rows:
+        band = f"{r.band} {r.low_km:g}-{r.high_km:g}"
+        at = f"{r.largest_alt_km:g}" if np.isfinite(r.largest_alt_km) else "-"
+        lines.append(f"  {r.species:<10}{band:<16}{pct(r.median_pct):>11}"
+                     f"{pct(r.largest_pct):>12}{at:>9}")
+    return "\n".join(lines)
