@@ -643,6 +643,16 @@ class CompiledExpr:
         self._func = func
         self._has_bands = any(t.has_bands for t in self.tables)
 
+    def __getstate__(self):
+        # closures do not pickle with the standard pickler; rebuild them from the tree
+        state = self.__dict__.copy()
+        del state["_func"]
+        return state
+
+    def __setstate__(self, state):
+        self.__dict__.update(state)
+        self._func = _Compiler(self.file, self.line).build(self._tree)
+
     @property
     def is_constant(self) -> bool:
         """True when the expression reads no variable."""

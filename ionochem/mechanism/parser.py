@@ -64,6 +64,9 @@ class ReactionWarning(str):
         self.message = message
         return self
 
+    def __reduce__(self):
+        return (ReactionWarning, (self.message, self.file, self.line))
+
 
 @dataclass(frozen=True)
 class Reaction:

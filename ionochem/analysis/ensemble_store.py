@@ -1,0 +1,177 @@
+"""A resumable store of finished ensemble batches next to the output file.
+
+An ensemble run (Monte Carlo, Sobol, Morris) writes every finished batch of samples to a
+folder ``OUT.nc.samples/`` as soon as it completes, so an interrupted run loses at most the
+batches in flight and ``--resume`` recomputes nothing that was finished:
+
+``manifest.json``
+    What the samples were made from: the method, seed, sample count, hashes of the scenario,
+    the reaction list and the arrays the samples were drawn from (rate coefficients,
+    uncertainty factors, fixed densities, spreads). A resume whose inputs differ is refused
+    with an :class:`ionochem.InputError` naming the entries that differ.
+``batch_<start>_<stop>.npz``
+    The standard-normal draws ``z`` (stop − start, factors) and the solved densities ``n``
+    (stop − start, altitude, species) of samples ``start`` … ``stop − 1``, written to a
+    temporary file in the folder and renamed into place (an interrupted write leaves no
+    half file under a batch name).
+
+The store knows nothing of chemistry: it keeps arrays by sample index. It must not decide
+which samples to compute; the ensemble runner asks it which ranges are missing.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+import shutil
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from ionochem.errors import InputError
+
+FORMAT = 1
+_BATCH = re.compile(r"^batch_(\d{9})_(\d{9})\.npz$")
+
+
+def store_path_for(output) -> Path:
+    """The sample folder of an output file: ``OUT.nc`` → ``OUT.nc.samples``."""
+    return Path(str(output) + ".samples")
+
+
+def _atomic_write(folder: Path, name: str, write) -> None:
+    fd, tmp = tempfile.mkstemp(prefix=f".{name}.", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            write(fh)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, folder / name)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+class EnsembleStore:
+    """Finished batches of one ensemble run, kept in a folder.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The store folder (``OUT.nc.samples``).
+    manifest : dict
+        JSON-serialisable description of the run (see the module docstring).
+    resume : bool
+        Continue an existing store (its manifest must equal ``manifest``). Without it an
+        existing store is refused, so that a finished part of a long run is never wiped by
+        accident.
+    """
+
+    def __init__(self, folder, manifest: dict, *, resume: bool = False):
+        self.folder = Path(folder)
+        self.manifest = {"format": FORMAT, **manifest}
+        text = json.dumps(self.manifest, sort_keys=True)
+        self.manifest = json.loads(text)          # normalise tuples → lists for comparison
+        mpath = self.folder / "manifest.json"
+        if self.folder.exists():
+            if not resume:
+                raise InputError(
+                    f"{self.folder} holds samples of an earlier run: pass --resume to continue "
+                    "it, or remove the folder to start again", file=str(self.folder))
+            if not mpath.is_file():
+                raise InputError("the sample folder has no manifest.json: it was not made by "
+                                 "ionochem uncertainty; remove it to start again",
+                                 file=str(self.folder))
+            try:
+                stored = json.loads(mpath.read_text())
+            except (OSError, ValueError) as exc:
+                raise InputError(f"unreadable manifest.json ({exc}); remove the folder to "
+                                 "start again", file=str(self.folder)) from None
+            diff = sorted(k for k in set(stored) | set(self.manifest)
+                          if stored.get(k) != self.manifest.get(k))
+            if diff:
+                shown = "; ".join(f"{k}: stored {_short(stored.get(k))}, now "
+                                  f"{_short(self.manifest.get(k))}" for k in diff)
+                raise InputError("cannot resume: the stored samples were made with different "
+                                 f"inputs ({shown}); remove the folder or use another output",
+                                 file=str(self.folder))
+        else:
+            parent = self.folder.parent if str(self.folder.parent) else Path(".")
+            if not parent.is_dir():
+                raise InputError(f"output folder {parent} does not exist",
+                                 file=str(self.folder))
+            self.folder.mkdir()
+            _atomic_write(self.folder, "manifest.json",
+                          lambda fh: fh.write(text.encode() + b"\n"))
+
+    # ------------------------------------------------------------------ reading
+    def finished(self):
+        """Sorted ``(start, stop)`` ranges of the stored batches."""
+        out = []
+        for p in self.folder.iterdir():
+            m = _BATCH.match(p.name)
+            if m:
+                out.append((int(m.group(1)), int(m.group(2))))
+        return sorted(out)
+
+    def missing(self, total: int):
+        """Sorted ``(start, stop)`` gaps of ``range(total)`` not yet stored."""
+        gaps, pos = [], 0
+        for a, b in self.finished():
+            if a > pos:
+                gaps.append((pos, min(a, total)))
+            pos = max(pos, b)
+        if pos < total:
+            gaps.append((pos, total))
+        return [(a, b) for a, b in gaps if b > a]
+
+    def read(self, start: int, stop: int):
+        """``(z, n)`` of one stored batch."""
+        with np.load(self.folder / _name(start, stop), allow_pickle=False) as data:
+            return data["z"], data["n"]
+
+    def load(self, total: int):
+        """All stored samples in index order: ``z`` (total, F) and ``n`` (total, A, S).
+
+        Raises
+        ------
+        InputError
+            When samples are missing or stored twice.
+        """
+        ranges = self.finished()
+        pos = 0
+        for a, b in ranges:
+            if a != pos:
+                raise InputError(f"samples {pos}..{a - 1} are missing or stored twice",
+                                 file=str(self.folder))
+            pos = b
+        if pos != total:
+            raise InputError(f"{pos} of {total} samples are stored", file=str(self.folder))
+        parts = [self.read(a, b) for a, b in ranges]
+        return (np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts]))
+
+    # ------------------------------------------------------------------ writing
+    def write(self, start: int, stop: int, z, n) -> None:
+        """Store one finished batch atomically."""
+        z = np.ascontiguousarray(z, float)
+        n = np.ascontiguousarray(n, float)
+        if z.shape[0] != stop - start or n.shape[0] != stop - start:
+            raise ValueError("batch arrays do not match the sample range")
+        _atomic_write(self.folder, _name(start, stop),
+                      lambda fh: np.savez(fh, z=z, n=n))
+
+    def remove(self) -> None:
+        """Delete the store (after the final output was written)."""
+        shutil.rmtree(self.folder, ignore_errors=True)
+
+
+def _name(start, stop):
+    return f"batch_{start:09d}_{stop:09d}.npz"
+
+
+def _short(value):
+    text = json.dumps(value)
+    return text if len(text) <= 60 else text[:57] + "..."

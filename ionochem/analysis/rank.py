@@ -1,0 +1,221 @@
+"""Rank the reactions (and the electron temperature) that control each species.
+
+Input is a sensitivity dataset (:func:`ionochem.analysis.sensitivity.sensitivity`):
+``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and ``sensitivity_Te``
+(species, altitude) = ∂ln n/∂ln Te. The electron temperature enters the ranking as one more
+pseudo-reaction named ``Te``. Two measures over an altitude range: the largest |S| (with
+its sign and the altitude where it occurs) and the mean |S| over the levels in the range.
+A reaction that matters strongly in a thin layer ranks high on the first, one that matters
+everywhere on the second.
+
+Works on the dataset alone, so it applies to files written earlier.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import xarray as xr
+
+from ionochem.errors import InputError
+
+TE_NAME = "Te"
+DEFAULT_SPECIES = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
+
+
+def default_species(names):
+    """N2+, O2+, NO+, O+(total) (or O+ without metastables), e — those present."""
+    names = list(names)
+    out = [s for s in DEFAULT_SPECIES if s in names]
+    if "O+(total)" in out and "O+" in out:
+        out.remove("O+")
+    return out
+
+
+@dataclass(frozen=True)
+class RankRow:
+    """One reaction's influence on one species over an altitude range.
+
+    ``max_abs`` is the largest |S|, ``signed_at_max`` the value of S there (with its sign)
+    at ``altitude_km``; ``mean_abs`` the mean |S| over the levels of the range;
+    ``rank_max`` and ``rank_mean`` the 1-based places by each measure.
+    """
+
+    species: str
+    reaction: str
+    equation: str
+    max_abs: float
+    signed_at_max: float
+    altitude_km: float
+    mean_abs: float
+    rank_max: int
+    rank_mean: int
+
+
+def parse_altitude_range(text):
+    """``"150:300"`` → ``(150.0, 300.0)`` km."""
+    lo, sep, hi = str(text).partition(":")
+    try:
+        if not sep:
+            raise ValueError
+        lo_f, hi_f = float(lo), float(hi)
+    except ValueError:
+        raise InputError(f"altitude range {text!r} must look like LOW_KM:HIGH_KM (150:300)",
+                         file="--altitudes") from None
+    if not (np.isfinite(lo_f) and np.isfinite(hi_f)) or hi_f < lo_f:
+        raise InputError(f"altitude range {text!r}: the upper altitude is below the lower",
+                         file="--altitudes")
+    return lo_f, hi_f
+
+
+def _levels(sens_ds, altitude_range):
+    alt = sens_ds["altitude"].values
+    if altitude_range is None:
+        return np.ones(alt.size, bool)
+    lo, hi = altitude_range
+    inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
+    if not inside.any():
+        raise InputError(f"no level of the grid ({alt.min():g}-{alt.max():g} km) lies in "
+                         f"{lo:g}-{hi:g} km", file="--altitudes")
+    return inside
+
+
+def sensitivity_matrix(sens_ds, species, altitude_range=None):
+    """S of one species to every reaction and Te over the range.
+
+    Returns
+    -------
+    names : list of str
+        Reaction ids, then ``"Te"``.
+    equations : list of str
+    S : ndarray (reaction + 1, level)
+        Dimensionless; NaN at dark levels.
+    altitude_km : ndarray (level,)
+    """
+    names = list(sens_ds["species"].values)
+    if species not in names:
+        raise InputError(f"no species {species!r} in the result (species: "
+                         f"{', '.join(names)})", file="--species")
+    inside = _levels(sens_ds, altitude_range)
+    S = sens_ds["sensitivity"].sel(species=species).values[:, inside]      # (R, level)
+    S_te = sens_ds["sensitivity_Te"].sel(species=species).values[inside]
+    ids = [str(r) for r in sens_ds["reaction"].values]
+    eqs = ([str(e) for e in sens_ds["equation"].values] if "equation" in sens_ds.coords
+           else [""] * len(ids))
+    return (ids + [TE_NAME], eqs + ["electron temperature (every Te-dependent rate)"],
+            np.vstack([S, S_te[None]]), sens_ds["altitude"].values[inside])
+
+
+def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max"):
+    """The reactions (and ``Te``) with the largest |S| for each species.
+
+    Parameters
+    ----------
+    sens_ds : xarray.Dataset
+        Sensitivities (see the module docstring).
+    species : str or sequence of str
+        Species to rank for.
+    altitude_range : (float, float), optional
+        Lowest and highest altitude, km, both included; default the whole grid.
+    top : int or None
+        Rows kept per species (None: all).
+    by : {"max", "mean"}
+        Order by the largest |S| or by the altitude-mean |S|.
+
+    Returns
+    -------
+    list of RankRow
+        Per species, in the order asked for; rows of a species by decreasing measure. Ties
+        (and all-zero rows) keep the reaction-list order.
+    """
+    if by not in ("max", "mean"):
+        raise ValueError(f"by must be 'max' or 'mean', not {by!r}")
+    if top is not None and int(top) < 1:
+        raise InputError("--top must be at least 1", file="--top")
+    species = [species] if isinstance(species, str) else list(species)
+    rows = []
+    for s in species:
+        ids, eqs, S, alt = sensitivity_matrix(sens_ds, s, altitude_range)
+        absS = np.abs(S)
+        live = np.isfinite(absS).any(axis=0)
+        if not live.any():
+            continue
+        absS, S = absS[:, live], S[:, live]
+        alt = alt[live]
+        with np.errstate(invalid="ignore"):
+            mx = np.nanmax(absS, axis=1)
+            mean = np.nanmean(absS, axis=1)
+        at = np.nanargmax(np.where(np.isfinite(absS), absS, -1.0), axis=1)
+        signed = S[np.arange(S.shape[0]), at]
+        order_max = np.argsort(-mx, kind="stable")
+        order_mean = np.argsort(-mean, kind="stable")
+        rank_max = np.empty(len(ids), int)
+        rank_max[order_max] = np.arange(1, len(ids) + 1)
+        rank_mean = np.empty(len(ids), int)
+        rank_mean[order_mean] = np.arange(1, len(ids) + 1)
+        order = order_max if by == "max" else order_mean
+        if top is not None:
+            order = order[:int(top)]
+        rows += [RankRow(s, ids[j], eqs[j], float(mx[j]), float(signed[j]), float(alt[at[j]]),
+                         float(mean[j]), int(rank_max[j]), int(rank_mean[j])) for j in order]
+    return rows
+
+
+def format_ranking(sens_ds, species, altitude_range=None, top=10):
+    """Two tables per species: by the largest |S| and by the altitude-mean |S|."""
+    alt = sens_ds["altitude"].values
+    lo, hi = altitude_range if altitude_range is not None else (alt.min(), alt.max())
+    lines = [f"normalized sensitivities S = d ln n / d ln k over {lo:g}-{hi:g} km "
+             "(Te: d ln n / d ln Te)"]
+    species = [species] if isinstance(species, str) else list(species)
+    for s in species:
+        for by, what in (("max", "largest |S|"), ("mean", "altitude-mean |S|")):
+            rows = rank_reactions(sens_ds, s, altitude_range, top, by=by)
+            lines.append(f"{s}: top {len(rows)} by {what}")
+            lines.append(f"  {'#':>3} {'reaction':<24}{'S at max':>10}{'at km':>8}"
+                         f"{'mean |S|':>10}  equation")
+            for r in rows:
+                place = r.rank_max if by == "max" else r.rank_mean
+                lines.append(f"  {place:>3} {r.reaction:<24}{r.signed_at_max:>+10.4f}"
+                             f"{r.altitude_km:>8g}{r.mean_abs:>10.4f}  {r.equation}")
+    return "\n".join(lines)
+
+
+def ranking_dataset(sens_ds, altitude_range=None):
+    """The sensitivity dataset with the two ranking measures added.
+
+    Adds ``max_abs_sensitivity``, ``signed_sensitivity_at_max``,
+    ``altitude_of_max_sensitivity`` and ``mean_abs_sensitivity`` over (species, reaction),
+    and the same for Te with the suffix ``_Te`` over (species), for the levels in
+    ``altitude_range`` (km, stored as the attribute ``ranking_altitude_range_km``).
+    """
+    out = sens_ds.copy()
+    names = list(sens_ds["species"].values)
+    R = sens_ds.sizes["reaction"]
+    shape = (len(names), R + 1)
+    mx, sg, at, mean = (np.full(shape, np.nan) for _ in range(4))
+    column = {str(r): j for j, r in enumerate(sens_ds["reaction"].values)}
+    column[TE_NAME] = R
+    for i, s in enumerate(names):
+        for r in rank_reactions(sens_ds, s, altitude_range, top=None):
+            j = column[r.reaction]
+            mx[i, j], sg[i, j], at[i, j], mean[i, j] = (r.max_abs, r.signed_at_max,
+                                                        r.altitude_km, r.mean_abs)
+    specs = (("max_abs_sensitivity", mx, "1", "largest |d ln n / d ln k| over the range"),
+             ("signed_sensitivity_at_max", sg, "1", "d ln n / d ln k where |S| is largest"),
+             ("altitude_of_max_sensitivity", at, "km", "altitude of the largest |S|"),
+             ("mean_abs_sensitivity", mean, "1", "mean |d ln n / d ln k| over the levels "
+              "of the range"))
+    for name, arr, units, long in specs:
+        out[name] = xr.Variable(("species", "reaction"), arr[:, :R],
+                                {"units": units, "long_name": long})
+        out[f"{name}_Te"] = xr.Variable(("species",), arr[:, R],
+                                        {"units": units,
+                                         "long_name": long.replace("k|", "Te|")
+                                         .replace("/ d ln k", "/ d ln Te")})
+    alt = sens_ds["altitude"].values
+    lo, hi = altitude_range if altitude_range is not None else (alt.min(), alt.max())
+    out.attrs["ranking_altitude_range_km"] = np.array([lo, hi], float)
+    out.attrs["analysis"] = "rank: normalized local sensitivities at steady state"
+    return out
