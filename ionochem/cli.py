@@ -156,10 +156,9 @@ def cmd_check(args):
                 problems.append(InputError(f"reaction {r.id} has no uncertainty factor f and "
                                            "there is no @default f (required by --strict)",
                                            file=r.file, line=r.line))
+    # The parser already warns of species produced but never lost (fixed neutrals are
+    # fine; anything else is refused by `run` unless the neutral source fixes it).
     warn = list(rl.warnings)
-    for name, r in mech.structural_problems():
-        warn.append(f"{r.file}:{r.line}: {name} is produced but never lost: it must be fixed "
-                    "by the neutral source of the scenario, or the run will refuse it")
     print(f"{args.file}: {len(rl.reactions)} reactions"
           + (f" ({len(rl.families)} families expanded)" if rl.families else ""))
     print(f"  solved    : {', '.join(mech.solved)}")

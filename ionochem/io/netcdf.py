@@ -14,6 +14,13 @@ import numpy as np
 from ionochem.errors import InputError
 
 
+def _umask_mode():
+    """Permissions a normally created file would get (mkstemp makes 0600 files)."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def _encodable(ds):
     """Copy of ``ds`` with object (string) arrays as fixed strings and bools as int8."""
     out = ds.copy()
@@ -41,6 +48,7 @@ def write_netcdf(ds, path) -> Path:
     os.close(fd)
     try:
         _encodable(ds).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
+        os.chmod(tmp, _umask_mode())
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
@@ -57,6 +65,7 @@ def atomic_write_bytes(path, data: bytes) -> Path:
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
+        os.chmod(tmp, _umask_mode())
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):

@@ -100,6 +100,11 @@ def plot_time_series(ds, path, *, altitudes_km=(120.0, 200.0, 300.0), species=No
             n = ds["density"].sel(species=s, altitude=a).values
             ax.plot(t_h, np.where(n > 0, n, np.nan), label=s, **STYLE.get(s, dict(lw=1.0)))
         ax.set_yscale("log")
+        top = max(float(np.nanmax(ds["density"].sel(species=s, altitude=a).values))
+                  for s in names)
+        if top > 0:
+            # Densities decay without bound after sunset; show six decades below the top.
+            ax.set_ylim(max(1e-2, top * 1e-6), top * 3)
         ax.set_xlabel("time since start (h)")
         ax.set_title(f"{a:g} km", fontsize=10)
         ax.grid(True, alpha=0.3)
