@@ -288,14 +288,20 @@ def solve_batch(kernel, z, k_base=None, first=0):
     S = len(mech.solved)
     A = kernel.altitude_km.size
 
+    B = k.shape[0]
+
+    def take(rows):
+        # Newton passes the active rows, sorted and unique: all rows need no copy.
+        return (k, given) if rows.size == B else (k[rows], given[rows])
+
     def tendency(n, rows):
-        return mech.tendency(n, k[rows], given[rows])
+        return mech.tendency(n, *take(rows))
 
     def jacobian(n, rows):
-        return mech.jacobian(n, k[rows], given[rows])
+        return mech.jacobian(n, *take(rows))
 
     def gross(n, rows):
-        P, L = mech.production_loss(n, k[rows], given[rows])
+        P, L = mech.production_loss(n, *take(rows))
         return P[:, :S], L[:, :S]
 
     try:

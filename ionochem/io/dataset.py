@@ -54,7 +54,24 @@ def _species_table(model, n_solved):
 def _provenance(model):
     import ionochem
     scen = model.scenario
-    return {
+    env_attrs = {"neutral_model": scen.neutrals.model,
+                 "ion_drift_m_s": float(scen.temperatures.ion_drift_m_s),
+                 "temperatures": f"electron {scen.temperatures.electron}, "
+                                 f"ion {scen.temperatures.ion}"}
+    if scen.location is not None:
+        env_attrs["latitude_deg"] = scen.location.latitude_deg
+        env_attrs["longitude_deg"] = scen.location.longitude_deg
+    if scen.time is not None:
+        env_attrs["time_utc"] = scen.time.utc.isoformat()
+    if scen.sun is not None:
+        env_attrs["f107"] = scen.sun.f107
+        env_attrs["f107a"] = scen.sun.f107a
+    if scen.geomagnetic is not None:
+        env_attrs["ap"] = scen.geomagnetic.ap
+    if model.environment.sun is not None:
+        env_attrs["photon_source"] = model.environment.sun.spectrum.source
+        env_attrs["photoelectron_secondaries"] = int(bool(scen.photons.secondary))
+    return env_attrs | {
         "title": scen.title,
         "Conventions": "CF-1.10",
         "source": f"ionochem {ionochem.__version__}",

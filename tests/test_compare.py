@@ -1,0 +1,164 @@
+"""Baseline-versus-changed comparisons (ionochem.analysis.compare, ``ionochem compare``).
+
+The column is synthetic (invented rates and densities): O+ is produced at a prescribed rate
+and lost only by charge transfer O+ + N2 → NO+ + N; NO+ recombines. Then
+[O+] = P/(k [N2]) exactly, and NO+ solves α x (x + [O+]) = P.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import ionochem
+from ionochem.analysis.commands_compare import register
+from ionochem.analysis.compare import band_summary, changed_model, compare
+
+ALT = np.linspace(100.0, 300.0, 21)
+Q = 80.0 * np.exp(-((ALT - 180.0) / 60.0) ** 2) + 5.0     # invented production, cm-3 s-1
+TE = np.linspace(300.0, 2000.0, ALT.size)
+N2 = 1e12 * np.exp(-(ALT - 100.0) / 35.0)
+K_CT = 1.2e-12                                            # invented, cm3 s-1
+
+CHAIN = f"""\
+P1: O -> O+ + e | k = prescribed | ref = invented test
+C1: O+ + N2 -> NO+ + N | k = {K_CT:g} | ref = invented test
+D1: NO+ + e -> N + O | k = 4.0e-7*(300/Te)^0.5 | ref = invented test
+"""
+
+
+def _scenario(column, q=Q, name="s"):
+    neutrals = {"O": 1e11 * np.exp(-(ALT - 100.0) / 60.0), "N2": N2,
+                "N": 1e8 * np.ones_like(ALT)}
+    return column(CHAIN, ALT, neutrals=neutrals, Tn=np.linspace(200.0, 900.0, ALT.size),
+                  Te=TE, production={"P1": q}, name=name)
+
+
+def _run(argv):
+    """Run a subcommand through a parser built from ``register`` alone."""
+    p = argparse.ArgumentParser()
+    sub = p.add_subparsers(dest="command")
+    register(sub)
+    args = p.parse_args(argv)
+    return args.func(args)
+
+
+def _no_plus(q, ne_other, alpha):
+    """Positive root of α x (x + ne_other) = q."""
+    return 0.5 * (-ne_other + np.sqrt(ne_other ** 2 + 4.0 * q / alpha))
+
+
+def test_halving_the_only_loss_of_an_ion_doubles_it(column):
+    """[O+] = P/(k [N2]) when charge transfer is its only loss (analytic): halving k gives
+    ratio 2 to 1e-8 at every level, and NO+ follows the closed-form root of
+    α x (x + [O+]) = P in both models."""
+    base = ionochem.Model(ionochem.load_scenario(_scenario(column)))
+    ds = compare(base, changed_model(base, scale={"C1": 0.5}))
+    np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 2.0, rtol=1e-8)
+    np.testing.assert_allclose(ds["density_baseline"].sel(species="O+").values,
+                               Q / (K_CT * N2), rtol=1e-8)
+    alpha = 4.0e-7 * (300.0 / TE) ** 0.5
+    for var, factor in (("density_baseline", 1.0), ("density_changed", 2.0)):
+        o_plus = factor * Q / (K_CT * N2)
+        np.testing.assert_allclose(ds[var].sel(species="NO+").values,
+                                   _no_plus(Q, o_plus, alpha), rtol=1e-8)
+    assert ds.attrs["changes_scale"] == "C1 x 0.5"
+    rows = [r for r in band_summary(ds) if r.species == "O+"]
+    assert [r.band for r in rows] == ["E", "F1", "F2"]
+    for r in rows:
+        assert r.median_pct == pytest.approx(100.0, abs=1e-5)
+        assert r.largest_pct == pytest.approx(100.0, abs=1e-5)
+
+
+def test_ratio_is_nan_where_the_baseline_density_is_zero(column):
+    """Levels without production have zero densities: the ratio is NaN there (not 0 or inf)
+    and the band statistics skip them (definition of the ratio, DESIGN.md §4 contract)."""
+    q = np.where(ALT < 160.0, 0.0, Q)
+    base = ionochem.Model(ionochem.load_scenario(_scenario(column, q=q)))
+    ds = compare(base, changed_model(base, scale={"C1": 0.5}))
+    ratio = ds["ratio"].sel(species="O+").values
+    assert np.all(np.isnan(ratio[ALT < 160.0]))
+    np.testing.assert_allclose(ratio[ALT >= 160.0], 2.0, rtol=1e-8)
+    rows = {r.band: r for r in band_summary(ds, species=["O+"])}
+    assert np.isnan(rows["E"].median_pct)
+    assert rows["F1"].levels == int(((ALT >= 160) & (ALT <= 200)).sum())
+
+
+def test_compare_cli_prints_plus_100_percent_and_writes_files(column, tmp_path, capsys):
+    """The terminal table shows +100.00 % for O+ in every band (analytic doubling); the
+    netCDF opens with the three variables and the change attributes; the PNG is a
+    non-empty PNG file."""
+    out, fig = tmp_path / "c.nc", tmp_path / "c.png"
+    assert _run(["compare", str(_scenario(column)), "--scale", "C1=0.5", "-o", str(out),
+                 "--plot", str(fig)]) == 0
+    text = capsys.readouterr().out
+    lines = [ln.split() for ln in text.splitlines() if ln.split()[:1] == ["O+"]]
+    assert len(lines) == 3
+    for ln in lines:
+        assert ln[-3:-1] == ["+100.00", "+100.00"]
+    with xr.open_dataset(out) as ds:
+        for var in ("density_baseline", "density_changed", "ratio"):
+            assert ds[var].dims == ("species", "altitude")
+        assert ds.attrs["changes_scale"] == "C1 x 0.5"
+        np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 2.0, rtol=1e-8)
+    data = fig.read_bytes()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000
+
+
+def test_replacement_entries_and_whole_list_give_the_analytic_doubling(column, tmp_path,
+                                                                      capsys):
+    """A file with one replacement entry (C1 at half the rate) and a whole alternative list
+    (ids renamed, same chemistry at half the rate) both give [O+] ratio 2 (analytic)."""
+    scen = _scenario(column)
+    half = f"{K_CT / 2:g}"
+    repl = tmp_path / "repl.reactions"
+    repl.write_text(f"C1: O+ + N2 -> NO+ + N | k = {half} | ref = invented test\n")
+    alt_list = tmp_path / "alt.reactions"
+    alt_list.write_text(CHAIN.replace("C1:", "CT_new:").replace(f"k = {K_CT:g}",
+                                                                 f"k = {half}"))
+    for f in (repl, alt_list):
+        out = tmp_path / f"{f.stem}.nc"
+        assert _run(["compare", str(scen), "--reactions", str(f), "-o", str(out)]) == 0
+        with xr.open_dataset(out) as ds:
+            np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 2.0, rtol=1e-8)
+            assert ds.attrs["changes_reactions"] == str(f)
+    capsys.readouterr()
+
+
+def test_custom_bands_are_used(column, capsys):
+    """``--bands`` replaces the default E/F1/F2 bands (command-line contract, DESIGN.md §4);
+    O+ still shows +100 % in each."""
+    assert _run(["compare", str(_scenario(column)), "--scale", "C1=0.5",
+                 "--bands", "low=100:200,high=200:300"]) == 0
+    text = capsys.readouterr().out
+    assert "low 100-200" in text and "high 200-300" in text and "F1 150-200" not in text
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["--scale", "NOPE=0.5"], "no reaction with id 'NOPE'"),
+    ([], "at least one change"),
+    (["--scale", "C1=half"], "not a number"),
+    (["--scale", "C1=0.5", "--bands", "E=150:90"], "upper altitude"),
+])
+def test_compare_errors_are_one_line_input_errors(column, argv, message):
+    """Bad input raises ionochem.InputError with a one-line message (error contract,
+    DESIGN.md §4)."""
+    with pytest.raises(ionochem.InputError, match=message) as info:
+        _run(["compare", str(_scenario(column)), *argv])
+    assert "\n" not in str(info.value)
+
+
+def test_compare_through_main_exits_2_on_unknown_id(column, capsys):
+    """Through the ``ionochem`` entry point: exit 0 on success, exit 2 with one line on
+    stderr for an unknown reaction id (CLI contract, DESIGN.md §4). Needs the subcommand
+    wired into ionochem.cli."""
+    from ionochem.cli import main
+    scen = str(_scenario(column))
+    assert main(["compare", scen, "--scale", "C1=0.5"]) == 0
+    capsys.readouterr()
+    assert main(["compare", scen, "--scale", "NOPE=0.5"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "NOPE" in err and "Traceback" not in err
