@@ -103,6 +103,7 @@ class SunColumn:
             alt, dens = _extend_down(alt, dens)
         self.profile_alt = alt
         self.profile = dens
+        self.msis_profile = profile
         # Absorber densities on the grid, for photoelectron sharing.
         self.local = {k: env.neutrals[k] for k in ("N2", "O2", "O") if k in env.neutrals}
         self.time_dependent = scenario.solve.mode == "transient"
