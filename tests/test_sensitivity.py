@@ -71,7 +71,7 @@ def _log_densities(model, sens, n, given):
     mech = model.mechanism
     full = mech.full_densities(n, given)
     out = {}
-    for s, role in zip(sens["species"].values, sens["role"].values):
+    for s, role in zip(sens["species"].values, sens["role"].values, strict=True):
         if s in mech.all_species and role != "fixed":
             out[s] = full[:, mech.index(s)]
     for tot in mech.derived:

@@ -197,8 +197,8 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
     nb, nc = _densities(ds_b, names), _densities(ds_c, names)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(nb > 0, nc / nb, np.nan)
-    roles_b = dict(zip(ds_b["species"].values, ds_b["role"].values))
-    roles_c = dict(zip(ds_c["species"].values, ds_c["role"].values))
+    roles_b = dict(zip(ds_b["species"].values, ds_b["role"].values, strict=True))
+    roles_c = dict(zip(ds_c["species"].values, ds_c["role"].values, strict=True))
     roles = [roles_b.get(s, roles_c.get(s, "")) for s in names]
     out = xr.Dataset(
         {

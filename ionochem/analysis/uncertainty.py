@@ -635,8 +635,7 @@ def linear_variance_shares(model, kernel, sens):
 
 
 def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers=1,
-                scheduler=None, output=None, resume=False, keep_samples=False,
-                progress=False, on_batch=None):
+                scheduler=None, output=None, resume=False, progress=False, on_batch=None):
     """Monte Carlo over log-normal rate (and environment) factors.
 
     Parameters
@@ -652,7 +651,8 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
         See :func:`run_ensemble`.
     output : str or Path, optional
         The result file the caller will write; its sample store ``OUTPUT.samples`` keeps the
-        finished batches (removed after success unless ``keep_samples``).
+        finished batches (the caller removes it with :func:`remove_store` once the output
+        is written, or keeps it).
     resume : bool
         Continue the store of ``output``.
 
@@ -683,8 +683,6 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
                         on_batch=on_batch)
     ds = summarise(model, kernel, z, n, seed=seed)
     ds.attrs["batch_samples"] = int(batch or default_batch(kernel.altitude_km.size))
-    if store is not None and not keep_samples:
-        ds.attrs["_store"] = str(store.folder)      # the caller removes it once written
     return ds
 
 
@@ -784,10 +782,9 @@ def summarise(model, kernel, z, n, *, seed):
     return ds
 
 
-def finish_store(ds):
-    """Remove the sample store recorded by :func:`monte_carlo` once the output exists."""
-    folder = ds.attrs.pop("_store", None)
-    if folder:
-        import shutil
-        shutil.rmtree(folder, ignore_errors=True)
-    return ds
+def remove_store(output):
+    """Delete the sample store of ``output`` (``OUT.nc.samples``) if there is one."""
+    import shutil
+
+    from ionochem.analysis.ensemble_store import store_path_for
+    shutil.rmtree(store_path_for(output), ignore_errors=True)

@@ -75,6 +75,10 @@ class SunColumn:
             if photons.lyman_alpha_photons_cm2_s is not None:
                 kw["lyman_alpha_photons_cm2_s"] = photons.lyman_alpha_photons_cm2_s
             spectrum = solar_spectrum(scenario.sun.f107, scenario.sun.f107a, **kw)
+            if photons.extra_spectrum is not None:
+                spectrum = spectrum.concatenate(load_user_spectrum(
+                    photons.extra_spectrum, where="photons.extra_spectrum",
+                    scenario_file=scenario.source))
         self.spectrum = spectrum
         self.photo_channels = sorted(n.split(":", 1)[1] for n in needs
                                      if n.startswith("photo:"))

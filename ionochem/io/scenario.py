@@ -272,6 +272,9 @@ class Photons:
         The user spectrum when ``flux = "table"``.
     secondary : bool
         Include photoelectron (secondary) ionization, default True.
+    extra_spectrum : Path or None
+        Bins added to EUVAC (for example soft X-rays below 50 A), same CSV layout as a user
+        spectrum.
     lyman_alpha_photons_cm2_s : float or None
         Solar Lyman-alpha flux (photons cm-2 s-1); None means the physics module's cited
         default.
@@ -281,6 +284,7 @@ class Photons:
     spectrum: Path | None = None
     secondary: bool = True
     lyman_alpha_photons_cm2_s: float | None = None
+    extra_spectrum: Path | None = None
 
 
 @dataclass(frozen=True)
@@ -980,7 +984,7 @@ class _Validator:
 
     def photons(self, value) -> Photons:
         key = "photons"
-        sec = self.table(value, key, ("flux", "spectrum", "secondary",
+        sec = self.table(value, key, ("flux", "spectrum", "extra_spectrum", "secondary",
                                       "lyman_alpha_photons_cm2_s"))
         flux = self.choice(sec.get("flux", "euvac"), f"{key}.flux", ("euvac", "table"))
         spectrum = None
@@ -990,13 +994,19 @@ class _Validator:
             spectrum = self.file(sec["spectrum"], f"{key}.spectrum")
         else:
             self.inapplicable(sec, "spectrum", key, "flux = 'table'")
+        extra = None
+        if "extra_spectrum" in sec:
+            if flux != "euvac":
+                raise self.fail(f"{key}.extra_spectrum", "applies only with flux = 'euvac' "
+                                "(a user spectrum in 'table' mode holds all its own bins)")
+            extra = self.file(sec["extra_spectrum"], f"{key}.extra_spectrum")
         secondary = self.boolean(sec.get("secondary", True), f"{key}.secondary")
         lya = None
         if "lyman_alpha_photons_cm2_s" in sec:
             lya = self.number(sec["lyman_alpha_photons_cm2_s"],
                               f"{key}.lyman_alpha_photons_cm2_s", low=0)
         return Photons(flux=flux, spectrum=spectrum, secondary=secondary,
-                       lyman_alpha_photons_cm2_s=lya)
+                       lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra)
 
     def output(self, value, grid: Grid) -> Output:
         key = "output"

@@ -65,7 +65,7 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
     fig, axes = plt.subplots(len(panels), 2, figsize=(12.0, height * len(panels)),
                              squeeze=False, gridspec_kw={"width_ratios": [2.2, 1.0]},
                              layout="constrained")
-    for (s, rows), (ax_h, ax_b) in zip(panels, axes):
+    for (s, rows), (ax_h, ax_b) in zip(panels, axes, strict=True):
         ids, _, S, alt = sensitivity_matrix(sens_ds, s, altitude_range)
         pick = [ids.index(r.reaction) for r in rows]
         M = S[pick]                                        # (top, level)

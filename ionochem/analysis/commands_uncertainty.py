@@ -1,0 +1,201 @@
+"""The ``ionochem uncertainty`` subcommand.
+
+``register(subparsers)`` adds it to the command's argparse subparsers; the handler prints a
+short table on stdout and returns 0. Errors are raised as :class:`ionochem.Error` and become
+one line on stderr (exit 2) in :mod:`ionochem.cli`. Command-line glue only: it loads the
+scenario named on the command line and hands the model to
+:mod:`ionochem.analysis.uncertainty` (Monte Carlo) or :mod:`ionochem.analysis.globalsens`
+(Sobol, Morris).
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from ionochem.errors import InputError
+
+REPORT_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
+
+
+def register(subparsers):
+    """Add the ``uncertainty`` subcommand to ``subparsers``."""
+    u = subparsers.add_parser(
+        "uncertainty",
+        help="Monte Carlo over rate uncertainties, or global sensitivity (Sobol, Morris)")
+    u.add_argument("scenario")
+    u.add_argument("--samples", type=int, required=True, metavar="N",
+                   help="Monte Carlo samples; sobol: base sample size (N (M+2) solves); "
+                        "morris: trajectories (N (M+1) solves)")
+    u.add_argument("--seed", type=int, default=0, metavar="S",
+                   help="seed of the random streams (default 0)")
+    u.add_argument("--method", choices=("montecarlo", "sobol", "morris"), default="montecarlo")
+    par = u.add_mutually_exclusive_group()
+    par.add_argument("--workers", type=int, default=1, metavar="K",
+                     help="solve on a local dask cluster of K worker processes (default 1: "
+                          "in this process)")
+    par.add_argument("--scheduler", metavar="ADDRESS",
+                     help="solve on an existing dask scheduler (tcp://host:port)")
+    u.add_argument("--batch", type=int, metavar="B",
+                   help="samples per batch (default: about 4000 rows of samples x levels)")
+    u.add_argument("--resume", action="store_true",
+                   help="continue an interrupted run from OUT.nc.samples")
+    u.add_argument("--keep-samples", action="store_true",
+                   help="keep OUT.nc.samples (the solved samples) after writing OUT.nc")
+    u.add_argument("--vary-environment", metavar="NAME=F,...",
+                   help="one-sigma factors of environment inputs: euv, Te, a fixed neutral "
+                        "(euv=1.2,O=1.15,Te=1.1)")
+    u.add_argument("--top", type=int, default=10, metavar="M",
+                   help="sobol/morris: reactions analysed, by first-order variance share "
+                        "(default 10)")
+    u.add_argument("--altitudes", metavar="KM,KM,...",
+                   help="sobol/morris: altitudes analysed (default 100,120,150,200,250,300,"
+                        "400 inside the grid)")
+    u.add_argument("--species", action="append", metavar="NAME",
+                   help="sobol/morris: species analysed (repeatable; default N2+, O2+, NO+, "
+                        "O+(total) or O+, e)")
+    u.add_argument("--set", action="append", metavar="ID=EXPR",
+                   help="replace the rate expression of a reaction first (repeatable)")
+    u.add_argument("--scale", action="append", metavar="ID=FACTOR",
+                   help="multiply a rate coefficient first (repeatable)")
+    u.add_argument("--no-progress", action="store_true", help="no progress bar")
+    u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
+    u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
+    u.set_defaults(func=cmd_uncertainty)
+    return subparsers
+
+
+def _parse_altitudes(text):
+    if text is None:
+        return None
+    out = []
+    for item in str(text).split(","):
+        item = item.strip()
+        if not item:
+            continue
+        try:
+            out.append(float(item))
+        except ValueError:
+            raise InputError(f"altitude {item!r} is not a number (km)",
+                             file="--altitudes") from None
+    if not out:
+        raise InputError("no altitude given", file="--altitudes")
+    return out
+
+
+def _check_args(args):
+    for flag, path in (("-o", args.output), ("--plot", args.plot)):
+        if path and not (Path(path).parent if str(Path(path).parent) else Path(".")).is_dir():
+            raise InputError(f"output folder {Path(path).parent} does not exist", file=path,
+                             key=flag)
+    if args.workers is not None and args.workers < 1:
+        raise InputError("--workers must be at least 1", file="--workers")
+    if args.batch is not None and args.batch < 1:
+        raise InputError("--batch must be at least 1", file="--batch")
+    if args.resume and not args.output:
+        raise InputError("--resume needs -o OUT.nc (the samples are kept next to it)",
+                         file="--resume")
+    if args.method == "sobol" and args.samples & (args.samples - 1):
+        print(f"note: --samples {args.samples} is not a power of 2; the Sobol' sequence is "
+              "balanced only for powers of 2", file=sys.stderr)
+
+
+def cmd_uncertainty(args):
+    """``ionochem uncertainty``: returns 0."""
+    from ionochem.analysis.uncertainty import parse_spreads, remove_store
+    from ionochem.cli import _load_model
+    from ionochem.io.netcdf import write_netcdf
+    _check_args(args)
+    spreads = parse_spreads(args.vary_environment)
+    altitudes = _parse_altitudes(args.altitudes)
+    scen, model = _load_model(args)
+    if scen.solve.mode != "steady":
+        print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
+              "states (photochemical equilibrium)", file=sys.stderr)
+    for w in model.warnings:
+        print(f"warning: {w}", file=sys.stderr)
+    common = dict(seed=args.seed, environment=spreads, batch=args.batch,
+                  workers=args.workers, scheduler=args.scheduler, output=args.output,
+                  resume=args.resume, progress=not args.no_progress)
+    if args.method == "montecarlo":
+        from ionochem.analysis.uncertainty import monte_carlo
+        ds = monte_carlo(model, args.samples, **common)
+        _print_montecarlo(ds)
+    else:
+        from ionochem.analysis.globalsens import global_sensitivity
+        ds = global_sensitivity(model, args.samples, method=args.method, top=args.top,
+                                altitudes_km=altitudes, species=args.species, **common)
+        _print_global(ds)
+    if args.output:
+        write_netcdf(ds, args.output)
+        print(f"wrote {args.output}")
+        if args.keep_samples:
+            print(f"samples kept in {args.output}.samples")
+        else:
+            remove_store(args.output)
+    if args.plot:
+        from ionochem.plot.uncertainty import plot_uncertainty
+        plot_uncertainty(ds, args.plot)
+        print(f"wrote {args.plot}")
+    return 0
+
+
+def _main_species(names):
+    from ionochem.analysis.globalsens import default_species
+    return default_species(list(names))
+
+
+def _print_montecarlo(ds, out=sys.stdout):
+    alt = ds["altitude"].values
+    names = list(ds["species"].values)
+    species = _main_species(names)
+    rows = sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in REPORT_KM
+                   if alt.min() - 1e-9 <= a <= alt.max() + 1e-9}) or [float(alt[0])]
+    print(f"{ds.attrs.get('title', '')}", file=out)
+    print(f"Monte Carlo: {ds.attrs['samples']} samples, seed {ds.attrs['seed']}"
+          + (f", environment {ds.attrs['environment_spreads']}"
+             if ds.attrs.get("environment_spreads") else ""), file=out)
+    print("median density (cm-3) and the 68 % range as a factor (sqrt(n84/n16))", file=out)
+    print("  alt_km " + "".join(f"{s:>19}" for s in species), file=out)
+    q = ds["density_quantiles"]
+    for a in rows:
+        cells = []
+        for s in species:
+            med = float(q.sel(quantile=0.5, species=s, altitude=a))
+            lo = float(q.sel(quantile=0.16, species=s, altitude=a))
+            hi = float(q.sel(quantile=0.84, species=s, altitude=a))
+            fac = np.sqrt(hi / lo) if lo > 0 else np.nan
+            cells.append(f"{med:11.3e} x{fac:5.2f} ")
+        print(f"{a:8.1f} " + "".join(f"{c:>19}" for c in cells), file=out)
+    share = ds["variance_share"]
+    print("largest shares of var(ln n) (from the samples; first-order in brackets)", file=out)
+    for s in species:
+        for a in rows:
+            v = share.sel(species=s, altitude=a).values
+            if not np.any(np.isfinite(v)):
+                continue
+            j = int(np.nanargmax(v))
+            lin = float(ds["variance_share_linear"].sel(species=s, altitude=a).values[j])
+            print(f"  {s:>9} {a:7.1f} km: {ds['reaction'].values[j]:<16} {v[j]:6.1%} "
+                  f"[{lin:6.1%}]", file=out)
+
+
+def _print_global(ds, out=sys.stdout):
+    method = ds.attrs["method"]
+    key, second = (("S1", "ST") if method == "sobol" else ("mu_star", "sigma"))
+    print(f"{ds.attrs.get('title', '')}", file=out)
+    print(f"{method}: {ds.attrs['samples']} base samples, {ds.attrs['model_runs']} solves, "
+          f"seed {ds.attrs['seed']}; factors: {ds.attrs['factors']}", file=out)
+    print(f"per species and altitude: the three largest factors by {key} "
+          f"({key} / {second})", file=out)
+    for s in ds["species"].values:
+        for a in ds["altitude"].values:
+            v = ds[key].sel(species=s, altitude=a).values
+            if not np.any(np.isfinite(v)):
+                continue
+            w = ds[second].sel(species=s, altitude=a).values
+            order = np.argsort(-np.nan_to_num(v, nan=-np.inf))[:3]
+            cells = ", ".join(f"{ds['factor'].values[j]} {v[j]:.2f}/{w[j]:.2f}" for j in order)
+            print(f"  {s:>9} {a:7.1f} km: {cells}", file=out)

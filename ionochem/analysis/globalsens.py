@@ -1,0 +1,290 @@
+"""Global sensitivity of the column to its most uncertain reactions: Sobol indices and
+Morris screening, with SALib, on the batched solver of :mod:`ionochem.analysis.uncertainty`.
+
+Factors
+-------
+The inputs are the same standard normals ε_j as in the Monte Carlo (ln k_j = ln k_j +
+ε_j ln f_j, one draw per reaction shared by every level), for the ``top`` reactions with the
+largest first-order variance share S_ij² ln² f_j / Σ (the largest over the chosen species
+and altitudes), plus any varied environment factor (``euv``, ``Te``, a fixed neutral).
+Every other rate stays at its central value.
+
+- Sobol (``SALib.sample.sobol`` with ``dists = "norm"``, bounds (mean 0, sd 1): the Sobol'
+  sequence is mapped to ε through the normal quantile function; ``SALib.analyze.sobol``
+  without second-order terms): first-order and total indices S1, ST of ln n for each
+  species at each chosen altitude, with their 95 % bootstrap confidence half-widths. N base
+  samples cost N (M + 2) solves of the column. For ln n linear in the ε's S1 = ST =
+  S_ij² ln² f_j / Σ exactly.
+- Morris (``SALib.sample.morris``, ``SALib.analyze.morris``, 4 levels): ε_j on the uniform
+  grid over −2 … +2 (the ±2σ range; elementary effects need a bounded range). μ*, μ and σ
+  are reported **per unit of ε** (SALib's effects divided by the range 4), so for ln n
+  linear in ε, μ*_j = |∂ln n/∂ε_j| = |S_ij| ln f_j and σ_j = 0. N trajectories cost
+  N (M + 1) solves.
+
+The solves run through :func:`ionochem.analysis.uncertainty.run_ensemble`: batched,
+serial or on dask.distributed, resumable from a sample store. This module must not read
+input files.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import xarray as xr
+
+from ionochem.analysis.uncertainty import (
+    SampleKernel,
+    linear_variance_shares,
+    manifest_for,
+    open_store,
+    run_ensemble,
+    species_samples,
+)
+from ionochem.errors import InputError
+
+MAIN_SPECIES = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
+DEFAULT_ALTITUDES_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
+MORRIS_RANGE = (-2.0, 2.0)
+MORRIS_LEVELS = 4
+METHODS = ("sobol", "morris")
+
+
+def default_species(names):
+    """N2+, O2+, NO+, O+(total) (else O+), e: those among ``names``."""
+    out = [s for s in MAIN_SPECIES if s in names]
+    if "O+(total)" in out and "O+" in out:
+        out.remove("O+")
+    return out
+
+
+def nearest_levels(altitude_km, wanted_km=None):
+    """Indices of the grid levels nearest to ``wanted_km`` (default a standard set inside
+    the grid; the bottom, middle and top level if none falls inside)."""
+    alt = np.asarray(altitude_km, float)
+    if wanted_km is None:
+        wanted_km = [a for a in DEFAULT_ALTITUDES_KM if alt.min() <= a <= alt.max()]
+        if not wanted_km:
+            wanted_km = [alt[0], alt[alt.size // 2], alt[-1]]
+    out = []
+    for a in wanted_km:
+        a = float(a)
+        if not (alt.min() - 1e-9 <= a <= alt.max() + 1e-9):
+            raise InputError(f"altitude {a:g} km is outside the grid "
+                             f"({alt.min():g}..{alt.max():g} km)", file="--altitudes")
+        i = int(np.argmin(np.abs(alt - a)))
+        if i not in out:
+            out.append(i)
+    return sorted(out)
+
+
+def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=None):
+    """The ``top`` reactions with the largest first-order variance share.
+
+    Parameters
+    ----------
+    linear_share : ndarray (species, R, A)
+        From :func:`~ionochem.analysis.uncertainty.linear_variance_shares`.
+    species_idx, level_idx : sequence of int
+        The species and altitude levels that count.
+    top : int
+    candidates : sequence of int, optional
+        Reactions allowed (the varied ones).
+
+    Returns
+    -------
+    list of int
+        Reaction indices, largest share first.
+    """
+    sub = np.nan_to_num(linear_share[np.ix_(list(species_idx), np.arange(linear_share.shape[1]),
+                                            list(level_idx))])
+    score = sub.max(axis=(0, 2))
+    allowed = np.arange(score.size) if candidates is None else np.asarray(candidates, int)
+    allowed = allowed[score[allowed] > 0]
+    order = allowed[np.argsort(-score[allowed], kind="stable")]
+    return [int(j) for j in order[:int(top)]]
+
+
+def _problem(names, method):
+    M = len(names)
+    if method == "sobol":
+        return {"num_vars": M, "names": list(names), "bounds": [[0.0, 1.0]] * M,
+                "dists": ["norm"] * M}
+    return {"num_vars": M, "names": list(names), "bounds": [list(MORRIS_RANGE)] * M}
+
+
+def design(names, samples, method, seed):
+    """The SALib sample matrix of ε (runs, M) for ``method``."""
+    problem = _problem(names, method)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        if method == "sobol":
+            from SALib.sample import sobol
+            X = sobol.sample(problem, int(samples), calc_second_order=False, scramble=True,
+                             seed=int(seed))
+        else:
+            from SALib.sample import morris
+            X = morris.sample(problem, int(samples), num_levels=MORRIS_LEVELS,
+                              seed=int(seed))
+    return problem, np.asarray(X, float)
+
+
+def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitudes_km=None,
+                       species=None, environment=None, batch=None, workers=1,
+                       scheduler=None, output=None, resume=False, progress=False,
+                       on_batch=None, num_resamples=100):
+    """Sobol indices or Morris screening of ln n for the most uncertain reactions.
+
+    Parameters
+    ----------
+    model : ionochem.Model
+    samples : int
+        Sobol: base sample size N (N (M + 2) solves; a power of 2 keeps the Sobol'
+        sequence balanced). Morris: number of trajectories (N (M + 1) solves).
+    method : {"sobol", "morris"}
+    top : int
+        Number M of reactions taken as factors (default 10).
+    seed : int
+        Seed of the SALib design and of its bootstrap.
+    altitudes_km : sequence of float, optional
+        Altitudes analysed (nearest levels; default a standard set inside the grid).
+    species : sequence of str, optional
+        Species analysed (default N2+, O2+, NO+, O+(total) or O+, e).
+    environment : dict, optional
+        Varied environment factors (see :class:`~ionochem.analysis.uncertainty.SampleKernel`);
+        each becomes one more factor.
+    batch, workers, scheduler, output, resume, progress, on_batch
+        As for :func:`ionochem.analysis.uncertainty.monte_carlo`.
+    num_resamples : int
+        Bootstrap resamples of SALib's confidence intervals.
+
+    Returns
+    -------
+    xarray.Dataset
+        dims (species, factor, altitude): ``S1``, ``S1_conf``, ``ST``, ``ST_conf`` (sobol)
+        or ``mu_star``, ``mu_star_conf``, ``mu``, ``sigma`` (morris), and
+        ``variance_share_linear`` of the same factors for comparison.
+    """
+    from ionochem.analysis.sensitivity import sensitivity
+    from ionochem.io.dataset import _provenance
+    if method not in METHODS:
+        raise InputError(f"unknown method {method!r} (sobol or morris)", file="--method")
+    samples = int(samples)
+    if samples < 2:
+        raise InputError("--samples must be at least 2", file="--samples")
+    if int(top) < 1:
+        raise InputError("--top must be at least 1", file="--top")
+    kernel = SampleKernel(model, environment)
+    central = model.solve()
+    names = list(central["species"].values)
+    species = list(species) if species else default_species(names)
+    unknown = [s for s in species if s not in names]
+    if unknown or not species:
+        raise InputError(f"unknown species {', '.join(unknown) or '(none)'}; the column has "
+                         f"{', '.join(names)}", file="--species")
+    sp_idx = [names.index(s) for s in species]
+    lv_idx = nearest_levels(model.altitude_km, altitudes_km)
+    sens = sensitivity(model, central)
+    lin_r, lin_e = linear_variance_shares(model, kernel, sens)
+    sens_names = list(sens["species"].values)
+    order = [sens_names.index(s) for s in names]
+    lin_r, lin_e = lin_r[order], lin_e[order]
+    chosen = select_top_reactions(lin_r, sp_idx, lv_idx, top, kernel.varied_reactions())
+    env_cols = kernel.environment_columns()
+    factor_names = [kernel.reactions[j] for j in chosen] + list(env_cols)
+    columns = chosen + list(env_cols.values())
+    if not columns:
+        raise InputError("no uncertain reaction or environment factor to analyse (every f "
+                         "is 1)", file="--method")
+    problem, X = design(factor_names, samples, method, seed)
+    runs = X.shape[0]
+    Z = np.zeros((runs, kernel.width))
+    Z[:, columns] = X
+    store = open_store(output, manifest_for(model, kernel, method, samples, seed,
+                                            factors=factor_names, runs=runs),
+                       resume=resume)
+
+    def rows(a, b):
+        return Z[a:b]
+
+    z, n = run_ensemble(model, kernel, rows, runs, batch=batch, workers=workers,
+                        scheduler=scheduler, store=store, progress=progress,
+                        on_batch=on_batch)
+    dens, _, _ = species_samples(model, kernel, z, n)                 # (runs, A, Nsp)
+    sub = dens[:, lv_idx][:, :, sp_idx]                               # (runs, L, Ns)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        Y = np.where(sub > 0, np.log(np.where(sub > 0, sub, 1.0)), np.nan)
+    keys = (("S1", "S1_conf", "ST", "ST_conf") if method == "sobol"
+            else ("mu_star", "mu_star_conf", "mu", "sigma"))
+    out = {key: np.full((len(species), len(columns), len(lv_idx)), np.nan) for key in keys}
+    for li in range(len(lv_idx)):
+        for si in range(len(species)):
+            y = Y[:, li, si]
+            if not np.all(np.isfinite(y)) or np.ptp(y) <= 1e-14 * max(abs(y).max(), 1.0):
+                continue
+            res = _analyze(problem, X, y, method, seed, num_resamples)
+            for key in keys:
+                out[key][si, :, li] = np.asarray(res[key], float)
+    if method == "morris":
+        width = MORRIS_RANGE[1] - MORRIS_RANGE[0]
+        for key in keys:
+            out[key] = out[key] / width
+    lin_all = np.concatenate([lin_r[:, chosen], lin_e], axis=1)       # (Nsp, F, A)
+    lin_sel = lin_all[sp_idx][:, :, lv_idx]
+    long = {
+        "S1": "first-order Sobol index of ln density",
+        "S1_conf": "95 % bootstrap half-width of S1",
+        "ST": "total Sobol index of ln density",
+        "ST_conf": "95 % bootstrap half-width of ST",
+        "mu_star": "Morris mean absolute elementary effect of ln density per unit eps",
+        "mu_star_conf": "95 % bootstrap half-width of mu_star",
+        "mu": "Morris mean elementary effect of ln density per unit eps",
+        "sigma": "standard deviation of the Morris elementary effects per unit eps",
+    }
+    data = {key: (("species", "factor", "altitude"), out[key],
+                  {"units": "1", "long_name": long[key]}) for key in keys}
+    data["variance_share_linear"] = (("species", "factor", "altitude"), lin_sel,
+                                     {"units": "1", "long_name": "first-order share "
+                                      "S_ij^2 ln^2 f_j / sum over all factors, from the "
+                                      "exact local sensitivities"})
+    data["density_central"] = (("species", "altitude"),
+                               central["density"].values[sp_idx][:, lv_idx],
+                               {"units": "cm-3", "long_name": "number density with every "
+                                "rate at its central value"})
+    ds = xr.Dataset(
+        data,
+        coords={"species": ("species", np.array(species, dtype=object)),
+                "factor": ("factor", np.array(factor_names, dtype=object)),
+                "altitude": ("altitude", model.altitude_km[lv_idx],
+                             {"units": "km", "positive": "up", "standard_name": "altitude"})},
+        attrs=_provenance(model))
+    ds.attrs.update({
+        "method": method,
+        "samples": samples,
+        "model_runs": int(runs),
+        "seed": int(seed),
+        "top": int(top),
+        "factors": ", ".join(factor_names),
+        "factor_definition": "eps_j standard normal, ln k_j = ln k_j + eps_j ln f_j(level), "
+                             "shared by every level; other rates at their central values",
+        "environment_spreads": ", ".join(f"{k}={v:g}" for k, v in kernel.environment.items()),
+    })
+    if method == "morris":
+        ds.attrs["morris_design"] = (f"{MORRIS_LEVELS} levels of eps on the uniform grid "
+                                     f"{MORRIS_RANGE[0]:g}..{MORRIS_RANGE[1]:g}; effects "
+                                     "divided by the range, i.e. per unit eps")
+    ds.attrs["history"] = ds.attrs.get("history", "").replace("ionochem run",
+                                                              "ionochem uncertainty")
+    return ds
+
+
+def _analyze(problem, X, y, method, seed, num_resamples):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        if method == "sobol":
+            from SALib.analyze import sobol
+            return sobol.analyze(problem, y, calc_second_order=False,
+                                 num_resamples=num_resamples, conf_level=0.95, seed=int(seed))
+        from SALib.analyze import morris
+        return morris.analyze(problem, X, y, num_resamples=num_resamples, conf_level=0.95,
+                              num_levels=MORRIS_LEVELS, seed=int(seed))
