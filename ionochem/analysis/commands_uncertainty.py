@@ -118,7 +118,8 @@ def cmd_uncertainty(args):
         print(f"warning: {w}", file=sys.stderr)
     common = dict(seed=args.seed, environment=spreads, batch=args.batch,
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
-                  resume=args.resume, progress=not args.no_progress)
+                  resume=args.resume,
+                  progress=not args.no_progress and sys.stderr.isatty())
     if args.method == "montecarlo":
         from ionochem.analysis.uncertainty import monte_carlo
         ds = monte_carlo(model, args.samples, **common)

@@ -25,7 +25,8 @@ def _species(ds, wanted):
         out.remove("O+")
     if not out:
         roles = ds["role"].values
-        out = [s for s, r in zip(names, roles, strict=True) if r in ("solved", "electron", "derived")][:6]
+        out = [s for s, r in zip(names, roles, strict=True)
+               if r in ("solved", "electron", "derived")][:6]
     return out
 
 
