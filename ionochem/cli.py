@@ -202,12 +202,9 @@ def build_parser():
                    help="require a ref and an uncertainty factor for every reaction")
     c.set_defaults(func=cmd_check)
 
-    try:
-        from ionochem.analysis import commands
-    except ImportError:  # the analysis commands are optional while being built
-        commands = None
-    if commands is not None:
-        commands.add_commands(sub)
+    from ionochem.analysis import commands_compare, commands_uncertainty
+    commands_compare.register(sub)
+    commands_uncertainty.register(sub)
     return p
 
 
