@@ -125,6 +125,11 @@ def test_replacement_entries_and_whole_list_give_the_analytic_doubling(column, t
         with xr.open_dataset(out) as ds:
             np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 2.0, rtol=1e-8)
             assert ds.attrs["changes_reactions"] == str(f)
+        # The Python API records the same.
+        base = ionochem.Model(ionochem.load_scenario(scen))
+        ds = compare(base, changed_model(base, reaction_lists=[ionochem.load_mechanism(f)]))
+        np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 2.0, rtol=1e-8)
+        assert ds.attrs["changes_reactions"] == str(f)
     capsys.readouterr()
 
 

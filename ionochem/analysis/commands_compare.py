@@ -96,6 +96,9 @@ def cmd_compare(args):
     lists = [parse_reaction_list(f) for f in files]
     _, base = _baseline(args.scenario)
     changed = changed_model(base, set_dict=sets, scale=scales, reaction_lists=lists)
+    for w in changed.warnings:
+        if w not in base.warnings:
+            print(f"warning: changed model: {w}", file=sys.stderr)
     ds = compare(base, changed, reaction_lists=files)
     what = "; ".join(x for x in (ds.attrs["changes_set"], ds.attrs["changes_scale"],
                                  ds.attrs["changes_reactions"]) if x)

@@ -106,8 +106,13 @@ def merge_replacements(baseline_list, replacements):
                          f"{', '.join(missing)}", file=str(replacements.path))
     reactions = tuple(new.get(r.id, r) for r in baseline_list.reactions)
     sha = hashlib.sha256((baseline_list.sha256 + replacements.sha256).encode()).hexdigest()
-    return dataclasses.replace(baseline_list, reactions=reactions, sha256=sha,
-                               warnings=list(baseline_list.warnings))
+    merged = dataclasses.replace(baseline_list, reactions=reactions, sha256=sha,
+                                 warnings=list(baseline_list.warnings))
+    # The merged list keeps the baseline's path (expressions given later with --set resolve
+    # table paths against it); where the replacements came from is recorded beside it.
+    merged.replacements_from = tuple(getattr(baseline_list, "replacements_from", ())) + (
+        str(replacements.path),)
+    return merged
 
 
 def changed_model(baseline, *, set_dict=None, scale=None, reaction_lists=()):
@@ -156,7 +161,8 @@ def _change_attrs(baseline, changed, reaction_lists):
     scales = _extra_scales(baseline.changes["scale"], changed.changes["scale"])
     lists = [str(getattr(rl, "path", rl)) for rl in reaction_lists]
     if not lists and changed.reaction_list.sha256 != baseline.reaction_list.sha256:
-        lists = [str(changed.reaction_list.path)]
+        lists = list(getattr(changed.reaction_list, "replacements_from", ())) or [
+            str(changed.reaction_list.path)]
     return {
         "changes_set": "; ".join(f"{k} = {v}" for k, v in sets.items()),
         "changes_scale": "; ".join(f"{k} x {v:g}" for k, v in scales.items()),
@@ -225,6 +231,8 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
     for key in ("changes_set", "changes_scale"):
         out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
     out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
+    out.attrs["history"] = str(ds_b.attrs.get("history", "")).replace("ionochem run",
+                                                                     "ionochem compare")
     out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
     return out
 
