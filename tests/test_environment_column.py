@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 import ionochem
-from ionochem.environment.temperatures import K_B, AMU_KG
+from ionochem.environment.temperatures import AMU_KG, K_B
 
 ROOT = Path(__file__).resolve().parents[1]
 MID = ROOT / "scenarios" / "midlatitude_equinox.toml"
