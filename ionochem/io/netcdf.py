@@ -5,6 +5,7 @@ An interrupted run therefore never leaves a half-written file where a good one w
 
 from __future__ import annotations
 
+import contextlib
 import os
 import tempfile
 from pathlib import Path
@@ -38,8 +39,13 @@ def _encodable(ds):
     return out
 
 
-def write_netcdf(ds, path) -> Path:
-    """Write ``ds`` to ``path`` atomically (NETCDF4 format); returns the path."""
+@contextlib.contextmanager
+def atomic_path(path):
+    """Yield a temporary path beside ``path``; on success it is renamed onto ``path``.
+
+    On any failure (including an interrupt) the temporary file is removed and ``path`` keeps
+    whatever it held before.
+    """
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
@@ -47,28 +53,24 @@ def write_netcdf(ds, path) -> Path:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
     os.close(fd)
     try:
-        _encodable(ds).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
+        yield tmp
         os.chmod(tmp, _umask_mode())
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
-    return path
+
+
+def write_netcdf(ds, path) -> Path:
+    """Write ``ds`` to ``path`` atomically (NETCDF4 format); returns the path."""
+    with atomic_path(path) as tmp:
+        _encodable(ds).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
+    return Path(path)
 
 
 def atomic_write_bytes(path, data: bytes) -> Path:
     """Write bytes atomically (used for figures and text reports)."""
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.chmod(tmp, _umask_mode())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path
+    with atomic_path(path) as tmp, open(tmp, "wb") as fh:
+        fh.write(data)
+    return Path(path)
