@@ -89,10 +89,10 @@ def cmd_run(args):
                   f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1 "
                   f"(balance {bal:.1e})")
         dark = ds["dark"].values.astype(bool)
-        if dark.all():
-            print("warning: every level is dark: photochemistry alone cannot sustain the "
-                  "night ionosphere (no transport, no night-time sources)", file=sys.stderr)
-        elif dark.any():
+        for note in ds.attrs.get("warnings", "").split("; "):
+            if note and note not in model.warnings:
+                print(f"warning: {note}", file=sys.stderr)
+        if dark.any() and not dark.all():
             print(f"{int(dark.sum())} dark level(s) below "
                   f"{ds['altitude'].values[dark].max():g} km", file=sys.stderr)
     if scen.solve.mode == "transient":

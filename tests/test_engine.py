@@ -225,3 +225,21 @@ def test_with_changes_scales_and_replaces_rates(column):
     np.testing.assert_allclose(const, np.sqrt(Q / 1e-7), rtol=1e-8)
     with pytest.raises(ionochem.InputError):
         model.with_changes(scale={"NOPE": 2.0})
+
+
+def test_negative_balance_ion_is_flagged_not_hidden(column, tmp_path):
+    """A given Ne below the molecular ions makes O+ = Ne − others negative there: those
+    levels are flagged in the dataset and named in its warnings (SCIENCE.md §1)."""
+    ne = np.where(ALT < 200, 10.0, 1e5)
+    (tmp_path / "ne.csv").write_text("altitude_km,Ne\n" + "\n".join(
+        f"{a},{v}" for a, v in zip(ALT, ne)) + "\n")
+    text = UNRESOLVED + "D4: O+ + e -> O | k = 3.7e-12 | ref = invented\n"
+    neutrals = {"N2": 1e12 * np.exp(-(ALT - 100) / 40), "O": 1e11 * np.ones_like(ALT),
+                "N": 1e8 * np.ones_like(ALT)}
+    path = column(text, ALT, neutrals=neutrals, Tn=600.0, Te=TE, production={"P1": Q},
+                  extra='[solve]\nelectrons = "table"\nelectron_table = "ne.csv"\n')
+    ds = ionochem.Model(ionochem.load_scenario(path)).solve()
+    flag = ds["balance_negative"].values.astype(bool)
+    np.testing.assert_array_equal(flag, ds["density"].sel(species="O+").values < 0)
+    assert flag[ALT < 200].all() and not flag[ALT >= 200].any()
+    assert "negative at" in ds.attrs["warnings"]

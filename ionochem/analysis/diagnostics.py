@@ -123,6 +123,10 @@ def add_steady_diagnostics(model, ds):
             else 0.0
 
     dark = env.dark(None)
+    notes = list(model.warnings)
+    if dark.all():
+        notes.append("every level is dark: photochemistry alone cannot sustain the night "
+                     "ionosphere (no transport, no night-time sources)")
     ds["dark"] = ("altitude", dark.astype(np.int8),
                   {"long_name": "no direct sunlight reaches the level",
                    "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})
@@ -135,3 +139,9 @@ def add_steady_diagnostics(model, ds):
                                   {"long_name": f"{mech.balance_ion} = Ne - other ions "
                                    "would be negative", "flag_values": np.array([0, 1], np.int8),
                                    "flag_meanings": "ok negative"})
+        if neg.any():
+            alt = env.altitude_km[neg]
+            notes.append(f"{mech.balance_ion} = Ne - other ions is negative at {neg.sum()} "
+                         f"level(s), {alt.min():g}-{alt.max():g} km: the given Ne is below "
+                         "the molecular ions there")
+    ds.attrs["warnings"] = "; ".join(str(n) for n in notes)
