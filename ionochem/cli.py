@@ -221,6 +221,9 @@ def main(argv=None):
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:          # output piped into `head` and the like
+        sys.stderr.close()
+        return 0
 
 
 if __name__ == "__main__":

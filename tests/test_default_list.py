@@ -151,7 +151,7 @@ def test_photo_channels_have_the_shapes_the_environment_expects(rl):
     photo |= {("N2", f"N2+(v={v}) + e") for v in N2PLUS_LEVELS}
     assert shapes("photo") == photo
     pe = {("O", "O+ + e"), ("O", "O+(2D) + e"), ("O", "O+(2P) + e"), ("N2", "N + N+ + e"),
-          ("O2", "O2+ + e"), ("N2", "N + N(2D)")}
+          ("O2", "O2+ + e"), ("O2", "O + O+ + e"), ("N2", "N + N(2D)")}
     pe |= {("N2", f"N2+(v={v}) + e") for v in N2PLUS_LEVELS}
     assert shapes("photoelectron") == pe
 
