@@ -46,7 +46,8 @@ def _parse_scales(items):
     return out
 
 
-def _print_table(ds, out=sys.stdout, altitudes=DEFAULT_REPORT_KM):
+def _print_table(ds, out=None, altitudes=DEFAULT_REPORT_KM):
+    out = sys.stdout if out is None else out
     alt = ds["altitude"].values
     species = [s for s in MAIN_SPECIES if s in ds["species"].values]
     rows = sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in altitudes

@@ -80,7 +80,7 @@ import xarray as xr
 from ionochem.errors import InputError, SolverError
 
 QUANTILES = (0.05, 0.16, 0.5, 0.84, 0.95)
-ROW_TARGET = 4000          # rows (samples × levels) per batch by default (see the benchmark)
+ROW_TARGET = 1000          # rows (samples × levels) per batch by default (see the benchmark)
 ENV_EUV = "euv"
 ENV_TE = "Te"
 PHOTO_SOURCES = frozenset({"photo", "photoelectron"})

@@ -1,0 +1,108 @@
+"""Monte Carlo throughput: 1000 samples of a 100-level column, serially and on a two-worker
+dask LocalCluster.
+
+The column is the mid-latitude demo scenario (``scenarios/midlatitude_equinox.toml``, an
+invented site and date) with its grid replaced by 100 levels from 90 to 450 km; the default
+reaction list with its uncertainty factors. ``--synthetic`` uses the invented benchmark
+column of ``bench_solve.py`` instead (no neutral model needed). Prints wall times (best of
+``--repeat``), samples per second, the batch size, and the agreement of the two runs.
+
+    python benchmarks/bench_uncertainty.py [--samples 1000] [--levels 100] [--workers 2]
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+import ionochem
+from ionochem.analysis import uncertainty as U
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def demo_column(folder: Path, levels: int) -> Path:
+    """The demo scenario on ``levels`` levels from 90 to 450 km, written to ``folder``."""
+    text = (ROOT / "scenarios" / "midlatitude_equinox.toml").read_text()
+    alt = np.linspace(90.0, 450.0, levels)
+    grid = "altitude_km = [" + ", ".join(f"{a:.6f}" for a in alt) + "]"
+    text = re.sub(r"(?m)^altitude_km\s*=.*$", grid, text)
+    reactions = (ROOT / "reactions" / "ionosphere.reactions").as_posix()
+    text = re.sub(r"(?m)^reactions\s*=.*$", f'reactions = "{reactions}"', text)
+    path = folder / "demo100.toml"
+    path.write_text(text)
+    return path
+
+
+def synthetic_column(folder: Path, levels: int) -> Path:
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    from bench_solve import write_column
+    return write_column(folder, levels)
+
+
+def timed(fn, repeat):
+    best, out = np.inf, None
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t0)
+    return best, out
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--samples", type=int, default=1000)
+    ap.add_argument("--levels", type=int, default=100)
+    ap.add_argument("--workers", type=int, default=2)
+    ap.add_argument("--batch", type=int, default=None)
+    ap.add_argument("--repeat", type=int, default=2)
+    ap.add_argument("--synthetic", action="store_true",
+                    help="the invented column of bench_solve.py instead of the demo scenario")
+    args = ap.parse_args()
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        path = (synthetic_column if args.synthetic else demo_column)(folder, args.levels)
+        t0 = time.perf_counter()
+        model = ionochem.Model(ionochem.load_scenario(path))
+        t_build = time.perf_counter() - t0
+        kernel = U.SampleKernel(model)
+        A, S, R = model.altitude_km.size, len(model.species), len(model.reactions)
+        batch = args.batch or U.default_batch(A)
+        print(f"{model.scenario.title}: {A} levels, {S} solved species, {R} reactions "
+              f"({kernel.varied_reactions().size} uncertain); model built in {t_build:.2f} s")
+        print(f"{args.samples} samples in batches of {batch} ({batch * A} Newton rows)")
+        U.monte_carlo(model, 20, seed=0, batch=batch)                 # warm-up (imports)
+
+        # The ensemble alone (draws + solves), then the whole analysis with its summary.
+        def ensemble(workers):
+            def rows(a, b):
+                return U.draw_normals(0, a, b, kernel.width)
+            return U.run_ensemble(model, kernel, rows, args.samples, batch=batch,
+                                  workers=workers)
+
+        t_ser, (_, n_ser) = timed(lambda: ensemble(1), args.repeat)
+        t_mc, ds = timed(lambda: U.monte_carlo(model, args.samples, seed=0, batch=batch),
+                         args.repeat)
+        print(f"serial   : ensemble {t_ser:6.2f} s = {args.samples / t_ser:7.1f} samples/s; "
+              f"monte_carlo() with summary {t_mc:6.2f} s")
+        t_par, (_, n_par) = timed(lambda: ensemble(args.workers), args.repeat)
+        print(f"{args.workers} workers: ensemble {t_par:6.2f} s = {args.samples / t_par:7.1f} "
+              "samples/s (includes starting the LocalCluster)")
+        big = n_ser > 0
+        diff = np.max(np.abs(n_par[big] - n_ser[big]) / n_ser[big])
+        print(f"speed-up {t_ser / t_par:.2f}x; largest relative difference serial vs "
+              f"cluster {diff:.1e}")
+        e = ds["density_quantiles"].sel(species="e")
+        i = int(np.argmin(np.abs(ds["altitude"].values - 200.0)))
+        print(f"Ne at {ds['altitude'].values[i]:.0f} km: median {float(e[2, i]):.3e} cm-3, "
+              f"68 % range x{np.sqrt(float(e[3, i] / e[1, i])):.3f}")
+
+
+if __name__ == "__main__":
+    main()
