@@ -114,7 +114,12 @@ class Model:
                 "its density in the neutral source, or add its loss", file=r.file, line=r.line)
         self.species = list(mech.solved)
         self.altitude_km = env.altitude_km
-        self.warnings = list(env.warnings) + list(getattr(mechanism, "warnings", []))
+        # The parser cannot know which species the neutral source fixes: its warnings of
+        # "produced but never lost" are dropped for those (structural_problems covers the rest).
+        list_warnings = [w for w in getattr(mechanism, "warnings", [])
+                         if not any(str(getattr(w, "message", w)).startswith(f"{n} is produced")
+                                    for n in env.neutrals)]
+        self.warnings = list(env.warnings) + list_warnings
         A = env.altitude_km.size
         given = np.zeros((A, len(mech.given)))
         total_neutral = sum(env.neutrals.values())
