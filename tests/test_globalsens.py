@@ -77,15 +77,16 @@ def test_morris_ranks_the_larger_factor_first_with_mu_star_half_log_factor(model
 def test_top_reaction_selection_follows_first_order_variance_share(model):
     """With --top 1 only the reaction with the largest S² ln² f (P1: ¼ ln² 1.5 against
     ¼ ln² 1.3, SCIENCE.md §6 sensitivities ±½) is a factor; select_top_reactions orders by
-    the largest share over the chosen species and levels."""
+    the mean share over the chosen species and levels (a broad share beats one level)."""
     ds = G.global_sensitivity(model, 8, method="morris", top=1, seed=0, species=["O+"])
     assert list(ds["factor"].values) == ["P1"]
-    share = np.zeros((2, 3, 4))
-    share[0, 2, 1] = 0.5
-    share[1, 0, 3] = 0.7                     # largest, but for species 1 only
-    share[0, 1, 0] = 0.2
-    assert G.select_top_reactions(share, [0], [0, 1, 2, 3], 2) == [2, 1]
-    assert G.select_top_reactions(share, [0, 1], [0, 1, 2, 3], 3) == [0, 2, 1]
+    share = np.zeros((2, 3, 4))               # (species, reaction, level)
+    share[0, 2, 1] = 0.5                      # one level: mean 0.125
+    share[0, 1, :] = 0.2                      # every level: mean 0.2
+    share[1, 0, 3] = 0.9                      # species 1 only
+    assert G.select_top_reactions(share, [0], [0, 1, 2, 3], 2) == [1, 2]
+    assert G.select_top_reactions(share, [0, 1], [0, 1, 2, 3], 3) == [0, 1, 2]
+    assert G.select_top_reactions(share, [0], [1], 3) == [2, 1]
 
 
 def test_global_run_resumes_to_the_uninterrupted_indices(model, tmp_path):

@@ -120,14 +120,22 @@ def cmd_uncertainty(args):
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
                   resume=args.resume,
                   progress=not args.no_progress and sys.stderr.isatty())
+    try:
+        if args.method == "montecarlo":
+            from ionochem.analysis.uncertainty import monte_carlo
+            ds = monte_carlo(model, args.samples, **common)
+        else:
+            from ionochem.analysis.globalsens import global_sensitivity
+            ds = global_sensitivity(model, args.samples, method=args.method, top=args.top,
+                                    altitudes_km=altitudes, species=args.species, **common)
+    except KeyboardInterrupt:
+        if args.output:
+            print(f"finished batches are kept in {args.output}.samples: run the same command "
+                  "with --resume to continue", file=sys.stderr)
+        raise
     if args.method == "montecarlo":
-        from ionochem.analysis.uncertainty import monte_carlo
-        ds = monte_carlo(model, args.samples, **common)
         _print_montecarlo(ds)
     else:
-        from ionochem.analysis.globalsens import global_sensitivity
-        ds = global_sensitivity(model, args.samples, method=args.method, top=args.top,
-                                altitudes_km=altitudes, species=args.species, **common)
         _print_global(ds)
     if args.output:
         write_netcdf(ds, args.output)
@@ -148,7 +156,8 @@ def _main_species(names):
     return default_species(list(names))
 
 
-def _print_montecarlo(ds, out=sys.stdout):
+def _print_montecarlo(ds, out=None):
+    out = sys.stdout if out is None else out
     alt = ds["altitude"].values
     names = list(ds["species"].values)
     species = _main_species(names)
@@ -183,7 +192,8 @@ def _print_montecarlo(ds, out=sys.stdout):
                   f"[{lin:6.1%}]", file=out)
 
 
-def _print_global(ds, out=sys.stdout):
+def _print_global(ds, out=None):
+    out = sys.stdout if out is None else out
     method = ds.attrs["method"]
     key, second = (("S1", "ST") if method == "sobol" else ("mu_star", "sigma"))
     print(f"{ds.attrs.get('title', '')}", file=out)

@@ -5,7 +5,7 @@ Factors
 -------
 The inputs are the same standard normals ε_j as in the Monte Carlo (ln k_j = ln k_j +
 ε_j ln f_j, one draw per reaction shared by every level), for the ``top`` reactions with the
-largest first-order variance share S_ij² ln² f_j / Σ (the largest over the chosen species
+largest first-order variance share S_ij² ln² f_j / Σ (its mean over the chosen species
 and altitudes), plus any varied environment factor (``euv``, ``Te``, a fixed neutral).
 Every other rate stays at its central value.
 
@@ -79,7 +79,7 @@ def nearest_levels(altitude_km, wanted_km=None):
 
 
 def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=None):
-    """The ``top`` reactions with the largest first-order variance share.
+    """The ``top`` reactions with the largest mean first-order variance share.
 
     Parameters
     ----------
@@ -98,7 +98,9 @@ def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=N
     """
     sub = np.nan_to_num(linear_share[np.ix_(list(species_idx), np.arange(linear_share.shape[1]),
                                             list(level_idx))])
-    score = sub.max(axis=(0, 2))
+    # The mean share over the chosen species and levels: a reaction that carries a large part
+    # of the variance over a wide height range outranks one that dominates a single level.
+    score = sub.mean(axis=(0, 2))
     allowed = np.arange(score.size) if candidates is None else np.asarray(candidates, int)
     allowed = allowed[score[allowed] > 0]
     order = allowed[np.argsort(-score[allowed], kind="stable")]

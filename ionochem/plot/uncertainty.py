@@ -86,8 +86,8 @@ def plot_global(ds, path, *, species=None, title=None):
     alt = ds["altitude"].values
     cols = min(3, len(names))
     rows = int(np.ceil(len(names) / cols))
-    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 4.4 * rows), sharey=True,
-                             squeeze=False)
+    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 4.2 * rows), sharey=True,
+                             squeeze=False, layout="constrained")
     cmap = plt.get_cmap("tab10" if len(factors) <= 10 else "tab20")
     main = "ST" if method == "sobol" else "mu_star"
     for ax, s in zip(axes.flat, names):
@@ -99,16 +99,20 @@ def plot_global(ds, path, *, species=None, title=None):
                 ax.plot(ds["S1"].sel(species=s, factor=name).values, alt, ls="--",
                         color=colour, lw=0.9)
         ax.set_title(s, fontsize=10, color=STYLE.get(s, {}).get("color", "black"))
-        ax.set_xlabel("total (solid) and first-order (dashed) Sobol index" if method == "sobol"
-                      else "Morris μ* of ln n per unit ε")
         if method == "sobol":
-            ax.set_xlim(-0.02, 1.02)
+            vals = ds[["S1", "ST"]].sel(species=s).to_array().values
+            vals = vals[np.isfinite(vals)]
+            hi = max(1.02, vals.max() + 0.02) if vals.size else 1.02
+            lo = min(-0.02, vals.min() - 0.02) if vals.size else -0.02
+            ax.set_xlim(lo, hi)
         ax.grid(True, alpha=0.3)
     for ax in axes.flat[len(names):]:
         ax.set_visible(False)
     for ax in axes[:, 0]:
         ax.set_ylabel("altitude (km)")
     axes.flat[0].legend(loc="best", fontsize=7)
+    fig.supxlabel("total (solid) and first-order (dashed) Sobol index of ln n"
+                  if method == "sobol" else "Morris μ* of ln n per unit ε", fontsize=10)
     fig.suptitle(f"{title or ds.attrs.get('title', '')}\n{method}, "
                  f"{ds.attrs.get('model_runs', '?')} solves", fontsize=11)
     data = _figure_bytes(fig, path)
