@@ -243,3 +243,27 @@ def test_negative_balance_ion_is_flagged_not_hidden(column, tmp_path):
     np.testing.assert_array_equal(flag, ds["density"].sel(species="O+").values < 0)
     assert flag[ALT < 200].all() and not flag[ALT >= 200].any()
     assert "negative at" in ds.attrs["warnings"]
+
+
+def test_solver_raises_naming_the_levels_it_cannot_solve():
+    """A system with no steady state (dn/dt = q + 0.1 n > 0 for every n ≥ 0) is not returned
+    as an answer: SolverError names the failing levels, the solvable ones would converge."""
+    from ionochem.solve.steady import solve_steady
+    q = np.array([1.0, 2.0, 3.0])
+    growth = np.array([0.1, -1.0, 0.1])       # the middle level has the root n = 2
+
+    def tendency(n, rows):
+        return q[rows, None] + growth[rows, None] * n
+
+    def jacobian(n, rows):
+        return growth[rows, None, None] * np.ones((len(rows), 1, 1))
+
+    def gross(n, rows):
+        return (q[rows, None] + np.clip(growth[rows, None], 0, None) * n,
+                np.clip(-growth[rows, None], 0, None) * n)
+
+    with pytest.raises(ionochem.SolverError) as err:
+        solve_steady(np.zeros((3, 1)), tendency, jacobian, gross, max_continuation=50,
+                     level_names=["100 km", "200 km", "300 km"])
+    assert list(err.value.levels) == ["100 km", "300 km"]
+    assert "100 km" in str(err.value) and "200 km" not in str(err.value)
