@@ -244,21 +244,6 @@ class Mechanism:
         neg = np.clip(-self.nu_all, 0, None)
         return r @ pos.T, r @ neg.T
 
-    def rate_derivatives(self, k, n_all):
-        """∂r_j/∂n_m over all density columns, shape (B, R, N_all + 1)."""
-        B, R = k.shape
-        D = np.zeros((B, R, n_all.shape[1]))
-        vals = [n_all[:, self.slots[:, m]] for m in range(MAX_REACTANT_SLOTS)]
-        rows = np.arange(R)
-        for m in range(MAX_REACTANT_SLOTS):
-            others = k.copy()
-            for p in range(MAX_REACTANT_SLOTS):
-                if p != m:
-                    others *= vals[p]
-            # Several slots may name the same species (2 O): contributions add.
-            np.add.at(D, (slice(None), rows, self.slots[:, m]), others)
-        return D
-
     def jacobian(self, n, k, given):
         """Analytic Jacobian J[b, i, j] = ∂f_i/∂n_j of the solved species, (B, S, S).
 
