@@ -73,8 +73,18 @@ def _load_model(args):
     return scen, model
 
 
+def _check_output_folders(args):
+    """Refuse output paths in folders that do not exist before any work is done."""
+    from pathlib import Path
+    for flag in ("output", "plot"):
+        path = getattr(args, flag, None)
+        if path and not Path(path).resolve().parent.is_dir():
+            raise InputError(f"output folder {Path(path).parent} does not exist", file=path)
+
+
 def cmd_run(args):
     from ionochem.io.netcdf import write_netcdf
+    _check_output_folders(args)
     scen, model = _load_model(args)
     for w in model.warnings:
         print(f"warning: {w}", file=sys.stderr)

@@ -146,29 +146,32 @@ class Model:
                                            for j in self._source_reactions], -1)
 
     # ---------------------------------------------------------------- changes
-    def _ids_for(self, key):
+    def _ids_for(self, key, where=None):
         if key in self._id_index:
             return [self._id_index[key]]
         families = getattr(self.reaction_list, "families", {})
         for fam, members in families.items():
             if key in (fam, fam.split("(")[0]):
                 return [self._id_index[m] for m in members]
-        raise InputError(f"no reaction with id {key!r} in {self.reaction_list.path}")
+        raise InputError(f"no reaction with id {key!r} in {self.reaction_list.path}",
+                         file=where)
 
     def _apply_changes(self, set_dict, scale, origin):
         from ionochem.mechanism.expressions import compile_expression
         base_dir = Path(self.reaction_list.path).parent if self.reaction_list.path else Path(".")
         where = self.scenario.source if origin == "scenario" else "--set"
         for key, text in set_dict.items():
-            for j in self._ids_for(key):
+            for j in self._ids_for(key, where):
                 r = self._rxns[j]
                 self._k_expr[j] = compile_expression(str(text), file=where, line=None,
                                                      base_dir=base_dir, level=r.level)
         for key, factor in scale.items():
             factor = float(factor)
+            where = self.scenario.source if origin == "scenario" else "--scale"
             if not np.isfinite(factor) or factor < 0:
-                raise InputError(f"scale factor for {key} must be a non-negative number")
-            for j in self._ids_for(key):
+                raise InputError(f"scale factor for {key} must be a non-negative number",
+                                 file=where)
+            for j in self._ids_for(key, where):
                 self._scale[j] *= factor
 
     def with_changes(self, set_dict=None, scale=None):
