@@ -18,12 +18,26 @@ MAIN_SPECIES = ("N2+", "O2+", "NO+", "O+", "O+(total)", "N+", "e")
 DEFAULT_REPORT_KM = (100, 120, 150, 200, 250, 300, 400)
 
 
+def _assignment_split(item):
+    """Index of the first ``=`` outside parentheses (ids like ``DR(v=2)`` contain one)."""
+    depth = 0
+    for i, ch in enumerate(item):
+        if ch == "(":
+            depth += 1
+        elif ch == ")":
+            depth -= 1
+        elif ch == "=" and depth == 0:
+            return i
+    return None
+
+
 def _parse_assignments(items, what):
     out = {}
     for item in items or ():
-        if "=" not in item:
+        cut = _assignment_split(item)
+        if cut is None:
             raise InputError(f"{what} {item!r} must look like ID=VALUE", file=f"--{what}")
-        key, value = item.split("=", 1)
+        key, value = item[:cut], item[cut + 1:]
         key, value = key.strip(), value.strip()
         if not key or not value:
             raise InputError(f"{what} {item!r} must look like ID=VALUE", file=f"--{what}")
