@@ -67,7 +67,7 @@ def add_steady_diagnostics(model, ds):
     mech = model.mechanism
     dens = ds["density"]
     loss = ds["loss"]
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         life = np.where(loss.values > 0, dens.values / loss.values, np.inf)
     roles = ds["role"].values
     life[roles == "fixed"] = np.nan
