@@ -18,19 +18,13 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
+from ionochem.analysis.compare import main_species
 from ionochem.errors import InputError
 
 TE_NAME = "Te"
-DEFAULT_SPECIES = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
-
-
 def default_species(names):
     """N2+, O2+, NO+, O+(total) (or O+ without metastables), e — those present."""
-    names = list(names)
-    out = [s for s in DEFAULT_SPECIES if s in names]
-    if "O+(total)" in out and "O+" in out:
-        out.remove("O+")
-    return out
+    return main_species(names)
 
 
 @dataclass(frozen=True)
