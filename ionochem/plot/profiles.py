@@ -43,6 +43,20 @@ def _species_to_draw(ds, wanted=PROFILE_SPECIES):
     return out
 
 
+def style_density_axes(ax, alt, curves):
+    """Log density axis spanning at most six decades below the largest value, altitude axis,
+    units and grid: the project's profile layout (shared by the profile figures)."""
+    ax.set_xscale("log")
+    vals = np.concatenate([np.ravel(c) for c in curves]) if len(curves) else np.array([])
+    vals = vals[np.isfinite(vals) & (vals > 0)]
+    if vals.size:
+        ax.set_xlim(max(vals.min(), vals.max() * 1e-6) / 2, vals.max() * 2)
+    ax.set_ylim(alt.min(), alt.max())
+    ax.set_xlabel("number density (cm$^{-3}$)")
+    ax.set_ylabel("altitude (km)")
+    ax.grid(True, which="major", alpha=0.3)
+
+
 def _figure_bytes(fig, path):
     buf = io.BytesIO()
     fmt = Path(path).suffix.lstrip(".").lower() or "png"
@@ -62,15 +76,7 @@ def plot_profiles(ds, path, *, species=None, title=None):
         n = ds["density"].sel(species=s).values
         shown = np.where(n > 0, n, np.nan)
         ax.plot(shown, alt, label=s, **STYLE.get(s, dict(lw=1.0)))
-    ax.set_xscale("log")
-    vals = np.concatenate([ds["density"].sel(species=s).values for s in names])
-    vals = vals[vals > 0]
-    if vals.size:
-        ax.set_xlim(max(vals.min(), vals.max() * 1e-6) / 2, vals.max() * 2)
-    ax.set_ylim(alt.min(), alt.max())
-    ax.set_xlabel("number density (cm$^{-3}$)")
-    ax.set_ylabel("altitude (km)")
-    ax.grid(True, which="major", alpha=0.3)
+    style_density_axes(ax, alt, [ds["density"].sel(species=s).values for s in names])
     ax.legend(loc="best", fontsize=9, framealpha=0.9)
     sza = ds.get("solar_zenith_angle")
     subtitle = ""

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.io.netcdf import atomic_write_bytes
-from ionochem.plot.profiles import STYLE, _figure_bytes, _species_to_draw
+from ionochem.plot.profiles import STYLE, _figure_bytes, _species_to_draw, style_density_axes
 
 BAND_ALPHA = {0.90: 0.15, 0.68: 0.32}
 
@@ -56,15 +56,7 @@ def plot_bands(ds, path, *, species=None, title=None):
         ax.plot(med, alt, label=s, **style)
         shown_vals.append(quant(0.05))
         shown_vals.append(quant(0.95))
-    ax.set_xscale("log")
-    vals = np.concatenate(shown_vals) if shown_vals else np.array([])
-    vals = vals[np.isfinite(vals) & (vals > 0)]
-    if vals.size:
-        ax.set_xlim(max(vals.min(), vals.max() * 1e-6) / 2, vals.max() * 2)
-    ax.set_ylim(alt.min(), alt.max())
-    ax.set_xlabel("number density (cm$^{-3}$)")
-    ax.set_ylabel("altitude (km)")
-    ax.grid(True, which="major", alpha=0.3)
+    style_density_axes(ax, alt, shown_vals)
     ax.legend(loc="best", fontsize=9, framealpha=0.9,
               title="median; 68 % and 90 % bands", title_fontsize=8)
     sub = f"\nMonte Carlo over rate uncertainties, {ds.attrs.get('samples', '?')} samples"
