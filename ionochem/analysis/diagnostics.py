@@ -88,7 +88,7 @@ def add_steady_diagnostics(model, ds):
     for name, upper, lower, label in EMISSIONS:
         total = np.zeros(rates.shape[1])
         found = False
-        for j, r in enumerate(model._rxns):
+        for j, r in enumerate(model.reaction_objects):
             reac = [sp.name for sp, c in r.reactants for _ in range(c)]
             prod = [sp.name for sp, c in r.products for _ in range(c)]
             if reac == [upper] and prod == [lower]:

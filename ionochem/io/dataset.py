@@ -23,7 +23,7 @@ VALIDITY_NOTE = (
     "navigation or satellite operations.")
 
 
-def _species_table(model, n_solved):
+def species_table(model, n_solved):
     """All densities (..., N) with names and roles, from solved densities (..., A, S)."""
     mech = model.mechanism
     lead = n_solved.shape[:-1]
@@ -102,7 +102,7 @@ def steady_dataset(model, res):
     """Dataset of a steady solution (``SteadyResult`` from the steady solver)."""
     mech = model.mechanism
     alt = model.altitude_km
-    dens, names, roles = _species_table(model, res.n)
+    dens, names, roles = species_table(model, res.n)
     k = model.rate_coefficients()
     given = model.given
     n_all = mech.full_densities(res.n, given)
@@ -159,7 +159,7 @@ def steady_dataset(model, res):
             "role": ("species", np.array(roles, dtype=object),
                      {"long_name": "solved, fixed, electron, balance or derived"}),
             "reaction": ("reaction", np.array(model.reactions, dtype=object)),
-            "equation": ("reaction", np.array([_equation(r) for r in model._rxns],
+            "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
         attrs=_provenance(model),
@@ -184,7 +184,7 @@ def _add_diagnostics(model, ds):
 
 def transient_dataset(model, times, n):
     """Dataset of a time integration: n shaped (time, altitude, species)."""
-    dens, names, roles = _species_table(model, np.maximum(n, 0.0))
+    dens, names, roles = species_table(model, np.maximum(n, 0.0))
     ds = xr.Dataset(
         {
             "density": (("time", "species", "altitude"), np.transpose(dens, (0, 2, 1)),
