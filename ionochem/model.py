@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError, MechanismError, TableRangeError
+from ionochem.errors import InputError, MechanismError, SolverError, TableRangeError
 from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 
 SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
@@ -444,8 +444,25 @@ class Model:
             return P[:, :S], L[:, :S]
 
         names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
-        return solve_steady(np.zeros((k.shape[0], S)), tendency, jacobian, gross, rtol=rtol,
-                            level_names=[f"{a:g} km" for a in names])
+        try:
+            return solve_steady(np.zeros((k.shape[0], S)), tendency, jacobian, gross,
+                                rtol=rtol, level_names=[f"{a:g} km" for a in names],
+                                species_names=list(mech.solved))
+        except SolverError as exc:
+            raise self._solver_failure(exc, rtol) from None
+
+    def _solver_failure(self, exc, rtol):
+        """``exc`` at the scenario's file, with what to try."""
+        hints = []
+        if rtol < 1e-12:
+            hints.append(f"relax solve.rtol (now {rtol:g}; 1e-10 is the default)")
+        hints.append("check the rates of the reactions that make and destroy "
+                     f"{', '.join(dict.fromkeys(exc.species)) or 'those species'} at these "
+                     "heights (`ionochem reactions SCENARIO --altitude KM`)")
+        hints.append("or run the column with [solve] mode = \"transient\" to see whether it "
+                     "settles")
+        return SolverError(f"{exc.message}; try: {'; '.join(hints)}", file=self.scenario.source,
+                           key="solve", levels=exc.levels, species=exc.species)
 
     def solve(self):
         """Steady state (photochemical equilibrium) at every level → ``xarray.Dataset``."""

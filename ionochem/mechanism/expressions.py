@@ -37,7 +37,8 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import ReactionListError
-from ionochem.mechanism.ratetables import RateTable, load_rate_table
+from ionochem.io.paths import PathProblem, resolve_path
+from ionochem.mechanism.ratetables import RateTable, load_rate_table, where_tables
 
 __all__ = ["CompiledExpr", "compile_expression", "VARIABLES", "SOURCES", "FUNCTIONS",
            "MAX_DEPTH", "MAX_LENGTH"]
@@ -407,8 +408,12 @@ class _Parser:
         name, column = args[0], args[1]
         if not name.strip():
             self.error("table() needs a file name", tok)
-        table = load_rate_table(self.base_dir / name, column, file=self.file, line=self.line,
-                                name=name)
+        try:
+            path = resolve_path(name, self.base_dir)
+        except PathProblem as exc:
+            self.error(f"table({name!r}): {exc}; {where_tables(self.base_dir)}", tok)
+        table = load_rate_table(path, column, file=self.file, line=self.line, name=name,
+                                base_dir=self.base_dir)
         self.tables.append(table)
         self.variables.add(table.variable)
         return ("table", table, extrapolate)

@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ionochem.errors import ReactionListError
+from ionochem.io.paths import PathProblem, read_bounded, resolve_path
 from ionochem.mechanism.expressions import CompiledExpr, compile_expression
 from ionochem.mechanism.species import (
     Species,
@@ -641,15 +642,11 @@ def parse_reaction_list(path) -> ReactionList:
         characters, or anything malformed, at ``path:line``.
     """
     name = str(path)
-    p = Path(path)
     try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise ReactionListError("file not found", file=name) from None
-    except IsADirectoryError:
-        raise ReactionListError("is a folder, not a reaction list", file=name) from None
-    except OSError as exc:
-        raise ReactionListError(f"cannot be read ({exc.strerror})", file=name) from None
+        p = resolve_path(path)
+        data = read_bounded(p)
+    except PathProblem as exc:
+        raise ReactionListError(f"reaction list {exc}", file=name) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:

@@ -25,13 +25,14 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import ReactionListError, TableRangeError
+from ionochem.errors import ReactionListError, TableRangeError, safe_name
+from ionochem.io.paths import PathProblem, read_bounded, regular_file
 
 __all__ = ["RateTable", "load_rate_table", "clear_cache", "TEMPERATURE_COLUMNS"]
 
 TEMPERATURE_COLUMNS = ("Te", "Ti", "Tn", "Teff")
 _TEMP_HEADER = re.compile(r"(Te|Ti|Tn|Teff)(_K)?")
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 _MAX_BYTES = 10_000_000
 # Relative slack when checking the range, so a temperature equal to an end point up to
 # rounding is not refused *(common practice)*.
@@ -155,15 +156,24 @@ def _fail(name, message, file, line):
 def _number(cell: str, what: str, row_line: int, name, file, line) -> float:
     text = cell.strip()
     if not _NUMBER.fullmatch(text):
-        _fail(name, f"line {row_line}: {what} '{text}' is not a number", file, line)
+        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is not a number "
+                    "(ASCII digits, e.g. 1.5e-10)", file, line)
     value = float(text)
     if not np.isfinite(value):
-        _fail(name, f"line {row_line}: {what} '{text}' is too large", file, line)
+        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is too large",
+              file, line)
     return value
 
 
-def load_rate_table(path, column: str, *, file=None, line=None, name: str | None = None
-                    ) -> RateTable:
+def where_tables(base_dir) -> str:
+    """Where a table path may point, for messages."""
+    return (f"table paths are absolute or relative to {base_dir} (the reaction list's folder, "
+            "or the working directory for --set) and must name a regular CSV file of at "
+            f"most {_MAX_BYTES} bytes")
+
+
+def load_rate_table(path, column: str, *, file=None, line=None, name: str | None = None,
+                    base_dir=None) -> RateTable:
     """Load one column of a rate table (cached per file and column).
 
     Parameters
@@ -176,6 +186,8 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
         The referring reaction (every error is reported there).
     name : str, optional
         The table's name as written in the reaction list (defaults to ``path``).
+    base_dir : str or Path, optional
+        The folder relative names resolve against (named in "not found" messages).
 
     Returns
     -------
@@ -189,11 +201,12 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
     """
     path = Path(path)
     name = str(path) if name is None else name
+    hint = where_tables(path.parent if base_dir is None else base_dir)
     try:
-        st = path.stat()
-    except OSError:
-        _fail(name, f"file not found (looked for {path})", file, line)
-    key = (str(path.resolve()), column, st.st_mtime_ns, st.st_size)
+        st = regular_file(path, _MAX_BYTES)
+    except PathProblem as exc:
+        _fail(name, f"{exc} (looked for {path}); {hint}", file, line)
+    key = (str(path), column, st.st_mtime_ns, st.st_size)
     cached = _CACHE.get(key)
     if cached is not None:
         if cached.name == name:
@@ -201,14 +214,10 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
         return RateTable(name, *[getattr(cached, f) for f in
                                  ("path", "column", "variable", "temperature_K", "values",
                                   "low", "high")])
-    if not path.is_file():
-        _fail(name, f"not a file ({path})", file, line)
-    if st.st_size > _MAX_BYTES:
-        _fail(name, f"larger than {_MAX_BYTES} bytes", file, line)
     try:
-        data = path.read_bytes()
-    except OSError as exc:
-        _fail(name, f"cannot be read ({exc.strerror})", file, line)
+        data = read_bounded(path, _MAX_BYTES)
+    except PathProblem as exc:
+        _fail(name, f"{exc}; {hint}", file, line)
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -234,14 +243,15 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
     m = _TEMP_HEADER.fullmatch(header[0])
     if not m:
         _fail(name, f"the first column must be the temperature (Te, Ti, Tn or Teff, "
-                    f"optionally with _K), found '{header[0]}'", file, line)
+                    f"optionally with _K), found {safe_name(header[0])}", file, line)
     variable = m.group(1)
     if len(set(header)) != len(header):
         _fail(name, "repeated column name in the header", file, line)
     if column == header[0]:
         _fail(name, f"column '{column}' is the temperature column", file, line)
     if column not in header:
-        _fail(name, f"no column '{column}' (columns: {', '.join(header[1:])})", file, line)
+        _fail(name, f"no column '{column}' (columns: "
+                    f"{', '.join(safe_name(h, quote=False) for h in header[1:])})", file, line)
     idx = header.index(column)
     lo_name, hi_name = f"{column}_low", f"{column}_high"
     has_lo, has_hi = lo_name in header, hi_name in header
