@@ -1,11 +1,13 @@
-"""Rank the reactions (and the electron temperature) that control each species.
+"""Rank the reactions (and the environment factors) that control each species.
 
 Input is a sensitivity dataset (:func:`ionochem.analysis.sensitivity.sensitivity`):
 ``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and
 ``sensitivity_environment`` (species, factor, altitude) = ∂ln n/∂ln factor (Te, Ti, Tn, the
 EUV flux, fixed neutral densities; older files carry only ``sensitivity_Te``). The
-environment factors enter the ranking as pseudo-reactions named ``Te``, ``EUV``, ``n(O)``…. Two measures over an altitude range: the largest |S| (with
-its sign and the altitude where it occurs) and the mean |S| over the levels in the range.
+environment factors enter the ranking as pseudo-reactions named ``Te``, ``EUV``, ``n(O)``….
+Two measures over an altitude range: the largest |S| (with its sign and the altitude where
+it occurs) and the mean |S| over the levels in the range, counting only the levels where the
+species is at least a share of its own peak (:data:`DEFAULT_MIN_SHARE`).
 A reaction that matters strongly in a thin layer ranks high on the first, one that matters
 everywhere on the second.
 
