@@ -101,8 +101,12 @@ def cmd_run(args):
                   f"{ds['altitude'].values[dark].max():g} km", file=sys.stderr)
     if budgets:
         from ionochem.analysis.budget import budget_table, format_budget
+        at = ds
+        if transient:
+            at = ds.isel(time=-1)
+            print(f"budgets at the last output time, t = {float(at['time_s']):g} s")
         for name, km in budgets:
-            print(format_budget(budget_table(ds, name, km)))
+            print(format_budget(budget_table(at, name, km)))
     if args.csv:
         table.write_csv(args.csv)
         print(f"wrote {args.csv}")
