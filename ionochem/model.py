@@ -78,6 +78,9 @@ class Model:
             mechanism = load_mechanism(scenario.reactions)
         self.reaction_list = mechanism
         rxns = list(mechanism.reactions)
+        if not rxns:
+            raise MechanismError("the reaction list holds no reactions",
+                                 file=getattr(mechanism, "path", None) or scenario.reactions)
         self._rxns = rxns
         self.reactions = [r.id for r in rxns]
         self._id_index = {r.id: j for j, r in enumerate(rxns)}
@@ -109,6 +112,11 @@ class Model:
                                    electrons=scenario.solve.electrons,
                                    balance_ion=scenario.solve.balance_ion)
         mech = self.mechanism
+        if not mech.solved:
+            raise MechanismError("the reaction list has no species to solve: every species "
+                                 "in it is fixed by the neutral source "
+                                 f"({', '.join(sorted(env.neutrals)) or 'none'})",
+                                 file=getattr(mechanism, "path", None) or scenario.reactions)
         problems = mech.structural_problems()
         if problems:
             name, r = problems[0]
@@ -122,7 +130,8 @@ class Model:
         list_warnings = [w for w in getattr(mechanism, "warnings", [])
                          if not any(str(getattr(w, "message", w)).startswith(f"{n} is produced")
                                     for n in env.neutrals)]
-        self.warnings = list(env.warnings) + list_warnings
+        self.warnings = (list(getattr(scenario, "warnings", ())) + list(env.warnings)
+                         + list_warnings)
         A = env.altitude_km.size
         given = np.zeros((A, len(mech.given)))
         total_neutral = sum(env.neutrals.values())
@@ -138,6 +147,8 @@ class Model:
         self._source_reactions = [j for j, e in enumerate(self._k_expr)
                                   if e.variables & {"photo", "photoelectron"}]
         self._k_static = self._evaluate_k(time_s=None)
+        from ionochem.mechanism.bounds import implausible_rates
+        self.warnings += implausible_rates(rxns, self._k_static)
         # The expression language allows a source only times constant factors, so a photo
         # rate is coefficient × source(t): precompute the coefficients once for transient runs.
         self._src_keys = [f"{'photo' if 'photo' in self._k_expr[j].variables else 'photoelectron'}"

@@ -62,7 +62,7 @@ _KNOWN_NAMES = list(VARIABLES) + list(SOURCES) + list(FUNCTIONS) + ["table"]
 
 _TOKEN = re.compile(r"""
     (?P<ws>[ \t]+)
-  | (?P<num>(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)
+  | (?P<num>(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?)
   | (?P<name>[A-Za-z_][A-Za-z0-9_]*)
   | (?P<str>"[^"\\\n]*"|'[^'\\\n]*')
   | (?P<op>\*\*|<=|>=|==|!=|[-+*/^(),<>])
@@ -127,6 +127,8 @@ def _tokenize(text: str) -> list[_Tok]:
                 msg = _BAD_CHARS[ch]
             elif ch.isspace():
                 msg = f"unexpected white-space character U+{ord(ch):04X}"
+            elif ch.isdecimal():
+                msg = f"'{ch}' is not an ASCII digit: write numbers with 0-9"
             elif ch.isprintable():
                 msg = f"unexpected character '{ch}'"
             else:
