@@ -39,8 +39,21 @@ def main(argv=None):
     argv = sys.argv[1:] if argv is None else list(argv)
     args = parser.parse_args(argv)
     args.command_line = "ionochem " + " ".join(argv)
+    import warnings
+
+    def one_line(message, category, filename, lineno, file=None, line=None):
+        print(f"warning: {message}", file=sys.stderr)
+
+    warnings.showwarning = one_line
+    from ionochem.io.netcdf import terminate_cleanly
     try:
-        return args.func(args)
+        # SIGTERM unwinds like Ctrl-C: temporary files and store locks are removed.
+        with terminate_cleanly():
+            return args.func(args)
+    except SystemExit as exc:
+        if exc.code == 143:
+            print("terminated", file=sys.stderr)
+        raise
     except Error as exc:
         print(str(exc), file=sys.stderr)
         return 2
