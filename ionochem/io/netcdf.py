@@ -51,6 +51,8 @@ def _encodable(ds):
 
 
 def _terminate(signum, frame):
+    # A second SIGTERM takes the default action, should the first be swallowed somewhere.
+    signal.signal(signum, signal.SIG_DFL)
     raise SystemExit(128 + signum)
 
 
