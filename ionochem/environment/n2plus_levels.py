@@ -61,6 +61,8 @@ SPECTROSCOPIC_CONSTANTS = MappingProxyType({
 STATE_BRANCHING = MappingProxyType({"X": 0.40, "A": 0.45, "B": 0.15})
 
 _H = 6.62607015e-34          # J s (CODATA 2018, exact)
+#: eV per cm-1: h c / e (CODATA 2018, exact constants).
+CM_TO_EV = 1.239841984e-4
 _C_CM = 2.99792458e10        # cm s-1 (exact)
 _AMU = 1.66053906660e-27     # kg (CODATA 2018)
 _MU_N2 = 0.5 * 14.0030740048 * _AMU  # reduced mass of 14N2 (AME atomic mass of 14N)
@@ -215,4 +217,42 @@ def n2plus_level_fractions(levels: Sequence[int]) -> np.ndarray:
     v, frac = _table()
     edges = lv + [np.inf]
     return np.array([frac[(v >= lo) & (v < hi)].sum()
+                     for lo, hi in zip(edges[:-1], edges[1:], strict=True)])
+
+
+def statistical_level_distribution(available_eV: float, levels: Sequence[int]) -> np.ndarray:
+    """Prior (statistical) distribution of N2+ X(v) made by an exothermic charge transfer.
+
+    P(v) is proportional to (E - E_v)^(3/2) over the levels with E_v < E: the products'
+    translation (density of states ~ E^(1/2)) and the ion's rotation (~ E) share what the
+    vibration leaves (the "prior" of Levine & Bernstein 1987, Molecular Reaction Dynamics and
+    Chemical Reactivity, Oxford, ch. 5 *(from memory)*). E_v are the Morse levels of N2+ X
+    (:func:`vibrational_levels`). Used for O+(2D) + N2 (E = 1.36 eV) and O+(2P) + N2
+    (3.05 eV) in the default reaction list, as a stated assumption: no measured product
+    distribution is known to the project.
+
+    Parameters
+    ----------
+    available_eV : float
+        Exothermicity of the reaction into N2+ X(v=0), eV.
+    levels : sequence of int
+        Resolved levels, strictly increasing from 0; the top one collects all higher levels.
+
+    Returns
+    -------
+    ndarray, shape (len(levels),)
+        Fractions adding up to 1.
+    """
+    lv = [int(x) for x in levels]
+    if not lv or lv[0] != 0 or any(b <= a for a, b in zip(lv, lv[1:], strict=False)):
+        raise InputError(f"N2+ levels must be strictly increasing from 0, got {list(levels)}")
+    if not available_eV > 0:
+        raise InputError("the available energy must be positive")
+    e_cm, _ = vibrational_levels("N2+(X)", 30)
+    ev = (e_cm - e_cm[0]) * CM_TO_EV
+    w = np.clip(available_eV - ev, 0.0, None) ** 1.5
+    w = w / w.sum()
+    v = np.arange(w.size)
+    edges = lv + [np.inf]
+    return np.array([w[(v >= lo) & (v < hi)].sum()
                      for lo, hi in zip(edges[:-1], edges[1:], strict=True)])
