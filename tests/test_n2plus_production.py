@@ -97,8 +97,9 @@ def test_level_requests_parse_the_needs_of_a_mechanism():
 
 @pytest.fixture(scope="module")
 def demo():
-    import ionochem
     from pathlib import Path
+
+    import ionochem
     path = Path(__file__).resolve().parents[1] / "scenarios" / "midlatitude_equinox.toml"
     model = ionochem.Model(ionochem.load_scenario(path))
     return model, model.solve()
