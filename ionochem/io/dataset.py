@@ -200,8 +200,19 @@ def steady_dataset(model, res):
     )
     for name, var in _environment_vars(model).items():
         ds[name] = var
+    _add_level_outputs(model, ds, k, dens, names, ())
     _add_diagnostics(model, ds)
     return ds
+
+
+def _add_level_outputs(model, ds, k, dens, names, lead_dims):
+    """level_fraction and effective_rate_coefficient of vibrational families (§7)."""
+    from ionochem.io.level_outputs import level_output_vars
+    out = level_output_vars(model, k, dens, names, lead_dims)
+    coords = {c: out.pop(c) for c in ("family_reaction", "family_species") if c in out}
+    ds.coords.update(coords)
+    for name, var in out.items():
+        ds[name] = var
 
 
 def _equation(r):
@@ -295,6 +306,7 @@ def transient_dataset(model, times, n):
     ds.attrs["comment"] = TRANSIENT_NOTE
     for name, var in _environment_vars(model).items():
         ds[name] = var
+    _add_level_outputs(model, ds, ks, dens, names, ("time",))
     env = model.environment
     if env.sun is not None:
         ds["solar_zenith_angle"] = ("time", np.array([env.solar_zenith_angle(t)
