@@ -94,7 +94,8 @@ def _provenance(model):
     env_attrs = {"neutral_model": scen.neutrals.model,
                  "ion_drift_m_s": float(scen.temperatures.ion_drift_m_s),
                  "temperatures": f"electron {scen.temperatures.electron}, "
-                                 f"ion {scen.temperatures.ion}"}
+                                 f"ion {scen.temperatures.ion}, "
+                                 f"vibrational {_vibrational(scen.temperatures)}"}
     if scen.location is not None:
         env_attrs["latitude_deg"] = scen.location.latitude_deg
         env_attrs["longitude_deg"] = scen.location.longitude_deg
@@ -123,6 +124,14 @@ def _provenance(model):
         "electrons": scen.solve.electrons,
         "comment": VALIDITY_NOTE,
     }
+
+
+def _vibrational(temps):
+    """How Tv was set, for the provenance (``electron (c = 0.5)`` for the Te link)."""
+    src = getattr(temps, "vibrational", "neutral")
+    if src == "electron":
+        return f"electron (c = {getattr(temps, 'vibrational_coupling', 0.5):g})"
+    return src
 
 
 def _environment_vars(model, dims=("altitude",)):
