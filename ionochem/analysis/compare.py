@@ -281,9 +281,11 @@ def _effective(ds):
 
 
 def _add_effective_rates(out, ds_b, ds_c):
-    """``effective_rate_baseline``, ``effective_rate_changed`` and ``effective_rate_change``
-    (changed / baseline) of the reaction families both results carry (DESIGN.md §7): what
-    a per-level change does to the rate an unresolved model would need."""
+    """The population-weighted rate coefficients of the reaction families both results
+    carry (DESIGN.md §7), baseline and changed (``effective_rate_coefficient_baseline`` /
+    ``_changed``, and the ``_first_order``/``_third_order`` variants, each in its own unit),
+    and ``effective_rate_change`` = changed / baseline: what a per-level change does to the
+    rate an unresolved model would need."""
     eb, ec = _effective(ds_b), _effective(ds_c)
     if eb is None or ec is None:
         return
@@ -297,12 +299,15 @@ def _add_effective_rates(out, ds_b, ds_c):
         ratio = np.where(vb > 0, vc / vb, np.nan)
     out.coords["family_reaction"] = ("family_reaction", np.array(fams, dtype=object))
     dims = ("family_reaction", "altitude")
-    units = {"units": "cm3 s-1 (two-body families; s-1 or cm6 s-1 for first- and "
-             "third-order families)"}
-    out["effective_rate_baseline"] = (dims, vb, {**units, "long_name": "population-weighted "
-                                                 "rate coefficient of the family, baseline"})
-    out["effective_rate_changed"] = (dims, vc, {**units, "long_name": "population-weighted "
-                                                "rate coefficient of the family, changed"})
+    for name in EFFECTIVE_VARIABLES:
+        if name not in ds_b or name not in ds_c:
+            continue
+        for tag, ds in (("baseline", ds_b), ("changed", ds_c)):
+            var = ds[name].sel(family_reaction=fams)
+            out[f"{name}_{tag}"] = (dims, var.values,
+                                    {"units": var.attrs.get("units", ""),
+                                     "long_name": f"{var.attrs.get('long_name', name)}, "
+                                                  f"{tag}"})
     out["effective_rate_change"] = (dims, ratio, {"units": "1", "long_name": "changed / "
                                                   "baseline population-weighted rate "
                                                   "coefficient of the family"})
