@@ -53,7 +53,8 @@ Scale
 A batch of B samples is solved as B × A rows of one batched Newton (rows sample-major).
 Beyond one process the batches go to dask.distributed: a ``LocalCluster`` with
 ``workers`` single-threaded worker processes, or an existing scheduler. The model itself
-does not pickle (its compiled rate laws are closures), so the workers receive a
+does not pickle (it holds the scenario's read-only mappings and the built environment, far
+more than a worker needs), so the workers receive a
 :class:`SampleKernel`: the mechanism's arrays (stoichiometry, reactant slots, Jacobian
 kernel) with the central rates, the log-factors and the fixed densities. With ``Te``
 varied the driving process evaluates each batch's rates and sends them with the batch.
