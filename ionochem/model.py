@@ -18,10 +18,19 @@ from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
 
 
-def load_mechanism(path):
-    """Parse a reaction list (``*.reactions``) into a :class:`ReactionList`."""
+def load_reaction_list(path):
+    """Parse a reaction list (``*.reactions``) into a :class:`ReactionList`.
+
+    The parsed list is text made structured; :class:`Model` compiles it into a
+    :class:`~ionochem.mechanism.mechanism.Mechanism` (``model.mechanism``: stoichiometry,
+    tendency, Jacobian) bound to a column.
+    """
     from ionochem.mechanism.parser import parse_reaction_list
     return parse_reaction_list(path)
+
+
+#: The contract name (DESIGN.md §4) of :func:`load_reaction_list`.
+load_mechanism = load_reaction_list
 
 
 def load_scenario(path):
@@ -51,6 +60,20 @@ def channel_of(reaction) -> str:
     return f"{absorber}->{'+'.join(prods)}"
 
 
+def _level_channel(reaction, kind):
+    """``"photo:N2->N2+(v=1)"`` for a photo/photoelectron reaction making N2+ in a level,
+    else None (the environment splits only N2+ bin by bin)."""
+    if kind not in ("photo", "photoelectron"):
+        return None
+    ions = [sp for sp, _ in reaction.products if sp.charge > 0]
+    if not ions or ions[0].vib is None or ions[0].base != "N2+":
+        return None
+    absorbers = [sp.name for sp, _ in reaction.reactants if sp.charge == 0]
+    if absorbers != ["N2"]:
+        return None
+    return f"{kind}:N2->N2+(v={ions[0].vib})"
+
+
 class Model:
     """A reaction list solved in the column a scenario describes.
 
@@ -59,7 +82,9 @@ class Model:
     scenario : Scenario
         From :func:`load_scenario`.
     mechanism : ReactionList, optional
-        From :func:`load_mechanism`; default the scenario's own ``reactions``.
+        A parsed reaction list (:func:`load_reaction_list`, contract name
+        :func:`load_mechanism`); default the scenario's own ``reactions``. The keyword
+        ``reaction_list=`` says the same; the compiled form is :attr:`mechanism`.
     environment : Environment, optional
         Reuse an already-built column (for changed copies of a model).
 
@@ -69,10 +94,19 @@ class Model:
         Solved species, the column order of ``n``.
     reactions : list of str
         Reaction ids in order.
+    reaction_list : ReactionList
+        The parsed list the model was built from.
+    mechanism : Mechanism
+        The compiled mechanism (stoichiometry, tendency, Jacobian) on this column's fixed
+        species.
     """
 
-    def __init__(self, scenario, mechanism=None, *, environment=None, _changes=None):
+    def __init__(self, scenario, mechanism=None, *, reaction_list=None, environment=None,
+                 _changes=None):
         from ionochem.environment.column import build_environment
+        if mechanism is not None and reaction_list is not None:
+            raise TypeError("give the reaction list once: mechanism= or reaction_list=")
+        mechanism = reaction_list if mechanism is None else mechanism
         self.scenario = scenario
         if mechanism is None:
             mechanism = load_mechanism(scenario.reactions)
@@ -101,6 +135,9 @@ class Model:
                 if kind in expr.variables:
                     needs.add(f"prescribed:{r.id}" if kind == "prescribed"
                               else f"{kind}:{channel_of(r)}")
+                    level_key = _level_channel(r, kind)
+                    if level_key is not None:
+                        needs.add(level_key)
             for sp, _ in (*r.reactants, *r.products):
                 needs.add(sp.name)
         self._needs = frozenset(needs)
@@ -151,8 +188,9 @@ class Model:
         self.warnings += implausible_rates(rxns, self._k_static)
         # The expression language allows a source only times constant factors, so a photo
         # rate is coefficient × source(t): precompute the coefficients once for transient runs.
-        self._src_keys = [f"{'photo' if 'photo' in self._k_expr[j].variables else 'photoelectron'}"
-                          f":{channel_of(self._rxns[j])}" for j in self._source_reactions]
+        self._src_keys = [self._source_key(j, "photo" if "photo" in self._k_expr[j].variables
+                                           else "photoelectron")
+                          for j in self._source_reactions]
         if self._source_reactions and self.environment.time_dependent:
             ones = {k: np.ones(A) for k in self._src_keys}
             with np.errstate(all="ignore"):
@@ -248,6 +286,22 @@ class Model:
         return new
 
     # ---------------------------------------------------------------- rates
+    def _source_key(self, j, kind):
+        """Source key of reaction j: its level's own channel when the environment splits
+        it bin by bin (``photo:N2->N2+(v=1)``), else the channel total."""
+        key = _level_channel(self._rxns[j], kind)
+        if key is not None and key in self._level_keys():
+            return key
+        return f"{kind}:{channel_of(self._rxns[j])}"
+
+    def _level_keys(self):
+        if not hasattr(self, "_level_keys_cache"):
+            sun = getattr(self.environment, "sun", None)
+            req = getattr(sun, "level_requests", {}) if sun is not None else {}
+            self._level_keys_cache = frozenset(f"{b}(v={v})" for b, lv in req.items()
+                                               for v in lv)
+        return self._level_keys_cache
+
     def _vibrational_fractions(self):
         """Share of each family level in photo/photoelectron production of that family."""
         levels = {}
@@ -307,6 +361,11 @@ class Model:
         for kind in ("photo", "photoelectron"):
             if kind in expr.variables:
                 ch = channel_of(r)
+                level_key = _level_channel(r, kind)
+                if level_key is not None and level_key in sources:
+                    # Split bin by bin by the environment (n2plus_levels.level_sources).
+                    out[kind] = sources[level_key]
+                    continue
                 key = f"{kind}:{ch}"
                 if key not in sources:
                     avail = ", ".join(sorted(k for k in sources if k.startswith(kind)))
@@ -436,29 +495,15 @@ class Model:
         ``k`` and ``given`` default to the model's own (one row per altitude); they may
         stack several samples of the column as extra rows. Returns a ``SteadyResult``.
         """
-        from ionochem.solve.steady import solve_steady
+        from ionochem.solve.batch import solve_rows
         k = self._k_static if k is None else k
         given = self.given if given is None else given
-        mech = self.mechanism
-        S = len(mech.solved)
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
-
-        def tendency(n, rows):
-            return mech.tendency(n, k[rows], given[rows])
-
-        def jacobian(n, rows):
-            return mech.jacobian(n, k[rows], given[rows])
-
-        def gross(n, rows):
-            P, L = mech.production_loss(n, k[rows], given[rows])
-            return P[:, :S], L[:, :S]
-
         names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
         try:
-            return solve_steady(np.zeros((k.shape[0], S)), tendency, jacobian, gross,
-                                rtol=rtol, level_names=[f"{a:g} km" for a in names],
-                                species_names=list(mech.solved))
+            return solve_rows(self.mechanism, k, given, rtol=rtol,
+                              level_names=[f"{a:g} km" for a in names])
         except SolverError as exc:
             raise self._solver_failure(exc, rtol) from None
 
@@ -477,9 +522,12 @@ class Model:
 
     def solve(self):
         """Steady state (photochemical equilibrium) at every level → ``xarray.Dataset``."""
+        from ionochem.analysis.diagnostics import add_steady_diagnostics
         from ionochem.io.dataset import steady_dataset
-        res = self.steady_densities()
-        return steady_dataset(self, res)
+        from ionochem.solve.steady import METHOD_NAMES
+        ds = steady_dataset(self, self.steady_densities(), METHOD_NAMES)
+        add_steady_diagnostics(self, ds)
+        return ds
 
     def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
         """Integrate in time from ``initial`` (default: zero ion densities).
@@ -492,7 +540,8 @@ class Model:
         method : {"BDF", "Radau"}
         rtol : float
         atol : float, optional
-            Absolute tolerance, cm-3 (default 1e-8 of the peak production over 1 s, or 1e-6).
+            Absolute tolerance, cm-3 (default 1e-6 cm-3: far below any density of interest,
+            far above the round-off of the largest).
 
         Returns
         -------

@@ -315,7 +315,7 @@ def test_boolean_is_not_a_number(base, tmp_path, dotted):
     ("solve.rtol", 1.0, "must be between 1e-14 and 0.01"),
     ("solve.rtol", 0.0, "must be between 1e-14 and 0.01"),
     ("solve.rtol", 1e-300, "must be between 1e-14 and 0.01"),
-    ("changes.scale.R1", 0.0, "must be above 0 and at most 1e+06"),
+    ("changes.scale.R1", -1.0, "must be between 0 and 1e+06"),
     ("changes.scale.R1", "2", "must be a positive number"),
     ("changes.set.R1", 2e-12, "must be a string"),
     ("changes.set", "R1 = 2e-12", "must be a table"),

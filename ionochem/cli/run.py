@@ -4,8 +4,6 @@ from __future__ import annotations
 
 import sys
 
-import numpy as np
-
 from ionochem.cli.options import (
     DEFAULT_REPORT_KM,
     Table,
@@ -30,6 +28,9 @@ def register(subparsers):
     r.add_argument("scenario")
     r.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     r.add_argument("--plot", help="write a profile figure (PNG, PDF, SVG)")
+    r.add_argument("--plot-levels", metavar="FILE", dest="plot_levels",
+                   help="write the N2+ vibrational level distribution figure (steady runs; "
+                        "PNG, PDF, SVG)")
     r.add_argument("--csv", metavar="FILE", help="write the printed density table as CSV")
     r.add_argument("--set", action="append", metavar="ID=EXPR",
                    help="replace the rate expression of a reaction (repeatable; table paths "
@@ -51,6 +52,7 @@ def register(subparsers):
 
 def parse_km_list(text, flag="--altitudes"):
     """``"100,150.5"`` → ``[100.0, 150.5]`` (km)."""
+    import numpy as np
     out = []
     for item in str(text).split(","):
         item = item.strip()
@@ -69,9 +71,13 @@ def parse_km_list(text, flag="--altitudes"):
 
 
 def cmd_run(args):
+    import numpy as np
+
     from ionochem.io.netcdf import write_netcdf
     check_outputs(args, inputs=[args.scenario])
     check_output(args.csv, "--csv")
+    check_output(getattr(args, "plot_levels", None), "--plot-levels", figure=True,
+                 inputs=[args.scenario])
     budgets = [parse_budget(b) for b in (args.budget or [])]
     heights = parse_km_list(args.altitudes) if args.altitudes else None
     scen, model = load_model(args)
@@ -79,6 +85,9 @@ def cmd_run(args):
     budgets += [parse_budget(b) for b in scen.output.budget]
     print_warnings(model.warnings)
     transient = scen.solve.mode == "transient"
+    if transient and getattr(args, "plot_levels", None):
+        raise InputError("--plot-levels needs a steady run (solve.mode is 'transient')",
+                         file="--plot-levels")
     if transient:
         from ionochem.cli.limits import check_transient
         check_transient(scen, len(model.species), len(model.reactions),
@@ -127,6 +136,10 @@ def cmd_run(args):
             from ionochem.plot.profiles import plot_result
             plot_result(ds, args.plot)
         print(f"wrote {args.plot}")
+    if getattr(args, "plot_levels", None):
+        from ionochem.plot.levels import plot_levels
+        plot_levels(ds, args.plot_levels)
+        print(f"wrote {args.plot_levels}")
     return 0
 
 
@@ -142,6 +155,7 @@ def density_table(ds, heights):
 
 def transient_table(ds, height_km):
     """The main densities (cm-3) against time at the level nearest ``height_km``."""
+    import numpy as np
     species = [s for s in MAIN_SPECIES if s in ds["species"].values]
     alt = ds["altitude"].values
     a = float(alt[np.argmin(np.abs(alt - height_km))])

@@ -17,10 +17,10 @@ from ionochem.mechanism.mechanism import THIRD_BODY
 
 VALIDITY_NOTE = (
     "Photochemical equilibrium column: molecular ions (N2+, O2+, NO+) and metastables are in "
-    "photochemical equilibrium at all heights; O+ is not above about 200-250 km by day, where "
-    "its lifetime exceeds the diffusion time and a box model overestimates it (see the "
-    "pce_doubtful flag). Research output, not a forecast: do not use alone for radio, "
-    "navigation or satellite operations.")
+    "photochemical equilibrium at all heights; O+ is not where its chemical lifetime exceeds "
+    "the diffusion time, and a box model overestimates it there: the pce_doubtful flag marks "
+    "those levels. Research output, not a forecast: do not use alone for radio, navigation or "
+    "satellite operations.")
 
 
 def species_table(model, n_solved):
@@ -88,13 +88,14 @@ def rate_coefficient_vars(model, k, dims):
     return out
 
 
-def _provenance(model):
+def provenance(model):
     import ionochem
     scen = model.scenario
     env_attrs = {"neutral_model": scen.neutrals.model,
                  "ion_drift_m_s": float(scen.temperatures.ion_drift_m_s),
                  "temperatures": f"electron {scen.temperatures.electron}, "
-                                 f"ion {scen.temperatures.ion}"}
+                                 f"ion {scen.temperatures.ion}, "
+                                 f"vibrational {_vibrational(scen.temperatures)}"}
     if scen.location is not None:
         env_attrs["latitude_deg"] = scen.location.latitude_deg
         env_attrs["longitude_deg"] = scen.location.longitude_deg
@@ -125,6 +126,14 @@ def _provenance(model):
     }
 
 
+def _vibrational(temps):
+    """How Tv was set, for the provenance (``electron (c = 0.5)`` for the Te link)."""
+    src = getattr(temps, "vibrational", "neutral")
+    if src == "electron":
+        return f"electron (c = {getattr(temps, 'vibrational_coupling', 0.5):g})"
+    return src
+
+
 def _environment_vars(model, dims=("altitude",)):
     env = model.environment
     out = {}
@@ -136,8 +145,14 @@ def _environment_vars(model, dims=("altitude",)):
     return out
 
 
-def steady_dataset(model, res):
-    """Dataset of a steady solution (``SteadyResult`` from the steady solver)."""
+def steady_dataset(model, res, method_names):
+    """Dataset of a steady solution (``SteadyResult`` from the steady solver).
+
+    ``method_names`` maps the solver's method codes to names (the solver's
+    ``METHOD_NAMES``); the caller adds the diagnostics
+    (:func:`ionochem.analysis.diagnostics.add_steady_diagnostics`), so this module imports
+    neither the solver nor the analyses.
+    """
     mech = model.mechanism
     alt = model.altitude_km
     dens, names, roles = species_table(model, res.n)
@@ -161,7 +176,6 @@ def steady_dataset(model, res):
         stoich[col] = nu
         prod[:, col] = rates @ np.clip(nu, 0, None)
         loss[:, col] = rates @ np.clip(-nu, 0, None)
-    from ionochem.solve.steady import METHOD_NAMES
     ds = xr.Dataset(
         {
             "density": (("species", "altitude"), dens.T,
@@ -183,9 +197,9 @@ def steady_dataset(model, res):
                            {"units": "1", "long_name": "solver iterations"}),
             "solver_method": ("altitude", res.method.astype(np.int8),
                               {"long_name": "method that converged",
-                               "flag_values": np.array(sorted(METHOD_NAMES), np.int8),
-                               "flag_meanings": " ".join(METHOD_NAMES[k]
-                                                         for k in sorted(METHOD_NAMES))}),
+                               "flag_values": np.array(sorted(method_names), np.int8),
+                               "flag_meanings": " ".join(method_names[k]
+                                                         for k in sorted(method_names))}),
         },
         coords={
             "altitude": ("altitude", alt, ALTITUDE_ATTRS),
@@ -196,24 +210,28 @@ def steady_dataset(model, res):
             "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
     for name, var in _environment_vars(model).items():
         ds[name] = var
-    _add_diagnostics(model, ds)
+    _add_level_outputs(model, ds, k, dens, names, ())
     return ds
+
+
+def _add_level_outputs(model, ds, k, dens, names, lead_dims):
+    """level_fraction and effective_rate_coefficient of vibrational families (§7)."""
+    from ionochem.io.level_outputs import level_output_vars
+    out = level_output_vars(model, k, dens, names, lead_dims)
+    coords = {c: out.pop(c) for c in ("family_reaction", "family_species") if c in out}
+    ds.coords.update(coords)
+    for name, var in out.items():
+        ds[name] = var
 
 
 def _equation(r):
     def side(terms):
         return " + ".join((f"{c} " if c > 1 else "") + sp.name for sp, c in terms) or "0"
     return f"{side(r.reactants)} -> {side(r.products)}"
-
-
-def _add_diagnostics(model, ds):
-    """Dark levels, zenith angle, lifetimes and the ionization–recombination balance."""
-    from ionochem.analysis.diagnostics import add_steady_diagnostics
-    add_steady_diagnostics(model, ds)
 
 
 TRANSIENT_NOTE = (
@@ -290,11 +308,12 @@ def transient_dataset(model, times, n):
             "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
     ds.attrs["comment"] = TRANSIENT_NOTE
     for name, var in _environment_vars(model).items():
         ds[name] = var
+    _add_level_outputs(model, ds, ks, dens, names, ("time",))
     env = model.environment
     if env.sun is not None:
         ds["solar_zenith_angle"] = ("time", np.array([env.solar_zenith_angle(t)

@@ -32,6 +32,8 @@ class Range:
         Why these numbers (source or *(common practice)*).
     low_open : bool
         The lower end of ``hard`` is excluded (a value that must be positive).
+    quiet_zero : bool
+        Exactly 0 is a deliberate setting (a reaction switched off): no soft-range warning.
     """
 
     unit: str
@@ -39,6 +41,7 @@ class Range:
     soft: tuple[float, float] | None
     basis: str
     low_open: bool = False
+    quiet_zero: bool = False
 
 
 #: Calendar years the scenario time may lie in: the solar-position formulas (NOAA solar
@@ -97,7 +100,8 @@ RANGES: dict[str, Range] = {
                         "*(common practice)*"),
     "changes.scale": Range("1", (0.0, 1e6), (1e-3, 1e3),
                            "rate coefficients are rarely uncertain by more than a factor "
-                           "of 1000 *(common practice)*", low_open=True),
+                           "of 1000 *(common practice)*; 0 switches a reaction off (no "
+                           "warning)", quiet_zero=True),
 }
 
 
@@ -127,6 +131,8 @@ def check_range(key: str, value: float, *, range_key: str | None = None):
         if r.low_open:
             return f"must be above {lo:g} and at most {hi:g}{unit} (got {value:g})", None
         return f"must be between {lo:g} and {hi:g}{unit} (got {value:g})", None
+    if r.quiet_zero and value == 0:
+        return None, None
     if r.soft is not None and not r.soft[0] <= value <= r.soft[1]:
         return (None, f"{key} = {value:g}{unit} is outside the usual range "
                       f"{r.soft[0]:g}–{r.soft[1]:g}{unit}; check it is meant")

@@ -162,7 +162,7 @@ class SchemaValidator(ValueChecks):
     def temperatures(self, value) -> Temperatures:
         key = "temperatures"
         sec = self.table(value, key, ("electron", "ion", "table", "ion_drift_m_s",
-                                      "vibrational", "profile"))
+                                      "vibrational", "vibrational_coupling", "profile"))
         for name in ("electron", "ion"):
             if name not in sec:
                 raise self.fail(f"{key}.{name}", "is required ('table', 'neutral' or "
@@ -170,7 +170,13 @@ class SchemaValidator(ValueChecks):
         electron = self.choice(sec["electron"], f"{key}.electron", TEMPERATURE_SOURCES)
         ion = self.choice(sec["ion"], f"{key}.ion", TEMPERATURE_SOURCES)
         vibrational = self.choice(sec.get("vibrational", "neutral"), f"{key}.vibrational",
-                                  ("neutral", "table"))
+                                  ("neutral", "table", "electron"))
+        coupling = 0.5
+        if vibrational == "electron":
+            coupling = self.number(sec.get("vibrational_coupling", 0.5),
+                                   f"{key}.vibrational_coupling", low=0, high=1)
+        else:
+            self.inapplicable(sec, "vibrational_coupling", key, "vibrational is 'electron'")
         drift = self.physical(sec.get("ion_drift_m_s", 0.0), f"{key}.ion_drift_m_s")
         table = None
         if "table" in (electron, ion, vibrational):
@@ -193,7 +199,8 @@ class SchemaValidator(ValueChecks):
                 name: self.physical(p.get(name, getattr(d, name)), f"{pkey}.{name}")
                 for name in ("te_peak_K", "ti_offset_K", "base_km", "scale_km")})
         return Temperatures(electron=electron, ion=ion, table=table, ion_drift_m_s=drift,
-                            vibrational=vibrational, profile=profile)
+                            vibrational=vibrational, vibrational_coupling=coupling,
+                            profile=profile)
 
     def production(self, value) -> Production:
         sec = self.table(value, "production", ("table",))

@@ -102,7 +102,10 @@ class Temperatures:
     ion_drift_m_s : float
         Ion-neutral drift speed (m/s), >= 0, default 0.
     vibrational : str
-        Tv of N2: ``"neutral"`` (Tv = Tn, default) or ``"table"`` (column ``Tv_K``).
+        Tv of N2: ``"neutral"`` (Tv = Tn, default), ``"table"`` (column ``Tv_K``) or
+        ``"electron"`` (Tv = Tn + c max(Te - Tn, 0), c = ``vibrational_coupling``).
+    vibrational_coupling : float
+        c in [0, 1] for ``vibrational = "electron"`` (default 0.5).
     profile : TemperatureProfile
         Parameters of the parametric shape (defaults when not given).
     """
@@ -112,6 +115,7 @@ class Temperatures:
     table: Path | None = None
     ion_drift_m_s: float = 0.0
     vibrational: str = "neutral"
+    vibrational_coupling: float = 0.5
     profile: TemperatureProfile = field(default_factory=TemperatureProfile)
 
 
