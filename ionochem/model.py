@@ -567,7 +567,16 @@ class Model:
             return mech.jacobian(n, self.rate_coefficients(t), self.given)
 
         times = np.asarray(times_s, float)
-        out = integrate(times, n0, tendency, jacobian, method=method, rtol=rtol, atol=atol)
+        try:
+            out = integrate(times, n0, tendency, jacobian, method=method, rtol=rtol,
+                            atol=atol)
+        except SolverError as exc:
+            if exc.file is not None:
+                raise
+            raise SolverError(f"{exc.message}; try fewer or closer output times, or check "
+                              "the rate laws for values far outside their physical bounds",
+                              file=self.scenario.source, key="solve.times_s",
+                              levels=exc.levels) from None
         return transient_dataset(self, times, out)
 
     def sensitivity(self, **kw):

@@ -93,3 +93,31 @@ ion = "profile"
     dens = ds["density"].values
     assert np.all(np.isfinite(dens)) and np.all(dens >= 0)
     assert float(ds["residual"].max()) <= 1e-10
+
+
+def test_model_failure_names_scenario_species_and_what_to_try(tmp_path, monkeypatch):
+    """A SolverError from the batch solve reaches the user at the scenario file and key
+    `solve`, naming the stalled species and suggesting what to try (issue 8, class 6)."""
+    import ionochem.solve.batch as batch
+
+    def stalled(*args, **kwargs):
+        raise SolverError("steady state not reached at 1 level(s): 440 km (largest relative "
+                          "residual 0.002; stalled: N(2D))", levels=["440 km"],
+                          species=["N(2D)"])
+
+    (tmp_path / "c.reactions").write_text(
+        "P1: N2 -> N2+ + e | k = prescribed\nR1: N2+ + e -> N + N | k = 2e-7\n")
+    (tmp_path / "n.csv").write_text("altitude_km,N2,N,Tn_K\n400,1e8,1e6,900\n500,1e7,1e6,950\n")
+    (tmp_path / "p.csv").write_text("altitude_km,P1\n400,1\n500,1\n")
+    (tmp_path / "s.toml").write_text(
+        'title = "t (invented)"\nreactions = "c.reactions"\n[grid]\naltitude_km = [440.0]\n'
+        '[neutrals]\nmodel = "table"\ntable = "n.csv"\n[temperatures]\nelectron = "neutral"\n'
+        'ion = "neutral"\n[production]\ntable = "p.csv"\n')
+    model = ionochem.Model(ionochem.load_scenario(tmp_path / "s.toml"))
+    monkeypatch.setattr(batch, "solve_rows", stalled)
+    with pytest.raises(SolverError) as info:
+        model.solve()
+    text = str(info.value)
+    assert text.startswith(f"{tmp_path / 's.toml'}: solve: steady state not reached")
+    assert "N(2D)" in text and "try:" in text and "transient" in text
+    assert info.value.species == ("N(2D)",)
