@@ -283,3 +283,22 @@ def test_store_folder_without_manifest_is_explained(col):
     (col / "mc.nc.samples" / "mine.txt").write_text("x")
     refused(cli("uncertainty", "s.toml", "--samples", "8", "-o", "mc.nc", "--resume",
                 cwd=col), "not an ionochem sample store")
+
+
+def test_profile_table_errors_quote_no_content(col):
+    """A neutral table pointing at an arbitrary text file names the file, not its lines."""
+    (col / "private.txt").write_text("alice:secret-token-123\nbob:another-secret\n")
+    (col / "p.toml").write_text(_scenario(neutrals="private.txt"))
+    line = refused(cli("run", "p.toml", cwd=col), where="p.toml: neutrals.table:")
+    assert "secret" not in line and "alice" not in line
+
+
+def test_set_table_paths_obey_the_same_rules(col):
+    """--set with table("/dev/zero", ...) is refused at the option's line, without reading."""
+    refused(cli("run", "s.toml", "--set", 'R1=table("/dev/zero", "k")', cwd=col),
+            "not a regular file")
+
+
+def test_symlink_loop_on_the_command_line(col):
+    (col / "loop.toml").symlink_to(col / "loop.toml")
+    refused(cli("run", "loop.toml", cwd=col), "symbolic links", where="loop.toml")

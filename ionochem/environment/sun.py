@@ -12,6 +12,8 @@ side and each lattice node is computed once.
 
 from __future__ import annotations
 
+import collections
+
 import numpy as np
 
 from ionochem.environment.slant import EARTH_RADIUS_KM
@@ -20,6 +22,9 @@ from ionochem.errors import ScenarioError
 #: Spacing of the time lattice of photo rates in transient runs, s (a choice: the zenith
 #: angle changes by at most 0.25° in 60 s).
 LATTICE_S = 60.0
+#: Lattice times whose rates are kept (oldest dropped first): 512 nodes are 8.5 hours, and the
+#: integrator only moves forward, so a long run's memory stays bounded (a few tens of MB).
+MAX_CACHED_NODES = 512
 
 
 def _extend_down(alt, dens):
@@ -115,7 +120,8 @@ class SunColumn:
         # Absorber densities on the grid, for photoelectron sharing.
         self.local = {k: env.neutrals[k] for k in ("N2", "O2", "O") if k in env.neutrals}
         self.time_dependent = scenario.solve.mode == "transient"
-        self._cache = {}
+        # Rates at lattice times, most recent last; bounded so a long run's memory is too.
+        self._cache = collections.OrderedDict()
 
     # ------------------------------------------------------------------ geometry
     def _utc(self, time_s):
@@ -131,7 +137,10 @@ class SunColumn:
     def _node(self, t):
         """Rates at lattice time t (s): dict of channel → (altitude,), and dark mask."""
         if t in self._cache:
+            self._cache.move_to_end(t)
             return self._cache[t]
+        while len(self._cache) >= MAX_CACHED_NODES:
+            self._cache.popitem(last=False)
         from ionochem.environment.geometry import flux_distance_factor
         from ionochem.environment.photorates import photo_frequencies
         from ionochem.environment.slant import slant_columns
