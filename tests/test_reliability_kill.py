@@ -103,3 +103,26 @@ def test_random_kills_leave_the_old_or_the_new_file_and_nothing_else(tmp_path, s
     # The test must hit writes in progress (else it proves nothing); the writer spends most
     # of its loop inside write_netcdf, so at least one of eight kills lands there.
     assert mid_write >= 1
+
+
+def test_a_failed_write_is_one_error_and_keeps_the_old_file(tmp_path, monkeypatch):
+    """An OSError while writing (here ENOSPC from the rename, as a full disk gives) becomes
+    one ionochem.Error naming the target; the temporary file is gone and the old file is
+    intact (errno.ENOSPC from the C library's errno table)."""
+    import errno
+
+    import ionochem.io.netcdf as nc
+    from ionochem.errors import Error
+    target = tmp_path / "result.nc"
+    nc.write_netcdf(xr.Dataset({"x": ("y", np.zeros(3))}, attrs={"generation": 1}), target)
+    before = target.read_bytes()
+
+    def full(src, dst):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr(nc.os, "replace", full)
+    with pytest.raises(Error) as info:
+        nc.write_netcdf(xr.Dataset({"x": ("y", np.ones(3))}), target)
+    assert info.value.file == str(target) and "No space left" in info.value.message
+    assert target.read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["result.nc"]

@@ -23,7 +23,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError
+from ionochem.errors import Error, InputError
 
 
 def _umask_mode():
@@ -160,8 +160,12 @@ def atomic_path(path):
         raise InputError(f"output folder {folder} does not exist", file=str(path))
     sweep_stale(path)
     with terminate_cleanly():
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp",
-                                   dir=folder)
+        try:
+            fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp",
+                                       dir=folder)
+        except OSError as exc:
+            raise Error(f"cannot write the output: {exc.strerror or exc}",
+                        file=str(path)) from None
         os.close(fd)
         try:
             yield tmp
@@ -169,6 +173,13 @@ def atomic_path(path):
             _fsync_path(tmp)
             os.replace(tmp, path)
             _fsync_path(folder, directory=True)
+        except OSError as exc:
+            # Disk full, folder removed or made read-only while the run went on: the old
+            # file (if any) is untouched; say so in one line.
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise Error(f"cannot write the output: {exc.strerror or exc}; any earlier file "
+                        "there is unchanged", file=str(path)) from None
         except BaseException:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)
