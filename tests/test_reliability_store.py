@@ -85,3 +85,15 @@ def test_second_run_on_one_store_is_locked_out(tmp_path):
     first.close()
     second = EnsembleStore(folder, MANIFEST, resume=True)
     second.close()
+
+
+def test_temporaries_of_a_killed_run_are_swept_on_resume(tmp_path):
+    """A half-written batch left by SIGKILL (a hidden .tmp file) is removed when the next
+    run opens the store under its lock; finished batches stay."""
+    folder = _store_with_two_batches(tmp_path / "out.nc.samples")
+    stray = folder / ".batch_000000010_000000015.npz.abcd1234.tmp"
+    stray.write_bytes(b"PK\x03\x04 half")
+    store = EnsembleStore(folder, MANIFEST, resume=True)
+    assert not stray.exists()
+    assert store.finished() == [(0, 5), (5, 10)]
+    store.close()

@@ -22,8 +22,8 @@ batches in flight and ``--resume`` recomputes nothing that was finished:
 
 A batch file that cannot be read back (a file cut short by a crash of the machine, say) is
 set aside as ``batch_….npz.damaged`` when the store is opened and its samples count as
-missing, so a resumed run recomputes them (``discarded`` lists them). A folder without a
-manifest is not taken for a store.
+missing, so a resumed run recomputes them (``discarded`` lists them); hidden temporary files
+a killed run left are removed then too. A folder without a manifest is not taken for a store.
 
 The store knows nothing of chemistry: it keeps arrays by sample index. It must not decide
 which samples to compute; the ensemble runner asks it which ranges are missing.
@@ -109,6 +109,7 @@ class EnsembleStore:
             raise InputError("the sample store path exists and is not a folder; remove or "
                              "rename it", file=where)
         self._lock()
+        self._sweep_temporaries()
         if not created and not mpath.exists():
             # An empty folder (a run stopped right after making it) is taken over.
             created = not [p for p in self.folder.iterdir() if p.name != ".lock"]
@@ -181,6 +182,13 @@ class EnsembleStore:
     def close(self) -> None:
         """Release the lock (also released when the process ends)."""
         self._unlock()
+
+    def _sweep_temporaries(self):
+        """Remove temporary files a killed run left (safe: this run holds the lock)."""
+        for p in self.folder.iterdir():
+            if p.name.startswith(".") and p.name.endswith(".tmp"):
+                with contextlib.suppress(OSError):
+                    p.unlink()
 
     def _set_aside_damaged(self):
         """Rename batch files that cannot be read back; their samples become missing."""
