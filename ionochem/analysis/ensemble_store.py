@@ -36,7 +36,6 @@ import json
 import os
 import re
 import shutil
-import tempfile
 import zipfile
 from pathlib import Path
 
@@ -54,17 +53,18 @@ def store_path_for(output) -> Path:
 
 
 def _atomic_write(folder: Path, name: str, write) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=f".{name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            write(fh)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, folder / name)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    from ionochem.io.netcdf import registered_temporary
+    with registered_temporary(str(folder), f".{name}") as tmp:
+        try:
+            with open(tmp, "wb") as fh:
+                write(fh)
+                fh.flush()
+                os.fsync(fh.fileno())
+            os.replace(tmp, folder / name)
+        except BaseException:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise
 
 
 class EnsembleStore:

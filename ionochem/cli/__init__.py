@@ -47,13 +47,9 @@ def main(argv=None):
     warnings.showwarning = one_line
     from ionochem.io.netcdf import terminate_cleanly
     try:
-        # SIGTERM unwinds like Ctrl-C: temporary files and store locks are removed.
+        # SIGTERM removes the temporary files being written and ends with status 143.
         with terminate_cleanly():
             return args.func(args)
-    except SystemExit as exc:
-        if exc.code == 143:
-            print("terminated", file=sys.stderr)
-        raise
     except Error as exc:
         print(str(exc), file=sys.stderr)
         return 2

@@ -5,10 +5,11 @@ is flushed to disk (``fsync``) and then renamed onto the target; the folder is s
 the rename so the new name survives a crash. A reader therefore sees the old file or the new
 one, never a half-written file.
 
-Interruptions: any exception, Ctrl-C, or SIGTERM (turned into ``SystemExit(143)`` while a
-write is under way, when no other handler is installed) removes the temporary file. Only
-SIGKILL or a crash can leave one behind; the next write to the same target removes every such
-leftover whose writing process no longer runs.
+Interruptions: any exception or Ctrl-C removes the temporary file as it unwinds; SIGTERM
+(while a write is under way, when no other handler is installed; always under the
+``ionochem`` command) removes it in the signal handler and ends the process with status 143.
+Only SIGKILL or a crash can leave one behind; the next write to the same target removes every
+such leftover whose writing process no longer runs.
 """
 
 from __future__ import annotations
@@ -17,7 +18,6 @@ import contextlib
 import os
 import re
 import signal
-import tempfile
 import threading
 from pathlib import Path
 
@@ -50,15 +50,29 @@ def _encodable(ds):
     return out
 
 
-def _terminate(signum, frame):
-    # A second SIGTERM takes the default action, should the first be swallowed somewhere.
-    signal.signal(signum, signal.SIG_DFL)
-    raise SystemExit(128 + signum)
+#: Temporary files being written now; SIGTERM removes them before the process ends.
+_ACTIVE: set[str] = set()
+
+
+def _on_term(signum, frame):
+    """SIGTERM: remove the temporary files being written, say so, and end at once.
+
+    The process ends with ``os._exit`` rather than by raising an exception: an exception
+    raised inside the netCDF library's write could leave its internal lock held and hang
+    the clean-up, where ending at once cannot. Locks held with ``flock`` go with the process.
+    """
+    for tmp in list(_ACTIVE):
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+    with contextlib.suppress(OSError):
+        os.write(2, b"terminated\n")
+    os._exit(128 + signum)
 
 
 @contextlib.contextmanager
 def terminate_cleanly():
-    """While inside, SIGTERM raises ``SystemExit(143)`` so ``finally`` blocks run.
+    """While inside, SIGTERM removes the temporary files being written and ends the process
+    (exit status 143) instead of leaving them behind.
 
     Only in the main thread and only when SIGTERM has its default action (a program that
     installed its own handler keeps it).
@@ -73,11 +87,40 @@ def terminate_cleanly():
     if previous is not signal.SIG_DFL:
         yield
         return
-    signal.signal(signal.SIGTERM, _terminate)
+    signal.signal(signal.SIGTERM, _on_term)
     try:
         yield
     finally:
         signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+@contextlib.contextmanager
+def registered_temporary(folder, prefix):
+    """Create ``folder/PREFIX.XXXXXXXX.tmp`` (exclusive), registered for removal on SIGTERM.
+
+    Yields the path. The name is registered before the file exists, so a SIGTERM at any
+    moment finds it; the caller renames or removes it, and the registration ends on leaving.
+    """
+    import secrets
+    for _ in range(100):
+        tmp = os.path.join(folder, f"{prefix}.{secrets.token_hex(4)}.tmp")
+        _ACTIVE.add(tmp)
+        try:
+            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        except FileExistsError:
+            _ACTIVE.discard(tmp)
+            continue
+        except BaseException:
+            _ACTIVE.discard(tmp)
+            raise
+        os.close(fd)
+        break
+    else:
+        raise FileExistsError(f"no free temporary name in {folder}")
+    try:
+        yield tmp
+    finally:
+        _ACTIVE.discard(tmp)
 
 
 def _tmp_pattern(name):
@@ -159,14 +202,13 @@ def atomic_path(path):
     if not folder.is_dir():
         raise InputError(f"output folder {folder} does not exist", file=str(path))
     sweep_stale(path)
-    with terminate_cleanly():
+    with terminate_cleanly(), contextlib.ExitStack() as stack:
         try:
-            fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp",
-                                       dir=folder)
+            tmp = stack.enter_context(registered_temporary(str(folder),
+                                                           f".{path.name}.{os.getpid()}"))
         except OSError as exc:
             raise Error(f"cannot write the output: {exc.strerror or exc}",
                         file=str(path)) from None
-        os.close(fd)
         try:
             yield tmp
             os.chmod(tmp, _umask_mode())
