@@ -1,9 +1,12 @@
 """The sun over the column: zenith angle, attenuated EUV, photo and photoelectron rates.
 
 :class:`SunColumn` joins the pieces of this stage — solar geometry (``geometry``), the
-photon spectrum and cross sections (``euvac``, ``crosssections``), slant columns through
-spherical shells (``slant``), photo frequencies (``photorates``) and photoelectron impact
-(``secondary``) — into per-channel rates on the grid at any time of a run.
+photon spectrum and cross sections (``euvac``, ``crosssections``, Lyman alpha
+``lyman_alpha``, soft X-rays ``xrays``), slant columns through spherical shells
+(``slant``), photo frequencies (``photorates``), photoelectron impact (``secondary``) and
+the scattered night-time sources (``night_sources``, constant in time, added at every
+level) — into per-channel rates on the grid at any time of a run. ``photon_sources`` lists
+what acts, for the result.
 
 For transient runs the rates are computed on a time lattice (every ``lattice_s`` seconds)
 and interpolated linearly in between, so the stiff integrator sees a continuous right-hand
@@ -20,6 +23,11 @@ from ionochem.errors import ScenarioError
 #: Spacing of the time lattice of photo rates in transient runs, s (a choice: the zenith
 #: angle changes by at most 0.25° in 60 s).
 LATTICE_S = 60.0
+#: Photo and photoelectron frequencies below this (s-1 per molecule) are set to zero: they
+#: make less than one ion per cm3 in 1e70 years, and along grazing rays (the hard soft X-ray
+#: bins reach levels the EUV cannot) the densities they imply, ~1e-135 cm-3, underflow
+#: double precision in the solver's products (a numerical choice).
+NEGLIGIBLE_RATE_S = 1e-100
 
 
 def _extend_down(alt, dens):
@@ -75,6 +83,10 @@ class SunColumn:
             if photons.lyman_alpha_photons_cm2_s is not None:
                 kw["lyman_alpha_photons_cm2_s"] = photons.lyman_alpha_photons_cm2_s
             spectrum = solar_spectrum(scenario.sun.f107, scenario.sun.f107a, **kw)
+            if photons.soft_xrays:
+                from ionochem.environment.xrays import soft_xray_spectrum
+                spectrum = spectrum.concatenate(soft_xray_spectrum(scenario.sun.f107,
+                                                                   scenario.sun.f107a))
             if photons.extra_spectrum is not None:
                 spectrum = spectrum.concatenate(load_user_spectrum(
                     photons.extra_spectrum, where="photons.extra_spectrum",
@@ -112,6 +124,26 @@ class SunColumn:
         self.local = {k: env.neutrals[k] for k in ("N2", "O2", "O") if k in env.neutrals}
         self.time_dependent = scenario.solve.mode == "transient"
         self._cache = {}
+        self.photon_sources = [spectrum.source]
+        self.night = None
+        if photons.night_sources:
+            self._init_night()
+
+    def _init_night(self):
+        """Constant night-time (scattered) rates on the grid (``night_sources.py``)."""
+        from ionochem.environment.night_sources import describe, night_rates
+        from ionochem.environment.slant import slant_columns
+        cols = slant_columns(self.grid, 0.0, self.profile_alt, self.profile)
+        photo, pe = night_rates(cols, self.local, secondary=self.secondary)
+        self.night = {f"photo:{k}": v for k, v in photo.items()}
+        self.night.update({f"photoelectron:{k}": v for k, v in pe.items()})
+        self.photon_sources += [f"night: {d}" for d in describe()]
+
+    def _with_night(self, out):
+        out = {k: np.where(v < NEGLIGIBLE_RATE_S, 0.0, v) for k, v in out.items()}
+        if self.night is None:
+            return out
+        return {k: v + self.night[k] if k in self.night else v for k, v in out.items()}
 
     # ------------------------------------------------------------------ geometry
     def _utc(self, time_s):
@@ -138,7 +170,7 @@ class SunColumn:
             zero = np.zeros(self.grid.size)
             out = {f"photo:{k}": zero for k in self.photo_channels}
             out.update({f"photoelectron:{k}": zero for k in self.pe_channels})
-            self._cache[t] = (out, np.ones(self.grid.size, bool))
+            self._cache[t] = (self._with_night(out), np.ones(self.grid.size, bool))
             return self._cache[t]
         cols = slant_columns(self.grid, chi, self.profile_alt, self.profile)
         spectrum = self.spectrum.scaled(float(flux_distance_factor(self._utc(t))))
@@ -157,8 +189,8 @@ class SunColumn:
                         f"no photoelectron-impact rate is known for channel {key} (known: "
                         f"{', '.join(sorted(pe))})", file=self.scenario.source, key="photons")
                 out[f"photoelectron:{key}"] = np.where(dark, 0.0, pe[key])
-        self._cache[t] = (out, dark)
-        return out, dark
+        self._cache[t] = (self._with_night(out), dark)
+        return self._cache[t]
 
     def _photoelectron(self, spectrum, cols):
         from ionochem.environment.secondary import secondary_frequencies

@@ -1,0 +1,212 @@
+"""Solar soft X-rays below 50 angstrom: fluxes, cross sections and channels.
+
+EUVAC starts at 50 angstrom; shortward of it the Sun's soft X-rays are absorbed below about
+120 km and, with their many secondary ion pairs, supply most of the E-region ionization of N2
+and O2 below ~115 km; without them a model's NmE falls ~30 % short (SCIENCE.md section 4a).
+
+Flux
+----
+Five published bins (0.5-4, 4-8, 8-18, 18-32 and 32-50 angstrom; Solomon & Qian 2005,
+J. Geophys. Res. 110, A10306, table A1, the last bin cut at 50 angstrom where EUVAC begins),
+packaged with their sources and honesty marks in ``ionochem/data/soft_xrays.csv``. Each bin's
+flux is linear in the EUVAC activity proxy P = (F10.7 + F10.7A)/2 between its solar-minimum
+value at P = :data:`P_MIN` and its solar-maximum value at P = :data:`P_MAX`, floored at 0.8
+of the minimum as EUVAC's factor is (Richards, Fennelly & Torr 1994, J. Geophys. Res. 99,
+8981).
+
+Each published bin is split into sub-bins of at most :data:`SUB_BIN_A` angstrom carrying the
+bin's flux in proportion to their width (flat in wavelength, *(common practice)*): the cross
+sections change by a factor of several across a published bin and jump at the K edges of N
+(30.2 angstrom) and O (22.8 angstrom), so attenuation with one bin-averaged cross section
+would be wrong; the K edges are sub-bin edges.
+
+Cross sections
+--------------
+At these energies a molecule absorbs like the sum of its atoms (SCIENCE.md section 4): the
+photoabsorption cross sections are those of the Elam, Ravel & Sieber (2002) tables
+(Radiat. Phys. Chem. 63, 121) carried by the PyPI package ``xraydb`` (``mu_elam(...,
+kind="photo")``, mass absorption coefficient times atomic mass over Avogadro's number),
+averaged over each sub-bin: sigma(N2) = 2 sigma(N), sigma(O2) = 2 sigma(O), sigma(O) =
+sigma(O). ``xraydb`` ships its tables; nothing is fetched at run time.
+
+Every absorbed photon ionizes. The products are shared as in EUVAC's shortest bin (50-100
+angstrom) of the packaged cross sections (``crosssections.py``): N2 into N2+ and N+ + N, O2
+into O2+ and O+ + O (with the dissociative share of that bin), O into O+(4S), O+(2D),
+O+(2P) *(common practice: the shortest tabulated bin continued)*. Inner-shell ionization
+and its Auger electron change the first ion, not the energy budget: nearly all the photon's
+energy goes to ion pairs at W = 35 eV each, which the secondary module
+(``secondary.py``, yield (E - 15 eV)/35 eV for a photoelectron of E = h nu - threshold)
+already gives; those secondaries, not the primary ions, carry most of the ionization.
+
+What this module must not do: attenuate, integrate over altitude or know reactions; fluxes
+are at 1 AU until the caller scales them for the Earth-Sun distance.
+"""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+import numpy as np
+
+from ionochem.environment.crosssections import (
+    HC_EV_A,
+    Spectrum,
+    euvac_cross_sections,
+)
+from ionochem.environment.euvac import DATA_DIR
+from ionochem.errors import InputError
+from ionochem.io.tables import read_csv_columns
+
+SOFT_XRAY_TABLE_PATH = DATA_DIR / "soft_xrays.csv"
+
+#: Activity proxy P = (F10.7 + F10.7A)/2 of the solar-minimum and solar-maximum columns of
+#: the table *(from memory; the reference spectra of Solomon & Qian 2005 were built for
+#: cycle-23 minimum and maximum conditions)*.
+P_MIN = 70.0
+P_MAX = 240.0
+#: Floor on a bin's flux, as a fraction of its solar-minimum value (EUVAC's floor, Richards
+#: et al. 1994).
+FLUX_FLOOR = 0.8
+#: Largest sub-bin width, angstrom (a choice: the cross sections change by < 35 % across).
+SUB_BIN_A = 2.0
+#: K-shell edges, angstrom: N 409.9 eV and O 543.1 eV (``xraydb.xray_edges``).
+K_EDGES_A = (HC_EV_A / 409.9, HC_EV_A / 543.1)
+#: Avogadro's number, mol-1 (CODATA 2018, exact).
+AVOGADRO = 6.02214076e23
+#: Wavelength samples per sub-bin for the cross-section average.
+_SAMPLES = 41
+
+
+@lru_cache(maxsize=1)
+def soft_xray_table() -> dict[str, np.ndarray]:
+    """The packaged soft X-ray table (Solomon & Qian 2005 bins, values from memory).
+
+    Returns
+    -------
+    dict
+        ``wl_lo_A``, ``wl_hi_A`` (angstrom), ``F_min``, ``F_max`` (photons cm-2 s-1 per
+        bin), each shape (5,), read-only.
+    """
+    header, data, _ = read_csv_columns(SOFT_XRAY_TABLE_PATH)
+    raw = dict(zip(header, data.T, strict=True))
+    table = {"wl_lo_A": raw["wl_lo_A"], "wl_hi_A": raw["wl_hi_A"],
+             "F_min": raw["F_min_photons_cm2_s"], "F_max": raw["F_max_photons_cm2_s"]}
+    table = {k: np.array(v, dtype=float) for k, v in table.items()}
+    for value in table.values():
+        value.setflags(write=False)
+    return table
+
+
+def soft_xray_flux(f107, f107a) -> np.ndarray:
+    """Photon flux in the five published soft X-ray bins for the given activity.
+
+    Parameters
+    ----------
+    f107, f107a : float or array_like
+        Daily and 81-day mean F10.7 (1e-22 W m-2 Hz-1), adjusted to 1 AU; they broadcast.
+
+    Returns
+    -------
+    ndarray, shape ``broadcast(f107, f107a).shape + (5,)``
+        Photons cm-2 s-1 per bin at 1 AU.
+    """
+    f107 = np.asarray(f107, dtype=float)
+    f107a = np.asarray(f107a, dtype=float)
+    for name, value in (("f107", f107), ("f107a", f107a)):
+        if not np.all(np.isfinite(value)) or np.any(value <= 0):
+            raise InputError(f"{name} must be a positive finite number, got {value!r}")
+    t = soft_xray_table()
+    w = ((0.5 * (f107 + f107a) - P_MIN) / (P_MAX - P_MIN))[..., np.newaxis]
+    return np.maximum(FLUX_FLOOR * t["F_min"], t["F_min"] + w * (t["F_max"] - t["F_min"]))
+
+
+@lru_cache(maxsize=1)
+def _sub_bins() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Sub-bin edges and the published bin each belongs to."""
+    t = soft_xray_table()
+    lo_all, hi_all, parent = [], [], []
+    for i, (lo, hi) in enumerate(zip(t["wl_lo_A"], t["wl_hi_A"], strict=True)):
+        edges = [lo, hi, *(e for e in K_EDGES_A if lo < e < hi)]
+        edges = np.unique(edges)
+        fine = [edges[0]]
+        for a, b in zip(edges[:-1], edges[1:], strict=True):
+            n = int(np.ceil((b - a) / SUB_BIN_A - 1e-9))
+            fine.extend(np.linspace(a, b, n + 1)[1:])
+        fine = np.asarray(fine)
+        lo_all.append(fine[:-1])
+        hi_all.append(fine[1:])
+        parent.append(np.full(fine.size - 1, i))
+    return np.concatenate(lo_all), np.concatenate(hi_all), np.concatenate(parent)
+
+
+def atomic_cross_section_cm2(element: str, energy_eV) -> np.ndarray:
+    """Photoabsorption cross section of one atom (Elam et al. 2002 via ``xraydb``).
+
+    Parameters
+    ----------
+    element : str
+        Element symbol (``"N"``, ``"O"``).
+    energy_eV : array_like
+        Photon energy (eV), within the tables (about 100 eV to 800 keV).
+
+    Returns
+    -------
+    ndarray
+        Cross section per atom (cm2), the shape of ``energy_eV``.
+    """
+    import xraydb
+
+    energy = np.asarray(energy_eV, dtype=float)
+    mu = xraydb.mu_elam(element, energy.ravel(), kind="photo")    # cm2 g-1
+    return (np.asarray(mu) * xraydb.atomic_mass(element) / AVOGADRO).reshape(energy.shape)
+
+
+@lru_cache(maxsize=1)
+def _cross_sections() -> tuple[dict[str, np.ndarray], dict[str, np.ndarray]]:
+    """Absorption and channel cross sections (cm2) on the sub-bins (module docstring)."""
+    lo, hi, _ = _sub_bins()
+    frac = np.linspace(0.0, 1.0, _SAMPLES)
+    wl = lo[:, None] + (hi - lo)[:, None] * frac[None, :]
+    atoms = {el: np.trapezoid(atomic_cross_section_cm2(el, HC_EV_A / wl), frac, axis=1)
+             for el in ("N", "O")}
+    sigma_abs = {"N2": 2.0 * atoms["N"], "O2": 2.0 * atoms["O"], "O": atoms["O"]}
+    euv_abs, euv_chan = euvac_cross_sections()
+    first = 0                                          # EUVAC bin 1, 50-100 A
+    sigma_chan = {}
+    for absorber in ("N2", "O2", "O"):
+        keys = [k for k in euv_chan if k.split("->")[0] == absorber and k != "N2->N(2D)+N"]
+        total = sum(euv_chan[k][first] for k in keys)
+        for k in keys:
+            sigma_chan[k] = sigma_abs[absorber] * (euv_chan[k][first] / total)
+    return sigma_abs, sigma_chan
+
+
+def soft_xray_spectrum(f107, f107a) -> Spectrum:
+    """The soft X-ray part of the solar spectrum at 1 AU, ready to join EUVAC's.
+
+    Parameters
+    ----------
+    f107, f107a : float or array_like
+        Daily and 81-day mean F10.7 (1e-22 W m-2 Hz-1), adjusted to 1 AU; they broadcast.
+
+    Returns
+    -------
+    Spectrum
+        Sub-bins of 0.5-50 angstrom, flux shape ``broadcast(f107, f107a).shape + (bin,)``;
+        absorbers N2, O2, O; channels ``N2->N2+``, ``N2->N+``, ``O2->O2+``, ``O2->O+``,
+        ``O->O+``, ``O->O+(2D)``, ``O->O+(2P)`` adding up to each absorber's absorption.
+        Join it to the EUV spectrum with ``Spectrum.concatenate``.
+    """
+    lo, hi, parent = _sub_bins()
+    t = soft_xray_table()
+    width = (t["wl_hi_A"] - t["wl_lo_A"])[parent]
+    share = (hi - lo) / width
+    flux = soft_xray_flux(f107, f107a)[..., parent] * share
+    sigma_abs, sigma_chan = _cross_sections()
+    return Spectrum(lo, hi, flux, sigma_abs, sigma_chan,
+                    "soft X-rays 0.5-50 A (Solomon & Qian 2005 bins, from memory; xraydb "
+                    "cross sections)")
+
+
+__all__ = ["P_MAX", "P_MIN", "atomic_cross_section_cm2", "soft_xray_flux",
+           "soft_xray_spectrum", "soft_xray_table"]
