@@ -132,8 +132,6 @@ def add_steady_diagnostics(model, ds):
                      "layer)" if night else
                      "every level is dark: photochemistry alone cannot sustain the night "
                      "ionosphere (no transport, no night-time sources)")
-    if sources:
-        ds.attrs["photon_sources"] = "; ".join(sources)
     ds["dark"] = ("altitude", dark.astype(np.int8),
                   {"long_name": "no direct sunlight reaches the level",
                    "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})

@@ -1,0 +1,113 @@
+"""Scattered night-time photon sources: intensities, diffuse attenuation, secondaries."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy.integrate import quad
+
+import ionochem
+from ionochem.environment.crosssections import HC_EV_A, euvac_cross_sections
+from ionochem.environment.euvac import euvac_table
+from ionochem.environment.night_sources import (
+    HEMISPHERE_PHOTONS_PER_R,
+    NIGHT_LINES,
+    night_frequencies,
+    night_rates,
+    night_spectrum,
+)
+
+ROOT = Path(__file__).resolve().parents[1]
+MID = ROOT / "scenarios" / "midlatitude_equinox.toml"
+ZERO = {"O": np.zeros(1), "N2": np.zeros(1), "O2": np.zeros(1), "NO": np.zeros(1)}
+
+
+def test_a_rayleigh_over_a_hemisphere_is_half_a_million_photons():
+    """1 R = 1e6/(4π) photons cm-2 s-1 sr-1 (Hunten, Roach & Chamberlain 1956); over the
+    upper hemisphere, isotropic, the flux arriving from all directions is 2π I = 5e5 per R."""
+    assert HEMISPHERE_PHOTONS_PER_R == pytest.approx(2 * np.pi * 1e6 / (4 * np.pi))
+    spec = night_spectrum()
+    np.testing.assert_allclose(spec.photons_cm2_s,
+                               [ln.intensity_R * 5e5 for ln in NIGHT_LINES], rtol=1e-12)
+
+
+def test_intensities_are_the_cited_ones():
+    """Lyman β 10 R at 227 km, and the helium signal split evenly between 584 Å (12 R if
+    alone) and 304 Å (4.8 R if alone) (Science 160, 990, 1968); Lyman α 'several kR'
+    (Young et al. 1975, Radio Sci. 10, 297)."""
+    by = {round(ln.wavelength_A): ln.intensity_R for ln in NIGHT_LINES}
+    assert by[1026] == 10.0 and by[584] == 6.0 and by[304] == 2.4
+    assert 2000.0 <= by[1216] <= 5000.0
+
+
+def test_unattenuated_frequencies_are_sigma_times_flux():
+    """With no absorber above, J_c = Σ_lines σ_c 2πI; NO by Lyman α alone (2e-18 cm2,
+    Watanabe 1954), O2 → O2+ by Lyman β and the helium lines, O by the helium lines only;
+    each line's cross sections equal the EUVAC table's at the same line."""
+    j = night_frequencies(ZERO)
+    assert j["NO->NO+"][0] == pytest.approx(2e-18 * 3000 * 5e5, rel=1e-12)
+    _, chan = euvac_cross_sections()
+    t = euvac_table()
+    idx = {w: int(np.flatnonzero((t["wl_lo_A"] == w) & (t["wl_hi_A"] == w))[0])
+           for w in (1025.72, 584.33, 303.78)}
+    expect_o2 = (chan["O2->O2+"][idx[1025.72]] * 10 + chan["O2->O2+"][idx[584.33]] * 6
+                 + chan["O2->O2+"][idx[303.78]] * 2.4) * 5e5
+    assert j["O2->O2+"][0] == pytest.approx(expect_o2, rel=1e-12)
+    expect_o = (chan["O->O+"][idx[584.33]] * 6 + chan["O->O+"][idx[303.78]] * 2.4) * 5e5
+    assert j["O->O+"][0] == pytest.approx(expect_o, rel=1e-12)
+    assert chan["O->O+"][idx[1025.72]] == 0.0
+
+
+@pytest.mark.parametrize("column", [1e15, 1e17, 1e18, 3e18])
+def test_diffuse_attenuation_matches_an_integral_over_directions(column):
+    """An isotropic sky seen through a plane-parallel absorbing layer: the flux at a level
+    is ∫ I exp(−τ/μ) dΩ over the upper hemisphere = 2π I E₂(τ) (Chandrasekhar 1960);
+    checked against scipy.integrate.quad over μ for the O2 column absorbing Lyman β."""
+    cols = dict(ZERO, O2=np.array([column]))
+    j = night_frequencies(cols)["O2->O2+"][0]
+    spec = night_spectrum()
+    expect = 0.0
+    for i in range(spec.n_bins):
+        tau = spec.sigma_abs_cm2["O2"][i] * column
+        ang = quad(lambda mu, t=tau: np.exp(-t / mu), 0.0, 1.0)[0]
+        expect += spec.sigma_channel_cm2["O2->O2+"][i] * spec.photons_cm2_s[i] * ang
+    assert j == pytest.approx(expect, rel=1e-8)
+
+
+def test_only_he_ii_304_makes_secondaries():
+    """Photoelectron energies hν − threshold: He II 304 Å on O gives 40.8 − 13.6 = 27.2 eV,
+    (27.2 − 15)/35 = 0.35 secondary pairs (Rees 1989, common practice); He I 584 Å on O
+    gives 7.6 eV and Lyman α and β too little: no secondaries (SCIENCE.md §4)."""
+    dens = {"O": np.array([1e9]), "N2": np.zeros(1), "O2": np.zeros(1)}
+    photo, pe = night_rates(ZERO, dens)
+    spec = night_spectrum()
+    i304 = int(np.argmin(np.abs(spec.wl_lo_A - 303.78)))
+    e = HC_EV_A / 303.78 - 13.618
+    primary_304 = 2.4 * 5e5 * spec.sigma_abs_cm2["O"][i304]
+    expect = primary_304 * (e - 15.0) / 35.0
+    got = pe["O->O+"][0] + pe["O->O+(2D)"][0] + pe["O->O+(2P)"][0]
+    assert got == pytest.approx(expect, rel=1e-9)
+    _, off = night_rates(ZERO, dens, secondary=False)
+    assert all(np.all(v == 0) for v in off.values())
+
+
+def test_the_result_says_which_sources_act_and_the_switch_removes_them():
+    """The dataset attribute ``photon_sources`` names the solar parts and each night line;
+    ``[photons] night_sources = false`` removes them (docs/scenario.md) and the top-level
+    NO ionization falls by exactly the scattered Lyman α term, σ 2πI = 3e-9 s-1."""
+    scen = ionochem.load_scenario(MID)
+    on = ionochem.Model(scen)
+    ds = on.solve()
+    src = ds.attrs["photon_sources"]
+    for ln in NIGHT_LINES:
+        assert ln.name in src
+    assert "soft X-rays" in src and "EUVAC" in src
+    off = ionochem.Model(scen.replace(
+        photons=dataclasses.replace(scen.photons, night_sources=False)))
+    j_on = on.environment.sources()["photo:NO->NO+"][-1]
+    j_off = off.environment.sources()["photo:NO->NO+"][-1]
+    assert j_on - j_off == pytest.approx(2e-18 * 3000 * 5e5, rel=1e-6)
+    assert "night" not in off.solve().attrs["photon_sources"]

@@ -1,0 +1,164 @@
+"""Soft X-rays below 50 Å: fluxes, cross sections, secondaries and their switch."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+import pytest
+import xraydb
+
+import ionochem
+from ionochem.environment.crosssections import HC_EV_A, euvac_cross_sections, solar_spectrum
+from ionochem.environment.photorates import photo_frequencies
+from ionochem.environment.secondary import secondary_ion_pair_production
+from ionochem.environment.xrays import (
+    P_MAX,
+    P_MIN,
+    atomic_cross_section_cm2,
+    soft_xray_flux,
+    soft_xray_spectrum,
+    soft_xray_table,
+)
+from ionochem.errors import InputError
+
+ROOT = Path(__file__).resolve().parents[1]
+MID = ROOT / "scenarios" / "midlatitude_equinox.toml"
+
+
+def test_table_holds_the_published_bins_below_50_angstrom():
+    """Solomon & Qian (2005) table A1 bins 0.05–0.4, 0.4–0.8, 0.8–1.8, 1.8–3.2 nm and the
+    part of 3.2–7.0 nm below EUVAC's first bin (50 Å): contiguous, ending at 50 Å, with
+    solar-maximum fluxes above solar-minimum ones."""
+    t = soft_xray_table()
+    np.testing.assert_array_equal(t["wl_lo_A"], [0.5, 4.0, 8.0, 18.0, 32.0])
+    np.testing.assert_array_equal(t["wl_hi_A"], [4.0, 8.0, 18.0, 32.0, 50.0])
+    assert np.all(t["F_max"] > t["F_min"])
+    # 32-50 A is 18/38 of the published 32-70 A bin (flux flat in wavelength).
+    assert t["F_min"][-1] == pytest.approx(5.326e8 * 18 / 38, rel=1e-3)
+
+
+def test_flux_is_linear_in_the_activity_proxy_with_the_euvac_floor():
+    """flux = F_min + (F_max − F_min)(P − P_min)/(P_max − P_min), P = (F10.7 + F10.7A)/2,
+    floored at 0.8 F_min like EUVAC's factor (Richards et al. 1994): exact at both anchors,
+    linear between (checked at the midpoint), floored far below P_min."""
+    t = soft_xray_table()
+    np.testing.assert_allclose(soft_xray_flux(P_MIN, P_MIN), t["F_min"], rtol=1e-12)
+    np.testing.assert_allclose(soft_xray_flux(P_MAX, P_MAX), t["F_max"], rtol=1e-12)
+    mid = 0.5 * (P_MIN + P_MAX)
+    np.testing.assert_allclose(soft_xray_flux(mid + 10, mid - 10),
+                               0.5 * (t["F_min"] + t["F_max"]), rtol=1e-12)
+    np.testing.assert_allclose(soft_xray_flux(1.0, 1.0), 0.8 * t["F_min"], rtol=1e-12)
+    assert soft_xray_flux([70.0, 150.0], 100.0).shape == (2, 5)
+    with pytest.raises(InputError):
+        soft_xray_flux(np.nan, 100.0)
+
+
+def test_sub_bins_keep_each_published_bin_flux():
+    """Splitting a published bin into sub-bins (flat in wavelength) keeps its photons: the
+    sub-bin fluxes add up to the bin flux, and the N and O K edges (409.9 and 543.1 eV,
+    xraydb.xray_edges) are sub-bin edges."""
+    spec = soft_xray_spectrum(150.0, 140.0)
+    t = soft_xray_table()
+    flux = soft_xray_flux(150.0, 140.0)
+    for i in range(5):
+        inside = (spec.wl_lo_A >= t["wl_lo_A"][i]) & (spec.wl_hi_A <= t["wl_hi_A"][i])
+        assert spec.photons_cm2_s[inside].sum() == pytest.approx(flux[i], rel=1e-12)
+    for el in ("N", "O"):
+        edge_A = HC_EV_A / xraydb.xray_edges(el)["K"].energy
+        assert np.min(np.abs(spec.wl_lo_A - edge_A)) < 1e-9
+    assert np.all(spec.wl_hi_A - spec.wl_lo_A <= 2.0 + 1e-9)
+
+
+def test_atomic_cross_sections_agree_with_the_chantler_tables():
+    """The Elam et al. (2002) photoabsorption cross sections used here agree with the
+    independent Chantler (2000, FFAST) tables, also in xraydb, within 20 % from 250 eV to
+    10 keV away from the K edges."""
+    energy = np.array([250.0, 300.0, 350.0, 450.0, 500.0, 700.0, 1000.0, 2000.0, 5000.0,
+                       1e4])
+    for el in ("N", "O"):
+        edge = xraydb.xray_edges(el)["K"].energy
+        e = energy[np.abs(energy - edge) > 30.0]
+        elam = atomic_cross_section_cm2(el, e)
+        mass = xraydb.atomic_mass(el) / 6.02214076e23
+        chantler = np.asarray(xraydb.mu_chantler(el, e, photo=True)) * mass
+        np.testing.assert_allclose(elam, chantler, rtol=0.2)
+
+
+def test_molecules_absorb_as_the_sum_of_their_atoms_and_join_euvac():
+    """σ(N2) = 2σ(N), σ(O2) = 2σ(O), σ(O) = σ(O) (SCIENCE.md §4); continued over EUVAC's
+    50–100 Å bin the atomic sums come within 30 % of the Fennelly & Torr (1992) values
+    there (0.72, 1.316 and 0.73 Mb), so the X-ray and EUV parts join."""
+    spec = soft_xray_spectrum(100.0, 100.0)
+    lo, hi = spec.wl_lo_A, spec.wl_hi_A
+    mid = HC_EV_A / (0.5 * (lo + hi))
+    sig = spec.sigma_abs_cm2
+    # Away from the edges a sub-bin average is close to the value at its centre.
+    np.testing.assert_allclose(sig["O2"], 2 * sig["O"], rtol=1e-12)
+    ok = hi - lo < 2.1
+    np.testing.assert_allclose(sig["N2"][ok & (lo > 32)],
+                               2 * atomic_cross_section_cm2("N", mid[ok & (lo > 32)]),
+                               rtol=0.1)
+    wl = np.linspace(50.0, 100.0, 401)
+    euv_abs, _ = euvac_cross_sections()
+    for mol, el, n in (("N2", "N", 2), ("O2", "O", 2), ("O", "O", 1)):
+        xr = n * atomic_cross_section_cm2(el, HC_EV_A / wl).mean()
+        assert xr == pytest.approx(euv_abs[mol][0], rel=0.3), mol
+
+
+def test_every_absorbed_photon_ionizes_with_euvac_first_bin_branching():
+    """The channels of each absorber add up to its absorption (every absorbed X-ray
+    photon ionizes) and keep the product shares of EUVAC's 50–100 Å bin."""
+    spec = soft_xray_spectrum(100.0, 100.0)
+    _, euv = euvac_cross_sections()
+    for absorber in ("N2", "O2", "O"):
+        keys = [k for k in spec.channels if k.split("->")[0] == absorber]
+        total = sum(spec.sigma_channel_cm2[k] for k in keys)
+        np.testing.assert_allclose(total, spec.sigma_abs_cm2[absorber], rtol=1e-12)
+    share = spec.sigma_channel_cm2["N2->N+"] / spec.sigma_abs_cm2["N2"]
+    assert share[5] == pytest.approx(euv["N2->N+"][0] / (euv["N2->N+"][0]
+                                                         + euv["N2->N2+"][0]), rel=1e-12)
+    assert np.all(spec.sigma_channel_cm2["O2->O+"] > 0)
+
+
+def test_ion_pairs_per_absorbed_photon_approach_h_nu_over_w():
+    """Unattenuated, each absorbed X-ray photon makes one primary ion and (E − 15 eV)/35 eV
+    secondaries, E = hν − threshold (Rees 1989, W = 35 eV, common practice): for the
+    20–50 Å sub-bins the total ion pairs per absorbed photon lie within 10 % of hν/35 eV."""
+    spec = soft_xray_spectrum(100.0, 100.0)
+    cols = {"O": np.array([0.0])}
+    dens = {"O": np.array([1.0])}
+    sel = (spec.wl_lo_A >= 20.0)
+    for i in np.flatnonzero(sel):
+        one = spec.with_flux(np.where(np.arange(spec.n_bins) == i, 1.0, 0.0))
+        primary = sum(v[0] for k, v in photo_frequencies(one, cols).items()
+                      if k.startswith("O->"))
+        secondary = secondary_ion_pair_production(one, cols, dens)[0]
+        absorbed = one.sigma_abs_cm2["O"][i]
+        pairs = (primary + secondary) / absorbed
+        assert pairs == pytest.approx(one.photon_energy_eV[i] / 35.0, rel=0.1)
+
+
+def test_switch_and_scenario_key(tmp_path):
+    """``[photons] soft_xrays`` (default true) adds the X-ray bins to EUVAC in the model's
+    spectrum and says so in the result; false leaves EUVAC and Lyman α alone; it is refused
+    with a user spectrum (flux = "table"), which holds all its own bins, and must be a
+    boolean (docs/scenario.md)."""
+    scen = ionochem.load_scenario(MID)
+    assert scen.photons.soft_xrays is True
+    model = ionochem.Model(scen)
+    assert model.environment.sun.spectrum.n_bins == solar_spectrum(150, 145).n_bins + 26
+    off = scen.replace(photons=dataclasses.replace(scen.photons, soft_xrays=False))
+    assert ionochem.Model(off).environment.sun.spectrum.n_bins == 38
+
+    text = MID.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
+    for extra, msg in (('soft_xrays = "yes"', "true or false"),
+                       ('flux = "table"\nspectrum = "x.csv"\nsoft_xrays = true',
+                        "applies only with flux = 'euvac'")):
+        (tmp_path / "x.csv").write_text("wl_lo_A,wl_hi_A,photons_cm2_s\n10,20,1e6\n")
+        path = tmp_path / "s.toml"
+        path.write_text(text.replace('flux = "euvac"', extra))
+        with pytest.raises(ionochem.Error) as info:
+            ionochem.load_scenario(path)
+        assert "photons.soft_xrays" in str(info.value) and msg in str(info.value)
