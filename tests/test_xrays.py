@@ -10,6 +10,7 @@ import pytest
 import xraydb
 
 import ionochem
+from ionochem.cli import main
 from ionochem.environment.crosssections import HC_EV_A, euvac_cross_sections, solar_spectrum
 from ionochem.environment.photorates import photo_frequencies
 from ionochem.environment.secondary import secondary_ion_pair_production
@@ -25,6 +26,7 @@ from ionochem.errors import InputError
 
 ROOT = Path(__file__).resolve().parents[1]
 MID = ROOT / "scenarios" / "midlatitude_equinox.toml"
+SOLMIN = ROOT / "scenarios" / "midlatitude_solar_minimum.toml"
 
 
 def test_table_holds_the_published_bins_below_50_angstrom():
@@ -162,3 +164,43 @@ def test_switch_and_scenario_key(tmp_path):
         with pytest.raises(ionochem.Error) as info:
             ionochem.load_scenario(path)
         assert "photons.soft_xrays" in str(info.value) and msg in str(info.value)
+
+
+def test_bad_switch_is_refused_by_the_command_line(tmp_path, capsys):
+    """Through ``ionochem run``: exit 2 and one line ``file: photons.soft_xrays: …``, no
+    traceback (DESIGN.md §4)."""
+    text = MID.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
+    path = tmp_path / "s.toml"
+    path.write_text(text.replace('flux = "euvac"', 'flux = "euvac"\nsoft_xrays = 1'))
+    assert main(["run", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.startswith(f"{path}: photons.soft_xrays:") and "\n" not in err, err
+
+
+def _ne110_over_davies(scen):
+    """Ne(110 km) / NmE of Davies (1990, from memory): NmE = 1.24e4 foE², foE = 0.9
+    [(180 + 1.44 R12) cos χ]^(1/4) MHz, R12 from F10.7 = 63.7 + 0.728 R + 8.9e-4 R²."""
+    model = ionochem.Model(scen)
+    ds = model.solve()
+    p = 0.5 * (scen.sun.f107 + scen.sun.f107a)
+    a, b, c = 8.9e-4, 0.728, 63.7 - p
+    r12 = (-b + np.sqrt(b * b - 4 * a * c)) / (2 * a)
+    chi = float(ds["solar_zenith_angle"])
+    nme = 1.24e4 * (0.9 * ((180 + 1.44 * r12) * np.cos(np.radians(chi))) ** 0.25) ** 2
+    return float(ds["density"].sel(species="e", altitude=110.0)) / nme
+
+
+@pytest.mark.parametrize("which", ["minimum", "maximum"])
+def test_e_region_meets_the_foe_formula_across_the_solar_cycle(which):
+    """Beyond the moderate-activity check (test_default_ionosphere): with the soft X-rays,
+    Ne(110 km) is within ±25 % of the Davies (1990, from memory) NmE at solar minimum
+    (F10.7 = 70) and maximum (F10.7 = F10.7A = 220), χ = 40°; the X-rays raise it at both."""
+    if which == "minimum":
+        scen = ionochem.load_scenario(SOLMIN)
+    else:
+        scen = ionochem.load_scenario(MID)
+        scen = scen.replace(sun=type(scen.sun)(f107=220.0, f107a=220.0))
+    ratio = _ne110_over_davies(scen)
+    assert 0.75 < ratio < 1.25, ratio
+    off = scen.replace(photons=dataclasses.replace(scen.photons, soft_xrays=False))
+    assert _ne110_over_davies(off) < ratio
