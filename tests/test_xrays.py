@@ -88,6 +88,24 @@ def test_atomic_cross_sections_agree_with_the_chantler_tables():
         np.testing.assert_allclose(elam, chantler, rtol=0.2)
 
 
+def test_packaged_cross_sections_equal_xraydb_live():
+    """ionochem/data/soft_xray_cross_sections.csv (kept to spare the run the import of
+    xraydb) holds exactly what xraydb's Elam tables give on the current sub-bins (1e-8), and
+    the spectrum uses it."""
+    from ionochem.environment import xrays
+
+    header, data, _ = xrays.read_csv_columns(xrays.CROSS_SECTION_TABLE_PATH)
+    t = dict(zip(header, data.T, strict=True))
+    lo, hi, _ = xrays._sub_bins()
+    np.testing.assert_allclose(t["wl_lo_A"], lo, rtol=1e-9)
+    np.testing.assert_allclose(t["wl_hi_A"], hi, rtol=1e-9)
+    live = xrays.sub_bin_atomic_cross_sections(lo, hi)
+    np.testing.assert_allclose(t["sigma_N_Mb"] * 1e-18, live["N"], rtol=1e-8)
+    np.testing.assert_allclose(t["sigma_O_Mb"] * 1e-18, live["O"], rtol=1e-8)
+    spec = soft_xray_spectrum(100.0, 100.0)
+    np.testing.assert_allclose(spec.sigma_abs_cm2["O2"], 2 * live["O"], rtol=1e-8)
+
+
 def test_molecules_absorb_as_the_sum_of_their_atoms_and_join_euvac():
     """σ(N2) = 2σ(N), σ(O2) = 2σ(O), σ(O) = σ(O) (SCIENCE.md §4); continued over EUVAC's
     50–100 Å bin the atomic sums come within 30 % of the Fennelly & Torr (1992) values
