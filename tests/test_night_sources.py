@@ -111,3 +111,27 @@ def test_the_result_says_which_sources_act_and_the_switch_removes_them():
     j_off = off.environment.sources()["photo:NO->NO+"][-1]
     assert j_on - j_off == pytest.approx(2e-18 * 3000 * 5e5, rel=1e-6)
     assert "night" not in off.solve().attrs["photon_sources"]
+
+
+@pytest.mark.parametrize("f107", [60.0, 300.0])
+def test_dawn_terminator_columns_solve(f107):
+    """Equator, 05:00 local time (χ ≈ 107°), F10.7 = 60 and 300: before the night-time
+    sources (and the soft X-rays) the steady solver refused the levels near 385–405 km,
+    reached only by grazing rays almost wholly absorbed (photo rates from 0 to ~1e-47 s-1);
+    with the scattered sources every level has a floor of production and the column solves,
+    positive everywhere, with night-like Ne (< 1e4 cm-3) in the shadowed levels (Strobel,
+    Opal & Meier 1980)."""
+    import datetime as dt
+
+    scen = ionochem.load_scenario(MID)
+    scen = scen.replace(
+        location=type(scen.location)(latitude_deg=0.0, longitude_deg=15.0),
+        time=type(scen.time)(utc=dt.datetime(2025, 3, 20, 4, 0, tzinfo=dt.UTC)),
+        sun=type(scen.sun)(f107=f107, f107a=f107))
+    ds = ionochem.Model(scen).solve()
+    assert 105 < float(ds["solar_zenith_angle"]) < 109
+    e = ds["density"].sel(species="e").values
+    dark = ds["dark"].values.astype(bool)
+    assert dark.any() and np.all(e > 0)
+    assert np.all(e[dark] < 1e4)
+    assert np.all(ds["residual"].values < 1e-8)
