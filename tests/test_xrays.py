@@ -222,3 +222,21 @@ def test_e_region_meets_the_foe_formula_across_the_solar_cycle(which):
     assert 0.75 < ratio < 1.25, ratio
     off = scen.replace(photons=dataclasses.replace(scen.photons, soft_xrays=False))
     assert _ne110_over_davies(off) < ratio
+
+
+def test_user_xray_bins_beside_the_packaged_ones_are_flagged(tmp_path):
+    """An ``extra_spectrum`` with bins below 50 Å while ``soft_xrays`` is on would count the
+    soft X-rays twice: the model warns, naming the key (docs/scenario.md)."""
+    (tmp_path / "x.csv").write_text(
+        "# invented bins for a test\n"
+        "wl_lo_A,wl_hi_A,photons_cm2_s,sigma_abs_N2,sigma_ion_N2->N2+\n18,32,1e8,0.5,0.5\n")
+    text = MID.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
+    path = tmp_path / "s.toml"
+    path.write_text(text.replace('flux = "euvac"', 'flux = "euvac"\nextra_spectrum = "x.csv"'))
+    with pytest.warns(UserWarning, match="counted twice"):
+        model = ionochem.Model(ionochem.load_scenario(path))
+    assert any("photons.extra_spectrum" in w and "counted twice" in w for w in model.warnings)
+    path.write_text(text.replace('flux = "euvac"', 'flux = "euvac"\nsoft_xrays = false\n'
+                                 'extra_spectrum = "x.csv"'))
+    model = ionochem.Model(ionochem.load_scenario(path))
+    assert not any("counted twice" in w for w in model.warnings)

@@ -88,9 +88,15 @@ class SunColumn:
                 spectrum = spectrum.concatenate(soft_xray_spectrum(scenario.sun.f107,
                                                                    scenario.sun.f107a))
             if photons.extra_spectrum is not None:
-                spectrum = spectrum.concatenate(load_user_spectrum(
-                    photons.extra_spectrum, where="photons.extra_spectrum",
-                    scenario_file=scenario.source))
+                extra = load_user_spectrum(photons.extra_spectrum,
+                                           where="photons.extra_spectrum",
+                                           scenario_file=scenario.source)
+                if photons.soft_xrays and np.any(extra.wl_lo_A < 50.0):
+                    self.warnings.append(
+                        f"{scenario.source}: photons.extra_spectrum: it has bins below 50 A "
+                        "and the packaged soft X-rays are on (soft_xrays = true): they are "
+                        "counted twice unless one of them is switched off")
+                spectrum = spectrum.concatenate(extra)
         self.spectrum = spectrum
         self.photo_channels = sorted(n.split(":", 1)[1] for n in needs
                                      if n.startswith("photo:"))
