@@ -135,3 +135,29 @@ def test_dawn_terminator_columns_solve(f107):
     assert dark.any() and np.all(e > 0)
     assert np.all(e[dark] < 1e4)
     assert np.all(ds["residual"].values < 1e-8)
+
+
+def test_night_rates_do_not_depend_on_the_solar_spectrum(tmp_path):
+    """At midnight, a user solar spectrum (invented; zero O2 absorption) gives the same
+    night-time O2 → O2+ rates as EUVAC: the scattered lines are attenuated with their own
+    cross sections (O2 for Lyman β), whatever the solar spectrum carries."""
+    text = MID.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
+    text = text.replace("2025-03-20T11:00:00Z", "2025-03-20T23:00:00Z")
+    chans = ["O->O+", "O->O+(2D)", "O->O+(2P)", "N2->N2+", "N2->N+", "O2->O2+", "O2->O+",
+             "NO->NO+", "N->N+"]
+    cols = ["sigma_abs_O", "sigma_abs_N2", "sigma_abs_O2", "sigma_abs_NO", "sigma_abs_N",
+            *(f"sigma_ion_{c}" for c in chans), "sigma_dis_N2->N(2D)+N"]
+    values = [8.0 if c in ("sigma_abs_O", "sigma_ion_O->O+") else 0.0 for c in cols]
+    (tmp_path / "sun.csv").write_text(
+        "# invented one-bin spectrum for a test: only O absorbs\n"
+        + ",".join(["wl_lo_A", "wl_hi_A", "photons_cm2_s", *cols]) + "\n"
+        + ",".join(["300", "350", "1e9", *map(str, values)]) + "\n")
+    (tmp_path / "euvac.toml").write_text(text)
+    (tmp_path / "table.toml").write_text(
+        text.replace('flux = "euvac"', 'flux = "table"\nspectrum = "sun.csv"'))
+    a = ionochem.Model(ionochem.load_scenario(tmp_path / "euvac.toml"))
+    b = ionochem.Model(ionochem.load_scenario(tmp_path / "table.toml"))
+    ja = a.environment.sources()["photo:O2->O2+"]
+    jb = b.environment.sources()["photo:O2->O2+"]
+    assert ja[0] < 0.5 * ja[-1]                     # absorbed low down
+    np.testing.assert_allclose(jb, ja, rtol=1e-9)

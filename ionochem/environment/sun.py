@@ -110,7 +110,13 @@ class SunColumn:
                 f"{', '.join(sorted(spectrum.sigma_channel_cm2))})",
                 file=scenario.source, key="photons")
         self.secondary = bool(photons.secondary)
-        absorbers = sorted(spectrum.sigma_abs_cm2)
+        absorbers = set(spectrum.sigma_abs_cm2)
+        if photons.night_sources:
+            # The night lines are attenuated by their own absorbers, whatever the solar
+            # spectrum (a user spectrum may lack some).
+            from ionochem.environment.night_sources import night_spectrum
+            absorbers |= set(night_spectrum().sigma_abs_cm2)
+        absorbers = sorted(absorbers)
         if profile is not None:
             alt = np.asarray(profile.altitude_km, float)
             dens = {a: np.asarray(profile[a], float) for a in absorbers if a in profile}
