@@ -161,3 +161,18 @@ def test_night_rates_do_not_depend_on_the_solar_spectrum(tmp_path):
     jb = b.environment.sources()["photo:O2->O2+"]
     assert ja[0] < 0.5 * ja[-1]                     # absorbed low down
     np.testing.assert_allclose(jb, ja, rtol=1e-9)
+
+
+def test_night_n2plus_levels_add_up_to_the_night_total():
+    """At midnight the per-level N2+ photo and photoelectron rates (split line by line and by
+    the impact split, ``n2plus_levels``) add up to the channel totals of the night sources
+    (the levels of a channel add up to its total, DEVELOPERS.md), and v = 0 leads."""
+    scen = ionochem.load_scenario(ROOT / "scenarios" / "midlatitude_midnight.toml")
+    src = ionochem.Model(scen).environment.sources()
+    for base in ("photo:N2->N2+", "photoelectron:N2->N2+"):
+        levels = [v for k, v in sorted(src.items()) if k.startswith(base + "(v=")]
+        if not levels:
+            pytest.skip("the default list asks for no per-level N2+ channels")
+        assert np.all(src[base] > 0)
+        np.testing.assert_allclose(sum(levels), src[base], rtol=1e-12)
+        assert np.all(src[base + "(v=0)"] > 0.3 * src[base])

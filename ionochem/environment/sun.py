@@ -98,9 +98,13 @@ class SunColumn:
                         "counted twice unless one of them is switched off")
                 spectrum = spectrum.concatenate(extra)
         self.spectrum = spectrum
-        self.photo_channels = sorted(n.split(":", 1)[1] for n in needs
+        from ionochem.environment.n2plus_levels import level_requests
+        # Per-level N2+ channels ("photo:N2->N2+(v=1)") are split from their totals.
+        self.level_requests = level_requests(needs)
+        plain = [n for n in needs if "(v=" not in n]
+        self.photo_channels = sorted(n.split(":", 1)[1] for n in plain
                                      if n.startswith("photo:"))
-        self.pe_channels = sorted(n.split(":", 1)[1] for n in needs
+        self.pe_channels = sorted(n.split(":", 1)[1] for n in plain
                                   if n.startswith("photoelectron:"))
         missing = [c for c in self.photo_channels if c not in spectrum.sigma_channel_cm2]
         if missing:
@@ -149,7 +153,29 @@ class SunColumn:
         photo, pe = night_rates(cols, self.local, secondary=self.secondary)
         self.night = {f"photo:{k}": v for k, v in photo.items()}
         self.night.update({f"photoelectron:{k}": v for k, v in pe.items()})
+        self.night.update(self._night_levels(cols))
         self.photon_sources += [f"night: {d}" for d in describe()]
+
+    def _night_levels(self, cols):
+        """Per-level N2+ keys of the night rates, split as the solar ones are
+        (``n2plus_levels``): photons line by line, photoelectrons by the impact split."""
+        from ionochem.environment.n2plus_levels import (
+            electron_impact_split,
+            photoionization_split,
+        )
+        from ionochem.environment.night_sources import night_frequencies, night_spectrum
+        out = {}
+        spec = night_spectrum()
+        for base, levels in self.level_requests.items():
+            if base == "photo:N2->N2+":
+                jb = night_frequencies(cols, spectrum=spec, per_bin=True)["N2->N2+"]
+                split = photoionization_split(spec.wl_lo_A, spec.wl_hi_A, levels)["fraction"]
+                per_level = jb @ split
+            else:
+                per_level = self.night[base][:, None] * electron_impact_split(levels)
+            for i, v in enumerate(levels):
+                out[f"{base}(v={v})"] = per_level[:, i]
+        return out
 
     def _with_night(self, out):
         out = {k: np.where(v < NEGLIGIBLE_RATE_S, 0.0, v) for k, v in out.items()}
@@ -182,6 +208,8 @@ class SunColumn:
             zero = np.zeros(self.grid.size)
             out = {f"photo:{k}": zero for k in self.photo_channels}
             out.update({f"photoelectron:{k}": zero for k in self.pe_channels})
+            out.update({f"{b}(v={v})": zero for b, lv in self.level_requests.items()
+                        for v in lv})
             self._cache[t] = (self._with_night(out), np.ones(self.grid.size, bool))
             return self._cache[t]
         cols = slant_columns(self.grid, chi, self.profile_alt, self.profile)
@@ -201,6 +229,10 @@ class SunColumn:
                         f"no photoelectron-impact rate is known for channel {key} (known: "
                         f"{', '.join(sorted(pe))})", file=self.scenario.source, key="photons")
                 out[f"photoelectron:{key}"] = np.where(dark, 0.0, pe[key])
+        if self.level_requests:
+            from ionochem.environment.n2plus_levels import level_sources
+            for key, val in level_sources(spectrum, cols, out, self.level_requests).items():
+                out[key] = np.where(dark, 0.0, val)
         self._cache[t] = (self._with_night(out), dark)
         return self._cache[t]
 
