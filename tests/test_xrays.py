@@ -15,8 +15,6 @@ from ionochem.environment.crosssections import HC_EV_A, euvac_cross_sections, so
 from ionochem.environment.photorates import photo_frequencies
 from ionochem.environment.secondary import secondary_ion_pair_production
 from ionochem.environment.xrays import (
-    P_MAX,
-    P_MIN,
     atomic_cross_section_cm2,
     soft_xray_flux,
     soft_xray_spectrum,
@@ -31,27 +29,42 @@ SOLMIN = ROOT / "scenarios" / "midlatitude_solar_minimum.toml"
 
 def test_table_holds_the_published_bins_below_50_angstrom():
     """Solomon & Qian (2005) table A1 bins 0.05–0.4, 0.4–0.8, 0.8–1.8, 1.8–3.2 nm and the
-    part of 3.2–7.0 nm below EUVAC's first bin (50 Å): contiguous, ending at 50 Å, with
-    solar-maximum fluxes above solar-minimum ones."""
+    part of 3.2–7.0 nm below EUVAC's first bin (50 Å): contiguous, ending at 50 Å; the
+    32–50 Å flux is 18/38 of the published 32–70 Å one (flat in wavelength)."""
     t = soft_xray_table()
     np.testing.assert_array_equal(t["wl_lo_A"], [0.5, 4.0, 8.0, 18.0, 32.0])
     np.testing.assert_array_equal(t["wl_hi_A"], [4.0, 8.0, 18.0, 32.0, 50.0])
-    assert np.all(t["F_max"] > t["F_min"])
-    # 32-50 A is 18/38 of the published 32-70 A bin (flux flat in wavelength).
-    assert t["F_min"][-1] == pytest.approx(5.326e8 * 18 / 38, rel=1e-3)
+    assert t["F"][-1] == pytest.approx(5.326e8 * 18 / 38, rel=1e-3)
+    # Harder bins vary more with activity (coronal emission; Solomon & Qian 2005).
+    assert np.all(np.diff(t["A_i"]) < 0)
 
 
-def test_flux_is_linear_in_the_activity_proxy_with_the_euvac_floor():
-    """flux = F_min + (F_max − F_min)(P − P_min)/(P_max − P_min), P = (F10.7 + F10.7A)/2,
-    floored at 0.8 F_min like EUVAC's factor (Richards et al. 1994): exact at both anchors,
-    linear between (checked at the midpoint), floored far below P_min."""
+def test_table_matches_the_independent_euvpy_copy():
+    """The packaged F and A_i equal the copy of Solomon & Qian (2005) table A1 in the PyPI
+    package EUVpy (module EUVpy.empiricalModels.models.SOLOMON.solomon, array solomonTable:
+    bin, λ1 and λ2 in nm, …, F in photons cm-2 s-1, A_i), bins 1–5, the fifth cut to
+    32–50 Å (18/38 of its flux)."""
+    mod = pytest.importorskip("EUVpy.empiricalModels.models.SOLOMON.solomon")
+    ref = np.asarray(mod.solomonTable, dtype=float)[:5]
     t = soft_xray_table()
-    np.testing.assert_allclose(soft_xray_flux(P_MIN, P_MIN), t["F_min"], rtol=1e-12)
-    np.testing.assert_allclose(soft_xray_flux(P_MAX, P_MAX), t["F_max"], rtol=1e-12)
-    mid = 0.5 * (P_MIN + P_MAX)
-    np.testing.assert_allclose(soft_xray_flux(mid + 10, mid - 10),
-                               0.5 * (t["F_min"] + t["F_max"]), rtol=1e-12)
-    np.testing.assert_allclose(soft_xray_flux(1.0, 1.0), 0.8 * t["F_min"], rtol=1e-12)
+    np.testing.assert_allclose(t["wl_lo_A"], ref[:, 1] * 10, rtol=1e-12)
+    np.testing.assert_allclose(t["wl_hi_A"][:4], ref[:4, 2] * 10, rtol=1e-12)
+    np.testing.assert_allclose(t["F"][:4], ref[:4, 6], rtol=1e-12)
+    assert t["F"][4] == pytest.approx(ref[4, 6] * 18 / 38, rel=1e-3)
+    np.testing.assert_allclose(t["A_i"], ref[:, 7], rtol=1e-12)
+
+
+def test_flux_follows_the_euvac_type_scaling_with_its_floor():
+    """flux_i = F_i max(0.8, 1 + A_i (P − 80)), P = (F10.7 + F10.7A)/2 (Solomon & Qian 2005
+    table A1 columns; EUVAC's floor, Richards et al. 1994): exact at P = 80, at P = 150, and
+    floored at solar minimum, where the bare factor of the hard bins is negative."""
+    t = soft_xray_table()
+    np.testing.assert_allclose(soft_xray_flux(80.0, 80.0), t["F"], rtol=1e-12)
+    np.testing.assert_allclose(soft_xray_flux(160.0, 140.0), t["F"] * (1 + t["A_i"] * 70),
+                               rtol=1e-12)
+    np.testing.assert_allclose(soft_xray_flux(70.0, 70.0)[:4], 0.8 * t["F"][:4], rtol=1e-12)
+    assert soft_xray_flux(70.0, 70.0)[4] == pytest.approx(t["F"][4] * (1 - 0.1343),
+                                                          rel=1e-12)
     assert soft_xray_flux([70.0, 150.0], 100.0).shape == (2, 5)
     with pytest.raises(InputError):
         soft_xray_flux(np.nan, 100.0)

@@ -8,11 +8,14 @@ Flux
 ----
 Five published bins (0.5-4, 4-8, 8-18, 18-32 and 32-50 angstrom; Solomon & Qian 2005,
 J. Geophys. Res. 110, A10306, table A1, the last bin cut at 50 angstrom where EUVAC begins),
-packaged with their sources and honesty marks in ``ionochem/data/soft_xrays.csv``. Each bin's
-flux is linear in the EUVAC activity proxy P = (F10.7 + F10.7A)/2 between its solar-minimum
-value at P = :data:`P_MIN` and its solar-maximum value at P = :data:`P_MAX`, floored at 0.8
-of the minimum as EUVAC's factor is (Richards, Fennelly & Torr 1994, J. Geophys. Res. 99,
-8981).
+packaged with their sources in ``ionochem/data/soft_xrays.csv``. Each bin's flux follows the
+table's EUVAC-type scaling with the activity proxy P = (F10.7 + F10.7A)/2,
+
+    flux_i = F_i * max(0.8, 1 + A_i (P - 80)),
+
+the floor of 0.8 being EUVAC's (Richards, Fennelly & Torr 1994, J. Geophys. Res. 99, 8981):
+with A_i up to 0.62 the bare factor turns negative just below P = 80. Between P = 80 and 150
+the hardest bin rises 44-fold, the 32-50 angstrom bin 1.9-fold.
 
 Each published bin is split into sub-bins of at most :data:`SUB_BIN_A` angstrom carrying the
 bin's flux in proportion to their width (flat in wavelength, *(common practice)*): the cross
@@ -68,14 +71,11 @@ from ionochem.io.tables import read_csv_columns
 SOFT_XRAY_TABLE_PATH = DATA_DIR / "soft_xrays.csv"
 CROSS_SECTION_TABLE_PATH = DATA_DIR / "soft_xray_cross_sections.csv"
 
-#: Activity proxy P = (F10.7 + F10.7A)/2 of the solar-minimum and solar-maximum columns of
-#: the table *(from memory; the reference spectra of Solomon & Qian 2005 were built for
-#: cycle-23 minimum and maximum conditions)*.
-P_MIN = 70.0
-P_MAX = 240.0
-#: Floor on a bin's flux, as a fraction of its solar-minimum value (EUVAC's floor, Richards
-#: et al. 1994).
-FLUX_FLOOR = 0.8
+#: Activity proxy P = (F10.7 + F10.7A)/2 at which the table's reference fluxes hold
+#: (Solomon & Qian 2005, table A1, EUVAC-type scaling).
+P_REF = 80.0
+#: Floor on the activity factor (EUVAC's, Richards et al. 1994).
+FACTOR_FLOOR = 0.8
 #: Largest sub-bin width, angstrom (a choice: the cross sections change by < 35 % across).
 SUB_BIN_A = 2.0
 #: K-shell edges, angstrom: N 409.9 eV and O 543.1 eV (``xraydb.xray_edges``).
@@ -88,18 +88,18 @@ _SAMPLES = 41
 
 @lru_cache(maxsize=1)
 def soft_xray_table() -> dict[str, np.ndarray]:
-    """The packaged soft X-ray table (Solomon & Qian 2005 bins, values from memory).
+    """The packaged soft X-ray table (Solomon & Qian 2005, table A1).
 
     Returns
     -------
     dict
-        ``wl_lo_A``, ``wl_hi_A`` (angstrom), ``F_min``, ``F_max`` (photons cm-2 s-1 per
-        bin), each shape (5,), read-only.
+        ``wl_lo_A``, ``wl_hi_A`` (angstrom), ``F`` (photons cm-2 s-1 per bin at P = 80),
+        ``A_i`` (per F10.7 unit), each shape (5,), read-only.
     """
     header, data, _ = read_csv_columns(SOFT_XRAY_TABLE_PATH)
     raw = dict(zip(header, data.T, strict=True))
     table = {"wl_lo_A": raw["wl_lo_A"], "wl_hi_A": raw["wl_hi_A"],
-             "F_min": raw["F_min_photons_cm2_s"], "F_max": raw["F_max_photons_cm2_s"]}
+             "F": raw["F_photons_cm2_s"], "A_i": raw["A_i"]}
     table = {k: np.array(v, dtype=float) for k, v in table.items()}
     for value in table.values():
         value.setflags(write=False)
@@ -125,8 +125,8 @@ def soft_xray_flux(f107, f107a) -> np.ndarray:
         if not np.all(np.isfinite(value)) or np.any(value <= 0):
             raise InputError(f"{name} must be a positive finite number, got {value!r}")
     t = soft_xray_table()
-    w = ((0.5 * (f107 + f107a) - P_MIN) / (P_MAX - P_MIN))[..., np.newaxis]
-    return np.maximum(FLUX_FLOOR * t["F_min"], t["F_min"] + w * (t["F_max"] - t["F_min"]))
+    p = (0.5 * (f107 + f107a))[..., np.newaxis]
+    return t["F"] * np.maximum(FACTOR_FLOOR, 1.0 + t["A_i"] * (p - P_REF))
 
 
 @lru_cache(maxsize=1)
@@ -271,11 +271,11 @@ def soft_xray_spectrum(f107, f107a) -> Spectrum:
     flux = soft_xray_flux(f107, f107a)[..., parent] * share
     sigma_abs, sigma_chan = _cross_sections()
     return Spectrum(lo, hi, flux, sigma_abs, sigma_chan,
-                    "soft X-rays 0.5-50 A (Solomon & Qian 2005 bins, from memory; xraydb "
-                    "cross sections)")
+                    "soft X-rays 0.5-50 A (Solomon & Qian 2005 table A1; xraydb cross "
+                    "sections)")
 
 
-__all__ = ["P_MAX", "P_MIN", "atomic_cross_section_cm2", "soft_xray_flux",
+__all__ = ["FACTOR_FLOOR", "P_REF", "atomic_cross_section_cm2", "soft_xray_flux",
            "soft_xray_spectrum", "soft_xray_table", "sub_bin_atomic_cross_sections",
            "write_cross_section_table"]
 
