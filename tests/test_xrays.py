@@ -83,7 +83,40 @@ def test_sub_bins_keep_each_published_bin_flux():
     for el in ("N", "O"):
         edge_A = HC_EV_A / xraydb.xray_edges(el)["K"].energy
         assert np.min(np.abs(spec.wl_lo_A - edge_A)) < 1e-9
-    assert np.all(spec.wl_hi_A - spec.wl_lo_A <= 2.0 + 1e-9)
+    assert np.all(spec.wl_hi_A / spec.wl_lo_A <= 1.1 + 1e-9)
+
+
+def test_sub_bins_are_fine_enough_for_the_e_region():
+    """Attenuation with sub-bin-averaged cross sections against 20 times finer sub-bins
+    (the limit of exact spectral integration): the soft X-ray ionization rate (primary +
+    secondary) of the demo column (χ = 40°) agrees within 1 % above 96 km and within 8 % at
+    90 km, where the hardest photons end."""
+    from ionochem.environment import xrays
+    from ionochem.environment.slant import slant_columns
+
+    model = ionochem.Model(ionochem.load_scenario(MID))
+    sun = model.environment.sun
+    cols = slant_columns(sun.grid, 40.0, sun.profile_alt, sun.profile)
+
+    def ionization(spec):
+        j = photo_frequencies(spec, cols)
+        primary = sum(v * sun.local[k.split("->")[0]] for k, v in j.items())
+        return primary + secondary_ion_pair_production(spec, cols, sun.local)
+
+    coarse = ionization(soft_xray_spectrum(150.0, 145.0))
+    try:
+        xrays.SUB_BIN_REL = 0.005
+        xrays._sub_bins.cache_clear()
+        xrays._cross_sections.cache_clear()
+        fine = ionization(soft_xray_spectrum(150.0, 145.0))
+    finally:
+        xrays.SUB_BIN_REL = 0.1
+        xrays._sub_bins.cache_clear()
+        xrays._cross_sections.cache_clear()
+    a = sun.grid
+    dev = coarse / fine - 1
+    assert np.all(np.abs(dev[a >= 96]) < 0.01), dev[a >= 96].max()
+    assert np.all(np.abs(dev[a >= 90]) < 0.08)
 
 
 def test_atomic_cross_sections_agree_with_the_chantler_tables():
@@ -129,9 +162,8 @@ def test_molecules_absorb_as_the_sum_of_their_atoms_and_join_euvac():
     sig = spec.sigma_abs_cm2
     # Away from the edges a sub-bin average is close to the value at its centre.
     np.testing.assert_allclose(sig["O2"], 2 * sig["O"], rtol=1e-12)
-    ok = hi - lo < 2.1
-    np.testing.assert_allclose(sig["N2"][ok & (lo > 32)],
-                               2 * atomic_cross_section_cm2("N", mid[ok & (lo > 32)]),
+    ok = lo > 32.0
+    np.testing.assert_allclose(sig["N2"][ok], 2 * atomic_cross_section_cm2("N", mid[ok]),
                                rtol=0.1)
     wl = np.linspace(50.0, 100.0, 401)
     euv_abs, _ = euvac_cross_sections()
@@ -181,7 +213,8 @@ def test_switch_and_scenario_key(tmp_path):
     scen = ionochem.load_scenario(MID)
     assert scen.photons.soft_xrays is True
     model = ionochem.Model(scen)
-    assert model.environment.sun.spectrum.n_bins == solar_spectrum(150, 145).n_bins + 26
+    assert model.environment.sun.spectrum.n_bins == (solar_spectrum(150, 145).n_bins
+                                                     + soft_xray_spectrum(150, 145).n_bins)
     off = scen.replace(photons=dataclasses.replace(scen.photons, soft_xrays=False))
     assert ionochem.Model(off).environment.sun.spectrum.n_bins == 38
 
