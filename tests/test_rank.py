@@ -6,15 +6,13 @@ form.
 
 from __future__ import annotations
 
-import argparse
-
 import numpy as np
 import pytest
 import xarray as xr
 
 import ionochem
-from ionochem.analysis.commands_compare import register
 from ionochem.analysis.rank import rank_reactions
+from ionochem.cli import build_parser
 
 ALT = np.linspace(100.0, 300.0, 21)
 Q = 80.0 * np.exp(-((ALT - 180.0) / 60.0) ** 2) + 5.0     # invented production, cm-3 s-1
@@ -45,10 +43,10 @@ def _sens(column, text):
 
 
 def _run(argv):
-    p = argparse.ArgumentParser()
-    sub = p.add_subparsers(dest="command")
-    register(sub)
-    args = p.parse_args(argv)
+    """Run a subcommand of the ``ionochem`` parser; ionochem.Error propagates (cli.main
+    would turn it into one line and exit 2)."""
+    args = build_parser().parse_args(argv)
+    args.command_line = "ionochem " + " ".join(argv)
     return args.func(args)
 
 

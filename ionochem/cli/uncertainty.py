@@ -1,20 +1,23 @@
-"""The ``ionochem uncertainty`` subcommand.
+"""``ionochem uncertainty``: Monte Carlo over rate uncertainties, or global sensitivity.
 
-``register(subparsers)`` adds it to the command's argparse subparsers; the handler prints a
-short table on stdout and returns 0. Errors are raised as :class:`ionochem.Error` and become
-one line on stderr (exit 2) in :mod:`ionochem.cli`. Command-line glue only: it loads the
-scenario named on the command line and hands the model to
-:mod:`ionochem.analysis.uncertainty` (Monte Carlo) or :mod:`ionochem.analysis.globalsens`
+Command-line glue only: it loads the scenario named on the command line and hands the model
+to :mod:`ionochem.analysis.uncertainty` (Monte Carlo) or :mod:`ionochem.analysis.globalsens`
 (Sobol, Morris).
 """
 
 from __future__ import annotations
 
 import sys
-from pathlib import Path
 
 import numpy as np
 
+from ionochem.cli.options import (
+    check_outputs,
+    load_model,
+    print_warnings,
+    scenario_inputs,
+    stamp_history,
+)
 from ionochem.errors import InputError
 
 REPORT_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
@@ -86,10 +89,9 @@ def _parse_altitudes(text):
 
 
 def _check_args(args):
-    for flag, path in (("-o", args.output), ("--plot", args.plot)):
-        if path and not (Path(path).parent if str(Path(path).parent) else Path(".")).is_dir():
-            raise InputError(f"output folder {Path(path).parent} does not exist", file=path,
-                             key=flag)
+    check_outputs(args, inputs=[args.scenario])
+    if args.samples < 1:
+        raise InputError("--samples must be at least 1", file="--samples")
     if args.workers is not None and args.workers < 1:
         raise InputError("--workers must be at least 1", file="--workers")
     if args.batch is not None and args.batch < 1:
@@ -105,17 +107,16 @@ def _check_args(args):
 def cmd_uncertainty(args):
     """``ionochem uncertainty``: returns 0."""
     from ionochem.analysis.uncertainty import parse_spreads, remove_store
-    from ionochem.cli import _load_model
     from ionochem.io.netcdf import write_netcdf
     _check_args(args)
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
-    scen, model = _load_model(args)
+    scen, model = load_model(args)
+    check_outputs(args, inputs=scenario_inputs(scen))
     if scen.solve.mode != "steady":
         print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
               "states (photochemical equilibrium)", file=sys.stderr)
-    for w in model.warnings:
-        print(f"warning: {w}", file=sys.stderr)
+    print_warnings(model.warnings)
     common = dict(seed=args.seed, environment=spreads, batch=args.batch,
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
                   resume=args.resume,
@@ -137,6 +138,7 @@ def cmd_uncertainty(args):
         _print_montecarlo(ds)
     else:
         _print_global(ds)
+    stamp_history(ds, args)
     if args.output:
         write_netcdf(ds, args.output)
         print(f"wrote {args.output}")
