@@ -17,10 +17,10 @@ from ionochem.mechanism.mechanism import THIRD_BODY
 
 VALIDITY_NOTE = (
     "Photochemical equilibrium column: molecular ions (N2+, O2+, NO+) and metastables are in "
-    "photochemical equilibrium at all heights; O+ is not above about 200-250 km by day, where "
-    "its lifetime exceeds the diffusion time and a box model overestimates it (see the "
-    "pce_doubtful flag). Research output, not a forecast: do not use alone for radio, "
-    "navigation or satellite operations.")
+    "photochemical equilibrium at all heights; O+ is not where its chemical lifetime exceeds "
+    "the diffusion time, and a box model overestimates it there: the pce_doubtful flag marks "
+    "those levels. Research output, not a forecast: do not use alone for radio, navigation or "
+    "satellite operations.")
 
 
 def species_table(model, n_solved):
