@@ -336,6 +336,10 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
     from ionochem.rates import fit_rate
     from ionochem.rates.tables import family_entry, write_level_table
     T_data = T_out if T_data is None else T_data
+    if T_out.min() < T_data.min() * (1 - 1e-9) or T_out.max() > T_data.max() * (1 + 1e-9):
+        print(f"warning: {source}: the table's temperatures {T_out.min():g}..{T_out.max():g} K "
+              f"go beyond the fitted data ({T_data.min():g}..{T_data.max():g} K); the fits are "
+              "extrapolated there", file=sys.stderr)
     out = {}
     print(f"fit to the {args.form} form"
           + (" (errors from the given sigma columns)" if errors else

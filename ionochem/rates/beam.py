@@ -106,7 +106,22 @@ def _segment_integrals(a, b, tau):
     return P, R
 
 
-def transverse_smoothing(energy_eV, sigma_cm2, kT_perp_eV, at_energy_eV):
+def _node_values(E, S, tau):
+    """H at the energy points and the slope of sigma on each segment (module docstring)."""
+    c = speed_cm_s(1.0)                          # v = c sqrt(E)
+    a, b = E[:-1], E[1:]
+    slope = (S[1:] - S[:-1]) / (b - a)[:, None]
+    P, R = _segment_integrals(a, b, tau)
+    seg = (c / tau) * (S[:-1] * P[:, None] + slope * R[:, None])    # (segment, column)
+    decay = np.exp(-(b - a) / tau)
+    H = np.zeros_like(S)
+    # Sequential by nature (a first-order recursion); one short pass over the energy points.
+    for i in range(E.size - 2, -1, -1):
+        H[i] = decay[i] * H[i + 1] + seg[i]
+    return H, slope
+
+
+def transverse_smoothing(energy_eV, sigma_cm2, kT_perp_eV, at_energy_eV, *, nodes=None):
     """H(E') of the module docstring: sigma v smoothed over the transverse distribution.
 
     Parameters
@@ -119,6 +134,8 @@ def transverse_smoothing(energy_eV, sigma_cm2, kT_perp_eV, at_energy_eV):
         Transverse temperature (eV).
     at_energy_eV : ndarray, shape (point,)
         Longitudinal energies E' = m w^2 / 2 (eV) where H is wanted.
+    nodes : tuple, optional
+        ``(H at the energy points, slopes)`` when already computed.
 
     Returns
     -------
@@ -126,16 +143,8 @@ def transverse_smoothing(energy_eV, sigma_cm2, kT_perp_eV, at_energy_eV):
         H in cm3 s-1 (sigma v units).
     """
     E, S, tau = energy_eV, sigma_cm2, float(kT_perp_eV)
-    c = speed_cm_s(1.0)                          # v = c sqrt(E)
-    a, b = E[:-1], E[1:]
-    slope = (S[1:] - S[:-1]) / (b - a)[:, None]
-    P, R = _segment_integrals(a, b, tau)
-    seg = (c / tau) * (S[:-1] * P[:, None] + slope * R[:, None])    # (segment, column)
-    decay = np.exp(-(b - a) / tau)
-    H = np.zeros_like(S)
-    # Sequential by nature (a first-order recursion); one short pass over the energy points.
-    for i in range(E.size - 2, -1, -1):
-        H[i] = decay[i] * H[i + 1] + seg[i]
+    c = speed_cm_s(1.0)
+    H, slope = _node_values(E, S, tau) if nodes is None else nodes
     x = np.asarray(at_energy_eV, float)
     out = np.zeros((x.size, S.shape[1]))
     below = x < E[0]
@@ -150,6 +159,12 @@ def transverse_smoothing(energy_eV, sigma_cm2, kT_perp_eV, at_energy_eV):
         part = (c / tau) * (s_at * Pp[:, None] + slope[k] * Rp[:, None])
         out[inside] = part + np.exp(-(E[k + 1] - xi) / tau)[:, None] * H[k + 1]
     return out
+
+
+def _single(value, name):
+    if np.ndim(value) != 0:
+        raise InputError(f"{name} must be a single number (eV)")
+    return float(check_positive(value, name))
 
 
 def beam_rate(energy_eV, sigma_cm2, detuning_eV, kT_perp_eV, kT_par_eV):
@@ -177,12 +192,8 @@ def beam_rate(energy_eV, sigma_cm2, detuning_eV, kT_perp_eV, kT_par_eV):
     E = check_energy_grid(energy_eV)
     S, one = check_cross_sections(sigma_cm2, E.size)
     Ed = check_positive(detuning_eV, "detuning_eV", allow_zero=True)
-    kT_perp = float(check_positive(kT_perp_eV, "kT_perp_eV").reshape(-1)[0]) \
-        if np.ndim(kT_perp_eV) == 0 else None
-    kT_par = float(check_positive(kT_par_eV, "kT_par_eV").reshape(-1)[0]) \
-        if np.ndim(kT_par_eV) == 0 else None
-    if kT_perp is None or kT_par is None:
-        raise InputError("kT_perp_eV and kT_par_eV must be single numbers (eV)")
+    kT_perp = _single(kT_perp_eV, "kT_perp_eV")
+    kT_par = _single(kT_par_eV, "kT_par_eV")
     if Ed.max() > E[-1]:
         raise InputError(f"detuning {Ed.max():g} eV is beyond the cross section's last "
                          f"energy {E[-1]:g} eV")
@@ -197,7 +208,8 @@ def beam_rate(energy_eV, sigma_cm2, detuning_eV, kT_perp_eV, kT_par_eV):
     dw = min(dw, 0.5 * kT_perp * EV_ERG / (m * w_top))
     # Where the smoothed sigma v changes sharply within one energy segment (a resonance
     # narrower than kT_perp), the w grid must also resolve that segment.
-    H_nodes = transverse_smoothing(E, S, kT_perp, E).max(axis=1)
+    nodes = _node_values(E, S, kT_perp)
+    H_nodes = nodes[0].max(axis=1)
     jump = np.abs(np.diff(H_nodes)) > _SHARP * np.maximum(H_nodes[1:], H_nodes[:-1])
     wE = speed_cm_s(E)
     use = jump & (wE[:-1] <= w_top)
@@ -218,7 +230,7 @@ def beam_rate(energy_eV, sigma_cm2, detuning_eV, kT_perp_eV, kT_par_eV):
     j_lo = max(0, int(np.floor(w_lo / dw)))
     j_hi = int(np.ceil(w_hi / dw))
     w = np.arange(j_lo, j_hi + 1) * dw
-    h = transverse_smoothing(E, S, kT_perp, 0.5 * m * w * w / EV_ERG)   # (grid, column)
+    h = transverse_smoothing(E, S, kT_perp, 0.5 * m * w * w / EV_ERG, nodes=nodes)
     end = np.array([3.0 / 8.0, 7.0 / 6.0, 23.0 / 24.0])
     band = int(np.ceil(_HALF_WIDTH * s / dw))
     offsets = np.arange(-band, band + 1)
