@@ -425,33 +425,23 @@ class Model:
         ``k`` and ``given`` default to the model's own (one row per altitude); they may
         stack several samples of the column as extra rows. Returns a ``SteadyResult``.
         """
-        from ionochem.solve.steady import solve_steady
+        from ionochem.solve.batch import solve_rows
         k = self._k_static if k is None else k
         given = self.given if given is None else given
-        mech = self.mechanism
-        S = len(mech.solved)
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
-
-        def tendency(n, rows):
-            return mech.tendency(n, k[rows], given[rows])
-
-        def jacobian(n, rows):
-            return mech.jacobian(n, k[rows], given[rows])
-
-        def gross(n, rows):
-            P, L = mech.production_loss(n, k[rows], given[rows])
-            return P[:, :S], L[:, :S]
-
         names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
-        return solve_steady(np.zeros((k.shape[0], S)), tendency, jacobian, gross, rtol=rtol,
-                            level_names=[f"{a:g} km" for a in names])
+        return solve_rows(self.mechanism, k, given, rtol=rtol,
+                          level_names=[f"{a:g} km" for a in names])
 
     def solve(self):
         """Steady state (photochemical equilibrium) at every level → ``xarray.Dataset``."""
+        from ionochem.analysis.diagnostics import add_steady_diagnostics
         from ionochem.io.dataset import steady_dataset
-        res = self.steady_densities()
-        return steady_dataset(self, res)
+        from ionochem.solve.steady import METHOD_NAMES
+        ds = steady_dataset(self, self.steady_densities(), METHOD_NAMES)
+        add_steady_diagnostics(self, ds)
+        return ds
 
     def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
         """Integrate in time from ``initial`` (default: zero ion densities).

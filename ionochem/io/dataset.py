@@ -136,8 +136,14 @@ def _environment_vars(model, dims=("altitude",)):
     return out
 
 
-def steady_dataset(model, res):
-    """Dataset of a steady solution (``SteadyResult`` from the steady solver)."""
+def steady_dataset(model, res, method_names):
+    """Dataset of a steady solution (``SteadyResult`` from the steady solver).
+
+    ``method_names`` maps the solver's method codes to names (the solver's
+    ``METHOD_NAMES``); the caller adds the diagnostics
+    (:func:`ionochem.analysis.diagnostics.add_steady_diagnostics`), so this module imports
+    neither the solver nor the analyses.
+    """
     mech = model.mechanism
     alt = model.altitude_km
     dens, names, roles = species_table(model, res.n)
@@ -161,7 +167,6 @@ def steady_dataset(model, res):
         stoich[col] = nu
         prod[:, col] = rates @ np.clip(nu, 0, None)
         loss[:, col] = rates @ np.clip(-nu, 0, None)
-    from ionochem.solve.steady import METHOD_NAMES
     ds = xr.Dataset(
         {
             "density": (("species", "altitude"), dens.T,
@@ -183,9 +188,9 @@ def steady_dataset(model, res):
                            {"units": "1", "long_name": "solver iterations"}),
             "solver_method": ("altitude", res.method.astype(np.int8),
                               {"long_name": "method that converged",
-                               "flag_values": np.array(sorted(METHOD_NAMES), np.int8),
-                               "flag_meanings": " ".join(METHOD_NAMES[k]
-                                                         for k in sorted(METHOD_NAMES))}),
+                               "flag_values": np.array(sorted(method_names), np.int8),
+                               "flag_meanings": " ".join(method_names[k]
+                                                         for k in sorted(method_names))}),
         },
         coords={
             "altitude": ("altitude", alt, ALTITUDE_ATTRS),
@@ -200,7 +205,6 @@ def steady_dataset(model, res):
     )
     for name, var in _environment_vars(model).items():
         ds[name] = var
-    _add_diagnostics(model, ds)
     return ds
 
 
@@ -208,12 +212,6 @@ def _equation(r):
     def side(terms):
         return " + ".join((f"{c} " if c > 1 else "") + sp.name for sp, c in terms) or "0"
     return f"{side(r.reactants)} -> {side(r.products)}"
-
-
-def _add_diagnostics(model, ds):
-    """Dark levels, zenith angle, lifetimes and the ionization–recombination balance."""
-    from ionochem.analysis.diagnostics import add_steady_diagnostics
-    add_steady_diagnostics(model, ds)
 
 
 TRANSIENT_NOTE = (
