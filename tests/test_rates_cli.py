@@ -193,3 +193,27 @@ def test_bad_options_are_refused(tmp_path, capsys, argv, where):
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 2
     assert err[-1].startswith(where.format(s=s)), err
+
+
+@pytest.mark.parametrize("signals, design, where, words", [
+    ("channel,signal,sigma\n0,1,0.1\n5,1,0.1\n", "channel,v0\n0,1\n1,1\n", "s:3", "not in"),
+    ("channel,signal,sigma\n0,1,0.1\n0,1,0.1\n", "channel,v0\n0,1\n", "s:3", "twice"),
+    ("channel,signal,sigma\n0.5,1,0.1\n", "channel,v0\n0,1\n", "s:2", "whole number"),
+    ("channel,signal,sigma\n0,1,0\n", "channel,v0\n0,1\n", "s:2", "positive"),
+    ("channel,signal,sigma\n0,1,0.1\n", "channel,v0\n0,-1\n", "d:2", "non-negative"),
+    ("channel,signal,sigma\n0,1,0.1\n", "channel,a,b\n0,1,1\n", "d:1", "v0, v1"),
+    ("channel,signal\n0,1\n", "channel,v0\n0,1\n", "s:1", "no column 'sigma'"),
+])
+def test_bad_population_files_are_refused_at_their_line(tmp_path, capsys, signals, design,
+                                                        where, words):
+    """Channels missing from the design, repeated or fractional, zero errors, negative
+    responses, unnamed levels, a missing column: exit 2 at FILE:LINE."""
+    s, d = tmp_path / "s.csv", tmp_path / "d.csv"
+    s.write_text(signals)
+    d.write_text(design)
+    code = main(["rates", "populations", str(s), "--design", str(d)])
+    err = capsys.readouterr().err.strip().splitlines()
+    name, line = where.split(":")
+    assert code == 2
+    assert err[-1].startswith(f"{tmp_path / (name + '.csv')}:{line}: "), err
+    assert words in err[-1]

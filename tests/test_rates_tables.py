@@ -10,6 +10,8 @@ import csv
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from ionochem.errors import InputError
 from ionochem.rates.tables import (
@@ -80,3 +82,21 @@ def test_not_utf8_and_missing_file(tmp_path):
         read_numeric_csv(path)
     with pytest.raises(InputError, match="not found"):
         read_numeric_csv(tmp_path / "nope.csv")
+
+
+@settings(max_examples=150, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
+@given(st.text(alphabet=st.sampled_from(list("0123456789.,-+eE#\n\r\t \"abv_xé\x00")),
+               max_size=200))
+def test_any_text_is_read_or_refused_with_an_input_error(tmp_path, text):
+    """Arbitrary text (hypothesis) is either read as numbers or refused with InputError
+    naming the file: never another exception."""
+    path = tmp_path / "fuzz.csv"
+    path.write_text(text, encoding="utf-8")
+    try:
+        t = read_numeric_csv(path, required=("v",))
+    except InputError as exc:
+        assert exc.file == str(path)
+    else:
+        assert "v" in t.header
+        assert all(np.isfinite(c).all() for c in t.columns.values())
