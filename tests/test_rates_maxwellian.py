@@ -104,3 +104,15 @@ def test_bad_inputs_are_refused(E, S, T, words):
     """Malformed grids, cross sections and temperatures raise InputError (ionochem.Error)."""
     with pytest.raises(InputError, match=words):
         maxwellian_rate(np.asarray(E, float), np.asarray(S, float) * 1e-16, T)
+
+
+def test_threshold_at_the_first_point_misses_nothing():
+    """An excitation-like cross section that starts at zero at its 15 eV threshold and is zero
+    again at the end of its grid is fully covered at 1000 K (k is then essentially zero, as
+    exp(-15 eV/kT) says), while the same values starting above zero are refused."""
+    E = np.linspace(15.0, 60.0, 50)
+    S = 1e-17 * (E - 15.0) * (60.0 - E)
+    k, miss = maxwellian_rate(E, S, 1000.0, return_coverage=True)
+    assert miss == 0.0 and k < 1e-60
+    with pytest.raises(InputError, match="misses"):
+        maxwellian_rate(E, S + 1e-18, 1000.0)

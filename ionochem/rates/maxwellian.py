@@ -21,7 +21,9 @@ Outside the grid sigma is unknown. The weight the distribution puts there is rep
 ``missing`` = (1 - exp(-x0)) + (1 + x1) exp(-x1), with x0 = E_first/kT and
 x1 = E_last/kT: the first term is the share of the rate a 1/E cross section (the steepest
 common low-energy law, that of exothermic electron capture) gets below the grid, the
-second the share a constant cross section gets above it. More than ``tolerance`` of
+second the share a constant cross section gets above it; an end where every cross section
+is zero (a threshold at the first point, a cross section that has died away at the last)
+misses nothing. More than ``tolerance`` of
 missing weight is an error unless ``uncovered="warn"``, which warns and lets the caller flag
 the temperatures (``return_coverage=True``).
 
@@ -99,17 +101,30 @@ def maxwellian_weights(energy_eV, temperature_K):
     return W * speed[:, None]
 
 
-def missing_weight(energy_eV, temperature_K):
+def missing_weight(energy_eV, temperature_K, *, below=True, above=True):
     """Share of the Maxwellian rate outside the energy grid (see the module docstring).
 
-    Returns an array shaped like ``temperature_K``.
+    Parameters
+    ----------
+    energy_eV : array_like, shape (energy,)
+    temperature_K : array_like
+    below, above : bool
+        Count the part below the first (above the last) energy. A cross section that is zero
+        at that end of the grid (a threshold, or one that has died away) misses nothing there.
+
+    Returns
+    -------
+    ndarray
+        Shaped like ``temperature_K``.
     """
     E = check_energy_grid(energy_eV)
     T = check_positive(temperature_K, "temperature_K")
     kT = T * K_B_EV
     x0 = E[0] / kT
     x1 = E[-1] / kT
-    return -np.expm1(-x0) + (1.0 + x1) * np.exp(-x1)
+    low = -np.expm1(-x0) if below else 0.0
+    high = (1.0 + x1) * np.exp(-x1) if above else 0.0
+    return low + high + np.zeros_like(kT)
 
 
 def maxwellian_rate(energy_eV, sigma_cm2, temperature_K, *, tolerance=1e-3,
@@ -146,7 +161,7 @@ def maxwellian_rate(energy_eV, sigma_cm2, temperature_K, *, tolerance=1e-3,
     E = check_energy_grid(energy_eV)
     S, one = check_cross_sections(sigma_cm2, E.size)
     T = check_positive(temperature_K, "temperature_K")
-    miss = missing_weight(E, T)
+    miss = missing_weight(E, T, below=bool((S[0] > 0).any()), above=bool((S[-1] > 0).any()))
     over = miss > tolerance
     if over.any():
         worst = T[over]
