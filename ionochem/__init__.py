@@ -17,6 +17,11 @@ __all__ = [
     "SolverError", "TableRangeError", "__version__",
 ]
 
-from ionochem.model import Model, load_mechanism, load_scenario  # noqa: E402
+from ionochem.model import (  # noqa: E402
+    Model,
+    load_mechanism,
+    load_reaction_list,
+    load_scenario,
+)
 
-__all__ += ["Model", "load_mechanism", "load_scenario"]
+__all__ += ["Model", "load_mechanism", "load_reaction_list", "load_scenario"]

@@ -60,7 +60,7 @@ def photo_reactions(model):
 
 
 def _light_mechanism(mech):
-    """A copy of the Mechanism without the reaction list (whose closures do not pickle).
+    """A copy of the Mechanism without the reaction list (smaller to send to workers).
 
     The tendency, Jacobian and production/loss need only the arrays.
     """

@@ -53,7 +53,8 @@ Scale
 A batch of B samples is solved as B × A rows of one batched Newton (rows sample-major).
 Beyond one process the batches go to dask.distributed: a ``LocalCluster`` with
 ``workers`` single-threaded worker processes, or an existing scheduler. The model itself
-does not pickle (its compiled rate laws are closures), so the workers receive a
+does not pickle (it holds the scenario's read-only mappings and the built environment, far
+more than a worker needs), so the workers receive a
 :class:`SampleKernel`: the mechanism's arrays (stoichiometry, reactant slots, Jacobian
 kernel) with the central rates, the log-factors and the fixed densities. With ``Te``
 varied the driving process evaluates each batch's rates and sends them with the batch.
@@ -209,7 +210,7 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
 def summarise(model, kernel, z, n, *, seed):
     """The Monte Carlo dataset from the draws ``z`` (N, width) and densities ``n``."""
     from ionochem.analysis.sensitivity import sensitivity
-    from ionochem.io.dataset import _provenance
+    from ionochem.io.dataset import ALTITUDE_ATTRS, provenance
     N, A = n.shape[0], kernel.altitude_km.size
     dens, names, roles = species_samples(model, kernel, z, n)      # (N, A, Nsp)
     q = np.quantile(dens, QUANTILES, axis=0)                       # (Q, A, Nsp)
@@ -264,9 +265,9 @@ def summarise(model, kernel, z, n, *, seed):
         "quantile": ("quantile", np.array(QUANTILES), {"units": "1",
                                                        "long_name": "probability level"}),
         "species": ("species", np.array(names, dtype=object)),
-        "role": ("species", np.array(roles, dtype=object)),
-        "altitude": ("altitude", kernel.altitude_km, {"units": "km", "positive": "up",
-                                                      "standard_name": "altitude"}),
+        "role": ("species", np.array(roles, dtype=object),
+                 {"long_name": "solved, fixed, electron, balance or derived"}),
+        "altitude": ("altitude", kernel.altitude_km, ALTITUDE_ATTRS),
         "reaction": ("reaction", np.array(kernel.reactions, dtype=object)),
     }
     if env_cols:
@@ -282,7 +283,7 @@ def summarise(model, kernel, z, n, *, seed):
              "factor from the exact local sensitivities"})
         coords["environment_factor"] = ("environment_factor",
                                         np.array(list(env_cols), dtype=object))
-    ds = xr.Dataset(data, coords=coords, attrs=_provenance(model))
+    ds = xr.Dataset(data, coords=coords, attrs=provenance(model))
     ds.attrs.update({
         "method": "montecarlo",
         "samples": int(N),
@@ -297,8 +298,6 @@ def summarise(model, kernel, z, n, *, seed):
         "environment_spreads": ", ".join(f"{k}={v:g}" for k, v in kernel.environment.items()),
         "variance_share_method": how,
     })
-    ds.attrs["history"] = ds.attrs.get("history", "").replace("ionochem run",
-                                                              "ionochem uncertainty")
     return ds
 
 

@@ -88,7 +88,7 @@ def rate_coefficient_vars(model, k, dims):
     return out
 
 
-def _provenance(model):
+def provenance(model):
     import ionochem
     scen = model.scenario
     env_attrs = {"neutral_model": scen.neutrals.model,
@@ -201,7 +201,7 @@ def steady_dataset(model, res, method_names):
             "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
     for name, var in _environment_vars(model).items():
         ds[name] = var
@@ -288,7 +288,7 @@ def transient_dataset(model, times, n):
             "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
     ds.attrs["comment"] = TRANSIENT_NOTE
     for name, var in _environment_vars(model).items():
