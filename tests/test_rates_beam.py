@@ -102,3 +102,15 @@ def test_bad_inputs_are_refused(args, words):
     """Detuning beyond the grid, non-positive temperatures: InputError."""
     with pytest.raises(InputError, match=words):
         beam_rate(*args)
+
+
+def test_capped_grid_still_conserves_the_distribution(monkeypatch):
+    """When the velocity grid has to be capped (a very cold longitudinal spread over a wide
+    detuning range) the result is still normalised: sigma v = const still gives that
+    constant, with a warning that fine structure is smoothed."""
+    import ionochem.rates.beam as beam
+    monkeypatch.setattr(beam, "_MAX_GRID", 2000)
+    E = np.geomspace(1e-8, 30.0, 4000)
+    with pytest.warns(RuntimeWarning, match="capped"):
+        a = beam_rate(E, 1e-15 / np.sqrt(E), np.linspace(0, 10, 7), 2e-3, 1e-8)
+    np.testing.assert_allclose(a, 1e-15 * speed(1.0), rtol=1e-4)
