@@ -23,8 +23,6 @@ import sys
 import warnings
 from pathlib import Path
 
-import numpy as np
-
 from ionochem.cli.options import Table, check_output
 from ionochem.errors import InputError
 
@@ -108,6 +106,7 @@ def _fit_options(p, *, form_flag, required):
 
 # ------------------------------------------------------------------ option parsing
 def _triple(text, flag):
+    import numpy as np
     parts = str(text).split(":")
     if len(parts) != 3:
         raise InputError(f"{text!r} must look like LO:HI:{'N' if flag == '--detuning' else 'STEP'}",
@@ -123,6 +122,7 @@ def _triple(text, flag):
 
 def parse_temperatures(text, flag="--temperatures"):
     """``LO:HI:STEP`` → temperatures (K) from LO to HI inclusive; (HI-LO)/STEP whole."""
+    import numpy as np
     lo, hi, step = _triple(text, flag)
     if lo <= 0 or hi < lo or step <= 0:
         raise InputError(f"{text!r}: need 0 < LO <= HI and STEP > 0 (K)", file=flag)
@@ -136,6 +136,7 @@ def parse_temperatures(text, flag="--temperatures"):
 
 def parse_detuning(text, log=False):
     """``LO:HI:N`` → N detuning energies (eV), evenly (or logarithmically) spaced."""
+    import numpy as np
     lo, hi, n = _triple(text, "--detuning")
     if n != int(n) or n < 1 or n > _MAX_POINTS:
         raise InputError(f"{text!r}: N must be a whole number from 1 to {_MAX_POINTS}",
@@ -195,6 +196,7 @@ def _levels(table, names):
 
 
 def _increasing(table, col, what):
+    import numpy as np
     x = table[col]
     steps = np.diff(x)
     if (steps <= 0).any():
@@ -203,6 +205,7 @@ def _increasing(table, col, what):
 
 
 def _non_negative(table, cols, positive=False):
+    import numpy as np
     for c in cols:
         bad = (table[c] <= 0) if positive else (table[c] < 0)
         if bad.any():
@@ -213,6 +216,8 @@ def _non_negative(table, cols, positive=False):
 
 def read_sigma(path):
     """SIGMA.csv → (energies, main column names, {name: sigma}, {name: (low, high)}, table)."""
+    import numpy as np
+
     from ionochem.rates.tables import read_numeric_csv
     t = read_numeric_csv(path, first="energy_eV", min_rows=2)
     main, bands, _ = _columns(t)
@@ -232,6 +237,8 @@ def _relabel(exc, path):
 
 # ------------------------------------------------------------------ maxwellian
 def cmd_maxwellian(args):
+    import numpy as np
+
     from ionochem.rates import maxwellian_rate
     from ionochem.rates.tables import write_csv
     T = parse_temperatures(args.temperatures)
@@ -284,6 +291,7 @@ def cmd_maxwellian(args):
 
 
 def _print_curves(T, curves, miss=None, rows=8):
+    import numpy as np
     idx = np.unique(np.linspace(0, T.size - 1, min(rows, T.size)).round().astype(int))
     header = ["T_K", *curves]
     if miss is not None:
@@ -333,6 +341,8 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
 
     Returns {column: (fitted k on T_out, (low, high))}.
     """
+    import numpy as np
+
     from ionochem.rates import fit_rate
     from ionochem.rates.tables import family_entry, write_level_table
     T_data = T_out if T_data is None else T_data
@@ -460,6 +470,8 @@ def read_measured(path):
 
 
 def cmd_beam(args):
+    import numpy as np
+
     from ionochem.rates import beam_populations, beam_rate
     from ionochem.rates.tables import write_csv
     for flag, v in (("--kt-perp", args.kt_perp), ("--kt-par", args.kt_par)):
@@ -543,6 +555,7 @@ def cmd_beam(args):
 
 
 def _print_detuning(Ed, curves, rows=8):
+    import numpy as np
     idx = np.unique(np.linspace(0, Ed.size - 1, min(rows, Ed.size)).round().astype(int))
     t = Table(["E_d_eV", *curves])
     for i in idx:
@@ -552,6 +565,7 @@ def _print_detuning(Ed, curves, rows=8):
 
 # ------------------------------------------------------------------ populations
 def _channels(table):
+    import numpy as np
     ch = table["channel"]
     if (ch != np.round(ch)).any():
         i = int(np.argmax(ch != np.round(ch)))
@@ -564,6 +578,8 @@ def _channels(table):
 
 
 def cmd_populations(args):
+    import numpy as np
+
     from ionochem.rates import level_populations
     from ionochem.rates.tables import read_numeric_csv, write_csv
     check_output(args.output, "-o", inputs=[args.signals, args.design])
