@@ -31,6 +31,10 @@ DEFAULT_TEMPERATURES = "100:6000:100"
 _TEMP_HEADER = re.compile(r"(Te|Ti|Tn|Teff|T)(_K)?")
 _MAX_POINTS = 1_000_000
 IGNORED_COLUMNS = ("missing_weight",)
+TEMPERATURE_LABELS = {"Te_K": "electron temperature T$_e$ (K)",
+                      "Ti_K": "ion temperature T$_i$ (K)",
+                      "Tn_K": "neutral temperature T$_n$ (K)",
+                      "Teff_K": "effective temperature T$_{eff}$ (K)"}
 
 
 def register(subparsers):
@@ -443,7 +447,8 @@ def cmd_fit(args):
         redone = {c: _fit_on(args.form, T, rates[c], errors.get(c)) for c in main}
         plot_rate_curves(T, rates, args.plot, fits={c: r[0] for c, r in redone.items()},
                          bands={c: r[1] for c, r in redone.items()},
-                         title=f"{args.form} fits of {Path(args.rates).name}")
+                         title=f"{args.form} fits of {Path(args.rates).name}",
+                         temperature_label=TEMPERATURE_LABELS[tcol])
         print(f"wrote {args.plot}")
     del fits
     return 0

@@ -32,7 +32,8 @@ def _positive(a):
     return np.where(a > 0, a, np.nan)
 
 
-def plot_rate_curves(temperature_K, curves, path, *, fits=None, bands=None, title=None):
+def plot_rate_curves(temperature_K, curves, path, *, fits=None, bands=None, title=None,
+                     temperature_label="electron temperature T$_e$ (K)"):
     """Rate coefficients against temperature, log-log.
 
     Parameters
@@ -47,6 +48,8 @@ def plot_rate_curves(temperature_K, curves, path, *, fits=None, bands=None, titl
     bands : dict of str to (low, high), optional
         Shaded band per column.
     title : str, optional
+    temperature_label : str
+        Label of the temperature axis, with its unit.
     """
     import matplotlib
     matplotlib.use("Agg")
@@ -64,7 +67,7 @@ def plot_rate_curves(temperature_K, curves, path, *, fits=None, bands=None, titl
             ax.plot(T, _positive(fits[name]), "-", lw=1.4, color=colour, label=f"{name} fit")
     ax.set_xscale("log")
     ax.set_yscale("log")
-    ax.set_xlabel("electron temperature T$_e$ (K)")
+    ax.set_xlabel(temperature_label)
     ax.set_ylabel("rate coefficient (cm$^3$ s$^{-1}$)")
     ax.grid(True, which="major", alpha=0.3)
     _outside_legend(ax)
