@@ -141,7 +141,8 @@ def test_fit_command_writes_table_in_the_files_temperature_column(tmp_path, caps
                    np.column_stack([T, k, 0.03 * k]))
     out = tmp_path / "t.csv"
     assert main(["rates", "fit", rates, "--form", "power", "-o", str(out),
-                 "--entry", "CT"]) == 0
+                 "--entry", "CT", "--plot", str(tmp_path / "f.png")]) == 0
+    assert (tmp_path / "f.png").stat().st_size > 1000
     text = capsys.readouterr().out
     assert "B = -0.8" in text
     assert 'CT(v): REACTANTS(v) -> PRODUCTS | k = table("t.csv", "k") | levels v = 2..2' in text
