@@ -439,18 +439,18 @@ def cmd_fit(args):
     check_output(args.plot, "--plot", figure=True, inputs=[args.rates])
     print(f"{args.rates}: {len(main)} column{'s' if len(main) != 1 else ''}, {T.size} "
           f"temperatures {T[0]:g}..{T[-1]:g} K")
-    fits = _fit_and_write(args, T_out, rates, errors, bands, dict(zip(main, levels)), tcol,
-                          source=args.rates, T_data=T)
+    _fit_and_write(args, T_out, rates, errors, bands, dict(zip(main, levels)), tcol,
+                   source=args.rates, T_data=T)
     if args.plot:
         from ionochem.plot.rates import plot_rate_curves
-        # data at their temperatures; fits drawn on the same temperatures
+        # the data at their own temperatures, the fits drawn there too; the band is the
+        # file's band columns when it has them (as in the table), else the fit's
         redone = {c: _fit_on(args.form, T, rates[c], errors.get(c)) for c in main}
         plot_rate_curves(T, rates, args.plot, fits={c: r[0] for c, r in redone.items()},
-                         bands={c: r[1] for c, r in redone.items()},
+                         bands={c: bands.get(c, r[1]) for c, r in redone.items()},
                          title=f"{args.form} fits of {Path(args.rates).name}",
                          temperature_label=TEMPERATURE_LABELS[tcol])
         print(f"wrote {args.plot}")
-    del fits
     return 0
 
 
