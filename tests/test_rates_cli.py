@@ -50,7 +50,7 @@ def _rows(path):
 
 def test_maxwellian_writes_rates_table_and_entry(tmp_path, capsys):
     """Rates of sigma = C/E follow the closed form; --fit power recovers B = -1/2 exactly
-    for a 1/E cross section; the level-row table has Te_K, v, k, k_low, k_high; the
+    for a 1/E cross section; the level-row table has v, Te_K, k, k_low, k_high; the
     printed and written entry is the family entry over the levels."""
     sigma = _sigma_file(tmp_path)
     out, table = tmp_path / "k.csv", tmp_path / "dr.csv"
@@ -69,9 +69,9 @@ def test_maxwellian_writes_rates_table_and_entry(tmp_path, capsys):
     np.testing.assert_allclose([float(r[4]) for r in rows[1:]], _exact(T, 1.5), rtol=1e-4)
     assert "B = -0.5" in text
     trows = _rows(table)
-    assert trows[0] == ["Te_K", "v", "k", "k_low", "k_high"]
-    assert {r[1] for r in trows[1:]} == {"0", "1"}
-    v1 = [r for r in trows[1:] if r[1] == "1"]
+    assert trows[0] == ["v", "Te_K", "k", "k_low", "k_high"]
+    assert {r[0] for r in trows[1:]} == {"0", "1"}
+    v1 = [r for r in trows[1:] if r[0] == "1"]
     assert float(v1[0][3]) == pytest.approx(0.8 * float(v1[0][2]), rel=1e-4)
     expected = ('DR_X(v): N2+(v) + e -> N + N | k = table("dr.csv", "k") | levels v = 0..1 | '
                 "ref = power fit of sigma.csv (ionochem rates)")
@@ -134,7 +134,7 @@ def test_populations_command(tmp_path, capsys):
 
 
 def test_fit_command_writes_table_in_the_files_temperature_column(tmp_path, capsys):
-    """fit reads Ti_K-keyed rates with _sigma errors, and the table keeps Ti_K first."""
+    """fit reads Ti_K-keyed rates with _sigma errors, and the table keeps Ti_K (after v)."""
     T = np.geomspace(300, 3000, 12)
     k = 1e-10 * (T / 300) ** -0.8
     rates = _write(tmp_path / "r.csv", ["Ti_K", "v2", "v2_sigma"],
@@ -147,8 +147,8 @@ def test_fit_command_writes_table_in_the_files_temperature_column(tmp_path, caps
     assert "B = -0.8" in text
     assert 'CT(v): REACTANTS(v) -> PRODUCTS | k = table("t.csv", "k") | levels v = 2..2' in text
     rows = _rows(out)
-    assert rows[0] == ["Ti_K", "v", "k", "k_low", "k_high"]
-    assert all(r[1] == "2" for r in rows[1:])
+    assert rows[0] == ["v", "Ti_K", "k", "k_low", "k_high"]
+    assert all(r[0] == "2" for r in rows[1:])
 
 
 @pytest.mark.parametrize("text, line, words", [
@@ -218,3 +218,23 @@ def test_bad_population_files_are_refused_at_their_line(tmp_path, capsys, signal
     assert code == 2
     assert err[-1].startswith(f"{tmp_path / (name + '.csv')}:{line}: "), err
     assert words in err[-1]
+
+
+def test_branching_channels_get_one_entry_each(tmp_path, capsys):
+    """Two --entry/--reaction/--fraction triples give two entries reading the same table with
+    F*table(...); mismatched counts and fractions outside (0, 1] are refused."""
+    sigma = _sigma_file(tmp_path, levels=1)
+    base = ["rates", "maxwellian", sigma, "--fit", "power", "--table", str(tmp_path / "t.csv")]
+    two = ["--entry", "A", "--reaction", "N2+(v) + e -> N(2D) + N", "--fraction", "0.54",
+           "--entry", "B", "--reaction", "N2+(v) + e -> 2 N(2D)", "--fraction", "0.46",
+           "--write-entry", str(tmp_path / "e.reactions")]
+    assert main(base + two) == 0
+    text = (tmp_path / "e.reactions").read_text()
+    assert 'A(v): N2+(v) + e -> N(2D) + N | k = 0.54*table("t.csv", "k")' in text
+    assert 'B(v): N2+(v) + e -> 2 N(2D) | k = 0.46*table("t.csv", "k")' in text
+    capsys.readouterr()
+    assert main(base + ["--entry", "A", "--entry", "B", "--reaction", "X(v) -> Y"]) == 2
+    assert capsys.readouterr().err.startswith("--reaction: ")
+    assert main(base + ["--entry", "A", "--reaction", "X(v) -> Y", "--fraction", "1.5"]) == 2
+    assert capsys.readouterr().err.startswith("--fraction: ")
+

@@ -34,20 +34,31 @@ def _rows(path):
         return [r for r in csv.reader(fh) if r and not r[0].startswith("#")]
 
 
-def test_demo_cross_sections_to_table_and_entry(demo, capsys):
-    """Step 1 of the example: a five-level table and the DR_N2plus family entry."""
-    code = main(["rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:100",
-                 "--fit", "broken", "--entry", "DR_N2plus",
-                 "--reaction", "N2+(v) + e -> N(2D) + N", "--table", "out/dr.csv",
-                 "--write-entry", "out/dr.reactions"])
+STEP1 = ["rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:100",
+         "--fit", "broken", "--table", "out/dr.csv", "--write-entry", "out/dr.reactions",
+         "--entry", "DR_N2plus", "--reaction", "N2+(v) + e -> N(2D) + N", "--fraction", "0.54",
+         "--entry", "DR_N2plus_2D2D", "--reaction", "N2+(v) + e -> 2 N(2D)",
+         "--fraction", "0.46"]
+
+
+def test_demo_cross_sections_to_table_and_entries_read_per_level(demo, capsys):
+    """Step 1 of the example: a five-level table and the two branch entries of DR_N2plus,
+    which the reaction-list parser reads level by level: member v = 2 of DR_N2plus at
+    Te = 1000 K is 0.54 times the table's v = 2 row at 1000 K."""
+    from ionochem.mechanism.parser import parse_reaction_list
+    assert main(STEP1) == 0
     out = capsys.readouterr().out
-    assert code == 0
     rows = _rows(demo / "out" / "dr.csv")
-    assert rows[0] == ["Te_K", "v", "k", "k_low", "k_high"]
-    assert sorted({int(r[1]) for r in rows[1:]}) == [0, 1, 2, 3, 4]
-    assert 'DR_N2plus(v): N2+(v) + e -> N(2D) + N | k = table("dr.csv", "k") | levels v = 0..4' \
-        in (demo / "out" / "dr.reactions").read_text()
-    assert "levels v = 0..4" in out
+    assert rows[0] == ["v", "Te_K", "k", "k_low", "k_high"]
+    assert sorted({int(r[0]) for r in rows[1:]}) == [0, 1, 2, 3, 4]
+    assert ('DR_N2plus(v): N2+(v) + e -> N(2D) + N | k = 0.54*table("dr.csv", "k") | '
+            "levels v = 0..4") in (demo / "out" / "dr.reactions").read_text()
+    assert "DR_N2plus_2D2D(v)" in out
+    k_table = next(float(r[2]) for r in rows[1:] if r[0] == "2" and float(r[1]) == 1000.0)
+    rl = parse_reaction_list(demo / "out" / "dr.reactions")
+    member = next(r for r in rl.reactions if r.id == "DR_N2plus(v=2)")
+    env = {"Te": np.array([1000.0]), "v": 2}
+    assert member.k.evaluate(env)[0] == pytest.approx(0.54 * k_table, rel=1e-9)
 
 
 def test_demo_beam_and_populations_recover_the_invented_mix(demo, capsys):
@@ -68,17 +79,13 @@ def test_demo_beam_and_populations_recover_the_invented_mix(demo, capsys):
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="needs the reaction-list parser to read a rate "
-                                       "table's v column inside a family (vibrational "
-                                       "kinetics work); remove this mark when it does")
-def test_demo_entry_runs_in_compare(demo, capsys):
-    """Step 2: the written entry replaces DR_N2plus(v) on the demo column."""
-    assert main(["rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:100",
-                 "--fit", "broken", "--entry", "DR_N2plus",
-                 "--reaction", "N2+(v) + e -> N(2D) + N", "--table", "out/dr.csv",
-                 "--write-entry", "out/dr.reactions"]) == 0
+def test_demo_entries_run_in_compare(demo, capsys):
+    """Step 2: the written entries replace DR_N2plus(v) and DR_N2plus_2D2D(v) on the demo
+    column and compare reports the change of their effective rates."""
+    assert main(STEP1) == 0
     capsys.readouterr()
     code = main(["compare", str(SCENARIO), "--reactions", "out/dr.reactions",
                  "--species", "N2+"])
     captured = capsys.readouterr()
     assert code == 0, captured.err
+    assert "DR_N2plus(v)" in captured.out and "DR_N2plus_2D2D(v)" in captured.out

@@ -23,7 +23,7 @@ from ionochem.rates.tables import (
 
 
 def test_level_table_round_trip(tmp_path):
-    """Rows grouped by level, temperature first then v, bands beside k; values to 6 digits."""
+    """Rows grouped by level, v first then the temperature, bands beside k; 6 digits."""
     T = np.array([300.0, 1000.0, 3000.0])
     k = {0: T * 1e-10, 1: T * 2e-10}
     lo = {v: 0.9 * k[v] for v in k}
@@ -32,9 +32,9 @@ def test_level_table_round_trip(tmp_path):
                              comments=["invented test table"])
     with open(path, newline="") as fh:
         rows = [r for r in csv.reader(fh) if not r[0].startswith("#")]
-    assert rows[0] == ["Te_K", "v", "k", "k_low", "k_high"]
-    assert [r[1] for r in rows[1:]] == ["0", "0", "0", "1", "1", "1"]
-    back = read_numeric_csv(path, required=("v", "k"), first="Te_K")
+    assert rows[0] == ["v", "Te_K", "k", "k_low", "k_high"]
+    assert [r[0] for r in rows[1:]] == ["0", "0", "0", "1", "1", "1"]
+    back = read_numeric_csv(path, required=("Te_K", "k"), first="v")
     np.testing.assert_allclose(back["k"], np.r_[k[0], k[1]], rtol=1e-6)
     assert back.lines[0] == 3            # comment, header, first row
 

@@ -101,9 +101,15 @@ def _fit_options(p, *, form_flag, required):
                    help="level-row rate table to write (default for `fit`: -o)")
     if form_flag == "--form":
         p.add_argument("-o", "--output", metavar="TABLE.csv", help="level-row rate table")
-    p.add_argument("--entry", metavar="ID", help="reaction id of the printed family entry")
-    p.add_argument("--reaction", metavar="TEXT",
-                   help="the reaction of the entry, e.g. 'N2+(v) + e -> N + N'")
+    p.add_argument("--entry", metavar="ID", action="append",
+                   help="reaction id of the printed family entry (repeatable: one entry per "
+                        "product channel)")
+    p.add_argument("--reaction", metavar="TEXT", action="append",
+                   help="the reaction of the entry, e.g. 'N2+(v) + e -> N + N' (one per "
+                        "--entry)")
+    p.add_argument("--fraction", metavar="F", action="append", type=float,
+                   help="branching fraction of the entry's channel: k = F*table(...) (one "
+                        "per --entry)")
     p.add_argument("--write-entry", metavar="FILE.reactions",
                    help="also write the entry to a reaction-list file (for compare --reactions)")
 
@@ -312,11 +318,12 @@ def _print_curves(T, curves, miss=None, rows=8):
 # ------------------------------------------------------------------ fit
 def _check_fit_outputs(args, inputs):
     if not args.form:
-        for flag in ("table", "entry", "reaction", "write_entry"):
+        for flag in ("table", "entry", "reaction", "fraction", "write_entry"):
             if getattr(args, flag, None):
                 raise InputError(f"--{flag.replace('_', '-')} needs --fit FORM",
                                  file=f"--{flag.replace('_', '-')}")
         return
+    _entries(args)
     target = _table_target(args)
     check_output(target, "--table", inputs=inputs)
     check_output(args.write_entry, "--write-entry", inputs=inputs)
@@ -326,6 +333,26 @@ def _check_fit_outputs(args, inputs):
     if args.write_entry and not target:
         raise InputError("--write-entry needs a table to refer to (--table or -o)",
                          file="--write-entry")
+
+
+def _entries(args):
+    """[(id, reaction, fraction or None)] of the entries to print, from the options."""
+    import numpy as np
+    ids = args.entry or ["NEW"]
+    reactions = args.reaction or ["REACTANTS(v) -> PRODUCTS"] * len(ids)
+    if len(reactions) != len(ids):
+        raise InputError(f"{len(ids)} --entry but {len(reactions)} --reaction; give one "
+                         "reaction per entry", file="--reaction")
+    fractions = args.fraction or [None] * len(ids)
+    if len(fractions) != len(ids):
+        raise InputError(f"{len(ids)} --entry but {len(fractions)} --fraction; give one "
+                         "fraction per entry", file="--fraction")
+    for f in fractions:
+        if f is not None and not (np.isfinite(f) and 0 < f <= 1):
+            raise InputError(f"branching fraction {f!r} must be in (0, 1]", file="--fraction")
+    if len(set(ids)) != len(ids):
+        raise InputError("the same id is given twice", file="--entry")
+    return list(zip(ids, reactions, fractions))
 
 
 def _table_target(args):
@@ -389,11 +416,18 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
         temperature_column=temperature_column,
         comments=[f"{args.form} fits of {Path(source).name} by ionochem rates "
                   f"(bands: {'band columns' if bands else 'fit covariance, 1 sigma'})",
-                  "columns: temperature (K), level v, k and its band (cm3 s-1)"])
+                  "columns: level v, temperature (K), k and its band (cm3 s-1)"])
     print(f"wrote {target}")
-    rid = args.entry or "NEW"
-    reaction = args.reaction or "REACTANTS(v) -> PRODUCTS"
+    entries = _entries(args)
     ref = f"{args.form} fit of {Path(source).name} (ionochem rates)"
+    given = [f for _, _, f in entries if f is not None]
+    if given and abs(sum(given) - 1.0) > 1e-6:
+        print(f"note: the branching fractions sum to {sum(given):.6g}, not 1", file=sys.stderr)
+
+    def lines(table_name):
+        return [family_entry(rid, reaction, table_name, list(by_level), ref=ref,
+                             fraction=fraction) for rid, reaction, fraction in entries]
+
     if args.write_entry:
         rel = Path(target).resolve()
         folder = Path(args.write_entry).resolve().parent
@@ -401,17 +435,19 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
             name = str(rel.relative_to(folder))
         except ValueError:
             name = str(rel)
-        entry = family_entry(rid, reaction, name, list(by_level), ref=ref)
         from ionochem.io.netcdf import atomic_write_bytes
+        text = "".join(f"{line}\n" for line in lines(name))
         atomic_write_bytes(args.write_entry,
                            (f"# written by ionochem rates from {Path(source).name}\n"
-                            f"{entry}\n").encode())
+                            + text).encode())
         print(f"wrote {args.write_entry}")
-    entry = family_entry(rid, reaction, Path(target).name, list(by_level), ref=ref)
-    print("reaction-list entry (the table path resolves against the reaction file's folder):")
-    print(f"  {entry}")
+    print("reaction-list entr" + ("ies" if len(entries) > 1 else "y")
+          + " (the table path resolves against the reaction file's folder):")
+    for line in lines(Path(target).name):
+        print(f"  {line}")
     if not args.reaction:
-        print("note: give --reaction 'N2+(v) + e -> N + N' (your reaction) and --entry ID")
+        print("note: give --entry ID and --reaction 'N2+(v) + e -> N + N' (your reaction; "
+              "repeat both, with --fraction F, for several product channels)")
     return out
 
 

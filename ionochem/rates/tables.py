@@ -8,13 +8,13 @@ columns. Every problem is an :class:`~ionochem.errors.InputError` at ``file:line
 Level-row rate table (what ``ionochem rates fit`` writes; the format of
 docs/reaction-list.md, "Rate tables", with an integer column ``v``)::
 
-    Te_K,v,k,k_low,k_high
-    300,0,2.2e-07,1.9e-07,2.5e-07
+    v,Te_K,k,k_low,k_high
+    0,300,2.2e-07,1.9e-07,2.5e-07
     ...
 
-The temperature column comes first (the rate-table loader requires it there), then ``v``;
-rows are grouped by level, temperatures increasing within a level. Inside a family entry
-(``| levels v = A..B``) each level reads the rows of its own ``v``.
+The level column ``v`` comes first, then the temperature (docs/reaction-list.md, "Level-row
+tables"); rows are grouped by level, temperatures increasing within a level. Inside a family
+entry (``| levels v = A..B``) each level reads the rows of its own ``v``.
 
 This module knows nothing of the column; it only writes files the reaction-list parser reads.
 """
@@ -203,29 +203,34 @@ def write_level_table(path, temperature_K, rates, *, low=None, high=None,
     """
     T = np.asarray(temperature_K, float)
     levels = sorted(rates)
-    header = [temperature_column, LEVEL_COLUMN, column]
+    header = [LEVEL_COLUMN, temperature_column, column]
     with_band = low is not None and high is not None
     if with_band:
         header += [f"{column}_low", f"{column}_high"]
     cols = [[] for _ in header]
     for v in levels:
-        parts = [T, np.full(T.size, int(v)), np.asarray(rates[v], float)]
+        cols[0].extend([int(v)] * T.size)
+        parts = [T, np.asarray(rates[v], float)]
         if with_band:
             parts += [np.asarray(low[v], float), np.asarray(high[v], float)]
-        for c, part in zip(cols, parts):
-            c.extend(part.tolist() if c is not cols[1] else [int(x) for x in part])
+        for c, part in zip(cols[1:], parts):
+            c.extend(part.tolist())
     return write_csv(path, header, cols, comments)
 
 
-def family_entry(reaction_id, reaction, table_name, levels, *, column="k", ref=None):
+def family_entry(reaction_id, reaction, table_name, levels, *, column="k", ref=None,
+                 fraction=None):
     """The reaction-list family entry that reads a level-row table.
 
     Returns text like ``ID(v): N2+(v) + e -> N + N | k = table("file.csv", "k") |
-    levels v = 0..4 | ref = ...``.
+    levels v = 0..4 | ref = ...``; with ``fraction`` (a branching fraction of one product
+    channel) the rate is ``F*table(...)``.
     """
     lo, hi = min(levels), max(levels)
-    parts = [f"{reaction_id}(v): {reaction}", f'k = table("{table_name}", "{column}")',
-             f"levels v = {lo}..{hi}"]
+    k = f'table("{table_name}", "{column}")'
+    if fraction is not None:
+        k = f"{fraction:g}*{k}"
+    parts = [f"{reaction_id}(v): {reaction}", f"k = {k}", f"levels v = {lo}..{hi}"]
     if ref:
         parts.append(f"ref = {ref}")
     return " | ".join(parts)
