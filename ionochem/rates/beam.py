@@ -226,7 +226,7 @@ def beam_rate(energy_eV, sigma_cm2, detuning_eV, kT_perp_eV, kT_par_eV):
     # h is even in w, so alpha(v_d) = int_0^inf h(w) [N(w - v_d) + N(w + v_d)] dw. Summing
     # over w >= 0 only puts the kink of h at w = 0 (sigma ~ 1/E makes h ~ h0 - c|w|) at the
     # end of the range, where the end weights 3/8, 7/6, 23/24 (Press et al. 2007, Numerical
-    # Recipes, 3rd ed., eq. 4.1.14) keep the rule accurate to O(dw^4) for a one-sided smooth h.
+    # Recipes, 3rd ed., eq. 4.1.14, *(from memory)*) keep the rule accurate for a smooth h.
     j_lo = max(0, int(np.floor(w_lo / dw)))
     j_hi = int(np.ceil(w_hi / dw))
     w = np.arange(j_lo, j_hi + 1) * dw

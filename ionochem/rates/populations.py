@@ -5,9 +5,9 @@ Model: signals[channel] = sum_level design[channel, level] * p[level] (+ noise o
 each level (for instance per-level rate coefficients); an unknown overall scale (beam current,
 detection efficiency) is allowed, so the populations are reported normalised to one.
 
-Method: non-negative least squares on the weighted system (scipy.optimize.nnls,
-Lawson & Hanson 1974, *Solving Least Squares Problems*, Prentice-Hall, the algorithm scipy
-implements). Errors:
+Method: non-negative least squares on the weighted system (scipy.optimize.nnls; the algorithm
+of Lawson & Hanson 1974, *Solving Least Squares Problems*, Prentice-Hall, as scipy's
+documentation cites it). Errors:
 
 - ``method="linear"`` (default): linearisation on the active set. Levels fitted at zero sit on
   the constraint and get zero variance; the free levels get (A_f^T A_f)^-1 with A the weighted
