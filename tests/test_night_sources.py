@@ -176,3 +176,15 @@ def test_night_n2plus_levels_add_up_to_the_night_total():
         assert np.all(src[base] > 0)
         np.testing.assert_allclose(sum(levels), src[base], rtol=1e-12)
         assert np.all(src[base + "(v=0)"] > 0.3 * src[base])
+
+
+def test_transient_results_name_their_photon_sources_too():
+    """The transient dataset carries the same ``photon_sources`` attribute (docs/outputs.md),
+    soft X-rays and night lines included."""
+    scen = ionochem.load_scenario(MID)
+    scen = scen.replace(grid=type(scen.grid)(altitude_km=(100.0, 150.0, 200.0)),
+                        solve=dataclasses.replace(scen.solve, mode="transient",
+                                                  times_s=(0.0, 60.0)))
+    ds = ionochem.Model(scen).integrate(np.array([0.0, 60.0]))
+    assert "He I 584 A" in ds.attrs["photon_sources"]
+    assert "soft X-rays" in ds.attrs["photon_sources"]
