@@ -190,7 +190,8 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         ``density_baseline`` and ``density_changed`` (species, altitude) in cm-3 and
         ``ratio`` = changed / baseline (NaN where the baseline density is 0, or where the
         species is absent from one of the models), with the provenance of the baseline and
-        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``.
+        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``,
+        and the baseline's ``pce_doubtful`` flag (species, altitude) when it has one.
     """
     ds_b = baseline_model.solve() if baseline is None else baseline
     ds_c = changed_model.solve() if changed is None else changed
@@ -226,6 +227,14 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         },
         attrs=dict(ds_b.attrs),
     )
+    if "pce_doubtful" in ds_b:
+        flag = ds_b["pce_doubtful"]
+        have = list(flag["species"].values)
+        rows = [flag.sel(species=s).values if s in have else np.zeros(len(alt_b), np.int8)
+                for s in names]
+        out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
+                               dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
+                                    + " (baseline)"))
     # The baseline's own (scenario) changes keep their names with a prefix; the changes
     # compared take the plain names.
     for key in ("changes_set", "changes_scale"):

@@ -3,21 +3,19 @@
 One row of panels per species: on the left, S = ∂ln n/∂ln k of its top N reactions (and Te)
 against altitude on a diverging colour map centred at zero (red raises the density, blue
 lowers it); on the right, the same reactions as bars: the value of S where |S| is largest
-(filled) and the altitude-mean |S| (outlined). The ranking comes from
+(filled, labelled with that altitude) and the altitude-mean |S| (outlined), each row named
+by its reaction. The ranking comes from
 :mod:`ionochem.analysis.rank`; nothing here computes chemistry. Figures are rendered to
 memory and written atomically.
 """
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 
 from ionochem.analysis.rank import default_species, rank_reactions, sensitivity_matrix
 from ionochem.errors import InputError
-from ionochem.io.netcdf import atomic_write_bytes
-from ionochem.plot.profiles import STYLE, _figure_bytes
+from ionochem.plot.profiles import STYLE, save_figure
 
 #: Diverging map (matplotlib's ``RdBu_r``): positive S red, negative blue, zero white.
 CMAP = "RdBu_r"
@@ -25,7 +23,7 @@ POSITIVE = "#b2182b"
 NEGATIVE = "#2166ac"
 
 
-def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10,
+def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
                      title=None):
     """Heat map and bar chart of the top ``top`` reactions of each species.
 
@@ -33,8 +31,6 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
     ----------
     sens_ds : xarray.Dataset
         ``sensitivity`` (species, reaction, altitude) and ``sensitivity_Te``.
-    path : str or Path
-        Output figure (PNG, PDF or SVG, from the suffix).
     species : sequence of str, optional
         One row of panels each; default the main ions present.
     altitude_range : (float, float), optional
@@ -45,7 +41,7 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
 
     Returns
     -------
-    Path
+    matplotlib.figure.Figure
     """
     import matplotlib
     matplotlib.use("Agg")
@@ -81,7 +77,8 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
         colour = STYLE.get(s, {}).get("color", "black")
         ax_h.set_title(f"{s}: S = ∂ln n/∂ln k (top {len(rows)} by largest |S|)",
                        fontsize=10, color=colour)
-        fig.colorbar(mesh, ax=ax_h, pad=0.01, label="S")
+        fig.colorbar(mesh, ax=ax_h, pad=0.01,
+                     label="normalized sensitivity\nS = ∂ln n / ∂ln k")
         y = np.arange(len(rows))
         signed = np.array([r.signed_at_max for r in rows])
         mean = np.array([r.mean_abs for r in rows])
@@ -89,10 +86,20 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
                   color=np.where(signed >= 0, POSITIVE, NEGATIVE), alpha=0.85)
         ax_b.barh(y, mean, height=0.6, fill=False, edgecolor="0.2", lw=1.0)
         ax_b.set_yticks(y)
-        ax_b.set_yticklabels([f"{r.altitude_km:g} km" for r in rows], fontsize=8)
+        ax_b.set_yticklabels([r.reaction for r in rows], fontsize=8)
         ax_b.invert_yaxis()
         ax_b.axvline(0.0, color="0.4", lw=0.8)
-        ax_b.set_xlabel("S at the largest |S|; outline: mean |S|")
+        # The altitude of the largest |S| beside each bar, outside its end.
+        reach = float(np.max(np.abs(np.concatenate([signed, mean])))) or 1.0
+        ax_b.set_xlim(min(-0.05, signed.min()) - 0.5 * reach,
+                      max(0.05, signed.max(), mean.max()) + 0.5 * reach)
+        for yi, r, v, m in zip(y, rows, signed, mean, strict=True):
+            end = max(v, m) if v >= 0 else v
+            ax_b.text(end + (0.03 if v >= 0 else -0.03) * reach, yi,
+                      f"{r.altitude_km:g} km", va="center", fontsize=7, color="0.25",
+                      ha="left" if v >= 0 else "right")
+        ax_b.set_xlabel("S where |S| is largest (at the altitude written)\n"
+                        "outline: altitude-mean |S|")
         ax_b.grid(True, axis="x", alpha=0.3)
     fig.legend(handles=[Patch(color=POSITIVE, label="S > 0 (raises the density)"),
                         Patch(color=NEGATIVE, label="S < 0 (lowers it)"),
@@ -102,10 +109,20 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
     lo, hi = altitude_range if altitude_range is not None else (alt_all.min(), alt_all.max())
     fig.suptitle((title or sens_ds.attrs.get("title", ""))
                  + f"\nnormalized sensitivities, {lo:g}-{hi:g} km", fontsize=11)
-    data = _figure_bytes(fig, path)
-    plt.close(fig)
-    atomic_write_bytes(path, data)
-    return Path(path)
+    return fig
+
+
+def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10,
+                     title=None):
+    """Write :func:`sensitivity_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
+
+    Returns
+    -------
+    Path
+    """
+    fig = sensitivity_figure(sens_ds, species=species, altitude_range=altitude_range, top=top,
+                             title=title)
+    return save_figure(fig, path)
 
 
 def _edges(alt):
