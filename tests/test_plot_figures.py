@@ -227,3 +227,34 @@ def test_plot_profiles_writes_a_png(steady, tmp_path):
     """The writer renders the figure to a PNG file (magic bytes)."""
     out = plot_profiles(steady, tmp_path / "p.png")
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_docs_figures_are_made_with_the_readme_commands():
+    """Every analysis command the README shows with ``--plot`` is, option for option (output
+    files aside), the command docs/figures/make_figures.py runs for its figure, so the
+    figures in the docs show what the README's commands give (e.g. the default top 10 and
+    1000 samples)."""
+    import importlib.util
+    import shlex
+    spec = importlib.util.spec_from_file_location("make_figures",
+                                                  ROOT / "docs" / "figures" / "make_figures.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+
+    def options(argv):
+        out, skip = [], False
+        for a in argv:
+            if skip:
+                skip = False
+            elif a in ("-o", "--plot"):
+                skip = True
+            else:
+                out.append(a)
+        return out
+
+    made = {tuple(options(args)) for _, args in mod.COMMANDS}
+    shown = [shlex.split(ln.strip())[1:] for ln in (ROOT / "README.md").read_text().splitlines()
+             if ln.startswith("ionochem ") and "--plot" in ln and "SCENARIO" not in ln]
+    assert len(shown) >= 3
+    for argv in shown:
+        assert tuple(options(argv)) in made, argv

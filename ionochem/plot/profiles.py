@@ -204,7 +204,8 @@ def time_series_figure(ds, *, altitudes_km=(120.0, 200.0, 300.0), species=None,
     if sza is not None:
         from matplotlib.lines import Line2D
         handles.append(Line2D([], [], color="0.35", ls=":", lw=1.2))
-        labels.append("sunset at that altitude\n(Earth's shadow)")
+        labels.append("geometric sunset at that\naltitude (solid Earth's shadow;\n"
+                      "EUV fades earlier, absorbed\nalong the grazing path)")
     legend_figure_right(fig, handles, labels)
     fig.suptitle(title or ds.attrs.get("title", ""), fontsize=11)
     return fig

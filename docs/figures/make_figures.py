@@ -1,0 +1,56 @@
+"""Regenerate the figures of docs/figures/ with the README's own commands.
+
+Run from the repository root after any change to the chemistry, the environment or the
+plotting code:
+
+    python docs/figures/make_figures.py
+
+Each figure is made by exactly the command the README shows (same scenario, same options:
+``--top`` left at its default 10, ``--samples 1000 --seed 1``), so what a reader sees in the
+docs is what the command gives. All scenarios are invented demos.
+"""
+
+from __future__ import annotations
+
+import sys
+import tempfile
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+FIGURES = ROOT / "docs" / "figures"
+
+#: (figure file, command arguments after ``ionochem``), as in README.md.
+COMMANDS = (
+    ("midlatitude_equinox.png",
+     ["run", "scenarios/midlatitude_equinox.toml", "-o", "{tmp}/midlatitude.nc"]),
+    ("compare_O2D_N2.png",
+     ["compare", "scenarios/midlatitude_equinox.toml", "--set", "O2D_N2=1.5e-10"]),
+    ("rank_N2plus.png",
+     ["rank", "scenarios/midlatitude_equinox.toml", "--species", "N2+", "--altitudes",
+      "150:300"]),
+    ("uncertainty_midlatitude.png",
+     ["uncertainty", "scenarios/midlatitude_equinox.toml", "--samples", "1000", "--seed", "1",
+      "-o", "{tmp}/bands.nc"]),
+    ("midlatitude_sunset.png",
+     ["run", "scenarios/midlatitude_sunset.toml", "-o", "{tmp}/sunset.nc"]),
+)
+
+
+def main(names=()):
+    """Run the commands (all, or those whose figure name is in ``names``)."""
+    import os
+
+    from ionochem.cli import main as ionochem
+    os.chdir(ROOT)
+    with tempfile.TemporaryDirectory() as tmp:
+        for figure, args in COMMANDS:
+            if names and figure not in names:
+                continue
+            argv = [a.format(tmp=tmp) for a in args] + ["--plot", str(FIGURES / figure)]
+            print("ionochem", " ".join(argv), flush=True)
+            if ionochem(argv) != 0:
+                raise SystemExit(f"failed: {figure}")
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
