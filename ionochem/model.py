@@ -83,11 +83,14 @@ class Model:
         self._id_index = {r.id: j for j, r in enumerate(rxns)}
         changes = _changes
         if changes is None:
-            changes = (dict(scenario.changes.set), dict(scenario.changes.scale), "scenario")
+            changes = (dict(scenario.changes.set), dict(scenario.changes.scale), "scenario",
+                       {})
         self.changes = {"set": dict(changes[0]), "scale": dict(changes[1])}
+        # Folder each --set expression's table paths resolve against (default: the list's).
+        self._set_dirs = dict(changes[3])
         self._k_expr = [r.k for r in rxns]
         self._scale = np.ones(len(rxns))
-        self._apply_changes(*changes)
+        self._apply_changes(*changes[:3])
 
         needs = set()
         for r, expr in zip(rxns, self._k_expr):
@@ -145,6 +148,32 @@ class Model:
                 self._src_coef = np.stack([self._evaluate_one(j, ones)
                                            for j in self._source_reactions], -1)
 
+    # ---------------------------------------------------------------- public surface
+    @property
+    def reaction_objects(self):
+        """The parsed reaction entries, in the order of :attr:`reactions` (read only)."""
+        return tuple(self._rxns)
+
+    @property
+    def rate_expressions(self):
+        """The compiled rate law of each reaction as used (after ``--set`` changes)."""
+        return tuple(self._k_expr)
+
+    @property
+    def needs(self):
+        """What the environment must supply: ``photo:CHANNEL``, ``photoelectron:CHANNEL``,
+        ``prescribed:ID`` and species names (frozenset of str)."""
+        return self._needs
+
+    def species_table(self, n_solved):
+        """All reported densities from solved ones: ``(dens, names, roles)``.
+
+        ``n_solved`` is shaped (..., altitude, solved species); ``dens`` (..., altitude,
+        reported species) adds electrons, fixed neutrals and derived totals.
+        """
+        from ionochem.io.dataset import species_table
+        return species_table(self, n_solved)
+
     # ---------------------------------------------------------------- changes
     def _ids_for(self, key, where=None):
         if key in self._id_index:
@@ -164,7 +193,8 @@ class Model:
             for j in self._ids_for(key, where):
                 r = self._rxns[j]
                 self._k_expr[j] = compile_expression(str(text), file=where, line=None,
-                                                     base_dir=base_dir, level=r.level)
+                                                     base_dir=self._set_dirs.get(key, base_dir),
+                                                     level=r.level)
         for key, factor in scale.items():
             factor = float(factor)
             where = self.scenario.source if origin == "scenario" else "--scale"
@@ -174,7 +204,7 @@ class Model:
             for j in self._ids_for(key, where):
                 self._scale[j] *= factor
 
-    def with_changes(self, set_dict=None, scale=None):
+    def with_changes(self, set_dict=None, scale=None, *, base_dir=None):
         """A new model with some rate expressions replaced and some rates scaled.
 
         Parameters
@@ -182,7 +212,11 @@ class Model:
         set_dict : dict[str, str]
             Reaction id (or family id, for all its levels) → new rate expression.
         scale : dict[str, float]
-            Reaction id (or family id) → multiplicative factor on k.
+            Reaction id (or family id) → multiplicative factor on k (0 switches it off).
+        base_dir : path, optional
+            Folder that relative ``table(...)`` paths in ``set_dict`` resolve against
+            (default: the reaction list's folder; the command line passes the working
+            directory).
 
         The changes add to those the scenario already makes. The environment is reused
         unless the new expressions need sources the old ones did not.
@@ -192,11 +226,14 @@ class Model:
         merged_scale = dict(self.changes["scale"])
         for key, f in (scale or {}).items():
             merged_scale[key] = merged_scale.get(key, 1.0) * float(f)
+        dirs = dict(self._set_dirs)
+        if base_dir is not None:
+            dirs.update({key: Path(base_dir) for key in (set_dict or {})})
+        changes = (merged_set, merged_scale, "api", dirs)
         new = Model(self.scenario, self.reaction_list, environment=self.environment,
-                    _changes=(merged_set, merged_scale, "api"))
-        if not new._needs <= self._needs:
-            new = Model(self.scenario, self.reaction_list,
-                        _changes=(merged_set, merged_scale, "api"))
+                    _changes=changes)
+        if not new.needs <= self.needs:
+            new = Model(self.scenario, self.reaction_list, _changes=changes)
         return new
 
     # ---------------------------------------------------------------- rates

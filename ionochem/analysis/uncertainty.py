@@ -128,7 +128,8 @@ def photo_reactions(model):
     Uses the model's current rate expressions (after ``--set`` changes) when it exposes
     them, else the reaction list's ``k`` expressions.
     """
-    exprs = getattr(model, "_k_expr", None) or [r.k for r in model.reaction_list.reactions]
+    exprs = (getattr(model, "rate_expressions", None)
+             or [r.k for r in model.reaction_list.reactions])
     return np.array([bool(e.variables & PHOTO_SOURCES) for e in exprs], bool)
 
 
@@ -567,8 +568,7 @@ def species_samples(model, kernel, z, n):
     Solved densities map to all species (electrons, derived totals, fixed neutrals) with
     the code path of the result dataset; a varied fixed neutral carries its sample factor.
     """
-    from ionochem.io.dataset import _species_table
-    dens, names, roles = _species_table(model, n)
+    dens, names, roles = model.species_table(n)
     for g, name in enumerate(kernel.given_names):
         if kernel.ln_given[g] and name in names:
             col = names.index(name)
@@ -757,7 +757,7 @@ def summarise(model, kernel, z, n, *, seed):
     nan_out = np.isnan(share).all(axis=0).T                        # (Nsp, A)
     vs = np.where(nan_out[:, None, :], np.nan, vs)
     lin_r, lin_e = linear_variance_shares(model, kernel, sens)
-    # The sensitivity dataset lists the same species in the same order as _species_table.
+    # The sensitivity dataset lists the same species in the same order as Model.species_table.
     sens_names = list(sens["species"].values)
     order = [sens_names.index(s) for s in names]
     lin_r, lin_e = lin_r[order], lin_e[order]
