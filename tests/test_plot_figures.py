@@ -167,6 +167,24 @@ def test_rank_bars_are_named_by_reaction_and_colour_bar_says_what_s_is(model):
     assert_legends_clear_of_data(fig)
 
 
+def test_rank_heat_map_hatches_exactly_the_levels_left_out_of_the_ranking(model):
+    """Over the whole grid, O+ is below 1 % of its peak at the lowest levels: those levels,
+    and only those (ionochem.analysis.rank.where_it_matters), are hatched; the title names
+    environment factors beside reactions."""
+    from ionochem.analysis.rank import where_it_matters
+    sens = model.sensitivity()
+    species = "O+(total)" if "O+(total)" in list(sens["species"].values) else "O+"
+    fig = sensitivity_figure(sens, species=[species], top=4, min_share=0.01)
+    heat = fig.axes[0]
+    alt = sens["altitude"].values
+    matters = where_it_matters(sens, species, None, 0.01)
+    assert (~matters).any() and matters.any()
+    hatched = [p for p in heat.patches if p.get_hatch()]
+    centres = sorted(p.get_x() + p.get_width() / 2 for p in hatched)
+    np.testing.assert_allclose(centres, alt[~matters], atol=1e-6)
+    assert "environment factors" in heat.get_title()
+
+
 def test_uncertainty_90_percent_band_is_visible(model):
     """The 90 % band is filled at least as opaque as 0.2 and edged by lines at the 5 % and
     95 % quantiles of the dataset; the legend is clear of the bands."""
@@ -197,11 +215,19 @@ def _transient(alt=(100.0, 200.0, 300.0)):
                "longitude_deg": 15.0})
 
 
-def test_transient_time_axis_local_time_zenith_angle_and_shadow():
+@pytest.mark.parametrize("time_form", ["seconds", "cf_seconds", "decoded"])
+def test_transient_time_axis_local_time_zenith_angle_and_shadow(time_form):
     """Chosen altitudes give one panel each; the top axis reads local mean solar time
     (15:30 UT at 15° E → 16:30) with the zenith angle; the dotted sunset line at 300 km
-    sits where χ = 90° + arccos(R/(R+z)) with R = 6371 km (geometric shadow)."""
+    sits where χ = 90° + arccos(R/(R+z)) with R = 6371 km (geometric shadow). The same
+    for a time coordinate in bare seconds, in CF "seconds since" units, and decoded to
+    datetimes (as xarray reads a CF file back)."""
     ds = _transient()
+    if time_form == "cf_seconds":
+        ds["time"].attrs["units"] = "seconds since 2025-03-20 15:30:00"
+    elif time_form == "decoded":
+        ds = ds.assign_coords(time=np.datetime64("2025-03-20T15:30:00")
+                              + (ds["time"].values * 1e3).astype("timedelta64[ms]"))
     fig = time_series_figure(ds, altitudes_km=[300.0, 200.0])
     panels = [ax for ax in fig.axes if ax.get_title()]
     assert [ax.get_title() for ax in panels] == ["200 km", "300 km"]
