@@ -284,3 +284,18 @@ def test_docs_figures_are_made_with_the_readme_commands():
     assert len(shown) >= 3
     for argv in shown:
         assert tuple(options(argv)) in made, argv
+
+
+def test_global_sensitivity_figure_legend_is_outside_every_panel():
+    """Sobol panels (invented indices on 4 levels, 3 factors, 4 species) keep the factor
+    legend outside every panel's data area."""
+    from ionochem.plot.uncertainty import global_figure
+    rng = np.random.default_rng(0)
+    dims = ("species", "factor", "altitude")
+    shape = (4, 3, 4)
+    ds = xr.Dataset({"S1": (dims, rng.uniform(0, 0.5, shape)),
+                     "ST": (dims, rng.uniform(0.5, 1.0, shape))},
+                    coords={"species": ["e", "NO+", "O2+", "N2+"],
+                            "factor": ["A", "B", "C"], "altitude": [100.0, 150.0, 200.0, 250.0]},
+                    attrs={"method": "sobol", "title": "invented", "model_runs": 10})
+    assert_legends_clear_of_data(global_figure(ds))
