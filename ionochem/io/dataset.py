@@ -88,7 +88,7 @@ def rate_coefficient_vars(model, k, dims):
     return out
 
 
-def _provenance(model):
+def provenance(model):
     import ionochem
     scen = model.scenario
     env_attrs = {"neutral_model": scen.neutrals.model,
@@ -136,8 +136,14 @@ def _environment_vars(model, dims=("altitude",)):
     return out
 
 
-def steady_dataset(model, res):
-    """Dataset of a steady solution (``SteadyResult`` from the steady solver)."""
+def steady_dataset(model, res, method_names):
+    """Dataset of a steady solution (``SteadyResult`` from the steady solver).
+
+    ``method_names`` maps the solver's method codes to names (the solver's
+    ``METHOD_NAMES``); the caller adds the diagnostics
+    (:func:`ionochem.analysis.diagnostics.add_steady_diagnostics`), so this module imports
+    neither the solver nor the analyses.
+    """
     mech = model.mechanism
     alt = model.altitude_km
     dens, names, roles = species_table(model, res.n)
@@ -161,7 +167,6 @@ def steady_dataset(model, res):
         stoich[col] = nu
         prod[:, col] = rates @ np.clip(nu, 0, None)
         loss[:, col] = rates @ np.clip(-nu, 0, None)
-    from ionochem.solve.steady import METHOD_NAMES
     ds = xr.Dataset(
         {
             "density": (("species", "altitude"), dens.T,
@@ -183,9 +188,9 @@ def steady_dataset(model, res):
                            {"units": "1", "long_name": "solver iterations"}),
             "solver_method": ("altitude", res.method.astype(np.int8),
                               {"long_name": "method that converged",
-                               "flag_values": np.array(sorted(METHOD_NAMES), np.int8),
-                               "flag_meanings": " ".join(METHOD_NAMES[k]
-                                                         for k in sorted(METHOD_NAMES))}),
+                               "flag_values": np.array(sorted(method_names), np.int8),
+                               "flag_meanings": " ".join(method_names[k]
+                                                         for k in sorted(method_names))}),
         },
         coords={
             "altitude": ("altitude", alt, ALTITUDE_ATTRS),
@@ -196,11 +201,10 @@ def steady_dataset(model, res):
             "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
     for name, var in _environment_vars(model).items():
         ds[name] = var
-    _add_diagnostics(model, ds)
     return ds
 
 
@@ -208,12 +212,6 @@ def _equation(r):
     def side(terms):
         return " + ".join((f"{c} " if c > 1 else "") + sp.name for sp, c in terms) or "0"
     return f"{side(r.reactants)} -> {side(r.products)}"
-
-
-def _add_diagnostics(model, ds):
-    """Dark levels, zenith angle, lifetimes and the ionization–recombination balance."""
-    from ionochem.analysis.diagnostics import add_steady_diagnostics
-    add_steady_diagnostics(model, ds)
 
 
 TRANSIENT_NOTE = (
@@ -290,7 +288,7 @@ def transient_dataset(model, times, n):
             "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
     ds.attrs["comment"] = TRANSIENT_NOTE
     for name, var in _environment_vars(model).items():
