@@ -255,21 +255,28 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         },
         attrs=dict(ds_b.attrs),
     )
-    if "pce_doubtful" in ds_b:
-        flag = ds_b["pce_doubtful"]
-        have = list(flag["species"].values)
-        rows = [flag.sel(species=s).values if s in have else np.zeros(len(alt_b), np.int8)
-                for s in names]
-        out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
-                               dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
-                                    + " (baseline)"))
     # The baseline's own (scenario) changes keep their names with a prefix; the changes
     # compared take the plain names.
     for key in ("changes_set", "changes_scale"):
         out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
     out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
     out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
+    _add_equilibrium_flag(out, ds_b, names)
     return out
+
+
+def _add_equilibrium_flag(out, ds_b, names):
+    """The baseline's ``pce_doubtful`` (species, altitude) on ``out``'s species, 0 for a
+    species only the changed model has; nothing when the baseline has no flag."""
+    if "pce_doubtful" not in ds_b:
+        return
+    flag = ds_b["pce_doubtful"]
+    have = list(flag["species"].values)
+    rows = [flag.sel(species=s).values if s in have else np.zeros(ds_b["altitude"].size, np.int8)
+            for s in names]
+    out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
+                           dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
+                                + " (baseline)"))
 
 
 # ------------------------------------------------------------------ the summary
