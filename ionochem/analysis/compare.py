@@ -199,6 +199,20 @@ def _change_attrs(baseline, changed, reaction_lists):
     }
 
 
+def _add_equilibrium_flag(out, ds_b, names):
+    """The baseline's ``pce_doubtful`` (species, altitude) on ``out``'s species, 0 for a
+    species only the changed model has; nothing when the baseline has no flag."""
+    if "pce_doubtful" not in ds_b:
+        return
+    flag = ds_b["pce_doubtful"]
+    have = list(flag["species"].values)
+    rows = [flag.sel(species=s).values if s in have else np.zeros(ds_b["altitude"].size, np.int8)
+            for s in names]
+    out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
+                           dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
+                                + " (baseline)"))
+
+
 def compare(baseline_model, changed_model, *, baseline=None, changed=None,
             reaction_lists=()):
     """Solve a baseline and a changed model and compare their steady densities.
@@ -264,19 +278,6 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
     _add_equilibrium_flag(out, ds_b, names)
     return out
 
-
-def _add_equilibrium_flag(out, ds_b, names):
-    """The baseline's ``pce_doubtful`` (species, altitude) on ``out``'s species, 0 for a
-    species only the changed model has; nothing when the baseline has no flag."""
-    if "pce_doubtful" not in ds_b:
-        return
-    flag = ds_b["pce_doubtful"]
-    have = list(flag["species"].values)
-    rows = [flag.sel(species=s).values if s in have else np.zeros(ds_b["altitude"].size, np.int8)
-            for s in names]
-    out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
-                           dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
-                                + " (baseline)"))
 
 
 # ------------------------------------------------------------------ the summary
