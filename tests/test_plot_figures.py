@@ -302,3 +302,18 @@ def test_global_sensitivity_figure_legend_is_outside_every_panel():
                             "factor": ["A", "B", "C"], "altitude": [100.0, 150.0, 200.0, 250.0]},
                     attrs={"method": "sobol", "title": "invented", "model_runs": 10})
     assert_legends_clear_of_data(global_figure(ds))
+
+
+def test_level_members_get_shades_of_their_family_colour_distinct_from_the_palette():
+    """N2+(v=0) and N2+(v=1) are drawn in shades of the N2+ colour (same hue, matplotlib's
+    HSV conversion), different from each other, from N2+ and from every palette colour."""
+    from matplotlib.colors import rgb_to_hsv, to_rgb
+
+    from ionochem.plot.profiles import style_of
+    base = to_rgb(STYLE["N2+"]["color"])
+    shades = [to_rgb(style_of(f"N2+(v={v})")["color"]) for v in range(5)]
+    palette = {to_rgb(st["color"]) for st in STYLE.values()}
+    assert len(set(shades)) == 5 and not set(shades) & palette
+    for c in shades:
+        assert abs(rgb_to_hsv(c)[0] - rgb_to_hsv(base)[0]) < 0.02
+    assert to_rgb(style_of("X+", ["N2+", "e"])["color"]) not in palette

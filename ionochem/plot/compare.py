@@ -14,7 +14,7 @@ import numpy as np
 
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right
-from ionochem.plot.profiles import STYLE, save_figure, style_density_axes
+from ionochem.plot.profiles import save_figure, style_density_axes, style_of
 
 COMPARE_SPECIES = ("e", "O+(total)", "O+", "O2+", "NO+", "N2+")
 
@@ -59,7 +59,7 @@ def compare_figure(ds, *, species=None, title=None):
     masks = {s: doubtful_mask(ds, s) for s in names}
     positive = []
     for s in names:
-        style = dict(STYLE.get(s, dict(lw=1.2)))
+        style = style_of(s, names[:names.index(s)])
         style.pop("ls", None)
         nb = ds["density_baseline"].sel(species=s).values
         nc = ds["density_changed"].sel(species=s).values

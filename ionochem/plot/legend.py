@@ -26,3 +26,13 @@ def legend_figure_right(fig, handles, labels, **kw):
     opts = dict(loc="outside right upper", fontsize=FONT_SIZE, frameon=False)
     opts.update(kw)
     return fig.legend(handles, labels, **opts)
+
+
+def legend_below(ax, handles=None, labels=None, **kw):
+    """A legend under ``ax``'s x label, centred on it; returns the Legend."""
+    if handles is None:
+        handles, labels = ax.get_legend_handles_labels()
+    opts = dict(loc="upper center", bbox_to_anchor=(0.5, -0.13), borderaxespad=0.0,
+                fontsize=FONT_SIZE - 1, frameon=False)
+    opts.update(kw)
+    return ax.legend(handles, labels, **opts)

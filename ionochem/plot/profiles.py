@@ -8,6 +8,7 @@ rendered to memory and written atomically.
 from __future__ import annotations
 
 import io
+import re
 from pathlib import Path
 
 import numpy as np
@@ -32,6 +33,35 @@ STYLE = {
     # Electrons on top of the ion they equal (NO+ after sunset, O+ high up).
     "e": dict(color="black", lw=1.8, ls="--", zorder=3),
 }
+# Colours for species outside the palette, chosen apart from its hues.
+EXTRA_COLOURS = ("#6b8e23", "#5d6d7e", "#b7950b", "#a04000", "#117a65", "#884ea0")
+# Shade of a vibrational level against its family's colour: v = 0 darker, higher levels
+# lighter (negative: towards black, positive: towards white).
+_LEVEL_SHADE = (-0.45, 0.3, 0.5, 0.65, 0.78)
+
+
+def style_of(name, others=()):
+    """Line style of a species: the palette's, a level's shade of its family's colour, or
+    the next of :data:`EXTRA_COLOURS` (``others``: the names drawn before it).
+
+    Returns
+    -------
+    dict
+        Matplotlib line properties (``color``, ``lw`` and, for palette species, ``ls``).
+    """
+    from matplotlib.colors import to_rgb
+    if name in STYLE:
+        return dict(STYLE[name])
+    m = re.fullmatch(r"(.+)\(v=(\d+)\)", str(name))
+    if m and m.group(1) in STYLE:
+        rgb = np.array(to_rgb(STYLE[m.group(1)]["color"]))
+        t = _LEVEL_SHADE[min(int(m.group(2)), len(_LEVEL_SHADE) - 1)]
+        rgb = rgb * (1 + t) if t < 0 else rgb + (1 - rgb) * t
+        return dict(color=tuple(float(c) for c in rgb), lw=1.3)
+    unknown = [o for o in others if o not in STYLE and not re.fullmatch(r".+\(v=\d+\)", o)]
+    return dict(color=EXTRA_COLOURS[len(unknown) % len(EXTRA_COLOURS)], lw=1.2)
+
+
 PROFILE_SPECIES = ("e", "O+(total)", "O2+", "NO+", "N2+", "N+", "O+(2D)", "O+(2P)")
 
 
@@ -102,7 +132,7 @@ def profiles_figure(ds, *, species=None, title=None):
     for s in names:
         n = ds["density"].sel(species=s).values
         plot_marked(ax, np.where(n > 0, n, np.nan), alt, masks[s], label=s,
-                    **STYLE.get(s, dict(lw=1.0)))
+                    **style_of(s, names[:names.index(s)]))
     style_density_axes(ax, alt, [ds["density"].sel(species=s).values for s in names])
     handles, labels = ax.get_legend_handles_labels()
     shade = shade_doubtful(ax, alt, masks)
@@ -185,7 +215,8 @@ def time_series_figure(ds, *, altitudes_km=(120.0, 200.0, 300.0), species=None,
         top = 0.0
         for s in names:
             n = ds["density"].sel(species=s, altitude=a).values
-            ax.plot(t_h, np.where(n > 0, n, np.nan), label=s, **STYLE.get(s, dict(lw=1.0)))
+            ax.plot(t_h, np.where(n > 0, n, np.nan), label=s,
+                    **style_of(s, names[:names.index(s)]))
             top = max(top, float(np.nanmax(n)))
         ax.set_yscale("log")
         if top > 0:

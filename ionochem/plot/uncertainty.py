@@ -13,7 +13,13 @@ import numpy as np
 
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right, legend_right
-from ionochem.plot.profiles import STYLE, _species_to_draw, save_figure, style_density_axes
+from ionochem.plot.profiles import (
+    STYLE,
+    _species_to_draw,
+    save_figure,
+    style_density_axes,
+    style_of,
+)
 
 #: Fill opacity of each band (the inner band is drawn over the outer one) and the width of the
 #: 90 % band's edge lines (the project's choice).
@@ -51,7 +57,7 @@ def bands_figure(ds, *, species=None, title=None):
     masks = {s: doubtful_mask(ds, s) for s in names}
     shown_vals = []
     for s in names:
-        style = STYLE.get(s, dict(lw=1.0))
+        style = style_of(s, names[:names.index(s)])
         colour = style.get("color", "grey")
 
         def quant(p, s=s):
