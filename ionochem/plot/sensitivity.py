@@ -22,7 +22,7 @@ from ionochem.analysis.rank import (
     where_it_matters,
 )
 from ionochem.errors import InputError
-from ionochem.plot.profiles import STYLE, save_figure
+from ionochem.plot.profiles import save_figure, style_of
 
 #: Diverging map (matplotlib's ``RdBu_r``): positive S red, negative blue, zero white.
 CMAP = "RdBu_r"
@@ -89,7 +89,7 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
         ax_h.set_yticklabels([r.reaction for r in rows], fontsize=8)
         ax_h.invert_yaxis()
         ax_h.set_xlabel("altitude (km)")
-        colour = STYLE.get(s, {}).get("color", "black")
+        colour = style_of(s)["color"]
         edges_alt = np.asarray(edges)
         for i in np.flatnonzero(~matters):
             ax_h.axvspan(edges_alt[i], edges_alt[i + 1], facecolor="none", edgecolor="0.55",
@@ -113,8 +113,8 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
         ax_b.axvline(0.0, color="0.4", lw=0.8)
         # The altitude of the largest |S| beside each bar, outside its end.
         reach = float(np.max(np.abs(np.concatenate([signed, mean])))) or 1.0
-        ax_b.set_xlim(min(-0.05, signed.min()) - 0.5 * reach,
-                      max(0.05, signed.max(), mean.max()) + 0.5 * reach)
+        ax_b.set_xlim(min(-0.05, signed.min()) - 0.65 * reach,
+                      max(0.05, signed.max(), mean.max()) + 0.65 * reach)
         for yi, r, v, m in zip(y, rows, signed, mean, strict=True):
             end = max(v, m) if v >= 0 else v
             ax_b.text(end + (0.03 if v >= 0 else -0.03) * reach, yi,

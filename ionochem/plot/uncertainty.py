@@ -14,7 +14,6 @@ import numpy as np
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right, legend_right
 from ionochem.plot.profiles import (
-    STYLE,
     _species_to_draw,
     save_figure,
     style_density_axes,
@@ -121,7 +120,7 @@ def global_figure(ds, *, species=None, title=None):
             if method == "sobol":
                 ax.plot(ds["S1"].sel(species=s, factor=name).values, alt, ls="--",
                         color=colour, lw=0.9)
-        ax.set_title(s, fontsize=10, color=STYLE.get(s, {}).get("color", "black"))
+        ax.set_title(s, fontsize=10, color=style_of(s)["color"])
         if method == "sobol":
             vals = ds[["S1", "ST"]].sel(species=s).to_array().values
             vals = vals[np.isfinite(vals)]
