@@ -321,7 +321,8 @@ class SchemaValidator(ValueChecks):
     def photons(self, value) -> Photons:
         key = "photons"
         sec = self.table(value, key, ("flux", "spectrum", "extra_spectrum", "secondary",
-                                      "lyman_alpha_photons_cm2_s"))
+                                      "lyman_alpha_photons_cm2_s", "soft_xrays",
+                                      "night_sources"))
         flux = self.choice(sec.get("flux", "euvac"), f"{key}.flux", ("euvac", "table"))
         spectrum = None
         if flux == "table":
@@ -341,8 +342,15 @@ class SchemaValidator(ValueChecks):
         if "lyman_alpha_photons_cm2_s" in sec:
             lya = self.physical(sec["lyman_alpha_photons_cm2_s"],
                                 f"{key}.lyman_alpha_photons_cm2_s")
+        # Soft X-rays join EUVAC only; a user spectrum in 'table' mode holds all its bins.
+        soft_xrays = self.boolean(sec.get("soft_xrays", flux == "euvac"), f"{key}.soft_xrays")
+        if soft_xrays and flux != "euvac":
+            raise self.fail(f"{key}.soft_xrays", "applies only with flux = 'euvac' (a user "
+                            "spectrum in 'table' mode holds all its own bins)")
+        night = self.boolean(sec.get("night_sources", True), f"{key}.night_sources")
         return Photons(flux=flux, spectrum=spectrum, secondary=secondary,
-                       lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra)
+                       lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra,
+                       soft_xrays=soft_xrays, night_sources=night)
 
     def output(self, value, grid: Grid) -> Output:
         key = "output"

@@ -257,6 +257,11 @@ class Photons:
     lyman_alpha_photons_cm2_s : float or None
         Solar Lyman-alpha flux (photons cm-2 s-1); None means the physics module's cited
         default.
+    soft_xrays : bool
+        Add the solar soft X-rays below 50 A to EUVAC (default True; ``flux = "euvac"`` only).
+    night_sources : bool
+        Add the scattered night-time sources (geocoronal Lyman alpha and beta, He I 584 A,
+        He II 304 A), default True.
     """
 
     flux: str = "euvac"
@@ -264,6 +269,8 @@ class Photons:
     secondary: bool = True
     lyman_alpha_photons_cm2_s: float | None = None
     extra_spectrum: Path | None = None
+    soft_xrays: bool = True
+    night_sources: bool = True
 
 
 @dataclass(frozen=True)
