@@ -32,7 +32,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["slant_columns", "vertical_columns", "EARTH_RADIUS_KM"]
+__all__ = ["slant_columns", "vertical_columns", "column_nodes", "EARTH_RADIUS_KM"]
 
 #: Mean radius of the Earth, km (IUGG mean radius R1 = 6371.0088 km, Moritz 1980,
 #: Bull. Géodésique 54, 395; rounded as is common practice).
@@ -140,6 +140,45 @@ def _extension_integrals(p, r_from, r_nodes, n, nodes, weights):
                                    np.full(p.size, np.inf), r_ext, n_ext[:, None],
                                    nodes, weights)[:, 0]
     return out
+
+
+def column_nodes(profile_alt_km, densities, node_alt_km):
+    """The profile thinned to the nodes nearest a fixed altitude grid, for slant columns.
+
+    The cost of :func:`slant_columns` is levels × profile nodes; a profile that holds every
+    model level as a node makes it quadratic in levels. Keeping, for each altitude of a
+    fixed grid (``extended_grid_km`` without levels: 1 km to 150 km, 2.5 km to 400 km,
+    10 km above), the profile node nearest to it makes the node count independent of the
+    levels, so the columns cost is linear in levels. Accuracy against the full profile
+    (tests/test_slant.py, NRLMSIS 2.1 profile with 500–5,000 levels from 90 to 450 km):
+    slant columns agree to 1e-4 relative where the optical depth matters (columns below
+    1e20 cm-2 of the main absorbers at zenith angles 0–95°); see the test for the figures.
+
+    Parameters
+    ----------
+    profile_alt_km : array_like, shape (node,)
+        Strictly increasing profile altitudes (km).
+    densities : dict[str, array_like], each shape (node,)
+        Number densities (cm-3) on the profile.
+    node_alt_km : array_like
+        The fixed grid (km); its span is clipped to the profile's.
+
+    Returns
+    -------
+    alt : ndarray, shape (kept,)
+        Kept profile altitudes (km), the lowest and highest node always among them.
+    dens : dict[str, ndarray]
+        The densities at the kept nodes (cm-3).
+    """
+    zp = np.asarray(profile_alt_km, dtype=float)
+    g = np.asarray(node_alt_km, dtype=float)
+    g = g[(g >= zp[0]) & (g <= zp[-1])]
+    j = np.clip(np.searchsorted(zp, g), 1, zp.size - 1)
+    nearest = np.where(np.abs(zp[j - 1] - g) <= np.abs(zp[j] - g), j - 1, j)
+    keep = np.unique(np.concatenate([[0, zp.size - 1], nearest]))
+    if keep.size >= zp.size:
+        return zp, {k: np.asarray(v, dtype=float) for k, v in densities.items()}
+    return zp[keep], {k: np.asarray(v, dtype=float)[keep] for k, v in densities.items()}
 
 
 def slant_columns(altitude_km, zenith_deg, profile_alt_km, densities, *,

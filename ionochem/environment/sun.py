@@ -138,6 +138,10 @@ class SunColumn:
                     f"{scenario.source}: neutrals.table: no {', '.join(lacking)} column; "
                     "these absorbers are left out of the optical depth")
             alt, dens = _extend_down(alt, dens)
+        # Columns on a fixed node grid: cost linear in levels (slant.column_nodes).
+        from ionochem.environment.neutrals import extended_grid_km
+        from ionochem.environment.slant import column_nodes
+        alt, dens = column_nodes(alt, dens, extended_grid_km(bottom_km=alt[0], top_km=alt[-1]))
         self.profile_alt = alt
         self.profile = dens
         self.msis_profile = profile
