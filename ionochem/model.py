@@ -522,12 +522,21 @@ class Model:
 
     def solve(self):
         """Steady state (photochemical equilibrium) at every level → ``xarray.Dataset``."""
-        from ionochem.analysis.diagnostics import add_steady_diagnostics
-        from ionochem.io.dataset import steady_dataset
+        import xarray as xr
+
+        from ionochem.analysis.diagnostics import steady_diagnostic_vars
+        from ionochem.io.dataset import steady_variables
         from ionochem.solve.steady import METHOD_NAMES
-        ds = steady_dataset(self, self.steady_densities(), METHOD_NAMES)
-        add_steady_diagnostics(self, ds)
-        return ds
+        # Variables as plain dicts, one Dataset at the end (no merge per variable).
+        data_vars, coords, attrs = steady_variables(self, self.steady_densities(),
+                                                    METHOD_NAMES)
+        extra, extra_coords, extra_attrs = steady_diagnostic_vars(
+            self, data_vars["density"][1], data_vars["loss"][1], coords["role"][1],
+            data_vars["reaction_rate"][1], list(coords["species"][1]))
+        data_vars.update(extra)
+        coords.update(extra_coords)
+        attrs.update(extra_attrs)
+        return xr.Dataset(data_vars, coords=coords, attrs=attrs)
 
     def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
         """Integrate in time from ``initial`` (default: zero ion densities).

@@ -63,26 +63,53 @@ def oplus_diffusion_time(env):
 
 def add_steady_diagnostics(model, ds):
     """Add the diagnostics listed in the module docstring to ``ds`` in place."""
+    data_vars, coords, attrs = steady_diagnostic_vars(
+        model, ds["density"].values, ds["loss"].values, ds["role"].values,
+        ds["reaction_rate"].values, list(ds["species"].values))
+    ds.update(data_vars)
+    ds.coords.update(coords)
+    ds.attrs.update(attrs)
+
+
+def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
+    """The diagnostics of the module docstring as plain dicts, for one Dataset build.
+
+    Parameters
+    ----------
+    model : Model
+    dens, loss : ndarray, shape (species, altitude)
+        Densities (cm-3) and gross chemical loss (cm-3 s-1) of the dataset's species.
+    roles : array_like of str, shape (species,)
+    rates : ndarray, shape (reaction, altitude)
+        Volume reaction rates, cm-3 s-1.
+    species : list of str
+        The dataset's species names.
+
+    Returns
+    -------
+    data_vars, coords, attrs : dict
+        Name -> (dims, values, attrs) variables, coordinates and global attributes.
+    """
     env = model.environment
     mech = model.mechanism
-    dens = ds["density"]
-    loss = ds["loss"]
+    out = {}
+    coords = {}
+    attrs = {}
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        life = np.where(loss.values > 0, dens.values / loss.values, np.inf)
-    roles = ds["role"].values
-    life[roles == "fixed"] = np.nan
-    ds["lifetime"] = (("species", "altitude"), life,
-                      {"units": "s", "long_name": "chemical lifetime n/L"})
+        life = np.where(loss > 0, dens / loss, np.inf)
+    life[np.asarray(roles) == "fixed"] = np.nan
+    out["lifetime"] = (("species", "altitude"), life,
+                       {"units": "s", "long_name": "chemical lifetime n/L"})
     tau_d = oplus_diffusion_time(env)
-    ds["diffusion_time"] = ("altitude", tau_d,
-                            {"units": "s", "long_name": "O+ ambipolar diffusion time H_p^2/D_a"})
-    doubtful = (life > tau_d[None, :]) & np.isfinite(life) & (dens.values > 0)
-    ds["pce_doubtful"] = (("species", "altitude"), doubtful.astype(np.int8),
-                          {"long_name": "photochemical equilibrium doubtful: lifetime longer "
-                           "than the diffusion time", "flag_values": np.array([0, 1], np.int8),
-                           "flag_meanings": "equilibrium_plausible equilibrium_doubtful"})
+    out["diffusion_time"] = ("altitude", tau_d,
+                             {"units": "s",
+                              "long_name": "O+ ambipolar diffusion time H_p^2/D_a"})
+    doubtful = (life > tau_d[None, :]) & np.isfinite(life) & (dens > 0)
+    out["pce_doubtful"] = (("species", "altitude"), doubtful.astype(np.int8),
+                           {"long_name": "photochemical equilibrium doubtful: lifetime longer "
+                            "than the diffusion time", "flag_values": np.array([0, 1], np.int8),
+                            "flag_meanings": "equilibrium_plausible equilibrium_doubtful"})
 
-    rates = ds["reaction_rate"].values            # (R, A)
     ver = []
     labels = []
     for name, upper, lower, label in EMISSIONS:
@@ -98,28 +125,28 @@ def add_steady_diagnostics(model, ds):
             ver.append(total)
             labels.append((name, label))
     if ver:
-        ds["volume_emission_rate"] = (("emission", "altitude"), np.array(ver),
-                                      {"units": "cm-3 s-1",
-                                       "long_name": "volume emission rate (photons per cm3 per s)"})
-        ds.coords["emission"] = ("emission", np.array([n for n, _ in labels], dtype=object))
-        ds.coords["emission_line"] = ("emission", np.array([lab for _, lab in labels],
-                                                           dtype=object))
+        out["volume_emission_rate"] = (("emission", "altitude"), np.array(ver),
+                                       {"units": "cm-3 s-1", "long_name": "volume emission "
+                                        "rate (photons per cm3 per s)"})
+        coords["emission"] = ("emission", np.array([n for n, _ in labels], dtype=object))
+        coords["emission_line"] = ("emission", np.array([lab for _, lab in labels],
+                                                        dtype=object))
 
     # Ionization–recombination balance from the electron row of the stoichiometry.
     if ELECTRON in mech.all_species:
         nu_e = mech.nu_all[mech.index(ELECTRON)]
         ion = np.clip(nu_e, 0, None) @ rates
         rec = np.clip(-nu_e, 0, None) @ rates
-        ds["ionization_rate"] = ("altitude", ion, {"units": "cm-3 s-1",
-                                                   "long_name": "electron production"})
-        ds["recombination_rate"] = ("altitude", rec, {"units": "cm-3 s-1",
-                                                      "long_name": "electron loss"})
+        out["ionization_rate"] = ("altitude", ion, {"units": "cm-3 s-1",
+                                                    "long_name": "electron production"})
+        out["recombination_rate"] = ("altitude", rec, {"units": "cm-3 s-1",
+                                                       "long_name": "electron loss"})
         z_cm = env.altitude_km * 1e5
         col_ion = np.trapezoid(ion, z_cm) if ion.size > 1 else float(ion.sum())
         col_rec = np.trapezoid(rec, z_cm) if rec.size > 1 else float(rec.sum())
-        ds.attrs["column_ionization_cm2_s"] = float(col_ion)
-        ds.attrs["column_recombination_cm2_s"] = float(col_rec)
-        ds.attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
+        attrs["column_ionization_cm2_s"] = float(col_ion)
+        attrs["column_recombination_cm2_s"] = float(col_rec)
+        attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
             else 0.0
 
     dark = env.dark(None)
@@ -132,21 +159,23 @@ def add_steady_diagnostics(model, ds):
                      "layer)" if night else
                      "every level is dark: photochemistry alone cannot sustain the night "
                      "ionosphere (no transport, no night-time sources)")
-    ds["dark"] = ("altitude", dark.astype(np.int8),
-                  {"long_name": "no direct sunlight reaches the level",
-                   "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})
-    ds["solar_zenith_angle"] = ((), float(env.solar_zenith_angle(None)),
-                                {"units": "degree", "long_name": "solar zenith angle"})
+    out["dark"] = ("altitude", dark.astype(np.int8),
+                   {"long_name": "no direct sunlight reaches the level",
+                    "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})
+    out["solar_zenith_angle"] = ((), float(env.solar_zenith_angle(None)),
+                                 {"units": "degree", "long_name": "solar zenith angle"})
     if env.electron_density is not None and mech.balance_ion is not None:
-        b = list(ds["species"].values).index(mech.balance_ion)
-        neg = ds["density"].values[b] < 0
-        ds["balance_negative"] = ("altitude", neg.astype(np.int8),
-                                  {"long_name": f"{mech.balance_ion} = Ne - other ions "
-                                   "would be negative", "flag_values": np.array([0, 1], np.int8),
-                                   "flag_meanings": "ok negative"})
+        b = list(species).index(mech.balance_ion)
+        neg = dens[b] < 0
+        out["balance_negative"] = ("altitude", neg.astype(np.int8),
+                                   {"long_name": f"{mech.balance_ion} = Ne - other ions "
+                                    "would be negative",
+                                    "flag_values": np.array([0, 1], np.int8),
+                                    "flag_meanings": "ok negative"})
         if neg.any():
             alt = env.altitude_km[neg]
             notes.append(f"{mech.balance_ion} = Ne - other ions is negative at {neg.sum()} "
                          f"level(s), {alt.min():g}-{alt.max():g} km: the given Ne is below "
                          "the molecular ions there")
-    ds.attrs["warnings"] = "; ".join(str(n) for n in notes)
+    attrs["warnings"] = "; ".join(str(n) for n in notes)
+    return out, coords, attrs

@@ -154,6 +154,25 @@ def steady_dataset(model, res, method_names):
     (:func:`ionochem.analysis.diagnostics.add_steady_diagnostics`), so this module imports
     neither the solver nor the analyses.
     """
+    data_vars, coords, attrs = steady_variables(model, res, method_names)
+    return xr.Dataset(data_vars, coords=coords, attrs=attrs)
+
+
+def steady_variables(model, res, method_names):
+    """The variables of :func:`steady_dataset` as plain dicts, before any Dataset exists.
+
+    Building the Dataset once from dicts avoids one xarray merge per added variable
+    (``Model.solve`` adds the diagnostics to these dicts, then makes one Dataset).
+
+    Returns
+    -------
+    data_vars : dict
+        Name -> (dims, values, attrs) or ``xarray.Variable``.
+    coords : dict
+        Coordinate name -> (dims, values[, attrs]).
+    attrs : dict
+        Global attributes (provenance).
+    """
     mech = model.mechanism
     alt = model.altitude_km
     dens, names, roles = species_table(model, res.n)
@@ -177,46 +196,45 @@ def steady_dataset(model, res, method_names):
         stoich[col] = nu
         prod[:, col] = rates @ np.clip(nu, 0, None)
         loss[:, col] = rates @ np.clip(-nu, 0, None)
-    ds = xr.Dataset(
-        {
-            "density": (("species", "altitude"), dens.T,
-                        {"units": "cm-3", "long_name": "number density"}),
-            "production": (("species", "altitude"), prod.T,
-                           {"units": "cm-3 s-1", "long_name": "gross chemical production"}),
-            "loss": (("species", "altitude"), loss.T,
-                     {"units": "cm-3 s-1", "long_name": "gross chemical loss"}),
-            **rate_coefficient_vars(model, k.T, ("reaction", "altitude")),
-            "reaction_rate": (("reaction", "altitude"), rates.T,
-                              {"units": "cm-3 s-1", "long_name": "volume reaction rate"}),
-            "net_stoichiometry": (("species", "reaction"), stoich,
-                                  {"units": "1", "long_name": "net stoichiometric coefficient "
-                                   "(products minus reactants)"}),
-            "residual": ("altitude", res.residual,
-                         {"units": "1", "long_name": "largest relative residual "
-                          "|f_i|/(P_i+L_i) of the steady state"}),
-            "iterations": ("altitude", res.iterations.astype(np.int32),
-                           {"units": "1", "long_name": "solver iterations"}),
-            "solver_method": ("altitude", res.method.astype(np.int8),
-                              {"long_name": "method that converged",
-                               "flag_values": np.array(sorted(method_names), np.int8),
-                               "flag_meanings": " ".join(method_names[k]
-                                                         for k in sorted(method_names))}),
-        },
-        coords={
-            "altitude": ("altitude", alt, ALTITUDE_ATTRS),
-            "species": ("species", np.array(names, dtype=object)),
-            "role": ("species", np.array(roles, dtype=object),
-                     {"long_name": "solved, fixed, electron, balance or derived"}),
-            "reaction": ("reaction", np.array(model.reactions, dtype=object)),
-            "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
-                                              dtype=object)),
-        },
-        attrs=provenance(model),
-    )
-    for name, var in _environment_vars(model).items():
-        ds[name] = var
-    _add_level_outputs(model, ds, k, dens, names, ())
-    return ds
+    data_vars = {
+        "density": (("species", "altitude"), dens.T,
+                    {"units": "cm-3", "long_name": "number density"}),
+        "production": (("species", "altitude"), prod.T,
+                       {"units": "cm-3 s-1", "long_name": "gross chemical production"}),
+        "loss": (("species", "altitude"), loss.T,
+                 {"units": "cm-3 s-1", "long_name": "gross chemical loss"}),
+        **rate_coefficient_vars(model, k.T, ("reaction", "altitude")),
+        "reaction_rate": (("reaction", "altitude"), rates.T,
+                          {"units": "cm-3 s-1", "long_name": "volume reaction rate"}),
+        "net_stoichiometry": (("species", "reaction"), stoich,
+                              {"units": "1", "long_name": "net stoichiometric coefficient "
+                               "(products minus reactants)"}),
+        "residual": ("altitude", res.residual,
+                     {"units": "1", "long_name": "largest relative residual "
+                      "|f_i|/(P_i+L_i) of the steady state"}),
+        "iterations": ("altitude", res.iterations.astype(np.int32),
+                       {"units": "1", "long_name": "solver iterations"}),
+        "solver_method": ("altitude", res.method.astype(np.int8),
+                          {"long_name": "method that converged",
+                           "flag_values": np.array(sorted(method_names), np.int8),
+                           "flag_meanings": " ".join(method_names[k]
+                                                     for k in sorted(method_names))}),
+    }
+    coords = {
+        "altitude": ("altitude", alt, ALTITUDE_ATTRS),
+        "species": ("species", np.array(names, dtype=object)),
+        "role": ("species", np.array(roles, dtype=object),
+                 {"long_name": "solved, fixed, electron, balance or derived"}),
+        "reaction": ("reaction", np.array(model.reactions, dtype=object)),
+        "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
+                                          dtype=object)),
+    }
+    data_vars.update(_environment_vars(model))
+    from ionochem.io.level_outputs import level_output_vars
+    out = level_output_vars(model, k, dens, names, ())
+    coords.update({c: out.pop(c) for c in ("family_reaction", "family_species") if c in out})
+    data_vars.update(out)
+    return data_vars, coords, provenance(model)
 
 
 def _add_level_outputs(model, ds, k, dens, names, lead_dims):
