@@ -500,10 +500,12 @@ class Model:
         given = self.given if given is None else given
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
+        from ionochem.solve.threads import single_thread_blas
         names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
         try:
-            return solve_rows(self.mechanism, k, given, rtol=rtol,
-                              level_names=[f"{a:g} km" for a in names])
+            with single_thread_blas():  # batches of small matrices (solve/threads.py)
+                return solve_rows(self.mechanism, k, given, rtol=rtol,
+                                  level_names=[f"{a:g} km" for a in names])
         except SolverError as exc:
             raise self._solver_failure(exc, rtol) from None
 
@@ -527,12 +529,15 @@ class Model:
         from ionochem.analysis.diagnostics import steady_diagnostic_vars
         from ionochem.io.dataset import steady_variables
         from ionochem.solve.steady import METHOD_NAMES
+        from ionochem.solve.threads import single_thread_blas
+
         # Variables as plain dicts, one Dataset at the end (no merge per variable).
-        data_vars, coords, attrs = steady_variables(self, self.steady_densities(),
-                                                    METHOD_NAMES)
-        extra, extra_coords, extra_attrs = steady_diagnostic_vars(
-            self, data_vars["density"][1], data_vars["loss"][1], coords["role"][1],
-            data_vars["reaction_rate"][1], list(coords["species"][1]))
+        with single_thread_blas():  # batches of small matrices (solve/threads.py)
+            data_vars, coords, attrs = steady_variables(self, self.steady_densities(),
+                                                        METHOD_NAMES)
+            extra, extra_coords, extra_attrs = steady_diagnostic_vars(
+                self, data_vars["density"][1], data_vars["loss"][1], coords["role"][1],
+                data_vars["reaction_rate"][1], list(coords["species"][1]))
         data_vars.update(extra)
         coords.update(extra_coords)
         attrs.update(extra_attrs)

@@ -15,6 +15,7 @@ import numpy as np
 
 from ionochem.analysis.sampling import base_rates
 from ionochem.errors import InputError, SolverError
+from ionochem.solve.threads import single_thread_blas  # noqa: F401 (re-exported)
 
 ROW_TARGET = 1000          # rows (samples × levels) per batch by default (see the benchmark)
 INFLIGHT_PER_WORKER = 2    # tasks queued per worker thread on dask (latency hiding)
@@ -81,22 +82,6 @@ def dask_client(workers=None, scheduler=None):
         client.close()
         if cluster is not None:
             cluster.close()
-
-
-def single_thread_blas():
-    """Limit BLAS to one thread while solving in this process.
-
-    The batched Newton multiplies many small matrices (rows × reactions by reactions ×
-    species); a multi-threaded BLAS spends more on synchronisation than it gains there
-    (measured: 2.5 ms against 15 ms for one production/loss evaluation of 1810 rows on two
-    cores). dask workers get the same setting from distributed's default
-    ``OPENBLAS_NUM_THREADS=1``. Without threadpoolctl this does nothing.
-    """
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # pragma: no cover - optional
-        return contextlib.nullcontext()
-    return threadpool_limits(limits=1, user_api="blas")
 
 
 def _split(gaps, size):

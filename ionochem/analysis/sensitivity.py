@@ -99,6 +99,12 @@ def sensitivity(model, result=None):
         and the fixed neutrals (see the module docstring), dimensionless, with the densities
         they refer to.
     """
+    from ionochem.solve.threads import single_thread_blas
+    with single_thread_blas():  # faster for batches of small matrices (solve/threads.py)
+        return _sensitivity(model, result)
+
+
+def _sensitivity(model, result):
     ds = model.solve() if result is None else result
     mech = model.mechanism
     n = _solved_matrix(model, ds)                       # (A, S)

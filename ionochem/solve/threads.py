@@ -1,0 +1,26 @@
+"""One BLAS thread around the batched solves.
+
+The batched Newton, the sensitivity solves and the ensemble multiply and factorise many
+small matrices (levels × species × species, rows × reactions by reactions × species); a
+multi-threaded BLAS spends more on synchronisation than it gains there. Measured on a
+shared two-core machine (benchmarks/bench_perf.py, medians): Newton on the demo column with
+200 levels 40 ms with the default threads against 17 ms with one, with 1,000 levels 456 ms
+against 62 ms; ``sensitivity()`` 137 against 73 ms (200 levels) and 215 against 150 ms
+(1,000 levels); one production/loss evaluation of 1,810 rows 15 ms against 2.5 ms. dask
+workers get the same setting from distributed's default ``OPENBLAS_NUM_THREADS=1``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+
+__all__ = ["single_thread_blas"]
+
+
+def single_thread_blas():
+    """Context manager limiting BLAS to one thread (does nothing without threadpoolctl)."""
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - optional
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
