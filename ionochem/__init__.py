@@ -17,6 +17,7 @@ __all__ = [
     "SolverError", "TableRangeError", "__version__",
 ]
 
+from ionochem.io.observations import load_observations  # noqa: E402
 from ionochem.model import Model, load_mechanism, load_scenario  # noqa: E402
 
-__all__ += ["Model", "load_mechanism", "load_scenario"]
+__all__ += ["Model", "load_mechanism", "load_observations", "load_scenario"]

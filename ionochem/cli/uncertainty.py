@@ -11,6 +11,7 @@ import sys
 
 import numpy as np
 
+from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     check_outputs,
     load_model,
@@ -66,6 +67,7 @@ def register(subparsers):
     u.add_argument("--no-progress", action="store_true", help="no progress bar")
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
+    add_observed_option(u)
     u.set_defaults(func=cmd_uncertainty)
     return subparsers
 
@@ -111,6 +113,7 @@ def cmd_uncertainty(args):
     _check_args(args)
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
+    observed = load_observed(args)
     scen, model = load_model(args)
     check_outputs(args, inputs=scenario_inputs(scen))
     if scen.solve.mode != "steady":
@@ -138,6 +141,8 @@ def cmd_uncertainty(args):
         _print_montecarlo(ds)
     else:
         _print_global(ds)
+    if observed is not None:
+        _print_observed_misfit(observed, ds)
     stamp_history(ds, args)
     if args.output:
         write_netcdf(ds, args.output)
@@ -148,9 +153,23 @@ def cmd_uncertainty(args):
             remove_store(args.output)
     if args.plot:
         from ionochem.plot.uncertainty import plot_uncertainty
-        plot_uncertainty(ds, args.plot)
+        plot_uncertainty(ds, args.plot, observed=observed)
         print(f"wrote {args.plot}")
     return 0
+
+
+def _print_observed_misfit(observed, ds):
+    """Misfit of the Monte Carlo median and of the central (unperturbed) column."""
+    from ionochem.analysis.misfit import misfit_of_dataset
+    if "density_quantiles" not in ds:
+        print("note: --observed: no misfit for a global-sensitivity run (no density "
+              "profiles); the misfit needs --method montecarlo", file=sys.stderr)
+        return
+    fits = {"median": misfit_of_dataset(
+        observed, ds, density=ds["density_quantiles"].sel(quantile=0.5))}
+    if "density_central" in ds:
+        fits["central"] = misfit_of_dataset(observed, ds, density=ds["density_central"])
+    print_misfit(observed, fits)
 
 
 def _main_species(names):

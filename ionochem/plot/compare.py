@@ -30,7 +30,7 @@ def _species(ds, wanted):
     return out
 
 
-def plot_compare(ds, path, *, species=None, title=None):
+def plot_compare(ds, path, *, species=None, title=None, observed=None):
     """Profiles (baseline solid, changed dashed) beside the percentage change.
 
     Parameters
@@ -43,6 +43,8 @@ def plot_compare(ds, path, *, species=None, title=None):
         Default: electrons and the main ions present.
     title : str, optional
         Default: the dataset's title and the changes.
+    observed : xarray.Dataset, optional
+        Measurements (:func:`ionochem.load_observations`) drawn on the profiles.
 
     Returns
     -------
@@ -76,6 +78,8 @@ def plot_compare(ds, path, *, species=None, title=None):
     ax_n.set_xlabel("number density (cm$^{-3}$)")
     ax_n.set_ylabel("altitude (km)")
     ax_n.grid(True, which="major", alpha=0.3)
+    from ionochem.plot.observations import overlay_observations
+    overlay_observations(ax_n, observed, names)
     handles, labels = ax_n.get_legend_handles_labels()
     from matplotlib.lines import Line2D
     handles += [Line2D([], [], color="0.3", ls="-"), Line2D([], [], color="0.3", ls="--")]

@@ -64,8 +64,12 @@ def _figure_bytes(fig, path):
     return buf.getvalue()
 
 
-def plot_profiles(ds, path, *, species=None, title=None):
-    """Densities against altitude on a log density axis (steady results)."""
+def plot_profiles(ds, path, *, species=None, title=None, observed=None):
+    """Densities against altitude on a log density axis (steady results).
+
+    ``observed`` (from :func:`ionochem.load_observations`) adds the measurements of the
+    species shown, with error bars.
+    """
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
@@ -77,6 +81,8 @@ def plot_profiles(ds, path, *, species=None, title=None):
         shown = np.where(n > 0, n, np.nan)
         ax.plot(shown, alt, label=s, **STYLE.get(s, dict(lw=1.0)))
     style_density_axes(ax, alt, [ds["density"].sel(species=s).values for s in names])
+    from ionochem.plot.observations import overlay_observations
+    overlay_observations(ax, observed, names)
     ax.legend(loc="best", fontsize=9, framealpha=0.9)
     sza = ds.get("solar_zenith_angle")
     subtitle = ""
@@ -124,7 +130,9 @@ def plot_time_series(ds, path, *, altitudes_km=(120.0, 200.0, 300.0), species=No
 
 
 def plot_result(ds, path, **kw):
-    """Profiles for a steady result, time series for a transient one."""
+    """Profiles for a steady result, time series for a transient one (``observed`` is
+    drawn on profiles only)."""
     if "time" in ds.dims:
+        kw.pop("observed", None)
         return plot_time_series(ds, path, **kw)
     return plot_profiles(ds, path, **kw)

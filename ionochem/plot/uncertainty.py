@@ -19,11 +19,12 @@ from ionochem.plot.profiles import STYLE, _figure_bytes, _species_to_draw, style
 BAND_ALPHA = {0.90: 0.15, 0.68: 0.32}
 
 
-def plot_uncertainty(ds, path, *, species=None, title=None):
-    """Write the figure of an uncertainty dataset (by its ``method`` attribute)."""
+def plot_uncertainty(ds, path, *, species=None, title=None, observed=None):
+    """Write the figure of an uncertainty dataset (by its ``method`` attribute); the
+    measurements ``observed`` are drawn on the Monte Carlo bands."""
     if ds.attrs.get("method") in ("sobol", "morris"):
         return plot_global(ds, path, species=species, title=title)
-    return plot_bands(ds, path, species=species, title=title)
+    return plot_bands(ds, path, species=species, title=title, observed=observed)
 
 
 def _pyplot():
@@ -33,7 +34,7 @@ def _pyplot():
     return plt
 
 
-def plot_bands(ds, path, *, species=None, title=None):
+def plot_bands(ds, path, *, species=None, title=None, observed=None):
     """Median densities against altitude with shaded 68 % and 90 % Monte Carlo bands."""
     plt = _pyplot()
     names = species or [s for s in _species_to_draw(ds) if s not in ("O+(2D)", "O+(2P)")]
@@ -57,6 +58,8 @@ def plot_bands(ds, path, *, species=None, title=None):
         shown_vals.append(quant(0.05))
         shown_vals.append(quant(0.95))
     style_density_axes(ax, alt, shown_vals)
+    from ionochem.plot.observations import overlay_observations
+    overlay_observations(ax, observed, names)
     ax.legend(loc="best", fontsize=9, framealpha=0.9,
               title="median; 68 % and 90 % bands", title_fontsize=8)
     sub = f"\nMonte Carlo over rate uncertainties, {ds.attrs.get('samples', '?')} samples"
