@@ -30,7 +30,7 @@ R5: O+ + e -> O | k = 4.0e-12 | ref = invented test
 def small_column(column, name="s", extra=""):
     """A four-ion synthetic column (invented) on 10 levels."""
     z = ALT
-    neutrals = {"O": 5e10 * np.exp(-(z - 120) / 45), "N2": 2e11 * np.exp(-(z - 120) / 30),
+    neutrals = {"O": 5e8 * np.exp(-(z - 120) / 45), "N2": 2e11 * np.exp(-(z - 120) / 30),
                 "N": 1e7 * np.ones_like(z)}
     prod = {"P1": 2e3 * np.exp(-((z - 180) / 60) ** 2),
             "P2": 8e2 * np.exp(-((z - 160) / 40) ** 2)}

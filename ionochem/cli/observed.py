@@ -33,16 +33,17 @@ def misfit_table(obs, fits):
     """Aligned table of χ² per species and band for one or more model columns.
 
     ``fits`` maps a label (``"model"``, ``"baseline"``, ``"changed"``) to a
-    :class:`ionochem.analysis.misfit.Misfit` of the same observations.
+    :class:`ionochem.analysis.misfit.Misfit` of the same observations (or its list of
+    :class:`~ionochem.analysis.misfit.MisfitRow`).
     """
+    fits = {label: getattr(mf, "rows", mf) for label, mf in fits.items()}
     labels = list(fits)
     header = ["species", "band", "points"]
     for label in labels:
         header += [f"chi2 {label}", f"chi2/pt {label}", f"model/obs {label}"]
     table = Table(header, align=["<", "<"] + [">"] * (len(header) - 2))
-    keyed = {label: {(r.species, r.band): r for r in mf.rows} for label, mf in fits.items()}
-    first = fits[labels[0]]
-    for row in first.rows:
+    keyed = {label: {(r.species, r.band): r for r in rows} for label, rows in fits.items()}
+    for row in fits[labels[0]]:
         cells = [row.species, f"{row.band} {row.low_km:g}-{row.high_km:g}", row.points]
         for label in labels:
             r = keyed[label].get((row.species, row.band))
