@@ -178,3 +178,25 @@ def test_run_compare_uncertainty_print_misfit_and_draw(column, tmp_path, capsys)
     assert "chi2 median" in out
     for f in ("r.png", "c.png", "u.png"):
         assert (tmp_path / f).stat().st_size > 1000
+
+
+def test_overlay_draws_the_shown_species_only(tmp_path):
+    """The overlay draws one error-bar set per shown species with observations, none for
+    ratios or species not shown, and widens the density axis to hold the points."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from ionochem.plot.observations import overlay_observations
+    path = tmp_path / "obs.csv"
+    path.write_text(GOOD)
+    obs = ionochem.load_observations(path)
+    fig, ax = plt.subplots()
+    ax.set_xscale("log")
+    ax.set_xlim(1e3, 1e4)
+    drawn = overlay_observations(ax, obs, ["N2+", "e", "NO+"])
+    assert len(drawn) == 2
+    lo, hi = ax.get_xlim()
+    assert lo <= 30 / 2 and hi >= 2.6e4
+    assert overlay_observations(ax, None, ["N2+"]) == []
+    plt.close(fig)

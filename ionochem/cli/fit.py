@@ -105,6 +105,16 @@ def cmd_fit(args):
             corr.add(p, *(f"{float(ds['correlation'].sel(parameter=p, parameter_b=q)):+.3f}"
                           for q in names))
         print(corr.text())
+    sv = ds["singular_value"].values
+    if sv.size and sv.max() > 0:
+        k = int(np.argmin(sv))
+        vec = ds["singular_vector"].values[k]
+        vec = vec / np.max(np.abs(vec))
+        combo = " ".join(f"{c:+.2f} ln m({n})" for c, n in zip(vec, names) if abs(c) > 0.05)
+        spread = f"+-{1 / sv[k]:.2g}" if sv[k] > 0 else "not at all"
+        print(f"identifiability (data alone): singular values "
+              f"{', '.join(f'{v:.3g}' for v in sv)}; the weakest combination {combo} is "
+              f"constrained to {spread} in ln by the data")
     sub = observations_of_fit(ds)
     rows_base = band_rows(sub, ds["residual_baseline"].values,
                           np.log(ds["model_baseline"].values))
