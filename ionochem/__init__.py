@@ -18,6 +18,12 @@ __all__ = [
 ]
 
 from ionochem.io.observations import load_observations  # noqa: E402
-from ionochem.model import Model, load_mechanism, load_scenario  # noqa: E402
+from ionochem.model import (  # noqa: E402
+    Model,
+    load_mechanism,
+    load_reaction_list,
+    load_scenario,
+)
 
-__all__ += ["Model", "load_mechanism", "load_observations", "load_scenario"]
+__all__ += ["Model", "load_mechanism", "load_observations", "load_reaction_list",
+            "load_scenario"]

@@ -18,10 +18,19 @@ from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
 
 
-def load_mechanism(path):
-    """Parse a reaction list (``*.reactions``) into a :class:`ReactionList`."""
+def load_reaction_list(path):
+    """Parse a reaction list (``*.reactions``) into a :class:`ReactionList`.
+
+    The parsed list is text made structured; :class:`Model` compiles it into a
+    :class:`~ionochem.mechanism.mechanism.Mechanism` (``model.mechanism``: stoichiometry,
+    tendency, Jacobian) bound to a column.
+    """
     from ionochem.mechanism.parser import parse_reaction_list
     return parse_reaction_list(path)
+
+
+#: The contract name (DESIGN.md §4) of :func:`load_reaction_list`.
+load_mechanism = load_reaction_list
 
 
 def load_scenario(path):
@@ -59,7 +68,9 @@ class Model:
     scenario : Scenario
         From :func:`load_scenario`.
     mechanism : ReactionList, optional
-        From :func:`load_mechanism`; default the scenario's own ``reactions``.
+        A parsed reaction list (:func:`load_reaction_list`, contract name
+        :func:`load_mechanism`); default the scenario's own ``reactions``. The keyword
+        ``reaction_list=`` says the same; the compiled form is :attr:`mechanism`.
     environment : Environment, optional
         Reuse an already-built column (for changed copies of a model).
 
@@ -69,10 +80,19 @@ class Model:
         Solved species, the column order of ``n``.
     reactions : list of str
         Reaction ids in order.
+    reaction_list : ReactionList
+        The parsed list the model was built from.
+    mechanism : Mechanism
+        The compiled mechanism (stoichiometry, tendency, Jacobian) on this column's fixed
+        species.
     """
 
-    def __init__(self, scenario, mechanism=None, *, environment=None, _changes=None):
+    def __init__(self, scenario, mechanism=None, *, reaction_list=None, environment=None,
+                 _changes=None):
         from ionochem.environment.column import build_environment
+        if mechanism is not None and reaction_list is not None:
+            raise TypeError("give the reaction list once: mechanism= or reaction_list=")
+        mechanism = reaction_list if mechanism is None else mechanism
         self.scenario = scenario
         if mechanism is None:
             mechanism = load_mechanism(scenario.reactions)
@@ -425,33 +445,23 @@ class Model:
         ``k`` and ``given`` default to the model's own (one row per altitude); they may
         stack several samples of the column as extra rows. Returns a ``SteadyResult``.
         """
-        from ionochem.solve.steady import solve_steady
+        from ionochem.solve.batch import solve_rows
         k = self._k_static if k is None else k
         given = self.given if given is None else given
-        mech = self.mechanism
-        S = len(mech.solved)
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
-
-        def tendency(n, rows):
-            return mech.tendency(n, k[rows], given[rows])
-
-        def jacobian(n, rows):
-            return mech.jacobian(n, k[rows], given[rows])
-
-        def gross(n, rows):
-            P, L = mech.production_loss(n, k[rows], given[rows])
-            return P[:, :S], L[:, :S]
-
         names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
-        return solve_steady(np.zeros((k.shape[0], S)), tendency, jacobian, gross, rtol=rtol,
-                            level_names=[f"{a:g} km" for a in names])
+        return solve_rows(self.mechanism, k, given, rtol=rtol,
+                          level_names=[f"{a:g} km" for a in names])
 
     def solve(self):
         """Steady state (photochemical equilibrium) at every level → ``xarray.Dataset``."""
+        from ionochem.analysis.diagnostics import add_steady_diagnostics
         from ionochem.io.dataset import steady_dataset
-        res = self.steady_densities()
-        return steady_dataset(self, res)
+        from ionochem.solve.steady import METHOD_NAMES
+        ds = steady_dataset(self, self.steady_densities(), METHOD_NAMES)
+        add_steady_diagnostics(self, ds)
+        return ds
 
     def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
         """Integrate in time from ``initial`` (default: zero ion densities).
@@ -464,7 +474,8 @@ class Model:
         method : {"BDF", "Radau"}
         rtol : float
         atol : float, optional
-            Absolute tolerance, cm-3 (default 1e-8 of the peak production over 1 s, or 1e-6).
+            Absolute tolerance, cm-3 (default 1e-6 cm-3: far below any density of interest,
+            far above the round-off of the largest).
 
         Returns
         -------

@@ -1,10 +1,13 @@
-"""Rank the reactions (and the electron temperature) that control each species.
+"""Rank the reactions (and the environment factors) that control each species.
 
 Input is a sensitivity dataset (:func:`ionochem.analysis.sensitivity.sensitivity`):
-``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and ``sensitivity_Te``
-(species, altitude) = ∂ln n/∂ln Te. The electron temperature enters the ranking as one more
-pseudo-reaction named ``Te``. Two measures over an altitude range: the largest |S| (with
-its sign and the altitude where it occurs) and the mean |S| over the levels in the range.
+``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and
+``sensitivity_environment`` (species, factor, altitude) = ∂ln n/∂ln factor (Te, Ti, Tn, the
+EUV flux, fixed neutral densities; older files carry only ``sensitivity_Te``). The
+environment factors enter the ranking as pseudo-reactions named ``Te``, ``EUV``, ``n(O)``….
+Two measures over an altitude range: the largest |S| (with its sign and the altitude where
+it occurs) and the mean |S| over the levels in the range, counting only the levels where the
+species is at least a share of its own peak (:data:`DEFAULT_MIN_SHARE`).
 A reaction that matters strongly in a thin layer ranks high on the first, one that matters
 everywhere on the second.
 
@@ -98,12 +101,24 @@ def sensitivity_matrix(sens_ds, species, altitude_range=None):
                          f"{', '.join(names)})", file="--species")
     inside = _levels(sens_ds, altitude_range)
     S = sens_ds["sensitivity"].sel(species=species).values[:, inside]      # (R, level)
-    S_te = sens_ds["sensitivity_Te"].sel(species=species).values[inside]
     ids = [str(r) for r in sens_ds["reaction"].values]
     eqs = ([str(e) for e in sens_ds["equation"].values] if "equation" in sens_ds.coords
            else [""] * len(ids))
-    return (ids + [TE_NAME], eqs + ["electron temperature (every Te-dependent rate)"],
-            np.vstack([S, S_te[None]]), sens_ds["altitude"].values[inside])
+    names, descr, S_env = environment_rows(sens_ds, species)
+    return (ids + names, eqs + descr, np.vstack([S, S_env[:, inside]]),
+            sens_ds["altitude"].values[inside])
+
+
+def environment_rows(sens_ds, species):
+    """Names, descriptions and S (factor, altitude) of the environment factors (Te first)."""
+    if "sensitivity_environment" in sens_ds:
+        env = sens_ds["sensitivity_environment"].sel(species=species)
+        names = [str(f) for f in sens_ds["factor"].values]
+        descr = ([str(d) for d in sens_ds["factor_description"].values]
+                 if "factor_description" in sens_ds.coords else [""] * len(names))
+        return names, descr, np.asarray(env.transpose("factor", "altitude").values)
+    S_te = sens_ds["sensitivity_Te"].sel(species=species).values
+    return [TE_NAME], ["electron temperature (every Te-dependent rate)"], S_te[None]
 
 
 def where_it_matters(sens_ds, species, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
@@ -213,10 +228,12 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
     out = sens_ds.copy()
     names = list(sens_ds["species"].values)
     R = sens_ds.sizes["reaction"]
-    shape = (len(names), R + 1)
+    factors = environment_rows(sens_ds, names[0])[0] if names else [TE_NAME]
+    shape = (len(names), R + len(factors))
     mx, sg, at, mean = (np.full(shape, np.nan) for _ in range(4))
     column = {str(r): j for j, r in enumerate(sens_ds["reaction"].values)}
-    column[TE_NAME] = R
+    column.update({f: R + i for i, f in enumerate(factors)})
+    te = column.get(TE_NAME, R)
     for i, s in enumerate(names):
         for r in rank_reactions(sens_ds, s, altitude_range, top=None, min_share=min_share):
             j = column[r.reaction]
@@ -230,10 +247,15 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
     for name, arr, units, long in specs:
         out[name] = xr.Variable(("species", "reaction"), arr[:, :R],
                                 {"units": units, "long_name": long})
-        out[f"{name}_Te"] = xr.Variable(("species",), arr[:, R],
+        out[f"{name}_Te"] = xr.Variable(("species",), arr[:, te],
                                         {"units": units,
                                          "long_name": long.replace("k|", "Te|")
                                          .replace("/ d ln k", "/ d ln Te")})
+        if "factor" in sens_ds.dims:
+            out[f"{name}_environment"] = xr.Variable(
+                ("species", "factor"), arr[:, R:],
+                {"units": units, "long_name": long.replace("d ln k", "d ln factor")
+                 .replace("k|", "factor|")})
     alt = sens_ds["altitude"].values
     lo, hi = altitude_range if altitude_range is not None else (alt.min(), alt.max())
     out.attrs["ranking_altitude_range_km"] = np.array([lo, hi], float)

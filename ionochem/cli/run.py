@@ -109,8 +109,12 @@ def cmd_run(args):
         print_misfit(observed, {"model": misfit_of_dataset(observed, ds)})
     if budgets:
         from ionochem.analysis.budget import budget_table, format_budget
+        at = ds
+        if transient:
+            at = ds.isel(time=-1)
+            print(f"budgets at the last output time, t = {float(at['time_s']):g} s")
         for name, km in budgets:
-            print(format_budget(budget_table(ds, name, km)))
+            print(format_budget(budget_table(at, name, km)))
     if args.csv:
         table.write_csv(args.csv)
         print(f"wrote {args.csv}")

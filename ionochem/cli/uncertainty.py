@@ -13,7 +13,10 @@ import numpy as np
 
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
+    Table,
+    check_output,
     check_outputs,
+    fmt_value,
     load_model,
     print_warnings,
     scenario_inputs,
@@ -64,6 +67,12 @@ def register(subparsers):
                    help="replace the rate expression of a reaction first (repeatable)")
     u.add_argument("--scale", action="append", metavar="ID=FACTOR",
                    help="multiply a rate coefficient first (repeatable)")
+    u.add_argument("--reactions", action="append", metavar="FILE",
+                   help="replacement entries (by id) applied before sampling (repeatable)")
+    u.add_argument("--add", action="append", metavar="FILE",
+                   help="entries with new ids added before sampling (repeatable)")
+    u.add_argument("--csv", metavar="FILE",
+                   help="write the printed table (median and 68 %% factor) as CSV")
     u.add_argument("--no-progress", action="store_true", help="no progress bar")
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
@@ -111,11 +120,19 @@ def cmd_uncertainty(args):
     from ionochem.analysis.uncertainty import parse_spreads, remove_store
     from ionochem.io.netcdf import write_netcdf
     _check_args(args)
+    files = [*(args.reactions or []), *(args.add or [])]
+    check_output(args.csv, "--csv", inputs=[args.scenario, *files])
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
     observed = load_observed(args)
     scen, model = load_model(args)
-    check_outputs(args, inputs=scenario_inputs(scen))
+    check_outputs(args, inputs=scenario_inputs(scen) + files)
+    if files:
+        from ionochem.analysis.compare import changed_model
+        from ionochem.mechanism.parser import parse_reaction_list
+        model = changed_model(model,
+                              replacements=[parse_reaction_list(f) for f in args.reactions or []],
+                              additions=[parse_reaction_list(f) for f in args.add or []])
     if scen.solve.mode != "steady":
         print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
               "states (photochemical equilibrium)", file=sys.stderr)
@@ -138,12 +155,15 @@ def cmd_uncertainty(args):
                   "with --resume to continue", file=sys.stderr)
         raise
     if args.method == "montecarlo":
-        _print_montecarlo(ds)
+        table = _print_montecarlo(ds)
     else:
-        _print_global(ds)
+        table = _print_global(ds)
     if observed is not None:
         _print_observed_misfit(observed, ds)
     stamp_history(ds, args)
+    if args.csv:
+        table.write_csv(args.csv)
+        print(f"wrote {args.csv}")
     if args.output:
         write_netcdf(ds, args.output)
         print(f"wrote {args.output}")
@@ -189,7 +209,7 @@ def _print_montecarlo(ds, out=None):
           + (f", environment {ds.attrs['environment_spreads']}"
              if ds.attrs.get("environment_spreads") else ""), file=out)
     print("median density (cm-3) and the 68 % range as a factor (sqrt(n84/n16))", file=out)
-    print("  alt_km " + "".join(f"{s:>19}" for s in species), file=out)
+    table = Table(["alt_km", *[c for s in species for c in (s, f"{s} x")]])
     q = ds["density_quantiles"]
     for a in rows:
         cells = []
@@ -198,10 +218,13 @@ def _print_montecarlo(ds, out=None):
             lo = float(q.sel(quantile=0.16, species=s, altitude=a))
             hi = float(q.sel(quantile=0.84, species=s, altitude=a))
             fac = np.sqrt(hi / lo) if lo > 0 else np.nan
-            cells.append(f"{med:11.3e} x{fac:5.2f} ")
-        print(f"{a:8.1f} " + "".join(f"{c:>19}" for c in cells), file=out)
+            cells += [fmt_value(med).strip(), f"{fac:.2f}"]
+        table.add(f"{a:.1f}", *cells)
+    print(table.text(), file=out)
     share = ds["variance_share"]
     print("largest shares of var(ln n) (from the samples; first-order in brackets)", file=out)
+    shares = Table(["species", "altitude", "reaction", "share", "first-order"],
+                   align=[">", ">", "<", ">", ">"])
     for s in species:
         for a in rows:
             v = share.sel(species=s, altitude=a).values
@@ -209,8 +232,10 @@ def _print_montecarlo(ds, out=None):
                 continue
             j = int(np.nanargmax(v))
             lin = float(ds["variance_share_linear"].sel(species=s, altitude=a).values[j])
-            print(f"  {s:>9} {a:7.1f} km: {ds['reaction'].values[j]:<16} {v[j]:6.1%} "
-                  f"[{lin:6.1%}]", file=out)
+            shares.add(s, f"{a:g} km", ds["reaction"].values[j], f"{v[j]:.1%}",
+                       f"[{lin:.1%}]")
+    print(shares.text(), file=out)
+    return table
 
 
 def _print_global(ds, out=None):
@@ -222,6 +247,9 @@ def _print_global(ds, out=None):
           f"seed {ds.attrs['seed']}; factors: {ds.attrs['factors']}", file=out)
     print(f"per species and altitude: the three largest factors by {key} "
           f"({key} / {second})", file=out)
+    table = Table(["species", "altitude", *[f"{n} {key}/{second}" for n in
+                                             ("first", "second", "third")]],
+                  align=[">", ">", "<", "<", "<"])
     for s in ds["species"].values:
         for a in ds["altitude"].values:
             v = ds[key].sel(species=s, altitude=a).values
@@ -229,5 +257,7 @@ def _print_global(ds, out=None):
                 continue
             w = ds[second].sel(species=s, altitude=a).values
             order = np.argsort(-np.nan_to_num(v, nan=-np.inf))[:3]
-            cells = ", ".join(f"{ds['factor'].values[j]} {v[j]:.2f}/{w[j]:.2f}" for j in order)
-            print(f"  {s:>9} {a:7.1f} km: {cells}", file=out)
+            cells = [f"{ds['factor'].values[j]} {v[j]:.2f}/{w[j]:.2f}" for j in order]
+            table.add(s, f"{a:g} km", *cells, *[""] * (3 - len(cells)))
+    print(table.text(), file=out)
+    return table
