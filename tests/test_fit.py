@@ -224,7 +224,8 @@ def test_profile_likelihood_matches_the_gaussian_interval(small_model):
 
 def test_fit_command_writes_the_contract_variables(column, tmp_path, capsys):
     """``ionochem fit`` prints the fitted multipliers and writes FIT.nc with the variables
-    of DESIGN.md §4 and a figure; bad --free / --prior exit 2."""
+    of DESIGN.md §4 and a figure; bad --free / --prior, and an electron constraint without
+    electron-density rows, exit 2."""
     scen = small_column(column)
     model = ionochem.Model(ionochem.load_scenario(scen))
     obs_path = tmp_path / "o.csv"
@@ -246,9 +247,14 @@ def test_fit_command_writes_the_contract_variables(column, tmp_path, capsys):
     assert float(ds["multiplier"].sel(parameter="R4")) == pytest.approx(2.0, rel=0.25)
     ds.close()
     assert fig.stat().st_size > 1000
+    n2_only = tmp_path / "n2.csv"
+    synthetic_observations(model, ["N2+"], {}, 0.1, np.random.default_rng(6), path=n2_only)
     for bad, words in ((["--free", "NOPE"], "--free: no reaction"),
                        (["--free", "R4", "--prior", "R4=0.5"], "--prior: prior factor"),
-                       (["--free", "R4", "--prior", "R9=2"], "not a free parameter")):
+                       (["--free", "R4", "--prior", "R9=2"], "not a free parameter"),
+                       (["--free", "R4", "--free", "R4"], "overlaps"),
+                       (["--free", "R4", "--constrain-electrons", "--observed",
+                         str(n2_only)], "no electron-density")):
         code = main(["fit", str(scen), "--observed", str(obs_path), *bad])
         err = capsys.readouterr().err
         assert code == 2 and words in err, err

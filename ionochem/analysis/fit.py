@@ -7,7 +7,8 @@ residuals r_i = (ln y_i − ln m_i(θ))/s_i of every observation, plus one resid
 per parameter with a log-normal prior of one-sigma factor f_p (default: the reaction's own
 ``f`` from the reaction list, its median over the observed altitudes; ``Te`` and reactions
 without ``f`` are unconstrained unless a prior is given). ``scipy.optimize.least_squares``
-(trust-region reflective, bounds |θ_p| ≤ ln F, F = 100 by default) minimises Σ r².
+(trust-region reflective, bounds |θ_p| ≤ ln F, F = 100 by default, and at most a factor
+:data:`TE_MAX_FACTOR` on Te) minimises Σ r².
 
 Jacobian. ∂ln m_i/∂θ_p = W S_p, where S_p = ∂ln n/∂ln k_p (summed over a family's
 members, or ∂ln n/∂ln Te) are the exact steady-state sensitivities (Model.sensitivity(),
@@ -60,6 +61,9 @@ DEGENERATE_RATIO = 1e-2
 CORRELATED = 0.9
 #: Default bound on each multiplier: 1/F ≤ m ≤ F.
 MAX_FACTOR = 100.0
+#: Bound on the Te factor: rate laws fitted over a few thousand kelvin, and rate tables,
+#: are not to be evaluated at a hundred times the electron temperature *(common practice)*.
+TE_MAX_FACTOR = 2.0
 TE = "Te"
 
 
@@ -321,9 +325,9 @@ def _least_squares(problem, theta0, free_mask, bound):
         return t
 
     res = least_squares(lambda x: problem.residuals(full(x)),
-                        np.clip(theta0[idx], -bound * 0.999, bound * 0.999),
+                        np.clip(theta0[idx], -bound[idx] * 0.999, bound[idx] * 0.999),
                         jac=lambda x: problem.jacobian(full(x))[:, idx],
-                        bounds=(-bound, bound), method="trf", x_scale=1.0,
+                        bounds=(-bound[idx], bound[idx]), method="trf", x_scale=1.0,
                         xtol=1e-10, ftol=1e-10, gtol=1e-10, max_nfev=100)
     return full(res.x), res
 
@@ -368,7 +372,8 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
     if not (np.isfinite(max_factor) and max_factor > 1):
         raise InputError("the bound on the multipliers must be a number > 1",
                          file="--max-factor")
-    bound = float(np.log(max_factor))
+    bound = np.array([np.log(min(max_factor, TE_MAX_FACTOR)) if p.is_te
+                      else np.log(max_factor) for p in params])
     given = parse_priors({k: v for k, v in (priors or {}).items()}, params)
     prior = default_priors(model, params, observations["altitude_km"].values)
     prior.update(given)
@@ -418,9 +423,11 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
                                 f"(correlation {corr[i, j]:+.3f}): the data constrain "
                                 "mainly their combination")
     for i, t in enumerate(theta):
-        if abs(t) > bound * (1 - 1e-6):
-            warnings.append(f"{names[i]} stopped at its bound (multiplier "
-                            f"{np.exp(t):.3g}); the data push it further (--max-factor)")
+        if abs(t) > bound[i] * (1 - 1e-6):
+            limit = (f"Te is bounded to a factor {TE_MAX_FACTOR:g}" if params[i].is_te
+                     else "see --max-factor")
+            warnings.append(f"{names[i]} stopped at its bound (multiplier {np.exp(t):.3g}): "
+                            f"the data push it further ({limit})")
     if not res.success:
         warnings.append(f"the optimiser did not converge: {res.message}")
     for name, lf in prior.items():
@@ -431,7 +438,7 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
     dof = n_obs - P
     if dof <= 0:
         warnings.append(f"{n_obs} observations for {P} parameters: no degrees of freedom "
-                        "left; the priors carry the fit")
+                        "left, so the priors carry the fit")
 
     prof = None
     if profile is not None:
@@ -500,6 +507,9 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
         coords={
             "parameter": ("parameter", np.array(names, dtype=object)),
             "parameter_b": ("parameter_b", np.array(names, dtype=object)),
+            "parameter_equation": ("parameter", np.array(
+                [_equation(problem.base_ds, p) for p in params], dtype=object),
+                {"long_name": "what the parameter multiplies"}),
             "direction": ("direction", np.arange(P)),
             "species": ("species", np.array(problem.species, dtype=object)),
             "altitude": ("altitude", alt, {"units": "km", "long_name": "altitude"}),
@@ -532,11 +542,23 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
         "optimizer": f"scipy.optimize.least_squares trf, {res.nfev} evaluations, "
                      f"status {res.status}",
         "converged": int(bool(res.success)),
-        "degenerate": "; ".join(degenerate),
-        "warnings": "; ".join(warnings),
+        "degenerate": "\n".join(degenerate),
+        "warnings": "\n".join(warnings),
     })
     out.attrs["bands_fitted"] = _bands_text(obs, use, r_fit, lm_fit)
     return out
+
+
+def _equation(ds, par):
+    """Readable text of what a parameter multiplies (the reaction's equation)."""
+    if par.is_te:
+        return "electron temperature Te (every Te-dependent rate)"
+    eq = ds["equation"].values if "equation" in ds.coords or "equation" in ds else None
+    text = str(eq[par.indices[0]]) if eq is not None else ""
+    if len(par.indices) > 1:
+        import re
+        text = re.sub(r"\(v=\d+\)", "(v)", text) + f" (all {len(par.indices)} levels)"
+    return text
 
 
 def observations_of_fit(ds):
@@ -570,10 +592,10 @@ def _direction_text(v, names, ratio):
 def _profile(problem, theta, p, sigma, bound, points):
     """Total χ² with parameter ``p`` held on a grid of values, the others refitted."""
     points = max(3, int(points) | 1)
-    width = 3.0 * sigma[p] if np.isfinite(sigma[p]) and sigma[p] > 0 else bound
-    width = min(width, bound)
-    grid = np.clip(theta[p] + np.linspace(-width, width, points), -bound * 0.999,
-                   bound * 0.999)
+    width = 3.0 * sigma[p] if np.isfinite(sigma[p]) and sigma[p] > 0 else bound[p]
+    width = min(width, bound[p])
+    grid = np.clip(theta[p] + np.linspace(-width, width, points), -bound[p] * 0.999,
+                   bound[p] * 0.999)
     free = np.ones(theta.size, bool)
     free[p] = False
     chi2 = np.empty(points)

@@ -85,15 +85,16 @@ def cmd_fit(args):
     print(ds.attrs.get("title", ""))
     print(f"fit to {args.observed}: {ds.sizes['observation']} observations, "
           f"{ds.sizes['parameter']} free parameter(s), electrons: {ds.attrs['electrons']}")
-    table = Table(["parameter", "multiplier", "68 % range", "prior f"],
-                  align=["<", ">", ">", ">"])
+    table = Table(["parameter", "multiplier", "68 % range", "prior f", "multiplies"],
+                  align=["<", ">", ">", ">", "<"])
     for p in ds["parameter"].values:
         m = float(ds["multiplier"].sel(parameter=p))
         s = float(ds["log_multiplier_sigma"].sel(parameter=p))
         pr = float(ds["prior_log_sigma"].sel(parameter=p))
         rng = (f"{m / np.exp(s):.3g} - {m * np.exp(s):.3g}" if np.isfinite(s)
                else "unconstrained")
-        table.add(p, f"{m:.4g}", rng, f"{np.exp(pr):.3g}" if np.isfinite(pr) else "flat")
+        table.add(p, f"{m:.4g}", rng, f"{np.exp(pr):.3g}" if np.isfinite(pr) else "flat",
+                  str(ds["parameter_equation"].sel(parameter=p).values))
     print(table.text())
     print(f"chi2 {float(ds['chi2_baseline']):.2f} (baseline) -> {float(ds['chi2']):.2f} "
           f"(fit) for {int(ds['degrees_of_freedom'])} degrees of freedom; prior chi2 "
@@ -124,9 +125,9 @@ def cmd_fit(args):
     if ds.attrs.get("profile_parameter"):
         print(f"profile likelihood of {ds.attrs['profile_parameter']}: 68 % interval "
               f"(delta chi2 = 1) {ds.attrs['profile_interval_68']}")
-    for d in filter(None, ds.attrs["degenerate"].split("; ")):
+    for d in filter(None, ds.attrs["degenerate"].split("\n")):
         print(f"degenerate: {d}", file=sys.stderr)
-    for w in filter(None, ds.attrs["warnings"].split("; ")):
+    for w in filter(None, ds.attrs["warnings"].split("\n")):
         print(f"warning: {w}", file=sys.stderr)
     if args.output:
         write_netcdf(ds, args.output)
