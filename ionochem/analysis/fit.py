@@ -228,7 +228,6 @@ class _Problem:
         self.altitude = base["altitude"].values
         check_against_model(obs, self.species, self.altitude)
         self.W_all = interpolation_matrix(obs, self.species, self.altitude)
-        self.obs_all = obs
         log_n = log_density(base)
         # Observations usable: finite model there, and not fixed by a constraint.
         bad = ~np.isfinite(log_n.ravel())
@@ -252,11 +251,9 @@ class _Problem:
         self.log_y = np.log(obs["density_cm3"].values[usable])
         self.s = log_sigma(obs)[usable]
         self._cache = {}
-        A = len(self.altitude)
         self.M = np.zeros((len(model.reactions), len(params)))
         for p, par in enumerate(params):
             self.M[list(par.indices), p] = 1.0
-        self.A = A
 
     # -- forward model
     def model_at(self, theta):
