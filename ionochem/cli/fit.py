@@ -10,8 +10,6 @@ from __future__ import annotations
 
 import sys
 
-import numpy as np
-
 from ionochem.cli.observed import misfit_table
 from ionochem.cli.options import (
     Table,
@@ -60,6 +58,8 @@ def register(subparsers):
 
 def cmd_fit(args):
     """``ionochem fit``: returns 0."""
+    import numpy as np
+
     import ionochem
     from ionochem.analysis.fit import electron_constrained_model, fit, observations_of_fit
     from ionochem.analysis.misfit import band_rows

@@ -7,8 +7,6 @@ a model column against it: χ² in log density per species and altitude band
 
 from __future__ import annotations
 
-import numpy as np
-
 from ionochem.cli.options import Table
 
 
@@ -59,6 +57,8 @@ def misfit_table(obs, fits):
 def print_misfit(obs, fits, out=None):
     """Print the misfit summary: total χ² per model column, then the band table."""
     import sys
+
+    import numpy as np
     out = sys.stdout if out is None else out
     n = obs.sizes["observation"]
     print(f"misfit against {obs.attrs.get('source', 'observations')} ({n} points; chi2 in "

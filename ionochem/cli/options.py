@@ -14,8 +14,6 @@ import stat
 import sys
 from pathlib import Path
 
-import numpy as np
-
 from ionochem.errors import InputError
 
 #: Heights of the printed tables, km *(common practice: the E, F1 and F2 regions)*.
@@ -55,6 +53,7 @@ def parse_assignments(items, what):
 
 def parse_scales(items):
     """``--scale ID=F`` options → ``{ID: F}``; F ≥ 0 (0 switches a reaction off)."""
+    import numpy as np
     out = {}
     for key, value in parse_assignments(items, "scale").items():
         try:
@@ -71,6 +70,7 @@ def parse_scales(items):
 
 def parse_budget(item):
     """``"N2+@200"`` → ``("N2+", 200.0)``."""
+    import numpy as np
     if "@" not in item:
         raise InputError(f"budget {item!r} must look like SPECIES@KM (N2+@200)",
                          file="--budget")
@@ -189,6 +189,7 @@ def print_warnings(warnings, prefix="warning"):
 # ------------------------------------------------------------------ tables
 def report_levels(altitude_km, wanted=DEFAULT_REPORT_KM):
     """Grid altitudes nearest the ``wanted`` heights inside the grid (km, sorted)."""
+    import numpy as np
     alt = np.asarray(altitude_km, float)
     rows = sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in wanted
                    if alt.min() - 1e-9 <= a <= alt.max() + 1e-9})
@@ -199,6 +200,7 @@ def report_levels(altitude_km, wanted=DEFAULT_REPORT_KM):
 
 def fmt_value(v, width=11):
     """A density or rate for the terminal: 3 significant digits; below 1e-30 is shown as 0."""
+    import numpy as np
     v = float(v)
     if np.isfinite(v) and abs(v) < 1e-30:
         v = 0.0

@@ -10,8 +10,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import numpy as np
-
 from ionochem.cli.options import Table, check_output, print_warnings
 from ionochem.errors import InputError
 
@@ -86,6 +84,8 @@ def cmd_reactions(args):
 
 
 def _list_rows(args, wanted):
+    import numpy as np
+
     from ionochem.mechanism.parser import parse_reaction_list
     rl = parse_reaction_list(args.file)
     T = 1000.0 if args.temperature is None else float(args.temperature)
@@ -111,6 +111,8 @@ def _list_rows(args, wanted):
 
 
 def _scenario_rows(args, wanted):
+    import numpy as np
+
     import ionochem
     scen = ionochem.load_scenario(args.file)
     model = ionochem.Model(scen)

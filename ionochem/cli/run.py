@@ -4,8 +4,6 @@ from __future__ import annotations
 
 import sys
 
-import numpy as np
-
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     DEFAULT_REPORT_KM,
@@ -50,6 +48,7 @@ def register(subparsers):
 
 def parse_km_list(text, flag="--altitudes"):
     """``"100,150.5"`` → ``[100.0, 150.5]`` (km)."""
+    import numpy as np
     out = []
     for item in str(text).split(","):
         item = item.strip()
@@ -68,6 +67,8 @@ def parse_km_list(text, flag="--altitudes"):
 
 
 def cmd_run(args):
+    import numpy as np
+
     from ionochem.io.netcdf import write_netcdf
     check_outputs(args, inputs=[args.scenario])
     check_output(args.csv, "--csv")
@@ -144,6 +145,7 @@ def density_table(ds, heights):
 
 def transient_table(ds, height_km):
     """The main densities (cm-3) against time at the level nearest ``height_km``."""
+    import numpy as np
     species = [s for s in MAIN_SPECIES if s in ds["species"].values]
     alt = ds["altitude"].values
     a = float(alt[np.argmin(np.abs(alt - height_km))])

@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import sys
 
-import numpy as np
-
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
@@ -198,6 +196,7 @@ def _main_species(names):
 
 
 def _print_montecarlo(ds, out=None):
+    import numpy as np
     out = sys.stdout if out is None else out
     alt = ds["altitude"].values
     names = list(ds["species"].values)
@@ -239,6 +238,7 @@ def _print_montecarlo(ds, out=None):
 
 
 def _print_global(ds, out=None):
+    import numpy as np
     out = sys.stdout if out is None else out
     method = ds.attrs["method"]
     key, second = (("S1", "ST") if method == "sobol" else ("mu_star", "sigma"))
