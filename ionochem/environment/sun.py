@@ -80,9 +80,13 @@ class SunColumn:
                     photons.extra_spectrum, where="photons.extra_spectrum",
                     scenario_file=scenario.source))
         self.spectrum = spectrum
-        self.photo_channels = sorted(n.split(":", 1)[1] for n in needs
+        from ionochem.environment.n2plus_levels import level_requests
+        # Per-level N2+ channels ("photo:N2->N2+(v=1)") are split from their totals.
+        self.level_requests = level_requests(needs)
+        plain = [n for n in needs if "(v=" not in n]
+        self.photo_channels = sorted(n.split(":", 1)[1] for n in plain
                                      if n.startswith("photo:"))
-        self.pe_channels = sorted(n.split(":", 1)[1] for n in needs
+        self.pe_channels = sorted(n.split(":", 1)[1] for n in plain
                                   if n.startswith("photoelectron:"))
         missing = [c for c in self.photo_channels if c not in spectrum.sigma_channel_cm2]
         if missing:
@@ -138,6 +142,8 @@ class SunColumn:
             zero = np.zeros(self.grid.size)
             out = {f"photo:{k}": zero for k in self.photo_channels}
             out.update({f"photoelectron:{k}": zero for k in self.pe_channels})
+            out.update({f"{b}(v={v})": zero for b, lv in self.level_requests.items()
+                        for v in lv})
             self._cache[t] = (out, np.ones(self.grid.size, bool))
             return self._cache[t]
         cols = slant_columns(self.grid, chi, self.profile_alt, self.profile)
@@ -157,6 +163,10 @@ class SunColumn:
                         f"no photoelectron-impact rate is known for channel {key} (known: "
                         f"{', '.join(sorted(pe))})", file=self.scenario.source, key="photons")
                 out[f"photoelectron:{key}"] = np.where(dark, 0.0, pe[key])
+        if self.level_requests:
+            from ionochem.environment.n2plus_levels import level_sources
+            for key, val in level_sources(spectrum, cols, out, self.level_requests).items():
+                out[key] = np.where(dark, 0.0, val)
         self._cache[t] = (out, dark)
         return out, dark
 

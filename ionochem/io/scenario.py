@@ -127,7 +127,10 @@ class Temperatures:
     ion_drift_m_s : float
         Ion-neutral drift speed (m/s), >= 0, default 0.
     vibrational : str
-        Tv of N2: ``"neutral"`` (Tv = Tn, default) or ``"table"`` (column ``Tv_K``).
+        Tv of N2: ``"neutral"`` (Tv = Tn, default), ``"table"`` (column ``Tv_K``) or
+        ``"electron"`` (Tv = Tn + c max(Te - Tn, 0), c = ``vibrational_coupling``).
+    vibrational_coupling : float
+        c in [0, 1] for ``vibrational = "electron"`` (default 0.5).
     profile : TemperatureProfile
         Parameters of the parametric shape (defaults when not given).
     """
@@ -137,6 +140,7 @@ class Temperatures:
     table: Path | None = None
     ion_drift_m_s: float = 0.0
     vibrational: str = "neutral"
+    vibrational_coupling: float = 0.5
     profile: TemperatureProfile = field(default_factory=TemperatureProfile)
 
 
@@ -830,7 +834,7 @@ class _Validator:
     def temperatures(self, value) -> Temperatures:
         key = "temperatures"
         sec = self.table(value, key, ("electron", "ion", "table", "ion_drift_m_s",
-                                      "vibrational", "profile"))
+                                      "vibrational", "vibrational_coupling", "profile"))
         for name in ("electron", "ion"):
             if name not in sec:
                 raise self.fail(f"{key}.{name}", "is required ('table', 'neutral' or "
@@ -838,7 +842,13 @@ class _Validator:
         electron = self.choice(sec["electron"], f"{key}.electron", TEMPERATURE_SOURCES)
         ion = self.choice(sec["ion"], f"{key}.ion", TEMPERATURE_SOURCES)
         vibrational = self.choice(sec.get("vibrational", "neutral"), f"{key}.vibrational",
-                                  ("neutral", "table"))
+                                  ("neutral", "table", "electron"))
+        coupling = 0.5
+        if vibrational == "electron":
+            coupling = self.number(sec.get("vibrational_coupling", 0.5),
+                                   f"{key}.vibrational_coupling", low=0, high=1)
+        else:
+            self.inapplicable(sec, "vibrational_coupling", key, "vibrational is 'electron'")
         drift = self.number(sec.get("ion_drift_m_s", 0.0), f"{key}.ion_drift_m_s", low=0)
         table = None
         if "table" in (electron, ion, vibrational):
@@ -866,7 +876,8 @@ class _Validator:
                 scale_km=self.number(p.get("scale_km", d.scale_km), f"{pkey}.scale_km",
                                      low=0, low_open=True))
         return Temperatures(electron=electron, ion=ion, table=table, ion_drift_m_s=drift,
-                            vibrational=vibrational, profile=profile)
+                            vibrational=vibrational, vibrational_coupling=coupling,
+                            profile=profile)
 
     def production(self, value) -> Production:
         sec = self.table(value, "production", ("table",))
