@@ -89,6 +89,7 @@ def plot_fit(ds, path, *, title=None):
     ax_m.plot(m, y, "o", color="black")
     ax_m.axvline(1.0, color="0.4", lw=0.8)
     ax_m.set_xscale("log")
+    _plain_log_ticks(ax_m)
     ax_m.set_yticks(y)
     ax_m.set_yticklabels(params, fontsize=8)
     ax_m.invert_yaxis()
@@ -101,6 +102,7 @@ def plot_fit(ds, path, *, title=None):
                   color="black", ms=3)
         ax_p.axhline(1.0, color="0.5", ls="--", lw=0.8)
         ax_p.set_xscale("log")
+        _plain_log_ticks(ax_p)
         ax_p.set_xlabel(f"multiplier of {ds.attrs.get('profile_parameter', '')}")
         ax_p.set_ylabel("Δχ² (others refitted)")
         ax_p.grid(True, alpha=0.3)
@@ -110,3 +112,11 @@ def plot_fit(ds, path, *, title=None):
     plt.close(fig)
     atomic_write_bytes(path, data)
     return Path(path)
+
+
+def _plain_log_ticks(ax):
+    """Ticks at 1, 2, 5 × 10^k written as plain numbers (multipliers read as 0.5, 2)."""
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+    ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda x, _: f"{x:g}"))
+    ax.xaxis.set_minor_formatter(NullFormatter())
