@@ -16,9 +16,9 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.analysis.fit import observations_of_fit
-from ionochem.io.netcdf import atomic_write_bytes
+from ionochem.plot.legend import legend_below
 from ionochem.plot.observations import overlay_observations
-from ionochem.plot.profiles import STYLE, _figure_bytes, style_density_axes
+from ionochem.plot.profiles import STYLE, save_figure, style_density_axes
 
 
 def plot_fit(ds, path, *, title=None):
@@ -53,7 +53,7 @@ def plot_fit(ds, path, *, title=None):
         curves += [nb, nf]
     style_density_axes(ax_n, alt, curves)
     overlay_observations(ax_n, obs, names)
-    ax_n.legend(loc="best", fontsize=7, framealpha=0.9)
+    legend_below(ax_n, bbox_to_anchor=(0.5, -0.11), ncol=2)
 
     oalt = ds["observation_altitude"].values
     ospec = ds["observation_species"].values.astype(str)
@@ -70,7 +70,7 @@ def plot_fit(ds, path, *, title=None):
     ax_r.set_title(f"χ² {float(ds['chi2_baseline']):.1f} → {float(ds['chi2']):.1f} "
                    f"({int(ds['degrees_of_freedom'])} dof)", fontsize=9)
     ax_r.grid(True, alpha=0.3)
-    ax_r.legend(loc="best", fontsize=7)
+    legend_below(ax_r, bbox_to_anchor=(0.5, -0.11), ncol=3)
 
     params = list(ds["parameter"].values)
     y = np.arange(len(params))
@@ -108,10 +108,7 @@ def plot_fit(ds, path, *, title=None):
         ax_p.grid(True, alpha=0.3)
     fig.suptitle((title or ds.attrs.get("title", ""))
                  + f"\nfit to {Path(ds.attrs.get('observations', '')).name}", fontsize=10)
-    data = _figure_bytes(fig, path)
-    plt.close(fig)
-    atomic_write_bytes(path, data)
-    return Path(path)
+    return save_figure(fig, path)
 
 
 def _plain_log_ticks(ax):
