@@ -244,6 +244,28 @@ class Mechanism:
         neg = np.clip(-self.nu_all, 0, None)
         return r @ pos.T, r @ neg.T
 
+    def tendency_production_loss(self, n, k, given):
+        """:meth:`tendency` and the solved species' columns of :meth:`production_loss` from
+        one evaluation of the rates (the same numbers as the two calls), each (B, S)."""
+        r = self.rates(k, self.full_densities(n, given))
+        pos, neg = self._solved_gross_matrices()
+        return r @ self.nu.T, r @ pos, r @ neg
+
+    def solved_production_loss(self, n, k, given):
+        """The solved species' columns of :meth:`production_loss`, each (B, S)."""
+        r = self.rates(k, self.full_densities(n, given))
+        pos, neg = self._solved_gross_matrices()
+        return r @ pos, r @ neg
+
+    def _solved_gross_matrices(self):
+        """Positive and negative parts of the solved rows of ν, transposed (R, S); cached."""
+        cached = self.__dict__.get("_solved_gross")
+        if cached is None:
+            S = len(self.solved)
+            cached = self._solved_gross = (np.clip(self.nu_all[:S], 0, None).T.copy(),
+                                           np.clip(-self.nu_all[:S], 0, None).T.copy())
+        return cached
+
     def jacobian(self, n, k, given):
         """Analytic Jacobian J[b, i, j] = ∂f_i/∂n_j of the solved species, (B, S, S).
 
@@ -257,7 +279,15 @@ class Mechanism:
         partial[:, 1] = k * vals[0] * vals[2]
         partial[:, 2] = k * vals[0] * vals[1]
         S = len(self.solved)
-        return (partial.reshape(k.shape[0], -1) @ self._G).reshape(-1, S, S)
+        # G is sparse (a few nonzeros per reaction): a sparse product is ~10x faster than
+        # the dense one for hundreds of rows (measured: 1,000 rows of the default list,
+        # 309 x 144 with 520 nonzeros, 1.0 ms against 7-16 ms).
+        GT = self.__dict__.get("_GT_sparse")
+        if GT is None:
+            import scipy.sparse
+            GT = self._GT_sparse = scipy.sparse.csr_array(self._G.T)
+        out = (GT @ partial.reshape(k.shape[0], -1).T).T
+        return np.ascontiguousarray(out).reshape(-1, S, S)
 
     def rate_sensitivity_columns(self, n, k, given):
         """∂f/∂ln k_j = ν_j r_j for every reaction, shape (B, S, R)."""

@@ -51,9 +51,16 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None):
         return mechanism.jacobian(n, *take(rows))
 
     def gross(n, rows):
+        if hasattr(mechanism, "solved_production_loss"):
+            return mechanism.solved_production_loss(n, *take(rows))
         P, L = mechanism.production_loss(n, *take(rows))
         return P[:, :S], L[:, :S]
 
+    both = None
+    if hasattr(mechanism, "tendency_production_loss"):
+        def both(n, rows):
+            return mechanism.tendency_production_loss(n, *take(rows))
+
     start = np.zeros((B, S)) if n0 is None else n0
     return solve_steady(start, tendency, jacobian, gross, rtol=rtol, level_names=level_names,
-                        species_names=list(mechanism.solved))
+                        species_names=list(mechanism.solved), both=both)

@@ -149,11 +149,16 @@ def initial_guess(n0, gross, sweeps=12):
     return n
 
 
-def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
+def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, both=None):
     """Damped Newton on the rows of ``n``; returns (n, converged mask, residual).
 
     ``atol`` is the absolute residual floor (cm-3 s-1): residuals below it are noise.
+    ``both(n, rows) -> (f, P, L)``, optional, gives the tendency and the gross production
+    and loss from one evaluation of the rates (the same numbers as the two callables).
     """
+    if both is None:
+        def both(x, rows):
+            return (tendency(x, rows), *gross(x, rows))
     floor = _rate_floor(atol, rtol)
     converged = np.zeros(n.shape[0], bool)
     res = np.full(n.shape[0], np.inf)
@@ -162,8 +167,7 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
         if active.size == 0:
             break
         na = n[active]
-        f = tendency(na, active)
-        P, L = gross(na, active)
+        f, P, L = both(na, active)
         r0 = _relative_residual(f, P, L, floor)
         tiny = _negligible(f, atol)
         J = jacobian(na, active)
@@ -174,14 +178,17 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
         trial = na + lam[:, None] * dn
         scale = _scale(P, L, floor)
         norm0 = np.linalg.norm(f / scale, axis=1)
+        # Only the rows that got worse are halved and evaluated again.
+        check = np.arange(active.size)
         for _ in range(8):
-            ft = tendency(trial, active)
-            normt = np.linalg.norm(ft / scale, axis=1)
-            worse = ~(normt <= norm0 * (1 - 1e-4 * lam)) & (lam > 1e-3)
+            ft = tendency(trial[check], active[check])
+            normt = np.linalg.norm(ft / scale[check], axis=1)
+            worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
             if not worse.any():
                 break
-            lam = np.where(worse, lam / 2, lam)
-            trial = na + lam[:, None] * dn
+            check = check[worse]
+            lam[check] /= 2
+            trial[check] = na[check] + lam[check][:, None] * dn[check]
         trial = np.maximum(trial, 0.0)
         step = np.abs(trial - na)
         small = NEGLIGIBLE * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
@@ -198,8 +205,7 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
         # Final residual at the accepted point for the rows marked done.
         if done.any():
             idx = active[done]
-            fd = tendency(n[idx], idx)
-            Pd, Ld = gross(n[idx], idx)
+            fd, Pd, Ld = both(n[idx], idx)
             rd = _relative_residual(fd, Pd, Ld, floor)
             res[idx] = rd
             ok = (rd <= rtol) | _negligible(fd, atol)
@@ -244,7 +250,8 @@ def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iteratio
 
 
 def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
-                 max_newton=60, max_continuation=400, level_names=None, species_names=None):
+                 max_newton=60, max_continuation=400, level_names=None, species_names=None,
+                 both=None):
     """Steady state of B independent chemical systems.
 
     Parameters
@@ -262,6 +269,9 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
         Label of each row for error messages (for example altitudes in km).
     species_names : sequence, optional
         Name of each of the S species, to say which one stalled.
+    both : callable, optional
+        ``both(n, rows) -> (f, P, L)``: tendency and gross production and loss from one
+        evaluation of the rates (a speed-up; the same numbers as the separate callables).
 
     Returns
     -------
@@ -278,7 +288,7 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
     n = initial_guess(np.maximum(n0, 0.0), g_all)
     n = np.where(np.isfinite(n), n, 0.0)
     n, conv, res = newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol,
-                          max_iter=max_newton, iterations=iterations)
+                          max_iter=max_newton, iterations=iterations, both=both)
     method[conv] = METHOD_NEWTON
     if not conv.all():
         bad = np.nonzero(~conv)[0]
@@ -295,8 +305,12 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
 
         nb = continuation(n[bad], t_sub, j_sub, g_sub, rtol=rtol, atol=atol,
                           max_iter=max_continuation, iterations=sub_iter)
+        def b_sub(x, rows):
+            return both(x, bad[rows]) if both is not None else (t_sub(x, rows),
+                                                                 *g_sub(x, rows))
+
         nb, conv_b, res_b = newton(nb, t_sub, j_sub, g_sub, rtol=rtol, atol=atol,
-                                   max_iter=max_newton, iterations=sub_iter)
+                                   max_iter=max_newton, iterations=sub_iter, both=b_sub)
         n[bad] = nb
         res[bad] = res_b
         iterations[bad] += sub_iter
