@@ -12,7 +12,7 @@ import hashlib
 
 import numpy as np
 
-from ionochem.errors import InputError
+from ionochem.errors import InputError, SolverError
 
 ENV_EUV = "euv"
 ENV_TE = "Te"
@@ -142,6 +142,12 @@ class SampleKernel:
         self.species = list(model.species)
         self.factor_names = self.reactions + self.given_names + [ENV_EUV, ENV_TE]
         self.R, self.G = R, len(self.given_names)
+        # The central column, where every sample's Newton starts (None: the solver's own
+        # start, when the central column itself does not solve).
+        try:
+            self.n_central = model.steady_densities().n
+        except SolverError:
+            self.n_central = None
 
     # -------------------------------------------------------------- layout of the draws
     @property

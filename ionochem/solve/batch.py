@@ -29,7 +29,8 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None):
     level_names : sequence of str, optional
         Label of each row for error messages.
     n0 : ndarray (B, S), optional
-        Starting densities (default zero: the solver builds its own start).
+        Starting densities (default zero: the solver builds its own start). When given,
+        they are taken as a warm start near the solution (no fixed-point sweeps).
 
     Returns
     -------
@@ -63,4 +64,5 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None):
 
     start = np.zeros((B, S)) if n0 is None else n0
     return solve_steady(start, tendency, jacobian, gross, rtol=rtol, level_names=level_names,
-                        species_names=list(mechanism.solved), both=both)
+                        species_names=list(mechanism.solved), both=both,
+                        warm=n0 is not None)
