@@ -33,6 +33,35 @@ def build_parser():
     return p
 
 
+#: Commands that may use dask (clusters of workers); every other command runs without it.
+USES_DASK = ("uncertainty",)
+
+
+class _WithoutDask:
+    """While active, ``import dask`` raises ImportError (when dask is not imported yet).
+
+    xarray imports dask, when installed, the first time it builds a variable (to recognise
+    dask arrays), and asks it for a scheduler on every netCDF write: about 0.3–0.5 s of an
+    ``ionochem run`` that never uses dask (measured with ``python -X importtime``). xarray
+    treats the ImportError as "dask not installed" and keeps that answer for the process
+    (harmless: the command layer never gives xarray dask arrays). Commands that may start a
+    dask cluster (``USES_DASK``) run without this.
+    """
+
+    def __enter__(self):
+        # Only before xarray is imported: xarray caches whether dask is available, and a
+        # cached "available" with the import blocked would fail.
+        self.blocked = "dask" not in sys.modules and "xarray" not in sys.modules
+        if self.blocked:
+            sys.modules["dask"] = None
+        return self
+
+    def __exit__(self, *exc):
+        if self.blocked and "dask" in sys.modules and sys.modules["dask"] is None:
+            del sys.modules["dask"]
+        return False
+
+
 def main(argv=None):
     """Run the command line; returns the exit status (0, 1 for a bug, 2 for bad input)."""
     parser = build_parser()
@@ -48,7 +77,9 @@ def main(argv=None):
     from ionochem.io.netcdf import terminate_cleanly
     try:
         # SIGTERM removes the temporary files being written and ends with status 143.
-        with terminate_cleanly():
+        import contextlib
+        nodask = contextlib.nullcontext() if args.command in USES_DASK else _WithoutDask()
+        with terminate_cleanly(), nodask:
             return args.func(args)
     except Error as exc:
         print(str(exc), file=sys.stderr)
