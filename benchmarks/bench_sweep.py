@@ -7,11 +7,11 @@ is built and solved from its scenario each time (neutral model, photo rates, New
 sweep point is. Reported:
 
 - serial: columns per second in this process (``run_sweep`` without a store);
-- dask: columns per second on ``--workers`` single-threaded workers, the cluster's start-up
-  timed apart (it is paid once per sweep);
+- dask: columns per second on ``--workers`` single-threaded workers of a warm cluster
+  (start-up and the workers' first imports, paid once per sweep, are timed apart);
 - dask overhead per column: one worker's time per column minus the serial time per column
-  (scatter, task submission, result transfer and the workers' first imports, spread over
-  the sweep), and the round trip of an empty task;
+  (scatter of the sweep's spec, task submission, result transfer), and the round trip of
+  an empty task;
 - the store: the same serial sweep written to netCDF through the resumable store, per
   column.
 
@@ -77,16 +77,18 @@ def main():
         ref = serial["density"].values
         todo = [(i, i + 1) for i in range(spec.total)]
         times, same = {}, True
+        warm = [(i, i + 1) for i in range(min(spec.total, 4))]
         for w in sorted({1, args.workers}):
-            t0 = time.perf_counter()
-            with dask_client(w):
-                pass
-            start_w = time.perf_counter() - t0
-            rows = {}
-            t0 = time.perf_counter()
-            S._run_dask(spec, layout, todo, w, None,
-                        lambda a, b, r, rows=rows: rows.__setitem__(a, r))
-            times[w] = time.perf_counter() - t0 - start_w
+            with dask_client(w) as client:
+                address = client.scheduler.address
+                # warm the workers (imports, the neutral model's first call) on a few
+                # columns, then time the sweep on the same warm cluster
+                S._run_dask(spec, layout, warm, None, address, lambda a, b, r: None)
+                rows = {}
+                t0 = time.perf_counter()
+                S._run_dask(spec, layout, todo, None, address,
+                            lambda a, b, r, rows=rows: rows.__setitem__(a, r))
+                times[w] = time.perf_counter() - t0
             got = np.concatenate([rows[i] for i in range(spec.total)])
             same = same and bool(np.array_equal(_unpack(got, layout)["density"], ref))
     per_serial = t_serial / spec.total

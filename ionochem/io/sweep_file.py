@@ -295,8 +295,14 @@ def _write_zarr(path, skel, layout, batches, var_attrs):
             lazy[e.name] = ((*dims, *e.dims), da.zeros(full, dtype=e.dtype, chunks=chunks),
                             _nc_attrs(var_attrs.get(e.name, {})))
             encoding[e.name] = {"chunks": chunks} if chunks else {}
-        from ionochem.io.netcdf import _encodable
-        _encodable(lazy).to_zarr(tmp, mode="w", compute=False, encoding=encoding)
+        # Text as variable-length strings (zarr v3 specifies those, not fixed-width UTF-32).
+        for name in list(lazy.variables):
+            if lazy[name].dtype.kind in "UO":
+                lazy[name] = lazy[name].astype(object)
+            elif lazy[name].dtype == bool:
+                lazy[name] = lazy[name].astype(np.int8)
+        lazy.attrs = _nc_attrs(lazy.attrs)
+        lazy.to_zarr(tmp, mode="w", compute=False, encoding=encoding)
         for a, b, rows in batches:
             blocks = _unpack(np.asarray(rows, float), layout)
             for off, lead, last in _runs(a, b, shape):
