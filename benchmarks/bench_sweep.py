@@ -87,7 +87,7 @@ def main():
                 rows = {}
                 t0 = time.perf_counter()
                 S._run_dask(spec, layout, todo, None, address,
-                            lambda a, b, r, rows=rows: rows.__setitem__(a, r))
+                            lambda a, b, r, rows=rows: rows.__setitem__(a, r[0]))
                 times[w] = time.perf_counter() - t0
             got = np.concatenate([rows[i] for i in range(spec.total)])
             same = same and bool(np.array_equal(_unpack(got, layout)["density"], ref))

@@ -420,3 +420,21 @@ def test_file_assembly_memory_is_bounded_by_a_batch(tmp_path):
         for flat in (0, 99, 100, 4567, 9999):
             i, j = np.unravel_index(flat, (100, 100))
             assert float(ds["density"][i, j, 3, 7]) == flat
+
+
+def test_point_warnings_are_counted_once_each(tmp_path):
+    """The tabulated demo (tables resolved against its own folder) with a drift its table's
+    Ti is too cold for: each point's warning is the single run's model warning, reported
+    once with its count of points."""
+    path = ROOT / "scenarios" / "tabulated_column.toml"
+    spec = spec_for(path, "temperatures.ion_drift_m_s=500,1000")
+    run = run_sweep(spec)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        base = ionochem.load_scenario(path)
+        single = ionochem.Model(base.replace(temperatures=base.temperatures.__class__(
+            **{**vars(base.temperatures), "ion_drift_m_s": 1000.0})))
+    assert any("1000 m/s" in str(w) for w in single.warnings)
+    for w in single.warnings:
+        assert run.warnings.get(str(w)) == 1
+    assert len(run.warnings) == 2

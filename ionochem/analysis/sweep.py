@@ -56,6 +56,7 @@ import dataclasses
 import datetime as dt
 import hashlib
 import json
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -73,6 +74,8 @@ from ionochem.errors import Error, InputError, ScenarioError
 #: Points per stored batch: at most this many batches over a sweep by default.
 MAX_BATCHES = 2000
 INFLIGHT_PER_WORKER = 2
+#: Distinct warning texts a sweep keeps (each with its count of points).
+MAX_WARNINGS = 50
 
 
 @dataclass(frozen=True)
@@ -276,7 +279,10 @@ def point_dataset(spec: SweepSpec, index: int):
     from ionochem.io.sweep_file import column_variables
     from ionochem.model import Model
     values = point_values(spec.axes, index)
+    caught = warnings.catch_warnings(record=True)
     try:
+        log = caught.__enter__()
+        warnings.simplefilter("always")
         scen = point_scenario(spec, values)
         model = Model(scen, reaction_list=spec.reaction_list)
         if spec.sets or spec.scales:
@@ -300,22 +306,34 @@ def point_dataset(spec: SweepSpec, index: int):
         exc.message = f"sweep point {index}" + (f" ({shown})" if shown else "") + \
             f": {exc.message}"
         raise
+    finally:
+        caught.__exit__(None, None, None)
+    # One place for a point's warnings (a sweep reports them once, counted over points).
+    notes = [str(w.message) for w in log] + [str(w) for w in model.warnings]
+    # The dataset's notes join with "; ", as do some warnings: keep only the new pieces.
+    notes += [n for n in str(ds.attrs.get("warnings", "")).split("; ")
+              if n and not any(n in other for other in notes)]
+    ds.attrs["_point_warnings"] = "\n".join(dict.fromkeys(notes))
     return column_variables(ds, np.datetime64(scen.time.utc.replace(tzinfo=None), "us")
                             if scen.time is not None else np.datetime64("NaT", "us"))
 
 
-def solve_points(spec: SweepSpec, layout, start: int, stop: int) -> np.ndarray:
-    """Packed results of points ``start … stop − 1``: (stop − start, width) float64.
+def solve_points(spec: SweepSpec, layout, start: int, stop: int):
+    """Packed results of points ``start … stop − 1``: (stop − start, width) float64, and
+    the points' warnings (list of str).
 
     Runs on dask workers as well as in this process.
     """
     from ionochem.analysis.ensemble import single_thread_blas
     from ionochem.io.sweep_file import pack, width
     out = np.empty((stop - start, width(layout)))
+    notes = []
     with single_thread_blas():
         for i in range(start, stop):
-            out[i - start] = pack(point_dataset(spec, i), layout)
-    return out
+            ds = point_dataset(spec, i)
+            out[i - start] = pack(ds, layout)
+            notes += [n for n in ds.attrs.pop("_point_warnings").split("\n") if n]
+    return out, notes
 
 
 # ----------------------------------------------------------------------------- the sweep
@@ -357,12 +375,16 @@ class SweepRun:
         Points taken from the store of an interrupted run.
     path : Path or None
         The sweep file written.
+    warnings : dict
+        Warning text → number of points (computed by this call) that gave it; at most
+        MAX_WARNINGS distinct texts are kept.
     """
 
     dataset: object
     computed: int
     reused: int
     path: Path | None = None
+    warnings: dict = field(default_factory=dict)
 
 
 def run_sweep(spec: SweepSpec, *, output=None, resume=False, workers=1, scheduler=None,
@@ -406,6 +428,12 @@ def run_sweep(spec: SweepSpec, *, output=None, resume=False, workers=1, schedule
     store = None
     results = {}
     computed = 0
+    notes = {}
+
+    def note(texts):
+        for t in texts:
+            if t in notes or len(notes) < MAX_WARNINGS:
+                notes[t] = notes.get(t, 0) + 1
     if output is not None:
         _check_format(output)
         store = EnsembleStore(store_path(output), manifest(spec), resume=resume)
@@ -417,6 +445,7 @@ def run_sweep(spec: SweepSpec, *, output=None, resume=False, workers=1, schedule
             template = xr.load_dataset(tpath, decode_times=False)
         if template is None:
             template = point_dataset(spec, 0)
+            note(n for n in template.attrs.pop("_point_warnings").split("\n") if n)
             computed += 1
             layout = layout_of(template)
             if store is not None:
@@ -438,8 +467,10 @@ def run_sweep(spec: SweepSpec, *, output=None, resume=False, workers=1, schedule
         bar = tqdm(total=total, initial=done, unit="column", desc="sweep",
                    disable=not progress, leave=False)
 
-        def finish(a, b, rows):
+        def finish(a, b, result):
             nonlocal done, computed
+            rows, texts = result
+            note(texts)
             if store is not None:
                 store.write(a, b, np.arange(a, b, dtype=float)[:, None], rows)
             else:
@@ -468,7 +499,7 @@ def run_sweep(spec: SweepSpec, *, output=None, resume=False, workers=1, schedule
             store.close()
     if store is not None and not keep_store:
         store.remove()
-    return SweepRun(ds, computed, reused, None if output is None else Path(output))
+    return SweepRun(ds, computed, reused, None if output is None else Path(output), notes)
 
 
 def _check_format(output):

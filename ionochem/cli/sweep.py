@@ -23,6 +23,8 @@ from ionochem.errors import InputError
 
 #: Points listed on the terminal at most.
 SHOWN_POINTS = 12
+#: Distinct warnings printed at most.
+SHOWN_WARNINGS = 8
 
 
 def register(subparsers):
@@ -156,6 +158,11 @@ def cmd_sweep(args):
         print(f"computed {run.computed} column(s)"
               + (f", {run.reused} taken from {args.output}.points" if run.reused else ""))
         print(_summary(ds, axes, diurnal).text())
+        for text, count in list(run.warnings.items())[:SHOWN_WARNINGS]:
+            print(f"warning ({count} of {run.computed} column(s)): {text}", file=sys.stderr)
+        if len(run.warnings) > SHOWN_WARNINGS:
+            print(f"… and {len(run.warnings) - SHOWN_WARNINGS} more distinct warning(s)",
+                  file=sys.stderr)
         if args.output:
             print(f"wrote {args.output}")
             if args.keep_points:
