@@ -19,6 +19,8 @@ from ionochem.plot.profiles import _figure_bytes
 
 CMAP = "RdBu_r"
 LEVELS = (0.1, 0.5)
+#: Densities below this are numerical dust of a decaying column (cm-3), left blank.
+FLOOR_CM3 = 1e-3
 PREFERRED_SPECIES = ("N2+", "O2+", "NO+", "O+", "e")
 
 
@@ -88,8 +90,8 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, axis=None, title=No
     else:
         z = var.transpose("altitude", axis).values
         with np.errstate(divide="ignore", invalid="ignore"):
-            z = np.log10(np.where(z > 0, z, np.nan))
-        label = f"log10 n({species}) (n in cm-3)"
+            z = np.log10(np.where(z > FLOOR_CM3, z, np.nan))
+        label = f"log10 n({species}) (n in cm-3; below {FLOOR_CM3:g} not drawn)"
     x = np.asarray(ds[axis].values)
     alt = ds["altitude"].values
     fig, ax = plt.subplots(figsize=(7.0, 5.0))
