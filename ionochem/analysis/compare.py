@@ -199,6 +199,20 @@ def _change_attrs(baseline, changed, reaction_lists):
     }
 
 
+def _add_equilibrium_flag(out, ds_b, names):
+    """The baseline's ``pce_doubtful`` (species, altitude) on ``out``'s species, 0 for a
+    species only the changed model has; nothing when the baseline has no flag."""
+    if "pce_doubtful" not in ds_b:
+        return
+    flag = ds_b["pce_doubtful"]
+    have = list(flag["species"].values)
+    rows = [flag.sel(species=s).values if s in have else np.zeros(ds_b["altitude"].size, np.int8)
+            for s in names]
+    out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
+                           dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
+                                + " (baseline)"))
+
+
 def compare(baseline_model, changed_model, *, baseline=None, changed=None,
             reaction_lists=()):
     """Solve a baseline and a changed model and compare their steady densities.
@@ -218,7 +232,8 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         ``density_baseline`` and ``density_changed`` (species, altitude) in cm-3 and
         ``ratio`` = changed / baseline (NaN where the baseline density is 0, or where the
         species is absent from one of the models), with the provenance of the baseline and
-        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``.
+        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``,
+        and the baseline's ``pce_doubtful`` flag (species, altitude) when it has one.
     """
     ds_b = baseline_model.solve() if baseline is None else baseline
     ds_c = changed_model.solve() if changed is None else changed
@@ -261,6 +276,7 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
     out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
     out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
+    _add_equilibrium_flag(out, ds_b, names)
     return out
 
 

@@ -82,7 +82,8 @@ def cmd_rank(args):
         print(f"wrote {args.output}")
     if args.plot:
         from ionochem.plot.sensitivity import plot_sensitivity
-        plot_sensitivity(sens, args.plot, species=species, altitude_range=rng, top=args.top)
+        plot_sensitivity(sens, args.plot, species=species, altitude_range=rng, top=args.top,
+                         min_share=share)
         print(f"wrote {args.plot}")
     return 0
 

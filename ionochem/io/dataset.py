@@ -109,6 +109,7 @@ def provenance(model):
     if model.environment.sun is not None:
         env_attrs["photon_source"] = model.environment.sun.spectrum.source
         env_attrs["photoelectron_secondaries"] = int(bool(scen.photons.secondary))
+        env_attrs["photon_sources"] = "; ".join(model.environment.sun.photon_sources)
     return env_attrs | {
         "title": scen.title,
         "Conventions": "CF-1.10",

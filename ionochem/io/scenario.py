@@ -282,6 +282,11 @@ class Photons:
     lyman_alpha_photons_cm2_s : float or None
         Solar Lyman-alpha flux (photons cm-2 s-1); None means the physics module's cited
         default.
+    soft_xrays : bool
+        Add the solar soft X-rays below 50 A to EUVAC (default True; ``flux = "euvac"`` only).
+    night_sources : bool
+        Add the scattered night-time sources (geocoronal Lyman alpha and beta, He I 584 A,
+        He II 304 A), default True.
     """
 
     flux: str = "euvac"
@@ -289,6 +294,8 @@ class Photons:
     secondary: bool = True
     lyman_alpha_photons_cm2_s: float | None = None
     extra_spectrum: Path | None = None
+    soft_xrays: bool = True
+    night_sources: bool = True
 
 
 @dataclass(frozen=True)
@@ -996,7 +1003,8 @@ class _Validator:
     def photons(self, value) -> Photons:
         key = "photons"
         sec = self.table(value, key, ("flux", "spectrum", "extra_spectrum", "secondary",
-                                      "lyman_alpha_photons_cm2_s"))
+                                      "lyman_alpha_photons_cm2_s", "soft_xrays",
+                                      "night_sources"))
         flux = self.choice(sec.get("flux", "euvac"), f"{key}.flux", ("euvac", "table"))
         spectrum = None
         if flux == "table":
@@ -1016,8 +1024,15 @@ class _Validator:
         if "lyman_alpha_photons_cm2_s" in sec:
             lya = self.number(sec["lyman_alpha_photons_cm2_s"],
                               f"{key}.lyman_alpha_photons_cm2_s", low=0)
+        # Soft X-rays join EUVAC only; a user spectrum in 'table' mode holds all its bins.
+        soft_xrays = self.boolean(sec.get("soft_xrays", flux == "euvac"), f"{key}.soft_xrays")
+        if soft_xrays and flux != "euvac":
+            raise self.fail(f"{key}.soft_xrays", "applies only with flux = 'euvac' (a user "
+                            "spectrum in 'table' mode holds all its own bins)")
+        night = self.boolean(sec.get("night_sources", True), f"{key}.night_sources")
         return Photons(flux=flux, spectrum=spectrum, secondary=secondary,
-                       lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra)
+                       lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra,
+                       soft_xrays=soft_xrays, night_sources=night)
 
     def output(self, value, grid: Grid) -> Output:
         key = "output"

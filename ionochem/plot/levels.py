@@ -16,7 +16,10 @@ import numpy as np
 
 from ionochem.errors import InputError
 from ionochem.io.netcdf import atomic_write_bytes
+from ionochem.plot.legend import legend_below
 from ionochem.plot.profiles import _figure_bytes
+
+_DASHES = ("-", (0, (6, 2)), (0, (2, 2)), (0, (6, 2, 1, 2)), (0, (1, 1)), (0, (10, 3)))
 
 __all__ = ["plot_levels", "family_members"]
 
@@ -62,7 +65,7 @@ def plot_levels(ds, path, *, family: str = "N2+", title=None):
     if not members:
         raise InputError(f"no vibrational levels of {family} in the result")
     alt = ds["altitude"].values
-    fig, (ax, bx) = plt.subplots(1, 2, figsize=(10.0, 5.6), sharey=True)
+    fig, (ax, bx) = plt.subplots(1, 2, figsize=(10.0, 5.6), sharey=True, layout="constrained")
     cmap = plt.get_cmap("viridis")
     for i, s in enumerate(members):
         f = ds["level_fraction"].sel(species=s).values
@@ -74,7 +77,7 @@ def plot_levels(ds, path, *, family: str = "N2+", title=None):
     ax.set_ylabel("altitude (km)")
     ax.set_ylim(alt.min(), alt.max())
     ax.grid(True, which="major", alpha=0.3)
-    ax.legend(loc="lower left", fontsize=8, framealpha=0.9)
+    legend_below(ax, ncol=3)
     drawn = 0
     k_all = None
     for name in ("rate_coefficient", "rate_coefficient_first_order",
@@ -82,6 +85,7 @@ def plot_levels(ds, path, *, family: str = "N2+", title=None):
         if name in ds:
             k_all = ds[name] if k_all is None else k_all.fillna(ds[name])
     reactions = set(ds["reaction"].values) if "reaction" in ds.coords else set()
+    curves = []
     for name in _EFFECTIVE:
         if name not in ds or k_all is None:
             continue
@@ -98,13 +102,25 @@ def plot_levels(ds, path, *, family: str = "N2+", title=None):
                 ratio = np.where(k0 > 0, k / k0, np.nan)
             if not np.any(np.isfinite(ratio)):
                 continue
-            bx.plot(ratio, alt, lw=1.4, label=str(fam))
-            drawn += 1
+            curves.append((str(fam), ratio))
+    # Families often coincide (ratio 1 where no level data exist; branches of one
+    # recombination): one curve each, labelled with every family it stands for.
+    groups = []
+    for fam, ratio in curves:
+        for g in groups:
+            if np.allclose(g[1], ratio, rtol=1e-9, atol=0.0, equal_nan=True):
+                g[0].append(fam)
+                break
+        else:
+            groups.append(([fam], ratio))
+    for fams, ratio in groups:
+        bx.plot(ratio, alt, lw=1.6, ls=_DASHES[drawn % len(_DASHES)], label=",\n".join(fams))
+        drawn += 1
     bx.axvline(1.0, color="0.5", lw=0.8, ls=":")
     bx.set_xlabel("effective rate coefficient / rate of v = 0")
     bx.grid(True, alpha=0.3)
     if drawn:
-        bx.legend(loc="best", fontsize=7, framealpha=0.9)
+        legend_below(bx, ncol=len(groups), fontsize=7)
     fig.suptitle((title or ds.attrs.get("title", "")) + f"\nlevels of {family}", fontsize=10)
     data = _figure_bytes(fig, path)
     plt.close(fig)
