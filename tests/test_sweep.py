@@ -347,6 +347,7 @@ def test_cli_sweep_writes_file_and_map(tmp_path, capsys):
     out, fig = tmp_path / "s.nc", tmp_path / "m.png"
     code = main(["sweep", str(base), "--vary", "time.local_hour=8,12,16", "--sensitivity",
                  "-o", str(out), "--plot", str(fig), "--map-species", "O2+",
+                 "--map-reaction", "O2D_N2",
                  "--no-progress"])
     assert code == 0, capsys.readouterr().err
     with xr.open_dataset(out) as ds:

@@ -43,6 +43,10 @@ COMMANDS = (
     ("rank_n2plus_levels.png",
      ["rank", "scenarios/midlatitude_equinox.toml", "--species", "N2+(v=1)", "--altitudes",
       "200:300"], "--plot"),
+    ("sweep_O2D_N2.png",
+     ["sweep", "scenarios/midlatitude_equinox.toml", "--vary", "time.local_hour=6:18:1",
+      "--sensitivity", "-o", "{tmp}/sweep.nc", "--map-species", "N2+", "--map-reaction",
+      "O2D_N2"], "--plot"),
 )
 
 

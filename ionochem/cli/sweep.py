@@ -133,10 +133,7 @@ def cmd_sweep(args):
     spec = make_spec(scen, axes, sets=sets, scales=scales, set_dir=Path.cwd(),
                      sensitivity=args.sensitivity, diurnal=diurnal)
     check_axes(spec)
-    if args.map_reaction and args.map_reaction not in spec.reaction_list.families \
-            and args.map_reaction not in [r.id for r in spec.reaction_list.reactions]:
-        raise InputError(f"reaction {args.map_reaction!r} is not in the reaction list",
-                         file="--map-reaction")
+    members = _map_members(spec.reaction_list, args.map_reaction)
     total = point_count(axes)
     print(f"sweep of {total} column(s)"
           + (f" over {' x '.join(f'{a.name} ({len(a.values)})' for a in axes)}" if axes
@@ -170,11 +167,26 @@ def cmd_sweep(args):
         if args.plot:
             from ionochem.plot.sweep import plot_sweep_map
             plot_sweep_map(ds, args.plot, species=args.map_species,
-                           reaction=args.map_reaction, axis=args.map_axis)
+                           reaction=args.map_reaction, members=members, axis=args.map_axis)
             print(f"wrote {args.plot}")
     finally:
         ds.close()
     return 0
+
+
+def _map_members(reaction_list, name):
+    """Reaction ids ``--map-reaction`` stands for: itself, or every member of a family
+    (``O2D_N2`` or ``O2D_N2(v)``: the map then shows the sum of the members' sensitivities,
+    the exact sensitivity to one factor on the whole family)."""
+    if name is None:
+        return None
+    ids = [r.id for r in reaction_list.reactions]
+    if name in ids:
+        return [name]
+    for fam, members in getattr(reaction_list, "families", {}).items():
+        if name in (fam, fam.split("(")[0]):
+            return list(members)
+    raise InputError(f"reaction {name!r} is not in the reaction list", file="--map-reaction")
 
 
 class _Attrs:

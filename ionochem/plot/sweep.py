@@ -31,7 +31,8 @@ def _axes_of(ds):
     return dims
 
 
-def plot_sweep_map(ds, path, *, species=None, reaction=None, axis=None, title=None):
+def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=None,
+                   title=None):
     """Map of a sweep dataset: sensitivity of ``species`` to ``reaction`` (or its density)
     against altitude and the swept ``axis``.
 
@@ -45,6 +46,9 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, axis=None, title=No
         Default: the first of N2+, O2+, NO+, O+, e present.
     reaction : str, optional
         Default: the reaction with the largest |S| of the species over the map.
+    members : list of str, optional
+        Reaction ids ``reaction`` stands for (a family's members): the map shows the sum of
+        their sensitivities, the exact sensitivity to one factor on all of them.
     axis : str, optional
         Swept dimension of the x axis; default the first (``local_hour`` for a diurnal run
         without other keys).
@@ -82,10 +86,13 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, axis=None, title=No
         if reaction is None:
             big = np.abs(var.transpose("reaction", ...).values).reshape(len(rids), -1)
             reaction = rids[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
-        if reaction not in rids:
-            raise InputError(f"reaction {reaction!r} is not in the sweep",
+        members = list(members) if members else [reaction]
+        missing = [m for m in members if m not in rids]
+        if missing:
+            raise InputError(f"reaction {missing[0]!r} is not in the sweep",
                              file="--map-reaction")
-        z = var.sel(reaction=reaction).transpose("altitude", axis).values
+        z = var.sel(reaction=members).sum("reaction", skipna=False) \
+            .transpose("altitude", axis).values
         label = f"∂ln n({species}) / ∂ln k({reaction})"
     else:
         z = var.transpose("altitude", axis).values
