@@ -374,8 +374,9 @@ def test_zarr_output_equals_netcdf(tmp_path):
 @pytest.mark.slow
 def test_diurnal_column_on_local_time(tmp_path):
     """--diurnal over one day: a local_hour axis 0..24; the zenith angle least at 12 h
-    (against geometry at each output time); electrons far fewer at local midnight than
-    at noon at 200 km (no night-time source in the list)."""
+    (against geometry at each output time); at 200 km electrons at least 100 times fewer
+    at local midnight than at noon (night-time sources, scattered light, are orders of
+    magnitude weaker than direct EUV *(common practice)*)."""
     base = write_scenario(tmp_path)
     spec = spec_for(base, diurnal=(1, 3 * 3600.0))
     ds = point_dataset(spec, 0)
