@@ -47,6 +47,11 @@ COMMANDS = (
      ["sweep", "scenarios/midlatitude_equinox.toml", "--vary", "time.local_hour=6:18:1",
       "--sensitivity", "-o", "{tmp}/sweep.nc", "--map-species", "N2+", "--map-reaction",
       "O2D_N2"], "--plot"),
+    ("fit_brackenfold.png",
+     ["fit", "scenarios/tabulated_column.toml", "--observed",
+      "scenarios/observations/brackenfold_n2plus_ne.csv", "--free", "PI_N2", "--free",
+      "N2plus_O_NOplus", "--free", "DR_N2plus", "--constrain-electrons", "--profile",
+      "N2plus_O_NOplus", "--profile-points", "9"], "--plot"),
 )
 
 

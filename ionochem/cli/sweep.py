@@ -80,6 +80,9 @@ def register(subparsers):
     s.add_argument("--map-axis", metavar="NAME",
                    help="the swept dimension along the map's x axis (default the first; "
                         "other dimensions at their first value)")
+    s.add_argument("--allow-long", action="store_true",
+                   help="allow sweeps beyond the work bounds (docs/scenario.md, 'Long runs'): "
+                        "more than 2e6 level solves, diurnal or transient spans over 2 days")
     s.add_argument("--no-progress", action="store_true", help="no progress bar")
     s.set_defaults(func=cmd_sweep)
     return subparsers
@@ -133,6 +136,7 @@ def cmd_sweep(args):
     spec = make_spec(scen, axes, sets=sets, scales=scales, set_dir=Path.cwd(),
                      sensitivity=args.sensitivity, diurnal=diurnal)
     check_axes(spec)
+    _check_work(args, spec, total=point_count(axes))
     members = _map_members(spec.reaction_list, args.map_reaction)
     total = point_count(axes)
     print(f"sweep of {total} column(s)"
@@ -172,6 +176,41 @@ def cmd_sweep(args):
     finally:
         ds.close()
     return 0
+
+
+def _check_work(args, spec, *, total):
+    """Refuse, before any work, a sweep beyond the bounds of :mod:`ionochem.cli.limits`:
+    level solves (columns × levels) without --allow-long, each column's transient span and
+    memory, and, without -o (the sweep then held in memory), the memory of the results."""
+    from ionochem.analysis.sweep import point_scenario
+    from ionochem.analysis.sweep_axes import point_values
+    from ionochem.cli.limits import (
+        MAX_LEVEL_SOLVES,
+        MAX_RESULT_BYTES,
+        _gib,
+        check_transient,
+    )
+    rl = spec.reaction_list
+    species = {sp.name for r in rl.reactions for sp, _ in (*r.reactants, *r.products)}
+    n_s, n_r = len(species), len(rl.reactions)
+    first = point_scenario(spec, point_values(spec.axes, 0))
+    levels = len(first.grid.altitude_km)
+    if first.solve.mode == "transient":
+        check_transient(first, n_s, n_r, allow_long=args.allow_long)
+    times = len(first.solve.times_s or ()) if first.solve.mode == "transient" else 1
+    solves = total * levels
+    if solves > MAX_LEVEL_SOLVES and not args.allow_long:
+        raise InputError(f"{total} columns x {levels} levels are {solves:.3g} level solves, "
+                         f"beyond the {MAX_LEVEL_SOLVES:.0e} allowed without --allow-long",
+                         file="--vary")
+    if not args.output:
+        per = 8 * levels * times * (6 * n_s + 4 * n_r + (n_s * n_r if spec.sensitivity
+                                                          else 0))
+        if total * per > MAX_RESULT_BYTES:
+            raise InputError(f"{total} columns held in memory would need about "
+                             f"{_gib(total * per)}, above the {_gib(MAX_RESULT_BYTES)} "
+                             "ceiling; give -o SWEEP.nc (written batch by batch)",
+                             file="--vary")
 
 
 def _map_members(reaction_list, name):
