@@ -18,6 +18,12 @@ def column(tmp_path):
     ``column(reactions, altitudes, neutrals={name: array}, Tn=..., Te=..., Ti=...,
     production={reaction id: array}, extra="toml text")``. Values are invented test inputs.
     """
+    return make_column(tmp_path)
+
+
+def make_column(tmp_path):
+    """The factory of the ``column`` fixture, writing into ``tmp_path`` (for fixtures of a
+    wider scope)."""
 
     def make(reactions, altitudes, *, neutrals, Tn, Te=None, Ti=None, production=None,
              extra="", name="s"):

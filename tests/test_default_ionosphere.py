@@ -94,11 +94,20 @@ def test_oplus_overtakes_molecular_ions_in_the_f1_region(mid, solmin):
 
 
 def test_n2plus_is_a_small_fraction_of_electrons(mid):
-    """N2+ is 0.05–3 % of the electrons over 150–250 km (SCIENCE.md §5, common practice)."""
+    """N2+ is 0.1-2 % of the electrons at every level of 150-250 km, and above 0.5 % at its
+    maximum there.
+
+    Reasoning for the band: the trade's figure is "about 0.1-1 %" *(common practice)*; the
+    upper edge is doubled because the F1-region N2+ is fed largely by O+(2D) + N2, whose rate
+    coefficient differs between evaluations by up to a factor of several (1e-10 to 8e-10
+    cm3 s-1, *(from memory)*). This is a plausibility band, not an oracle: the factors that
+    set N2+ (photo rates, level shares, Earth-Sun distance) are checked exactly in
+    test_pipeline_factors.py. The model gave 0.45-1.45 % when this was written."""
     _, ds = mid
     a = ds["altitude"].values
     frac = (_d(ds, "N2+") / _d(ds, "e"))[(a >= 150) & (a <= 250)]
-    assert np.all((frac > 5e-4) & (frac < 3e-2)), (frac.min(), frac.max())
+    assert np.all((frac > 1e-3) & (frac < 2e-2)), (frac.min(), frac.max())
+    assert frac.max() > 5e-3
 
 
 def _sunspot_number(f107):
@@ -110,10 +119,16 @@ def _sunspot_number(f107):
 
 def test_e_region_density_below_the_foe_formula_without_soft_xrays(mid):
     """Ne at the E-peak height (110 km) against NmE = 1.24e4 foE² with
-    foE = 0.9 [(180 + 1.44 R12) cos χ]^(1/4) MHz (Davies 1990, from memory).
+    foE = 0.9 [(180 + 1.44 R12) cos χ]^(1/4) MHz (Davies 1990, Ionospheric Radio, from
+    memory).
 
-    Without soft X-rays (below 50 Å, not in EUVAC) the model must fall short of it, but not
-    by more than a factor 3; the shortfall found is recorded in docs/validation.md.
+    Without soft X-rays (below 50 Å, not in EUVAC) a photochemical model with EUVAC and the
+    accepted recombination rates "usually underestimates NmE by 30-40 %" (Mikhailov,
+    International Journal of Geomagnetism and Aeronomy vol. 4, paper GAI00345, citing
+    Buonsanto et al. 1995 and Titheridge 1997). The band 20-50 % is that range widened by
+    10 points either way for the foE formula, whose foE is good to about 5 % (so NmE to
+    about 10 %) *(common practice)*. The shortfall found (30 %) is recorded in
+    docs/validation.md.
     """
     model, ds = mid
     chi = float(ds["solar_zenith_angle"])
@@ -121,9 +136,8 @@ def test_e_region_density_below_the_foe_formula_without_soft_xrays(mid):
     foE = 0.9 * ((180 + 1.44 * R12) * np.cos(np.radians(chi))) ** 0.25
     nmE = 1.24e4 * foE ** 2
     ne110 = float(ds["density"].sel(species="e", altitude=110.0))
-    assert nmE / 3 < ne110 < nmE
     shortfall = 1 - ne110 / nmE
-    assert 0.05 < shortfall < 0.67
+    assert 0.20 < shortfall < 0.50, shortfall
 
 
 def test_all_densities_positive_and_balance_closes(mid):
@@ -135,6 +149,16 @@ def test_all_densities_positive_and_balance_closes(mid):
     assert np.all(np.isfinite(d)) and np.all(d > 0)
     assert abs(ds.attrs["column_balance"]) < 1e-6
     assert np.all(ds["residual"].values < 1e-8)
+
+
+def test_newton_alone_converges_in_few_iterations_on_the_demo_column(mid):
+    """Every level of the demo column converges by Newton alone (no continuation) in at most
+    8 iterations (4 at most when this test was written): the solver's start and residual
+    scaling use gross production and loss the right way round. A swap of the two leaves the
+    densities nearly unchanged but needs up to 145 iterations and continuation."""
+    _, ds = mid
+    assert np.all(ds["solver_method"].values == 1)
+    assert ds["iterations"].values.max() <= 8
 
 
 def test_lifetime_flags_oplus_above_the_f1_region(mid):
@@ -204,13 +228,3 @@ def test_twilight_column_with_dark_lower_levels_solves():
     assert np.all(e[dark] == 0) and np.all(e[~dark] >= 0)
     # Grazing rays through the dense lower atmosphere are absorbed; the top is sunlit.
     assert np.all(e[a >= 300] > 0)
-
-
-def test_flux_follows_the_earth_sun_distance():
-    """The photo rates of an unattenuated top level scale as (1 AU / r)² between perihelion
-    (early January) and aphelion (early July), ≈ 6.9 % apart (astronomical almanac values,
-    r = 0.9833 and 1.0167 AU; from memory)."""
-    from ionochem.environment.geometry import flux_distance_factor
-    jan = float(flux_distance_factor(np.datetime64("2025-01-04T12:00")))
-    jul = float(flux_distance_factor(np.datetime64("2025-07-04T12:00")))
-    assert jan / jul == pytest.approx((1.0167 / 0.9833) ** 2, rel=2e-3)

@@ -37,6 +37,21 @@ def test_one_ion_steady_state_is_sqrt_q_over_alpha(column):
     np.testing.assert_array_equal(ds["density"].sel(species="e").values, n)
 
 
+def test_one_ion_start_is_exact_and_newton_needs_at_most_two_iterations(column):
+    """The geometric-mean start n <- sqrt(n P / (L/n)) of the steady solver (docs/validation.md,
+    steady state) lands on sqrt(q/alpha) for one ion, so Newton confirms it in at most two
+    iterations at every level, and the result's gross production and loss are q and
+    alpha n^2 (analytic balance; a solver fed loss for production would start from zero and
+    need many more iterations)."""
+    ds = ionochem.Model(ionochem.load_scenario(_one_ion(column))).solve()
+    assert ds["iterations"].values.max() <= 2
+    assert np.all(ds["solver_method"].values == 1)          # Newton, no continuation
+    alpha = 2.0e-7 * (300 / TE) ** 0.7
+    n = ds["density"].sel(species="O+").values
+    np.testing.assert_allclose(ds["production"].sel(species="O+").values, Q, rtol=1e-10)
+    np.testing.assert_allclose(ds["loss"].sel(species="O+").values, alpha * n * n, rtol=1e-10)
+
+
 def test_one_ion_transient_follows_tanh(column):
     """From zero, n(t) = sqrt(q/α) tanh(sqrt(qα) t) to 1e-5 (analytic solution of
     dn/dt = q − α n²)."""
