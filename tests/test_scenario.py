@@ -23,6 +23,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+import ionochem
+from ionochem.environment.column import build_environment
 from ionochem.errors import ScenarioError
 from ionochem.io.scenario import (
     Scenario,
@@ -81,12 +83,11 @@ def _with(data, dotted, value):
 def test_bad_input_corpus_reports_manifest_key_and_text(row):
     """Each malformed scenario of tests/bad_inputs/scenarios.tsv fails with
     ``FILE: KEY: message`` (``FILE:N:`` for TOML syntax) and the listed text, as
-    DESIGN.md section 4 requires of the command line. Table errors surface when the tables
-    are read (Scenario.read_tables, called when the model is built)."""
+    docs/scenario.md requires of the command line. Table errors surface when the tables are
+    read, by the environment stage while the model is built."""
     path = str(CORPUS / row["file"])
     with pytest.raises(ScenarioError) as info:
-        scen = load_scenario(path)
-        scen.read_tables()
+        ionochem.Model(load_scenario(path))
     text = str(info.value)
     key = row["key"]
     prefix = f"{path}:{key[5:]}: " if key.startswith("line:") else f"{path}: {key}: "
@@ -109,20 +110,20 @@ def test_bad_input_corpus_is_complete_and_listed():
                                   "temperature_table_missing_te"])
 def test_table_errors_appear_only_when_tables_are_read(name):
     """docs/scenario.md: table contents are read when the model is built, not by
-    load_scenario, so these corpus files load and then fail in read_tables."""
+    load_scenario, so these corpus files load and then fail when the model is built."""
     scen = load_scenario(CORPUS / f"{name}.toml")
     with pytest.raises(ScenarioError):
-        scen.read_tables()
+        ionochem.Model(scen)
 
 
 def test_corpus_base_without_the_defect_is_valid():
     """The corpus files differ from a valid scenario by one defect: removing the unknown key
-    of unknown_top_key.toml gives a scenario whose tables all read."""
+    of unknown_top_key.toml gives a scenario whose tables all read when the model is built."""
     text = (CORPUS / "unknown_top_key.toml").read_text().replace('colour = "blue"\n', "")
     scen = scenario_from_dict(tomllib.loads(text), path="x.toml", base_dir=CORPUS)
-    tables = scen.read_tables()
-    assert set(tables) == {"neutrals.table", "production.table"}
-    assert tables["production.table"]["P1"].shape == (5,)
+    env = ionochem.Model(scen).environment
+    assert set(env.prescribed) == {"P1"} and env.prescribed["P1"].shape == (5,)
+    assert env.neutrals and np.all(env.Tn > 0)
 
 
 # ------------------------------------------------------------------------ defaults, paths
@@ -373,8 +374,8 @@ def test_transient_and_electron_table_settings(base, tmp_path):
                                                  "electron_table": "ne.csv"}),
                            base_dir=tmp_path)
     assert s.solve.balance_ion == "O+" and s.solve.electron_table == tmp_path / "ne.csv"
-    assert s.read_tables()["solve.electron_table"]["Ne"][0] == pytest.approx(
-        np.exp(np.interp(100, [50, 500], np.log([1e3, 1e5]))))
+    ne = build_environment(s).electron_density
+    assert ne[0] == pytest.approx(np.exp(np.interp(100, [50, 500], np.log([1e3, 1e5]))))
 
 
 def test_temperature_table_columns_follow_the_chosen_sources(base, tmp_path):
@@ -383,12 +384,14 @@ def test_temperature_table_columns_follow_the_chosen_sources(base, tmp_path):
     (tmp_path / "t.csv").write_text("altitude_km,Tv_K,Ti_K\n50,300,250\n500,3000,1200\n")
     data = _with(base, "temperatures", {"electron": "profile", "ion": "table",
                                         "vibrational": "table", "table": "t.csv"})
-    s = scenario_from_dict(data, base_dir=tmp_path)
-    assert s.table_requests()["temperatures.table"][1] == ["Ti_K", "Tv_K"]
-    assert set(s.read_tables()["temperatures.table"]) == {"Ti_K", "Tv_K"}
+    env = build_environment(scenario_from_dict(data, base_dir=tmp_path))
+    # log-linear interpolation of the table onto the 100 km level (docs/scenario.md)
+    w = (100.0 - 50.0) / 450.0
+    assert env.Ti[0] == pytest.approx(250.0 * (1200.0 / 250.0) ** w)
+    assert env.Tv[0] == pytest.approx(300.0 * (3000.0 / 300.0) ** w)
     data = _with(data, "temperatures.electron", "table")
     with pytest.raises(ScenarioError, match="missing column Te_K"):
-        scenario_from_dict(data, base_dir=tmp_path).read_tables()
+        build_environment(scenario_from_dict(data, base_dir=tmp_path))
 
 
 def test_profile_parameters_are_stored_with_defaults_for_the_rest(base, tmp_path):
@@ -446,7 +449,6 @@ def test_msis00_accepts_a_no_table(base, tmp_path):
     data["neutrals"] = {"model": "msis00", "no_table": "no.csv"}
     s = scenario_from_dict(data, base_dir=tmp_path)
     assert s.neutrals.no_table == tmp_path / "no.csv"
-    assert s.table_requests()["neutrals.no_table"][1] == ["NO"]
 
 
 def test_toml_offset_datetime_is_converted_to_utc(tmp_path, base):

@@ -8,9 +8,10 @@ key), fills in every default and returns a frozen :class:`Scenario`.
 
 It must not compute physics: the parametric temperature shape, the neutral model and the
 photon sources are only validated and stored here. Referenced CSV profile tables are checked
-for existence when the scenario is loaded and read (with their own checks) by
-:meth:`Scenario.read_tables`, which the model calls when it is built. Nothing in a scenario is
-ever executed as code.
+for existence when the scenario is loaded; their contents are read (with their own checks) by
+the environment stage when the model is built (``ionochem.environment.column``, through
+:func:`ionochem.io.tables.read_profile_table`). Nothing in a scenario is ever executed as
+code.
 """
 
 from __future__ import annotations
@@ -29,7 +30,6 @@ from typing import Any
 import numpy as np
 
 from ionochem.errors import ScenarioError
-from ionochem.io.tables import read_profile_table
 
 __all__ = [
     "Changes", "Geomagnetic", "Grid", "Location", "Neutrals", "Output", "Photons",
@@ -301,16 +301,6 @@ class Output:
     budget: tuple[str, ...] = ()
 
 
-#: Profile tables a scenario can name: scenario key -> (section attribute, field).
-_TABLE_KEYS = {
-    "neutrals.table": ("neutrals", "table"),
-    "neutrals.no_table": ("neutrals", "no_table"),
-    "temperatures.table": ("temperatures", "table"),
-    "production.table": ("production", "table"),
-    "solve.electron_table": ("solve", "electron_table"),
-}
-
-
 @dataclass(frozen=True)
 class Scenario:
     """One validated scenario, every default filled in, every path absolute.
@@ -395,94 +385,6 @@ class Scenario:
         for name in sections:
             if getattr(self, name) is None:
                 raise self.error(f"the [{name}] section is needed for {reason}", key=name)
-
-    def table_requests(self) -> dict[str, tuple[Path, list[str] | None, bool]]:
-        """The profile tables this scenario uses and what each must contain.
-
-        Returns
-        -------
-        dict
-            Scenario key -> (path, required columns or None for all, non-negative flag).
-            ``neutrals.table`` returns all columns and must hold ``Tn_K``;
-            ``temperatures.table`` needs ``Te_K``/``Ti_K``/``Tv_K`` for the temperatures set
-            to ``"table"``; ``neutrals.no_table`` needs ``NO``; ``solve.electron_table``
-            needs ``Ne``; ``production.table`` returns all columns.
-        """
-        out: dict[str, tuple[Path, list[str] | None, bool]] = {}
-        n, t = self.neutrals, self.temperatures
-        if n.table is not None:
-            out["neutrals.table"] = (n.table, None, True)
-        if n.no_table is not None:
-            out["neutrals.no_table"] = (n.no_table, ["NO"], True)
-        if t.table is not None:
-            cols = [c for c, src in (("Te_K", t.electron), ("Ti_K", t.ion),
-                                     ("Tv_K", t.vibrational)) if src == "table"]
-            out["temperatures.table"] = (t.table, cols, False)
-        if self.production.table is not None:
-            out["production.table"] = (self.production.table, None, True)
-        if self.solve.electron_table is not None:
-            out["solve.electron_table"] = (self.solve.electron_table, ["Ne"], True)
-        return out
-
-    def read_table(self, key: str, columns: list[str] | None = None, *,
-                   nonnegative: bool = False) -> dict[str, np.ndarray]:
-        """Read one referenced profile table onto the grid.
-
-        Parameters
-        ----------
-        key : str
-            One of ``neutrals.table``, ``neutrals.no_table``, ``temperatures.table``,
-            ``production.table``, ``solve.electron_table``.
-        columns : list of str, optional
-            Required columns (all when None).
-        nonnegative : bool
-            Require every returned column to be >= 0.
-
-        Returns
-        -------
-        dict of str to numpy.ndarray
-            Column -> values, shape (altitude,); see
-            :func:`ionochem.io.tables.read_profile_table`.
-
-        Raises
-        ------
-        ScenarioError
-            At ``key``, for an absent table or any table problem.
-        """
-        if key not in _TABLE_KEYS:
-            raise ValueError(f"not a table key: {key!r}")
-        section, name = _TABLE_KEYS[key]
-        path = getattr(getattr(self, section), name)
-        if path is None:
-            raise self.error("no table is given here", key=key)
-        return read_profile_table(path, self.altitude_km, columns=columns, where=key,
-                                  nonnegative=nonnegative, scenario_file=self.source)
-
-    def read_tables(self) -> dict[str, dict[str, np.ndarray]]:
-        """Read every profile table of :meth:`table_requests` onto the grid.
-
-        This is where table errors surface (bad cells, missing columns, a grid outside a
-        table); the model calls it when it is built.
-
-        Returns
-        -------
-        dict
-            Scenario key -> (column name -> values, shape (altitude,)).
-
-        Raises
-        ------
-        ScenarioError
-            At the key of the first bad table.
-        """
-        out = {}
-        for key, (_, columns, nonneg) in self.table_requests().items():
-            out[key] = self.read_table(key, columns, nonnegative=nonneg)
-        if "neutrals.table" in out and "Tn_K" not in out["neutrals.table"]:
-            present = ", ".join(["altitude_km", *out["neutrals.table"]])
-            raise self.error(f"{self.neutrals.table.name}: the neutral table has no Tn_K "
-                             f"column (the neutral temperature, K); it has: {present}",
-                             key="neutrals.table")
-        return out
 
 
 # ----------------------------------------------------------------------------- loading
