@@ -1,5 +1,6 @@
 """The default reaction list in the mid-latitude demo column against the checks of the trade
-(SCIENCE.md §5, common practice), NRLMSIS through pymsis, and the night and twilight cases.
+(*(common practice)*, listed in docs/validation.md, 'Default ionosphere'), NRLMSIS through
+pymsis, and the night and twilight cases.
 """
 
 from __future__ import annotations
@@ -64,7 +65,7 @@ def test_neutrals_equal_a_direct_pymsis_call(mid):
 
 def test_no_plus_exceeds_o2_plus_in_the_e_region(mid):
     """NO+ > O2+ over 120–140 km and within a factor 3 of it over 100–120 km
-    (SCIENCE.md §5, common practice; without soft X-rays the two are comparable low down)."""
+    (*(common practice)*; without soft X-rays the two are comparable low down)."""
     _, ds = mid
     a = ds["altitude"].values
     ratio = _d(ds, "NO+") / _d(ds, "O2+")
@@ -74,13 +75,13 @@ def test_no_plus_exceeds_o2_plus_in_the_e_region(mid):
 
 
 def test_oplus_overtakes_molecular_ions_in_the_f1_region(mid, solmin):
-    """O+ overtakes the molecular ions between 160 and 210 km by day (SCIENCE.md §5, common
-    practice), at moderate activity and at solar minimum.
+    """O+ overtakes the molecular ions between 160 and 210 km by day *(common
+    practice)*, at moderate activity and at solar minimum.
 
-    SCIENCE.md also expects the crossover lower at solar minimum. A photochemical column gives
-    the opposite: O+ (lost linearly, n ∝ q) falls faster with the EUV flux than the
-    recombination-limited molecular ions (n ∝ sqrt(q)), so the crossover rises when q falls.
-    We assert what the physics of this model implies and record the departure in
+    The trade's rule of thumb also puts the crossover lower at solar minimum. A photochemical
+    column gives the opposite: O+ (lost linearly, n ∝ q) falls faster with the EUV flux than the
+    recombination-limited molecular ions (n ∝ sqrt(q)), so the crossover rises when q falls. We
+    assert what the physics of this model implies and record the departure in
     docs/validation.md.
     """
     z_mid, z_min = _crossover_km(mid[1]), _crossover_km(solmin[1])
@@ -163,8 +164,9 @@ def test_newton_alone_converges_in_few_iterations_on_the_demo_column(mid):
 
 def test_lifetime_flags_oplus_above_the_f1_region(mid):
     """O+ is flagged as out of photochemical equilibrium in the upper F region (its lifetime
-    passes the ambipolar diffusion time near 300 km here) and the
-    molecular ions never are (SCIENCE.md §1: molecular lifetimes are seconds to a minute)."""
+    passes the ambipolar diffusion time near 300 km here) and the molecular ions never are
+    (molecular-ion lifetimes are seconds to a minute, *(common practice)*; README.md, 'Validity
+    and limits')."""
     _, ds = mid
     a = ds["altitude"].values
     flag = ds["pce_doubtful"]

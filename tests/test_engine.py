@@ -140,7 +140,7 @@ def test_analytic_jacobian_equals_central_differences(column):
 
 
 def test_electrons_equal_charge_weighted_ion_sum(column):
-    """Ne = Σ q_i n_i to 1e-12 (charge neutrality, DESIGN.md §4)."""
+    """Ne = Σ q_i n_i to 1e-12 (charge neutrality; docs/outputs.md)."""
     model = _chain_model(column)
     ds = model.solve()
     ions = [s for s in model.species if s.endswith("+")]
@@ -244,7 +244,7 @@ def test_with_changes_scales_and_replaces_rates(column):
 
 def test_negative_balance_ion_is_flagged_not_hidden(column, tmp_path):
     """A given Ne below the molecular ions makes O+ = Ne − others negative there: those
-    levels are flagged in the dataset and named in its warnings (SCIENCE.md §1)."""
+    levels are flagged in the dataset and named in its warnings (docs/scenario.md, '[solve]')."""
     ne = np.where(ALT < 200, 10.0, 1e5)
     (tmp_path / "ne.csv").write_text("altitude_km,Ne\n" + "\n".join(
         f"{a},{v}" for a, v in zip(ALT, ne)) + "\n")

@@ -1,8 +1,9 @@
 """Property and fuzz tests of the reaction-list reader and the expression compiler.
 
-The contract (DESIGN.md §4): every deliberate error derives from ``ionochem.Error``; anything
-else escaping is a bug. Hypothesis feeds arbitrary text, bytes and token soup to the reader
-and the compiler; generated expression trees are checked against an evaluator written here.
+The contract (DEVELOPERS.md, errors): every deliberate error derives from ``ionochem.Error``;
+anything else escaping is a bug. Hypothesis feeds arbitrary text, bytes and token soup to the
+reader and the compiler; generated expression trees are checked against an evaluator written
+here.
 """
 
 import re

@@ -159,7 +159,8 @@ def test_lyman_alpha_is_attenuated_by_o2_only():
 # --------------------------------------------------------------------------------------
 # (c) thresholds
 
-# SCIENCE.md section 4 thresholds (NIST ionization energies, from memory), eV.
+# Ionization thresholds, eV: NIST ionization energies *(from memory)*, as listed in the
+# docstring of ionochem/environment/crosssections.py.
 THRESHOLDS_EV = {
     "O->O+": 13.62, "O->O+(2D)": 16.94, "O->O+(2P)": 18.64, "N2->N2+": 15.58,
     "N2->N+": 24.3, "O2->O2+": 12.07, "O2->O+": 18.7, "NO->NO+": 9.26, "N->N+": 14.53,
@@ -168,7 +169,7 @@ THRESHOLDS_EV = {
 
 
 def test_no_cross_section_longward_of_channel_threshold():
-    """SCIENCE.md section 4 (NIST thresholds): every channel of the default spectrum is zero
+    """NIST thresholds *(from memory)*: every channel of the default spectrum is zero
     in every bin wholly longward of its threshold (a line beyond it, or a range bin whose
     short edge is beyond it); a small tolerance of 2 angstrom covers the rounding of the
     thresholds quoted there."""
@@ -185,15 +186,16 @@ def test_no_cross_section_longward_of_channel_threshold():
 
 
 def test_channel_thresholds_agree_with_science_md():
-    """The channel thresholds used in code equal SCIENCE.md section 4 to the digits quoted
-    there (NIST ionization energies)."""
+    """The channel thresholds used in code equal the NIST ionization energies above
+    *(from memory)* to 0.05 eV."""
     for key, e_th in THRESHOLDS_EV.items():
         assert CHANNELS[key].threshold_eV == pytest.approx(e_th, abs=0.051), key
 
 
 def test_user_spectrum_with_partial_ionization_below_threshold_is_rejected(tmp_path):
     """A user spectrum giving O -> O+(2D) (threshold 16.94 eV, 732 angstrom) at 800
-    angstrom breaks SCIENCE.md section 4 and must be an input error naming the column."""
+    angstrom breaks the threshold rule (docs/scenario.md, 'User photon spectra') and must be an
+    input error naming the column."""
     p = tmp_path / "s.csv"
     p.write_text("wl_lo_A,wl_hi_A,photons_cm2_s,sigma_abs_O,sigma_ion_O->O+(2D)\n"
                  "800,850,1e9,4,1\n")
@@ -305,7 +307,7 @@ def test_thin_atmosphere_gives_unattenuated_frequencies_and_per_bin_sums():
 
 def test_photoelectron_energy_of_584_photon_on_o_is_7_6_ev():
     """h nu - threshold: 584.33 angstrom (21.22 eV) on O -> O+(4S) (13.62 eV) gives a
-    7.6 eV photoelectron (SCIENCE.md section 4)."""
+    7.6 eV photoelectron (photon energy minus threshold)."""
     spec = solar_spectrum(100, 100)
     e = photoelectron_energies_eV(spec)
     i = int(np.flatnonzero(spec.wl_lo_A == 584.33)[0])
