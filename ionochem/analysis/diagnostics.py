@@ -88,7 +88,7 @@ def add_steady_diagnostics(model, ds):
     for name, upper, lower, label in EMISSIONS:
         total = np.zeros(rates.shape[1])
         found = False
-        for j, r in enumerate(model._rxns):
+        for j, r in enumerate(model.reaction_objects):
             reac = [sp.name for sp, c in r.reactants for _ in range(c)]
             prod = [sp.name for sp, c in r.products for _ in range(c)]
             if reac == [upper] and prod == [lower]:
@@ -99,8 +99,8 @@ def add_steady_diagnostics(model, ds):
             labels.append((name, label))
     if ver:
         ds["volume_emission_rate"] = (("emission", "altitude"), np.array(ver),
-                                      {"units": "photons cm-3 s-1",
-                                       "long_name": "volume emission rate"})
+                                      {"units": "cm-3 s-1",
+                                       "long_name": "volume emission rate (photons per cm3 per s)"})
         ds.coords["emission"] = ("emission", np.array([n for n, _ in labels], dtype=object))
         ds.coords["emission_line"] = ("emission", np.array([lab for _, lab in labels],
                                                            dtype=object))

@@ -36,8 +36,9 @@ class Environment:
     ion_drift_m_s : float
         Ion–neutral drift speed entering the effective temperature, m s-1.
     ti_includes_drift : bool
-        True when Ti was modelled with frictional heating (the drift term is then already in
-        Ti and is not added again to Teff).
+        Whether Ti already holds the frictional heating of the drift (the drift term is then
+        not added again to Teff). The builder sets it True for every column: a tabulated Ti
+        is taken as measured (heated already) and a modelled Ti is heated here.
     prescribed : dict[str, ndarray]
         Volume production rates for reactions written ``k = prescribed``, cm-3 s-1.
     electron_density : ndarray or None

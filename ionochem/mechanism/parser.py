@@ -334,6 +334,9 @@ def _parse_side(text: str, side: str, level: int | None, ctx: _Context):
             count = int(m.group(1))
             term = m.group(2).strip()
         elif term[0].isdigit():
+            if "0" in term:
+                ctx.fail(f"'{term}' is not a species: it contains the digit zero (0); the "
+                         "oxygen atom is the letter O (e.g. 'O2')")
             ctx.fail(f"write the count and the species apart, e.g. '2 O', not '{term}'")
         if re.search(r"\s", term):
             if "+" in term:
