@@ -203,3 +203,45 @@ def test_euvac_floor_reaches_the_photo_rates_at_solar_minimum(column):
     lin = (unfloored * _astropy_distance_factor(utc)) @ (raw["O_abs"] * 1e-18
                                                          * _o_state_fractions(raw)["2D"])
     assert abs(_k(model, "PI_O2D")[0] / lin - 1) > 0.01
+
+
+PE_LIST = """\
+# invented test mechanism: photoelectron impact on O only, invented losses
+PE_O4S: O -> O+ + e | k = photoelectron | ref = invented test
+PE_O2D: O -> O+(2D) + e | k = photoelectron | ref = invented test
+PE_O2P: O -> O+(2P) + e | k = photoelectron | ref = invented test
+R1: O+ + e -> O | k = 1e-12 | ref = invented test
+R2: O+(2D) + e -> O+ + e | k = 1e-7 | ref = invented test
+R3: O+(2P) + e -> O+ + e | k = 1e-7 | ref = invented test
+"""
+#: O ionization thresholds (eV) of the three folded states: NIST ionization energy of O and
+#: the O+(2D), O+(2P) excitation energies *(from memory)*.
+O_THRESHOLDS_EV = {"4S": 13.618, "2D": 16.943, "2P": 18.635}
+HC_EV_A = 12398.42  # h c, eV angstrom (CODATA)
+
+
+def test_photoelectron_yield_reaches_the_rate_coefficients(column):
+    """In an atomic-oxygen column (no N2 or O2 to share with) every secondary ionization is
+    of O, so k(photoelectron O -> O+(state)) = share(state) x sum over O+ states and bins of
+    J_b Y(h nu_b - threshold), with J_b = (1 AU/r)^2 F_b sigma_b (published flux and partial
+    cross sections) and the yield Y(E) = max(E - 15 eV, 0) / 35 eV (W = 35 eV per ion pair,
+    Rees 1989, *(common practice)*; no ion pair below 15 eV), and O+ state shares 0.4, 0.4,
+    0.2 *(from memory; common practice)*. To 5e-4, at every level of a transparent column."""
+    utc = "2025-01-04T11:00:00Z"
+    neutrals = {"O": np.full(ALT.size, TINY), "N": np.full(ALT.size, TINY)}
+    extra = _sun_toml(utc).replace("secondary = false", "secondary = true")
+    with pytest.warns(UserWarning, match="no N2, O2"):
+        path = column(PE_LIST, ALT, neutrals=neutrals, Tn=800.0, extra=extra, name="pe")
+        model = ionochem.Model(ionochem.load_scenario(path))
+    raw = raw_cross_sections()
+    from _oracles import euvac_reference_table
+
+    ref = euvac_reference_table()
+    energy = HC_EV_A / (0.5 * (ref["wl_lo_A"] + ref["wl_hi_A"]))
+    flux = euvac_reference_flux(150.0, 145.0) * _astropy_distance_factor(utc)
+    frac = _o_state_fractions(raw)
+    pairs = sum(flux @ (raw["O_abs"] * 1e-18 * frac[s]
+                        * np.maximum(energy - O_THRESHOLDS_EV[s] - 15.0, 0.0) / 35.0)
+                for s in O_THRESHOLDS_EV)
+    for rid, share in (("PE_O4S", 0.4), ("PE_O2D", 0.4), ("PE_O2P", 0.2)):
+        np.testing.assert_allclose(_k(model, rid), share * pairs, rtol=5e-4, err_msg=rid)

@@ -41,7 +41,7 @@ MUTANTS = {
         's2d = t["O+_2D"] + 0.7 * t["O+_2Pstar"]\n    s2p = t["O+_2P"] + 0.3 * t["O+_2Pstar"]',
         ["tests/test_pipeline_factors.py"]),
     "solver_gross_swapped": (
-        "ionochem/model.py",
+        "ionochem/solve/batch.py",
         "return P[:, :S], L[:, :S]",
         "return L[:, :S], P[:, :S]",
         ["tests/test_engine.py", "tests/test_default_ionosphere.py"]),
