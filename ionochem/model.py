@@ -60,6 +60,20 @@ def channel_of(reaction) -> str:
     return f"{absorber}->{'+'.join(prods)}"
 
 
+def _level_channel(reaction, kind):
+    """``"photo:N2->N2+(v=1)"`` for a photo/photoelectron reaction making N2+ in a level,
+    else None (the environment splits only N2+ bin by bin)."""
+    if kind not in ("photo", "photoelectron"):
+        return None
+    ions = [sp for sp, _ in reaction.products if sp.charge > 0]
+    if not ions or ions[0].vib is None or ions[0].base != "N2+":
+        return None
+    absorbers = [sp.name for sp, _ in reaction.reactants if sp.charge == 0]
+    if absorbers != ["N2"]:
+        return None
+    return f"{kind}:N2->N2+(v={ions[0].vib})"
+
+
 class Model:
     """A reaction list solved in the column a scenario describes.
 
@@ -118,6 +132,9 @@ class Model:
                 if kind in expr.variables:
                     needs.add(f"prescribed:{r.id}" if kind == "prescribed"
                               else f"{kind}:{channel_of(r)}")
+                    level_key = _level_channel(r, kind)
+                    if level_key is not None:
+                        needs.add(level_key)
             for sp, _ in (*r.reactants, *r.products):
                 needs.add(sp.name)
         self._needs = frozenset(needs)
@@ -160,8 +177,9 @@ class Model:
         self._k_static = self._evaluate_k(time_s=None)
         # The expression language allows a source only times constant factors, so a photo
         # rate is coefficient × source(t): precompute the coefficients once for transient runs.
-        self._src_keys = [f"{'photo' if 'photo' in self._k_expr[j].variables else 'photoelectron'}"
-                          f":{channel_of(self._rxns[j])}" for j in self._source_reactions]
+        self._src_keys = [self._source_key(j, "photo" if "photo" in self._k_expr[j].variables
+                                           else "photoelectron")
+                          for j in self._source_reactions]
         if self._source_reactions and self.environment.time_dependent:
             ones = {k: np.ones(A) for k in self._src_keys}
             with np.errstate(all="ignore"):
@@ -257,6 +275,22 @@ class Model:
         return new
 
     # ---------------------------------------------------------------- rates
+    def _source_key(self, j, kind):
+        """Source key of reaction j: its level's own channel when the environment splits
+        it bin by bin (``photo:N2->N2+(v=1)``), else the channel total."""
+        key = _level_channel(self._rxns[j], kind)
+        if key is not None and key in self._level_keys():
+            return key
+        return f"{kind}:{channel_of(self._rxns[j])}"
+
+    def _level_keys(self):
+        if not hasattr(self, "_level_keys_cache"):
+            sun = getattr(self.environment, "sun", None)
+            req = getattr(sun, "level_requests", {}) if sun is not None else {}
+            self._level_keys_cache = frozenset(f"{b}(v={v})" for b, lv in req.items()
+                                               for v in lv)
+        return self._level_keys_cache
+
     def _vibrational_fractions(self):
         """Share of each family level in photo/photoelectron production of that family."""
         levels = {}
@@ -316,6 +350,11 @@ class Model:
         for kind in ("photo", "photoelectron"):
             if kind in expr.variables:
                 ch = channel_of(r)
+                level_key = _level_channel(r, kind)
+                if level_key is not None and level_key in sources:
+                    # Split bin by bin by the environment (n2plus_levels.level_sources).
+                    out[kind] = sources[level_key]
+                    continue
                 key = f"{kind}:{ch}"
                 if key not in sources:
                     avail = ", ".join(sorted(k for k in sources if k.startswith(kind)))

@@ -55,6 +55,20 @@ def raw_cross_sections() -> dict[str, np.ndarray]:
     return read_csv(PACKAGE_DATA / "cross_sections.csv")
 
 
+def o2_to_o2plus_mb(raw) -> np.ndarray:
+    """O2 -> O2+ cross section (Mb) on the EUVAC bins: the table's O2+ column, except in the
+    50-100 angstrom bin, where the table gives all of the absorption as O2+ (it has no
+    dissociative ionization there) and the documented rule continues the O+ + O share of the
+    100-150 angstrom bin, (O2_abs - O2+_ion) / O2_abs there (ionochem/environment/
+    crosssections.py, *(from memory)*)."""
+    o2 = np.array(raw["O2+_ion"], dtype=float)
+    nxt = (raw["wl_lo_A"] == 100.0) & (raw["wl_hi_A"] == 150.0)
+    share = float(((raw["O2_abs"] - raw["O2+_ion"]) / raw["O2_abs"])[nxt][0])
+    first = raw["wl_hi_A"] <= 100.0
+    o2[first] = raw["O2_abs"][first] * (1.0 - share)
+    return o2
+
+
 def huebner_1992() -> dict[str, tuple[float, float]]:
     """Unattenuated photoionization rates at 1 AU, s-1: species -> (quiet, active)
     (tests/reference/huebner1992_photorates.csv; see its header for the status)."""

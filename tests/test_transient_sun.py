@@ -101,7 +101,7 @@ def test_transient_photo_rates_equal_an_independent_sun_at_each_time(column):
     neutrals = {s: _iso_density(s, ISO_ALT) for s in ISO}
     extra = (f"[location]\nlatitude_deg = {lat}\nlongitude_deg = {lon}\n"
              f"[time]\nutc = {t0}Z\n[sun]\nf107 = 150.0\nf107a = 145.0\n"
-             "[photons]\nsecondary = false\n"
+             "[photons]\nsecondary = false\nsoft_xrays = false\nnight_sources = false\n"
              '[solve]\nmode = "transient"\ntimes_s = [0.0, 3600.0, 7200.0]\n')
     path = column(ISO_LIST, ISO_ALT, neutrals=neutrals, Tn=800.0, extra=extra, name="iso")
     model = ionochem.Model(ionochem.load_scenario(path))

@@ -199,6 +199,20 @@ def _change_attrs(baseline, changed, reaction_lists):
     }
 
 
+def _add_equilibrium_flag(out, ds_b, names):
+    """The baseline's ``pce_doubtful`` (species, altitude) on ``out``'s species, 0 for a
+    species only the changed model has; nothing when the baseline has no flag."""
+    if "pce_doubtful" not in ds_b:
+        return
+    flag = ds_b["pce_doubtful"]
+    have = list(flag["species"].values)
+    rows = [flag.sel(species=s).values if s in have else np.zeros(ds_b["altitude"].size, np.int8)
+            for s in names]
+    out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
+                           dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
+                                + " (baseline)"))
+
+
 def compare(baseline_model, changed_model, *, baseline=None, changed=None,
             reaction_lists=()):
     """Solve a baseline and a changed model and compare their steady densities.
@@ -218,7 +232,8 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         ``density_baseline`` and ``density_changed`` (species, altitude) in cm-3 and
         ``ratio`` = changed / baseline (NaN where the baseline density is 0, or where the
         species is absent from one of the models), with the provenance of the baseline and
-        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``.
+        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``,
+        and the baseline's ``pce_doubtful`` flag (species, altitude) when it has one.
     """
     ds_b = baseline_model.solve() if baseline is None else baseline
     ds_c = changed_model.solve() if changed is None else changed
@@ -254,13 +269,64 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         },
         attrs=dict(ds_b.attrs),
     )
+    _add_effective_rates(out, ds_b, ds_c)
     # The baseline's own (scenario) changes keep their names with a prefix; the changes
     # compared take the plain names.
     for key in ("changes_set", "changes_scale"):
         out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
     out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
     out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
+    _add_equilibrium_flag(out, ds_b, names)
     return out
+
+
+EFFECTIVE_VARIABLES = ("effective_rate_coefficient", "effective_rate_coefficient_first_order",
+                       "effective_rate_coefficient_third_order")
+
+
+def _effective(ds):
+    """All orders of ``effective_rate_coefficient`` in one (family_reaction, altitude)
+    array (each family has one order, NaN in the others), or None."""
+    have = [ds[v] for v in EFFECTIVE_VARIABLES if v in ds]
+    if not have:
+        return None
+    out = have[0]
+    for other in have[1:]:
+        out = out.fillna(other)
+    return out
+
+
+def _add_effective_rates(out, ds_b, ds_c):
+    """The population-weighted rate coefficients of the reaction families both results
+    carry (DESIGN.md §7), baseline and changed (``effective_rate_coefficient_baseline`` /
+    ``_changed``, and the ``_first_order``/``_third_order`` variants, each in its own unit),
+    and ``effective_rate_change`` = changed / baseline: what a per-level change does to the
+    rate an unresolved model would need."""
+    eb, ec = _effective(ds_b), _effective(ds_c)
+    if eb is None or ec is None:
+        return
+    have_c = set(ec["family_reaction"].values)
+    fams = [f for f in eb["family_reaction"].values if f in have_c]
+    if not fams:
+        return
+    vb = eb.sel(family_reaction=fams).values
+    vc = ec.sel(family_reaction=fams).values
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(vb > 0, vc / vb, np.nan)
+    out.coords["family_reaction"] = ("family_reaction", np.array(fams, dtype=object))
+    dims = ("family_reaction", "altitude")
+    for name in EFFECTIVE_VARIABLES:
+        if name not in ds_b or name not in ds_c:
+            continue
+        for tag, ds in (("baseline", ds_b), ("changed", ds_c)):
+            var = ds[name].sel(family_reaction=fams)
+            out[f"{name}_{tag}"] = (dims, var.values,
+                                    {"units": var.attrs.get("units", ""),
+                                     "long_name": f"{var.attrs.get('long_name', name)}, "
+                                                  f"{tag}"})
+    out["effective_rate_change"] = (dims, ratio, {"units": "1", "long_name": "changed / "
+                                                  "baseline population-weighted rate "
+                                                  "coefficient of the family"})
 
 
 # ------------------------------------------------------------------ the summary

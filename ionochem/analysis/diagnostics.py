@@ -124,8 +124,13 @@ def add_steady_diagnostics(model, ds):
 
     dark = env.dark(None)
     notes = list(model.warnings)
+    sources = list(getattr(env.sun, "photon_sources", ()) or ())
+    night = any(src.startswith("night:") for src in sources)
     if dark.all():
-        notes.append("every level is dark: photochemistry alone cannot sustain the night "
+        notes.append("every level is dark: only the scattered night-time sources ionize "
+                     "(photochemistry alone, without transport, cannot keep the night F "
+                     "layer)" if night else
+                     "every level is dark: photochemistry alone cannot sustain the night "
                      "ionosphere (no transport, no night-time sources)")
     ds["dark"] = ("altitude", dark.astype(np.int8),
                   {"long_name": "no direct sunlight reaches the level",

@@ -181,7 +181,8 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
     -------
     xarray.Dataset
         ``density_quantiles`` (quantile, species, altitude) cm-3, ``density_central``,
-        ``log_density_std``, ``variance_share`` and ``variance_share_linear``
+        ``pce_doubtful`` (the central solution's equilibrium flag), ``log_density_std``,
+        ``variance_share`` and ``variance_share_linear``
         (species, reaction, altitude), their environment counterparts when factors are
         varied, ``explained_variance``, ``log_uncertainty_factor`` (reaction, altitude);
         attributes ``samples``, ``seed``, ``method`` and the provenance of the model.
@@ -283,6 +284,12 @@ def summarise(model, kernel, z, n, *, seed):
              "factor from the exact local sensitivities"})
         coords["environment_factor"] = ("environment_factor",
                                         np.array(list(env_cols), dtype=object))
+    if "pce_doubtful" in central:
+        flag = central["pce_doubtful"]
+        data["pce_doubtful"] = (("species", "altitude"),
+                                flag.sel(species=names).values.astype(np.int8),
+                                dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
+                                     + " (central solution)"))
     ds = xr.Dataset(data, coords=coords, attrs=provenance(model))
     ds.attrs.update({
         "method": "montecarlo",

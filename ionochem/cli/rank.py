@@ -71,6 +71,7 @@ def cmd_rank(args):
             print(table.text())
             if by == "max":
                 csv_table = _extend(csv_table, s, table)
+    _print_effective(model, sens, species, rng, min(args.top, 3))
     if args.csv and csv_table is not None:
         csv_table.write_csv(args.csv)
         print(f"wrote {args.csv}")
@@ -81,7 +82,8 @@ def cmd_rank(args):
         print(f"wrote {args.output}")
     if args.plot:
         from ionochem.plot.sensitivity import plot_sensitivity
-        plot_sensitivity(sens, args.plot, species=species, altitude_range=rng, top=args.top)
+        plot_sensitivity(sens, args.plot, species=species, altitude_range=rng, top=args.top,
+                         min_share=share)
         print(f"wrote {args.plot}")
     return 0
 
@@ -105,3 +107,39 @@ def _extend(acc, species, table):
     for row in table.rows:
         acc.rows.append([species, *row])
     return acc
+
+
+def _print_effective(model, sens, species, rng, top):
+    """For the level species asked for (or their family totals): which rates move the
+    effective rate coefficient of each family that consumes the levels."""
+    import numpy as np
+
+    from ionochem.analysis.levels import effective_rate_sensitivity
+    from ionochem.cli.options import Table
+    totals = {s.split("(v=")[0] if "(v=" in s else s for s in species}
+    eff = effective_rate_sensitivity(model, sens)
+    if eff is None:
+        return
+    fams = [f for f, t in zip(eff["family_reaction"].values, eff["family_species"].values,
+                              strict=True) if t in totals]
+    if not fams:
+        return
+    var = eff["effective_rate_sensitivity"]
+    if rng is not None:
+        var = var.sel(altitude=slice(*rng))
+    alt = var["altitude"].values
+    table = Table(["family reaction", "reaction", "S_eff at max", "at km"],
+                  align=["<", "<", ">", ">"])
+    for fam in fams:
+        vals = var.sel(family_reaction=fam).values                 # (R, A)
+        mx = np.nanmax(np.where(np.isfinite(vals), np.abs(vals), -1.0), axis=1)
+        for j in np.argsort(-mx, kind="stable")[:top]:
+            if mx[j] <= 0:
+                continue
+            i = int(np.nanargmax(np.where(np.isfinite(vals[j]), np.abs(vals[j]), -1.0)))
+            table.add(fam, str(var["reaction"].values[j]), f"{vals[j, i]:+.4f}", f"{alt[i]:g}")
+    print("effective (population-weighted) rate coefficients of the families consuming "
+          f"{', '.join(sorted(totals & set(eff['family_species'].values)))}: "
+          "S_eff = d ln k_eff / d ln k, largest first")
+    print(table.text())
+

@@ -28,6 +28,9 @@ def register(subparsers):
     r.add_argument("scenario")
     r.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     r.add_argument("--plot", help="write a profile figure (PNG, PDF, SVG)")
+    r.add_argument("--plot-levels", metavar="FILE", dest="plot_levels",
+                   help="write the N2+ vibrational level distribution figure (steady runs; "
+                        "PNG, PDF, SVG)")
     r.add_argument("--csv", metavar="FILE", help="write the printed density table as CSV")
     r.add_argument("--set", action="append", metavar="ID=EXPR",
                    help="replace the rate expression of a reaction (repeatable; table paths "
@@ -70,6 +73,8 @@ def cmd_run(args):
     from ionochem.io.netcdf import write_netcdf
     check_outputs(args, inputs=[args.scenario])
     check_output(args.csv, "--csv")
+    check_output(getattr(args, "plot_levels", None), "--plot-levels", figure=True,
+                 inputs=[args.scenario])
     budgets = [parse_budget(b) for b in (args.budget or [])]
     heights = parse_km_list(args.altitudes) if args.altitudes else None
     scen, model = load_model(args)
@@ -77,6 +82,9 @@ def cmd_run(args):
     budgets += [parse_budget(b) for b in scen.output.budget]
     print_warnings(model.warnings)
     transient = scen.solve.mode == "transient"
+    if transient and getattr(args, "plot_levels", None):
+        raise InputError("--plot-levels needs a steady run (solve.mode is 'transient')",
+                         file="--plot-levels")
     if transient:
         initial = model.solve() if scen.solve.start == "steady" else None
         ds = model.integrate(np.asarray(scen.solve.times_s, float), initial=initial)
@@ -122,6 +130,10 @@ def cmd_run(args):
             from ionochem.plot.profiles import plot_result
             plot_result(ds, args.plot)
         print(f"wrote {args.plot}")
+    if getattr(args, "plot_levels", None):
+        from ionochem.plot.levels import plot_levels
+        plot_levels(ds, args.plot_levels)
+        print(f"wrote {args.plot_levels}")
     return 0
 
 

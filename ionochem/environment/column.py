@@ -173,6 +173,9 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                                 file=file, key="temperatures")
     if getattr(temps, "vibrational", "neutral") == "table":
         Tv = ttable["Tv_K"]
+    elif getattr(temps, "vibrational", "neutral") == "electron":
+        from ionochem.environment.n2_vibrational import vibrational_temperature
+        Tv = vibrational_temperature(Tn, Te, temps.vibrational_coupling)
     else:
         Tv = Tn.copy()
 

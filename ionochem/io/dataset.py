@@ -94,7 +94,8 @@ def provenance(model):
     env_attrs = {"neutral_model": scen.neutrals.model,
                  "ion_drift_m_s": float(scen.temperatures.ion_drift_m_s),
                  "temperatures": f"electron {scen.temperatures.electron}, "
-                                 f"ion {scen.temperatures.ion}"}
+                                 f"ion {scen.temperatures.ion}, "
+                                 f"vibrational {_vibrational(scen.temperatures)}"}
     if scen.location is not None:
         env_attrs["latitude_deg"] = scen.location.latitude_deg
         env_attrs["longitude_deg"] = scen.location.longitude_deg
@@ -108,6 +109,7 @@ def provenance(model):
     if model.environment.sun is not None:
         env_attrs["photon_source"] = model.environment.sun.spectrum.source
         env_attrs["photoelectron_secondaries"] = int(bool(scen.photons.secondary))
+        env_attrs["photon_sources"] = "; ".join(model.environment.sun.photon_sources)
     return env_attrs | {
         "title": scen.title,
         "Conventions": "CF-1.10",
@@ -123,6 +125,14 @@ def provenance(model):
         "electrons": scen.solve.electrons,
         "comment": VALIDITY_NOTE,
     }
+
+
+def _vibrational(temps):
+    """How Tv was set, for the provenance (``electron (c = 0.5)`` for the Te link)."""
+    src = getattr(temps, "vibrational", "neutral")
+    if src == "electron":
+        return f"electron (c = {getattr(temps, 'vibrational_coupling', 0.5):g})"
+    return src
 
 
 def _environment_vars(model, dims=("altitude",)):
@@ -205,7 +215,18 @@ def steady_dataset(model, res, method_names):
     )
     for name, var in _environment_vars(model).items():
         ds[name] = var
+    _add_level_outputs(model, ds, k, dens, names, ())
     return ds
+
+
+def _add_level_outputs(model, ds, k, dens, names, lead_dims):
+    """level_fraction and effective_rate_coefficient of vibrational families (§7)."""
+    from ionochem.io.level_outputs import level_output_vars
+    out = level_output_vars(model, k, dens, names, lead_dims)
+    coords = {c: out.pop(c) for c in ("family_reaction", "family_species") if c in out}
+    ds.coords.update(coords)
+    for name, var in out.items():
+        ds[name] = var
 
 
 def _equation(r):
@@ -293,6 +314,7 @@ def transient_dataset(model, times, n):
     ds.attrs["comment"] = TRANSIENT_NOTE
     for name, var in _environment_vars(model).items():
         ds[name] = var
+    _add_level_outputs(model, ds, ks, dens, names, ("time",))
     env = model.environment
     if env.sun is not None:
         ds["solar_zenith_angle"] = ("time", np.array([env.solar_zenith_angle(t)

@@ -31,9 +31,9 @@ MUTANTS = {
         "spectrum = self.spectrum",
         ["tests/test_pipeline_factors.py"]),
     "n2plus_level_low": (
-        "ionochem/model.py",
-        "out[base] = dict(zip(lv, n2plus_level_fractions(lv)))",
-        "out[base] = dict(zip(lv, np.roll(n2plus_level_fractions(lv), 1)))",
+        "ionochem/environment/n2plus_levels.py",
+        'out[f"{base}(v={v})"] = per_level[..., i]',
+        'out[f"{base}(v={v})"] = per_level[..., i - 1]',
         ["tests/test_pipeline_factors.py"]),
     "o_plus_2pstar_split": (
         "ionochem/environment/crosssections.py",
