@@ -62,7 +62,7 @@ def make_column(tmp_path):
 # on a shared machine (the same suite takes 1 to 4 minutes depending on the neighbours), so
 # the budget is on the CPU time of the pytest process (time.process_time: all its threads,
 # not its subprocesses), which the load of other processes barely changes. The limits are
-# about three times the CPU time measured when they were set (61 s for the session, 15 s for
+# about three times the CPU time measured when they were set (99 s for the session, 20 s for
 # the slowest test, December 2026; DEVELOPERS.md, "Time budget");
 # IONOCHEM_TIME_BUDGET=off switches the check off (e.g. under a mutation-testing tool), and
 # IONOCHEM_TIME_BUDGET=2.5 multiplies both limits (a slower machine).
@@ -71,9 +71,9 @@ import os  # noqa: E402
 import time  # noqa: E402
 
 #: CPU seconds one test (setup + call + teardown) may take.
-PER_TEST_CPU_BUDGET_S = 45.0
+PER_TEST_CPU_BUDGET_S = 60.0
 #: CPU seconds the whole session may take.
-SUITE_CPU_BUDGET_S = 200.0
+SUITE_CPU_BUDGET_S = 300.0
 
 _cpu_by_test: dict[str, float] = {}
 
