@@ -44,6 +44,9 @@ def register(subparsers):
                    help="heights of the printed table and of the transient figure "
                         f"(default {','.join(str(a) for a in DEFAULT_REPORT_KM)}; transient: "
                         "200)")
+    r.add_argument("--allow-long", action="store_true",
+                   help="allow a transient run beyond the two-day bound (docs/scenario.md, "
+                        "Long runs)")
     r.set_defaults(func=cmd_run)
 
 
@@ -86,6 +89,9 @@ def cmd_run(args):
         raise InputError("--plot-levels needs a steady run (solve.mode is 'transient')",
                          file="--plot-levels")
     if transient:
+        from ionochem.cli.limits import check_transient
+        check_transient(scen, len(model.species), len(model.reactions),
+                        allow_long=args.allow_long)
         initial = model.solve() if scen.solve.start == "steady" else None
         ds = model.integrate(np.asarray(scen.solve.times_s, float), initial=initial)
         table = transient_table(ds, heights[0] if heights else 200.0)

@@ -71,6 +71,8 @@ def register(subparsers):
     u.add_argument("--csv", metavar="FILE",
                    help="write the printed table (median and 68 %% factor) as CSV")
     u.add_argument("--no-progress", action="store_true", help="no progress bar")
+    u.add_argument("--allow-long", action="store_true",
+                   help="allow an ensemble beyond the work bound (docs/scenario.md, Long runs)")
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
     u.set_defaults(func=cmd_uncertainty)
@@ -128,6 +130,10 @@ def cmd_uncertainty(args):
         model = changed_model(model,
                               replacements=[parse_reaction_list(f) for f in args.reactions or []],
                               additions=[parse_reaction_list(f) for f in args.add or []])
+    from ionochem.cli.limits import check_ensemble
+    runs = 1 if args.method == "montecarlo" else args.top + len(spreads or ()) + 2
+    check_ensemble(args.samples, runs, model.altitude_km.size, len(model.species),
+                   len(model.reactions), allow_long=args.allow_long)
     if scen.solve.mode != "steady":
         print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
               "states (photochemical equilibrium)", file=sys.stderr)

@@ -55,4 +55,5 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None):
         return P[:, :S], L[:, :S]
 
     start = np.zeros((B, S)) if n0 is None else n0
-    return solve_steady(start, tendency, jacobian, gross, rtol=rtol, level_names=level_names)
+    return solve_steady(start, tendency, jacobian, gross, rtol=rtol, level_names=level_names,
+                        species_names=list(mechanism.solved))
