@@ -16,7 +16,7 @@ from ionochem.errors import Error
 
 #: Subcommand modules of this package, in the order ``ionochem --help`` lists them; each
 #: has ``register(subparsers)`` which adds its parser and sets ``func``.
-COMMANDS = ("run", "check", "reactions", "compare", "rank", "uncertainty", "rates")
+COMMANDS = ("run", "check", "reactions", "compare", "rank", "uncertainty", "fit", "rates")
 
 
 def build_parser():

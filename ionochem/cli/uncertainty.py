@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
     check_output,
@@ -75,6 +76,7 @@ def register(subparsers):
                    help="allow an ensemble beyond the work bound (docs/scenario.md, Long runs)")
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
+    add_observed_option(u)
     u.set_defaults(func=cmd_uncertainty)
     return subparsers
 
@@ -122,6 +124,7 @@ def cmd_uncertainty(args):
     check_output(args.csv, "--csv", inputs=[args.scenario, *files])
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
+    observed = load_observed(args)
     scen, model = load_model(args)
     check_outputs(args, inputs=scenario_inputs(scen) + files)
     if files:
@@ -159,6 +162,8 @@ def cmd_uncertainty(args):
         table = _print_montecarlo(ds)
     else:
         table = _print_global(ds)
+    if observed is not None:
+        _print_observed_misfit(observed, ds)
     stamp_history(ds, args)
     if args.csv:
         table.write_csv(args.csv)
@@ -172,9 +177,23 @@ def cmd_uncertainty(args):
             remove_store(args.output)
     if args.plot:
         from ionochem.plot.uncertainty import plot_uncertainty
-        plot_uncertainty(ds, args.plot)
+        plot_uncertainty(ds, args.plot, observed=observed)
         print(f"wrote {args.plot}")
     return 0
+
+
+def _print_observed_misfit(observed, ds):
+    """Misfit of the Monte Carlo median and of the central (unperturbed) column."""
+    from ionochem.analysis.misfit import misfit_of_dataset
+    if "density_quantiles" not in ds:
+        print("note: --observed: no misfit for a global-sensitivity run (no density "
+              "profiles); the misfit needs --method montecarlo", file=sys.stderr)
+        return
+    fits = {"median": misfit_of_dataset(
+        observed, ds, density=ds["density_quantiles"].sel(quantile=0.5))}
+    if "density_central" in ds:
+        fits["central"] = misfit_of_dataset(observed, ds, density=ds["density_central"])
+    print_misfit(observed, fits)
 
 
 def _main_species(names):
