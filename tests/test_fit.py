@@ -224,8 +224,8 @@ def test_profile_likelihood_matches_the_gaussian_interval(small_model):
 
 def test_fit_command_writes_the_contract_variables(column, tmp_path, capsys):
     """``ionochem fit`` prints the fitted multipliers and writes FIT.nc with the variables
-    of docs/commands.md and a figure; bad --free / --prior, and an electron constraint without
-    electron-density rows, exit 2."""
+    of docs/outputs.md ("Fits") and a figure; bad --free / --prior, and an electron
+    constraint without electron-density rows, exit 2."""
     scen = small_column(column)
     model = ionochem.Model(ionochem.load_scenario(scen))
     obs_path = tmp_path / "o.csv"
