@@ -61,9 +61,10 @@ def make_column(tmp_path):
 # fuzz test with ten times the examples) must be noticed. Wall-clock time is useless for that
 # on a shared machine (the same suite takes 1 to 4 minutes depending on the neighbours), so
 # the budget is on the CPU time of the pytest process (time.process_time: all its threads,
-# not its subprocesses), which the load of other processes barely changes. The limits are
-# about three times the CPU time measured when they were set (99 s for the session, 20 s for
-# the slowest test, December 2026; DEVELOPERS.md, "Time budget");
+# not its subprocesses), which the load of other processes barely changes. The limits leave
+# room for a slower CI machine and for BLAS threads that spin on a many-core one: about
+# five times the CPU time measured when they were last set (about 170 s for the session and
+# 25 s for the slowest test, December 2026; DEVELOPERS.md, "Time budget");
 # IONOCHEM_TIME_BUDGET=off switches the check off (e.g. under a mutation-testing tool), and
 # IONOCHEM_TIME_BUDGET=2.5 multiplies both limits (a slower machine).
 
@@ -71,9 +72,9 @@ import os  # noqa: E402
 import time  # noqa: E402
 
 #: CPU seconds one test (setup + call + teardown) may take.
-PER_TEST_CPU_BUDGET_S = 60.0
+PER_TEST_CPU_BUDGET_S = 120.0
 #: CPU seconds the whole session may take.
-SUITE_CPU_BUDGET_S = 300.0
+SUITE_CPU_BUDGET_S = 900.0
 
 _cpu_by_test: dict[str, float] = {}
 
