@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import xarray as xr
+from test_observations import ALT, small_column  # tests/ is on sys.path (rootdir conftest)
 
 import ionochem
 from ionochem.analysis.fit import (
@@ -22,7 +23,6 @@ from ionochem.analysis.fit import (
     resolve_parameters,
 )
 from ionochem.cli import main
-from tests.test_observations import ALT, small_column
 
 
 def synthetic_observations(model, species, scale, log_s, rng, path=None, te=None):
