@@ -34,8 +34,9 @@ def build_parser():
     return p
 
 
-#: Commands that may use dask (clusters of workers); every other command runs without it.
-USES_DASK = ("uncertainty",)
+#: Commands that never use dask: they run with its import blocked (see _WithoutDask).
+#: Commands that may start a dask cluster (uncertainty, sweep) and new ones are not listed.
+WITHOUT_DASK = ("run", "check", "reactions", "compare", "rank", "fit", "rates")
 
 
 class _WithoutDask:
@@ -45,8 +46,8 @@ class _WithoutDask:
     dask arrays), and asks it for a scheduler on every netCDF write: about 0.3–0.5 s of an
     ``ionochem run`` that never uses dask (measured with ``python -X importtime``). xarray
     treats the ImportError as "dask not installed" and keeps that answer for the process
-    (harmless: the command layer never gives xarray dask arrays). Commands that may start a
-    dask cluster (``USES_DASK``) run without this.
+    (harmless: the command layer never gives xarray dask arrays). Only the commands of
+    ``WITHOUT_DASK`` run with it.
     """
 
     def __enter__(self):
@@ -79,7 +80,7 @@ def main(argv=None):
     try:
         # SIGTERM removes the temporary files being written and ends with status 143.
         import contextlib
-        nodask = contextlib.nullcontext() if args.command in USES_DASK else _WithoutDask()
+        nodask = _WithoutDask() if args.command in WITHOUT_DASK else contextlib.nullcontext()
         with terminate_cleanly(), nodask:
             return args.func(args)
     except Error as exc:
