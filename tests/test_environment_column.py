@@ -51,8 +51,9 @@ def test_msis20_with_a_no_table_uses_it(tmp_path):
 
 
 def test_drift_heats_modelled_ions_once_and_raises_teff():
-    """A modelled Ti is heated by m_n v²/(3 k_B) (St.-Maurice & Torr 1978; mean neutral
-    mass), and the O+ + N2 rate, through Teff, is faster than without drift."""
+    """Where ions are magnetised (above ~150 km, ν_in ≪ Ω_i), a modelled Ti is heated by
+    m_n v²/(3 k_B) (St.-Maurice & Torr 1978; mean neutral mass), and the O+ + N2 rate,
+    through Teff, is faster than without drift."""
     scen = ionochem.load_scenario(AURORAL)
     drift = ionochem.Model(scen)
     still = ionochem.Model(scen.replace(temperatures=type(scen.temperatures)(
@@ -60,7 +61,9 @@ def test_drift_heats_modelled_ions_once_and_raises_teff():
     from ionochem.environment.temperatures import mean_neutral_mass_amu
     m = mean_neutral_mass_amu(drift.environment.neutrals)
     heat = m * AMU_KG * 1000.0 ** 2 / (3 * K_B)
-    np.testing.assert_allclose(drift.environment.Ti - still.environment.Ti, heat, rtol=1e-9)
+    high = drift.altitude_km >= 200.0
+    np.testing.assert_allclose((drift.environment.Ti - still.environment.Ti)[high],
+                               heat[high], rtol=2e-3)
     j = drift.reactions.index("Oplus_N2")
     a = drift.altitude_km
     k_d, k_s = drift.rate_coefficients()[:, j], still.rate_coefficients()[:, j]

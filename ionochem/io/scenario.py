@@ -34,6 +34,7 @@ from ionochem.io.tables import read_profile_table
 __all__ = [
     "Changes", "Geomagnetic", "Grid", "Location", "Neutrals", "Output", "Photons",
     "Production", "Scenario", "Solve", "Sun", "TemperatureProfile", "Temperatures", "Time",
+    "Transport", "TRANSPORTED_SPECIES",
     "GRID_TOLERANCE", "NEUTRAL_MODELS", "MSIS_MODELS", "load_scenario", "parse_budget",
     "scenario_from_dict",
 ]
@@ -301,6 +302,34 @@ class Output:
     budget: tuple[str, ...] = ()
 
 
+#: Species the ``[transport]`` section may name (O+ ambipolar diffusion; light ions later).
+TRANSPORTED_SPECIES = ("O+",)
+
+
+@dataclass(frozen=True)
+class Transport:
+    """``[transport]``: vertical transport of O+ along the field (its presence switches it on).
+
+    Attributes
+    ----------
+    species : tuple of str
+        Transported species, ``("O+",)``.
+    upper_boundary_flux_cm2_s : float
+        O+ flux through the top of the grid, cm-2 s-1, positive upward (negative: a
+        downward flux from the plasmasphere into the column), default 0.
+    dip_deg : float or None
+        Magnetic dip angle, degrees, -90..90 (positive where the field points down);
+        None: from the IGRF at the scenario's location and date.
+    meridional_wind_m_s : float
+        Meridional neutral wind, m/s, positive northward, default 0.
+    """
+
+    species: tuple[str, ...] = ("O+",)
+    upper_boundary_flux_cm2_s: float = 0.0
+    dip_deg: float | None = None
+    meridional_wind_m_s: float = 0.0
+
+
 #: Profile tables a scenario can name: scenario key -> (section attribute, field).
 _TABLE_KEYS = {
     "neutrals.table": ("neutrals", "table"),
@@ -328,6 +357,8 @@ class Scenario:
         Section objects (always present, defaults filled in).
     location, time, sun, geomagnetic : section object or None
         None when the scenario leaves the section out.
+    transport : Transport or None
+        None (a photochemical column) unless the scenario has a ``[transport]`` section.
     path : Path or None
         The scenario file as given (used in error messages), None when built from a dict
         without one.
@@ -353,6 +384,7 @@ class Scenario:
     geomagnetic: Geomagnetic | None = None
     photons: Photons = field(default_factory=Photons)
     output: Output = field(default_factory=Output)
+    transport: Transport | None = None
     path: Path | None = None
     base_dir: Path = field(default_factory=Path.cwd)
     sha256: str = ""
@@ -732,7 +764,8 @@ class _Validator:
     def scenario(self, data) -> Scenario:
         top = self.table(data, "", ("title", "reactions", "grid", "neutrals", "temperatures",
                                     "production", "solve", "changes", "location", "time",
-                                    "sun", "geomagnetic", "photons", "output"))
+                                    "sun", "geomagnetic", "photons", "output",
+                                    "transport"))
         for name in ("title", "reactions"):
             if name not in top:
                 raise self.fail(name, "is required")
@@ -764,10 +797,16 @@ class _Validator:
         changes = self.changes(top.get("changes", {}))
         photons = self.photons(top.get("photons", {}))
         output = self.output(top.get("output", {}), grid)
+        transport = None
+        if "transport" in top:
+            transport = self.transport(top["transport"], grid=grid, solve=solve,
+                                       have_place_and_time=location is not None
+                                       and time is not None)
         return Scenario(title=title, reactions=reactions, grid=grid, neutrals=neutrals,
                         temperatures=temperatures, production=production, solve=solve,
                         changes=changes, location=location, time=time, sun=sun,
-                        geomagnetic=geomagnetic, photons=photons, output=output)
+                        geomagnetic=geomagnetic, photons=photons, output=output,
+                        transport=transport)
 
     def grid(self, value) -> Grid:
         sec = self.table(value, "grid", ("altitude_km",))
@@ -1007,6 +1046,50 @@ class _Validator:
                               f"{key}.lyman_alpha_photons_cm2_s", low=0)
         return Photons(flux=flux, spectrum=spectrum, secondary=secondary,
                        lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra)
+
+    def transport(self, value, *, grid: Grid, solve: Solve,
+                  have_place_and_time: bool) -> Transport:
+        key = "transport"
+        sec = self.table(value, key, ("species", "upper_boundary_flux_cm2_s", "dip_deg",
+                                      "meridional_wind_m_s"))
+        species = sec.get("species", ["O+"])
+        skey = f"{key}.species"
+        if not isinstance(species, list) or not species:
+            raise self.fail(skey, f"must be a non-empty list of species names, e.g. [\"O+\"], "
+                                  f"not {_kind(species) if species != [] else 'an empty list'}")
+        names = []
+        for item in species:
+            name = self.string(item, skey).strip()
+            if name not in TRANSPORTED_SPECIES:
+                raise self.fail(skey, f"{name!r} cannot be transported: this version "
+                                      f"transports {', '.join(TRANSPORTED_SPECIES)} only")
+            if name in names:
+                raise self.fail(skey, f"{name!r} is listed twice")
+            names.append(name)
+        if solve.electrons == "table" and solve.balance_ion in names:
+            raise self.fail(skey, f"{solve.balance_ion} is the balance ion of electrons = "
+                                  "'table' (Ne minus the other ions), so it cannot also be "
+                                  "transported")
+        if len(grid.altitude_km) < 3:
+            raise self.fail(key, "transport needs a grid of at least three levels")
+        flux = self.number(sec.get("upper_boundary_flux_cm2_s", 0.0),
+                           f"{key}.upper_boundary_flux_cm2_s")
+        if abs(flux) > 1e12:
+            raise self.fail(f"{key}.upper_boundary_flux_cm2_s",
+                            f"must lie within ±1e12 cm-2 s-1 (got {flux:g}); night-time "
+                            "plasmaspheric fluxes are of order 1e8 (common practice)")
+        dip = None
+        if "dip_deg" in sec:
+            dip = self.number(sec["dip_deg"], f"{key}.dip_deg", low=-90, high=90)
+        elif not have_place_and_time:
+            raise self.fail(f"{key}.dip_deg", "is required without [location] and [time] "
+                                              "(otherwise it comes from the IGRF there)")
+        wind = self.number(sec.get("meridional_wind_m_s", 0.0), f"{key}.meridional_wind_m_s")
+        if abs(wind) > 1000:
+            raise self.fail(f"{key}.meridional_wind_m_s",
+                            f"must lie within ±1000 m/s (got {wind:g})")
+        return Transport(species=tuple(names), upper_boundary_flux_cm2_s=flux, dip_deg=dip,
+                         meridional_wind_m_s=wind)
 
     def output(self, value, grid: Grid) -> Output:
         key = "output"

@@ -1,0 +1,260 @@
+"""Steady state of columns whose levels are coupled by transport: Newton on the whole column.
+
+Same contract as :mod:`ionochem.solve.steady` (positivity, convergence rule, fallback,
+diagnostics), but the levels are solved together because transport links each level to
+its neighbours. The solver sees only callables on arrays shaped (B, S) — B levels (of one
+column, or of several columns stacked, level-major within each), S solved species — and
+never imports the parser, the environment or the physics of transport:
+
+``tendency(n) -> (B, S)``; ``jacobian(n) -> scipy.sparse matrix (B·S, B·S)`` with entry
+``(b·S + i, c·S + j) = ∂f_{b,i}/∂n_{c,j}``, block tridiagonal for a single column (chemistry
+in the diagonal blocks, transport between neighbours); and ``gross(n) -> (P, L)``, the
+gross production and loss (B, S) including transport in- and outflow, used to scale the
+residual.
+
+Method
+------
+1. Start from the given densities (the photochemical solution of every level is a good
+   start: the molecular ions hardly move, O+ relaxes to its transported profile), then a
+   few geometric-mean sweeps n ← sqrt(n P/λ), λ = L/n, with transport counted in P and L,
+   so species with no production go to zero and levels with none become positive.
+2. Damped Newton on the whole column: J Δn = −f solved by one sparse LU factorisation of
+   the (B·S)² Jacobian per iteration (SuperLU through ``scipy.sparse.linalg.splu``; the
+   matrix has bandwidth ≈ 2S, so the cost is linear in the number of levels). Positivity,
+   per level as in the independent solver: the step of a level is cut so no density falls
+   below a tenth of its value. The step is halved (at most 8 times) only while the scaled
+   residual norm of the column would grow more than a thousandfold: a non-monotone rule,
+   because the first full steps from the photochemical start (O+ falling several-fold
+   at the top, the molecular ions following the electrons quadratically) raise the norm
+   before Newton converges quadratically, and a monotone line search would creep there.
+3. Convergence, per level exactly as in :mod:`ionochem.solve.steady` (docs/validation.md):
+   relative residual max_i |f_i|/(P_i + L_i + atol) ≤ rtol before a step, relative step
+   ≤ 1e-3, residual ≤ rtol again at the point reached; the column is converged when every
+   level is.
+4. If Newton does not converge in ``max_newton`` iterations (or meets a singular
+   Jacobian), pseudo-transient continuation on the whole column: (diag(1/Δt) − J) Δn = f
+   with a local time step per level, starting at a hundredth of the level's fastest time
+   (chemistry or transport) and growing with the fall of the column's residual (switched
+   evolution relaxation); Newton then polishes.
+5. A column still unconverged, negative or not finite raises :class:`SolverError` naming
+   the levels that fail the rule.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import splu
+
+from ionochem.errors import SolverError
+from ionochem.solve.steady import (
+    METHOD_CONTINUATION,
+    METHOD_NEWTON,
+    STEP_TOL,
+    SteadyResult,
+    _positive_step,
+    _relative_residual,
+    initial_guess,
+)
+
+#: A Newton step is halved only while it would raise the column's scaled residual norm more
+#: than this factor (non-monotone: see the module docstring).
+GROWTH_LIMIT = 1e3
+
+
+def sparse_solve(J, rhs):
+    """Solve J x = rhs with one sparse LU (rhs (N,) or (N, K)); None if J is singular."""
+    try:
+        lu = splu(sp.csc_matrix(J))
+    except RuntimeError:
+        return None
+    x = lu.solve(np.asarray(rhs, float))
+    return x if np.all(np.isfinite(x)) else None
+
+
+def _regularise(J, f):
+    """Put −1 on empty diagonal entries of unknowns with nothing happening (rows of zeros).
+
+    An unknown with no production, no loss and no residual (a species absent from a dark
+    level) makes J singular; giving it the equation Δn = f = 0 keeps it where it is.
+    """
+    J = sp.csr_matrix(J)
+    rowsum = np.asarray(abs(J).sum(axis=1)).ravel()
+    empty = (rowsum == 0) & (f.ravel() == 0)
+    if empty.any():
+        J = J + sp.diags(np.where(empty, -1.0, 0.0))
+    return J
+
+
+def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
+    B, S = n.shape
+    res = np.full(B, np.inf)
+    for _ in range(max_iter):
+        f = tendency(n)
+        P, L = gross(n)
+        r0 = _relative_residual(f, P, L, atol)
+        J = _regularise(jacobian(n), f)
+        dn = sparse_solve(J, -f.ravel())
+        if dn is None:
+            return n, False, r0
+        dn, lam = _positive_step(n, dn.reshape(B, S))
+        lam = np.where(np.isfinite(lam), lam, 0.0)
+        scale = P + L + atol
+        norm0 = np.linalg.norm(f / scale)
+        mu = 1.0
+        trial = n + lam[:, None] * dn
+        for _ in range(8):
+            normt = np.linalg.norm(tendency(trial) / scale)
+            if normt <= GROWTH_LIMIT * norm0 or mu < 1e-3:
+                break
+            mu /= 2
+            trial = n + mu * lam[:, None] * dn
+        trial = np.maximum(trial, 0.0)
+        step = np.abs(trial - n)
+        floor = 1e-12 * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
+        rel_step = np.max(step / (trial + floor[:, None]), axis=1, initial=0.0)
+        n = trial
+        iterations += 1
+        res = r0
+        if np.all((r0 <= rtol) & (rel_step <= STEP_TOL)):
+            f = tendency(n)
+            P, L = gross(n)
+            res = _relative_residual(f, P, L, atol)
+            if np.all(res <= rtol):
+                return n, True, res
+    return n, False, res
+
+
+def _continuation(n, tendency, jacobian, gross, *, atol, max_iter, iterations):
+    B, S = n.shape
+    f = tendency(n)
+    P, L = gross(n)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        freq = np.where(n > 0, L / np.maximum(n, 1e-300), 0.0)
+    fastest = np.max(freq, axis=1, initial=0.0)
+    dt = np.where(fastest > 0, 0.01 / np.maximum(fastest, 1e-300), 1.0)
+    norm = np.linalg.norm(f / (P + L + atol))
+    for _ in range(max_iter):
+        J = _regularise(jacobian(n), f)
+        A = sp.diags(np.repeat(1.0 / dt, S)) - J
+        dn = sparse_solve(A, f.ravel())
+        if dn is None:
+            dt = dt / 10
+            continue
+        dn, lam = _positive_step(n, dn.reshape(B, S))
+        n = np.maximum(n + np.where(np.isfinite(lam), lam, 0.0)[:, None] * dn, 0.0)
+        iterations += 1
+        f = tendency(n)
+        P, L = gross(n)
+        new_norm = np.linalg.norm(f / (P + L + atol))
+        growth = np.clip(norm / max(new_norm, 1e-300), 0.2, 10.0)
+        dt = np.minimum(dt * growth, 1e12)
+        norm = new_norm
+        if np.all(_relative_residual(f, P, L, atol) <= 1e-3):
+            break
+    return n
+
+
+def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_newton=60,
+                 max_continuation=600, level_names=None):
+    """Steady state of transport-coupled levels (see the module docstring).
+
+    Parameters
+    ----------
+    n0 : ndarray (B, S)
+        Starting densities, cm-3 (non-negative), e.g. the photochemical solution.
+    tendency : callable ``(n) -> (B, S)``
+    jacobian : callable ``(n) -> sparse (B·S, B·S)``
+    gross : callable ``(n) -> (P, L)``, each (B, S)
+    rtol : float
+        Relative residual target.
+    atol : float
+        Absolute floor on rates, cm-3 s-1.
+    level_names : sequence, optional
+        Label of each level for error messages.
+
+    Returns
+    -------
+    SteadyResult
+        Every level carries the column's iteration count and method.
+    """
+    B, S = n0.shape
+    iterations = np.zeros(B, int)
+    method = np.zeros(B, int)
+    n = initial_guess(np.maximum(np.where(np.isfinite(n0), n0, 0.0), 0.0), gross, sweeps=4)
+    n = np.where(np.isfinite(n), n, 0.0)
+    n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol,
+                         max_iter=max_newton, iterations=iterations)
+    if ok:
+        method[:] = METHOD_NEWTON
+    else:
+        n = _continuation(n, tendency, jacobian, gross, atol=atol, max_iter=max_continuation,
+                          iterations=iterations)
+        n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol,
+                             max_iter=max_newton, iterations=iterations)
+        method[:] = METHOD_CONTINUATION
+    valid = (res <= rtol) & np.all(np.isfinite(n) & (n >= 0), axis=1)
+    if not ok or not valid.all():
+        labels = np.asarray(level_names if level_names is not None else np.arange(B))
+        bad = ~valid if (~valid).any() else np.ones(B, bool)
+        failed = labels[bad]
+        shown = ", ".join(str(x) for x in failed[:12]) + (" …" if failed.size > 12 else "")
+        worst = np.nanmax(np.where(np.isfinite(res), res, np.nan)[bad]) \
+            if np.isfinite(res[bad]).any() else float("nan")
+        raise SolverError(
+            f"steady state with transport not reached at {failed.size} level(s): {shown} "
+            f"(largest relative residual {worst:.3g})", levels=failed.tolist())
+    return SteadyResult(n=n, residual=res, iterations=iterations, method=method)
+
+
+
+def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=1e-10,
+                          atol=1e-30, level_names=None):
+    """Steady state of stacked columns: local chemistry plus one species' transport.
+
+    Parameters
+    ----------
+    tendency, jacobian, gross : callable
+        The chemistry of the levels, with the signatures of
+        :func:`ionochem.solve.steady.solve_steady`: ``tendency(n, rows) -> (b, S)``,
+        ``jacobian(n, rows) -> (b, S, S)``, ``gross(n, rows) -> (P, L)`` on the subset
+        ``rows`` of the B = C·A levels.
+    transport : ionochem.solve.transport.SpeciesTransport
+    n_rows : int
+        B, a whole number of columns of ``transport.A`` levels.
+    rtol, atol, level_names
+        As in :func:`solve_column`.
+
+    The start is the photochemical steady state of every level (:mod:`steady`, to a
+    relative residual of 1e-6) when it exists, zero otherwise.
+
+    Returns
+    -------
+    SteadyResult
+    """
+    from ionochem.solve.steady import solve_steady
+    from ionochem.solve.transient import block_diagonal
+    C = n_rows // transport.A
+    if C * transport.A != n_rows:
+        raise ValueError("the rows are not a whole number of columns")
+    S = transport.S
+    rows = np.arange(n_rows)
+
+    def col_tendency(n):
+        return tendency(n, rows) + transport.tendency(n)
+
+    def col_jacobian(n):
+        return block_diagonal(jacobian(n, rows)) + transport.matrix(C)
+
+    def col_gross(n):
+        P, L = gross(n, rows)
+        Pt, Lt = transport.gross(n)
+        return P + Pt, L + Lt
+
+    try:
+        start = solve_steady(np.zeros((n_rows, S)), tendency, jacobian, gross,
+                             rtol=max(rtol, 1e-6)).n
+    except SolverError:
+        start = np.zeros((n_rows, S))
+    return solve_column(start, col_tendency, col_jacobian, col_gross, rtol=rtol, atol=atol,
+                        level_names=level_names)
