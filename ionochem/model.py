@@ -439,7 +439,7 @@ class Model:
         Entry (a·S + i, b·S + j) = ∂f_{a,i}/∂n_{b,j}: block diagonal without transport,
         block tridiagonal with it.
         """
-        from ionochem.solve.transient import block_diagonal
+        from ionochem.solve.column import block_diagonal
         J = block_diagonal(self.mechanism.jacobian(np.asarray(n, float),
                                                    self.rate_coefficients(time_s),
                                                    self.given))

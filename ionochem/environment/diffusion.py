@@ -127,6 +127,8 @@ class FaceCoefficients:
         Flux through the top of the column, cm-2 s-1, positive upward.
     dip_deg : float
         Dip angle used, degrees.
+    meridional_wind_m_s : float
+        Meridional wind used, m s-1, positive northward.
     """
 
     altitude_km: np.ndarray
@@ -134,6 +136,7 @@ class FaceCoefficients:
     V_cm_s: np.ndarray
     upper_flux_cm2_s: float
     dip_deg: float
+    meridional_wind_m_s: float = 0.0
 
 
 def oplus_face_coefficients(altitude_km, neutrals, Te, Ti, Tn, *, dip_deg,
@@ -177,4 +180,5 @@ def oplus_face_coefficients(altitude_km, neutrals, Te, Ti, Tn, *, dip_deg,
     U_v = -float(meridional_wind_m_s) * 100.0 * np.sin(I) * np.cos(I)    # cm s-1
     V = U_v - D * (inv_Hp + dlnT)
     return FaceCoefficients(altitude_km=z, D_cm2_s=D, V_cm_s=V,
-                            upper_flux_cm2_s=float(upper_flux_cm2_s), dip_deg=float(dip_deg))
+                            upper_flux_cm2_s=float(upper_flux_cm2_s), dip_deg=float(dip_deg),
+                            meridional_wind_m_s=float(meridional_wind_m_s))

@@ -62,6 +62,16 @@ from ionochem.solve.steady import (
 GROWTH_LIMIT = 1e3
 
 
+def block_diagonal(J):
+    """Sparse CSC block-diagonal matrix from blocks J shaped (B, S, S)."""
+    B, S, _ = J.shape
+    rows = (np.arange(B)[:, None, None] * S + np.arange(S)[None, :, None])
+    cols = (np.arange(B)[:, None, None] * S + np.arange(S)[None, None, :])
+    rows = np.broadcast_to(rows, J.shape).ravel()
+    cols = np.broadcast_to(cols, J.shape).ravel()
+    return sp.csc_matrix((J.ravel(), (rows, cols)), shape=(B * S, B * S))
+
+
 def sparse_solve(J, rhs):
     """Solve J x = rhs with one sparse LU (rhs (N,) or (N, K)); None if J is singular."""
     try:
@@ -233,7 +243,6 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
     SteadyResult
     """
     from ionochem.solve.steady import solve_steady
-    from ionochem.solve.transient import block_diagonal
     C = n_rows // transport.A
     if C * transport.A != n_rows:
         raise ValueError("the rows are not a whole number of columns")

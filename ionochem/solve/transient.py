@@ -17,16 +17,9 @@ import scipy.sparse as sp
 from scipy.integrate import solve_ivp
 
 from ionochem.errors import SolverError
+from ionochem.solve.column import block_diagonal
 
-
-def block_diagonal(J):
-    """Sparse CSC block-diagonal matrix from blocks J shaped (B, S, S)."""
-    B, S, _ = J.shape
-    rows = (np.arange(B)[:, None, None] * S + np.arange(S)[None, :, None])
-    cols = (np.arange(B)[:, None, None] * S + np.arange(S)[None, None, :])
-    rows = np.broadcast_to(rows, J.shape).ravel()
-    cols = np.broadcast_to(cols, J.shape).ravel()
-    return sp.csc_matrix((J.ravel(), (rows, cols)), shape=(B * S, B * S))
+__all__ = ["block_diagonal", "integrate"]
 
 
 def integrate(times_s, n0, tendency, jacobian, *, method="BDF", rtol=1e-8, atol=1e-6,
