@@ -28,7 +28,8 @@ Method
    at the top, the molecular ions following the electrons quadratically) raise the norm
    before Newton converges quadratically, and a monotone line search would creep there.
 3. Convergence, per level exactly as in :mod:`ionochem.solve.steady` (docs/validation.md):
-   relative residual max_i |f_i|/(P_i + L_i + atol) ≤ rtol before a step, relative step
+   relative residual max_i |f_i|/(P_i + L_i + a) ≤ rtol before a step (a: atol or 1e-4 of
+   the level's largest gross rate, the same floor), relative step
    ≤ 1e-3, residual ≤ rtol again at the point reached; the column is converged when every
    level is.
 4. If Newton does not converge in ``max_newton`` iterations (or meets a singular
@@ -54,6 +55,7 @@ from ionochem.solve.steady import (
     SteadyResult,
     _positive_step,
     _relative_residual,
+    _scale,
     initial_guess,
 )
 
@@ -109,7 +111,7 @@ def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
             return n, False, r0
         dn, lam = _positive_step(n, dn.reshape(B, S))
         lam = np.where(np.isfinite(lam), lam, 0.0)
-        scale = P + L + atol
+        scale = _scale(P, L, atol)
         norm0 = np.linalg.norm(f / scale)
         mu = 1.0
         trial = n + lam[:, None] * dn
@@ -143,7 +145,7 @@ def _continuation(n, tendency, jacobian, gross, *, atol, max_iter, iterations):
         freq = np.where(n > 0, L / np.maximum(n, 1e-300), 0.0)
     fastest = np.max(freq, axis=1, initial=0.0)
     dt = np.where(fastest > 0, 0.01 / np.maximum(fastest, 1e-300), 1.0)
-    norm = np.linalg.norm(f / (P + L + atol))
+    norm = np.linalg.norm(f / _scale(P, L, atol))
     for _ in range(max_iter):
         J = _regularise(jacobian(n), f)
         A = sp.diags(np.repeat(1.0 / dt, S)) - J
@@ -156,7 +158,7 @@ def _continuation(n, tendency, jacobian, gross, *, atol, max_iter, iterations):
         iterations += 1
         f = tendency(n)
         P, L = gross(n)
-        new_norm = np.linalg.norm(f / (P + L + atol))
+        new_norm = np.linalg.norm(f / _scale(P, L, atol))
         growth = np.clip(norm / max(new_norm, 1e-300), 0.2, 10.0)
         dt = np.minimum(dt * growth, 1e12)
         norm = new_norm

@@ -13,14 +13,21 @@ Method
    species with no production goes to zero exactly.
 2. Damped Newton on all levels together: J Δn = −f solved by batched LU (numpy.linalg.solve).
    Positivity: per level, the step is cut so no density falls below a tenth of its value
-   (a species at exactly zero with a negative step stays at zero). The step is then halved
+   (a species at exactly zero with a negative step stays at zero; one below 1e-12 of the
+   level's largest density is clipped at zero rather than cutting the step). The step is then halved
    until the scaled residual norm does not grow (at most 8 halvings).
 3. Convergence, per level (documented in docs/validation.md): the relative residual
-   max_i |f_i| / (P_i + L_i + atol) ≤ rtol before a Newton step, that step's relative size
+   max_i |f_i| / (P_i + L_i + a) ≤ rtol before a Newton step, that step's relative size
    max_i |Δn_i| / (n_i + floor) ≤ 1e-3 (floor = 1e-12 × the largest density of the level),
    and the relative residual ≤ rtol again at the point the step reached. P_i and L_i are the
-   gross production and loss; ``atol`` is an absolute floor on the rates (cm-3 s-1) below
-   which a residual is noise.
+   gross production and loss; a = max(atol, 1e-4 × the level's largest P_j + L_j) is the
+   floor below which a residual is noise: ``atol`` an absolute one (cm-3 s-1), the second
+   the round-off of the level's balance. A species carrying less than 1e-4 of the level's
+   largest flow is thus resolved to rtol × 1e-4 of that flow (1e-14 of it by default) —
+   the linear solve cannot do better, as its errors scale with the level's largest
+   densities — while every species carrying more keeps a relative residual ≤ 2 rtol. Near
+   the terminator, trace species fed at 1e-25 cm-3 s-1 next to 1e-5 would otherwise
+   never converge.
 4. Levels Newton does not bring to convergence in ``max_newton`` iterations go to
    pseudo-transient continuation: (I/Δt − J) Δn = f with Δt growing as the residual falls
    (switched evolution relaxation), which follows the physical relaxation and cannot jump
@@ -39,6 +46,9 @@ from ionochem.errors import SolverError
 
 #: Relative Newton step below which a level whose residual already met rtol is converged.
 STEP_TOL = 1e-3
+#: Fraction of a level's largest gross rate below which a species' rates are resolved in
+#: absolute, not relative, terms (see the convergence rule in the module docstring).
+LEVEL_FLOOR = 1e-4
 
 METHOD_NEWTON = 1
 METHOD_CONTINUATION = 2
@@ -55,8 +65,17 @@ class SteadyResult:
     method: np.ndarray       # (B,) METHOD_* code of the method that converged
 
 
+def _scale(P, L, atol):
+    """Residual scale P_i + L_i + a, a = max(atol, LEVEL_FLOOR × the level's largest P + L)."""
+    gross = P + L
+    return gross + np.maximum(atol, LEVEL_FLOOR * gross.max(axis=1, initial=0.0)[:, None])
+
+
 def _relative_residual(f, P, L, atol):
-    return np.max(np.abs(f) / (P + L + atol), axis=1) if f.shape[1] else np.zeros(f.shape[0])
+    """max_i |f_i| / (P_i + L_i + a) per level (see :func:`_scale`)."""
+    if not f.shape[1]:
+        return np.zeros(f.shape[0])
+    return np.max(np.abs(f) / _scale(P, L, atol), axis=1)
 
 
 def _solve(J, rhs):
@@ -74,10 +93,16 @@ def _solve(J, rhs):
 
 
 def _positive_step(n, dn):
-    """Per-level fraction of the step that keeps every density at least n/10."""
+    """Per-level fraction of the step that keeps every density at least n/10.
+
+    Densities below 1e-12 of the level's largest (the step-size floor of the convergence
+    rule) do not limit the step: they are clipped at zero instead, so round-off of the
+    linear solve in a trace species cannot stall the whole level.
+    """
     dn = np.where((n <= 0) & (dn < 0), 0.0, dn)
+    floor = 1e-12 * n.max(axis=1, initial=0.0)[:, None]
     with np.errstate(divide="ignore", invalid="ignore"):
-        limit = np.where(dn < 0, -0.9 * n / dn, np.inf)
+        limit = np.where((dn < 0) & (n > floor), -0.9 * n / dn, np.inf)
     lam = np.minimum(1.0, limit.min(axis=1)) if n.shape[1] else np.ones(n.shape[0])
     return dn, lam
 
@@ -113,7 +138,7 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
         lam = np.where(np.isfinite(lam), lam, 0.0)
         # Backtracking: halve the step on levels whose scaled residual grew.
         trial = na + lam[:, None] * dn
-        scale = P + L + atol
+        scale = _scale(P, L, atol)
         norm0 = np.linalg.norm(f / scale, axis=1)
         for _ in range(8):
             ft = tendency(trial, active)
@@ -161,7 +186,7 @@ def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iteratio
     fastest = np.max(freq, axis=1, initial=0.0)
     dt = np.where(fastest > 0, 0.01 / np.maximum(fastest, 1e-300), 1.0)
     eye = np.eye(S)
-    norm = np.linalg.norm(f / (P + L + atol), axis=1)
+    norm = np.linalg.norm(f / _scale(P, L, atol), axis=1)
     for _ in range(max_iter):
         J = jacobian(n, rows)
         A = eye[None] / dt[:, None, None] - J
@@ -171,7 +196,7 @@ def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iteratio
         iterations += 1
         f = tendency(n, rows)
         P, L = gross(n, rows)
-        new_norm = np.linalg.norm(f / (P + L + atol), axis=1)
+        new_norm = np.linalg.norm(f / _scale(P, L, atol), axis=1)
         growth = np.clip(norm / np.maximum(new_norm, 1e-300), 0.2, 10.0)
         dt = np.minimum(dt * growth, 1e12)
         norm = new_norm
