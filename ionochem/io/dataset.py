@@ -68,6 +68,8 @@ def _provenance(model):
         env_attrs["f107a"] = scen.sun.f107a
     if scen.geomagnetic is not None:
         env_attrs["ap"] = scen.geomagnetic.ap
+    for key, value in model.environment.info.items():
+        env_attrs[key] = float(value)
     if model.environment.sun is not None:
         env_attrs["photon_source"] = model.environment.sun.spectrum.source
         env_attrs["photoelectron_secondaries"] = int(bool(scen.photons.secondary))
@@ -167,7 +169,45 @@ def steady_dataset(model, res):
     for name, var in _environment_vars(model).items():
         ds[name] = var
     _add_diagnostics(model, ds)
+    _add_transport(model, ds, res.n)
     return ds
+
+
+TRANSPORT_NOTE = (
+    "Column with O+ transport: O+ diffuses along the geomagnetic field (ambipolar diffusion "
+    "projected on the vertical, with the meridional-wind drift), the lowest level is in "
+    "photochemical equilibrium and the given flux crosses the top; the molecular ions and "
+    "metastables are in photochemical equilibrium at every height. Research output, not a "
+    "forecast: do not use alone for radio, navigation or satellite operations.")
+
+
+def _transport_attrs(model):
+    env = model.environment
+    c = env.transport
+    return {"transport": "O+ field-aligned ambipolar diffusion (Schunk & Nagy 2009)",
+            "transport_dip_deg": float(c.dip_deg),
+            "transport_dip_source": "given" if model.scenario.transport.dip_deg is not None
+            else "IGRF at 300 km (ppigrf)",
+            "transport_upper_boundary_flux_cm2_s": float(c.upper_flux_cm2_s),
+            "transport_meridional_wind_m_s": float(c.meridional_wind_m_s),
+            "comment": TRANSPORT_NOTE}
+
+
+def _add_transport(model, ds, n):
+    """O+ vertical flux and transport rate of a column with transport (nothing otherwise)."""
+    if model.transport is None:
+        return
+    tr = model.transport
+    col = n[:, tr.index]
+    ds["vertical_flux"] = ("altitude", tr.operator.flux(col),
+                           {"units": "cm-2 s-1", "long_name": f"upward flux of "
+                            f"{model.species[tr.index]} through the top of each level's cell "
+                            "(the last value is the upper boundary flux)"})
+    ds["transport_rate"] = ("altitude", tr.operator.apply(col),
+                            {"units": "cm-3 s-1", "long_name": f"net gain of "
+                             f"{model.species[tr.index]} by transport, -dPhi/dz (zero at "
+                             "the lowest level, held in photochemical equilibrium)"})
+    ds.attrs.update(_transport_attrs(model))
 
 
 def _equation(r):
@@ -212,4 +252,6 @@ def transient_dataset(model, times, n):
                                                       for t in times], float),
                                     {"units": "degree", "long_name": "solar zenith angle"})
     ds.attrs["mode"] = "transient"
+    if model.transport is not None:
+        ds.attrs.update(_transport_attrs(model))
     return ds

@@ -104,15 +104,15 @@ class TemperatureProfile:
     ti_offset_K : float
         Topside ion minus neutral temperature by day (K), >= 0, default 300.
     base_km : float
-        Height where Te starts to depart from Tn (km), >= 0, default 110.
+        Height where Te starts to depart from Tn (km), >= 0, default 125.
     scale_km : float
-        e-folding height of the rise of Te (km), > 0, default 60.
+        e-folding height of the rise of Te (km), > 0, default 85.
     """
 
     te_peak_K: float = 2800.0
     ti_offset_K: float = 300.0
-    base_km: float = 110.0
-    scale_km: float = 60.0
+    base_km: float = 125.0
+    scale_km: float = 85.0
 
 
 @dataclass(frozen=True)
