@@ -38,7 +38,7 @@ def test_msis20_without_no_table_is_refused(tmp_path):
 def test_msis20_with_a_no_table_uses_it(tmp_path):
     """With no_table the NO profile comes from the table (log-linear interpolation, exact
     for an exponential profile)."""
-    alt = np.arange(80.0, 461.0, 10.0)
+    alt = np.arange(80.0, 621.0, 10.0)
     no = 1e8 * np.exp(-(alt - 80.0) / 40.0)
     (tmp_path / "no.csv").write_text("altitude_km,NO\n" + "\n".join(
         f"{a},{v:.17g}" for a, v in zip(alt, no)) + "\n")

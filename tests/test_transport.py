@@ -3,6 +3,7 @@ section. Each check names its external reference."""
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import numpy as np
@@ -146,7 +147,7 @@ def test_without_transport_section_the_column_is_photochemical(column):
     z = np.arange(150.0, 650.1, 20.0)
     path, q, O, N2 = _chapman_column(column, z)
     text = path.read_text()
-    path.write_text(text[:text.index("[transport]")])
+    path.write_text(text[:text.index("\n[transport]\n")])
     model = ionochem.Model(ionochem.load_scenario(path))
     assert model.transport is None
     n = model.solve()["density"].sel(species="O+").values
@@ -178,9 +179,10 @@ def test_upper_boundary_flux_feeds_the_column(column):
 
 def _mid_with_transport(tmp_path, extra="", stop=600.0):
     text = MID.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
-    text = text.replace("stop = 450.0", f"stop = {stop}")
+    text = re.sub(r"stop = [0-9.]+", f"stop = {stop}", text)
     if "[transport]" not in text:
-        text += "\n[transport]\nspecies = [\"O+\"]\n" + extra
+        text += "\n[transport]\nspecies = [\"O+\"]\n"
+    text += extra
     path = tmp_path / "mid.toml"
     path.write_text(text)
     return ionochem.load_scenario(path)
@@ -264,7 +266,7 @@ def test_transient_with_transport_stays_at_the_steady_state(tmp_path):
 def test_bad_transport_section_is_refused_at_its_key(tmp_path, extra, key, message):
     """Every malformed [transport] entry is a ScenarioError at its dotted key."""
     text = MID.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
-    text += "\n[transport]\n" + extra + "\n"
+    text = text[:text.index("\n[transport]\n")] + "\n[transport]\n" + extra + "\n"
     path = tmp_path / "bad.toml"
     path.write_text(text)
     with pytest.raises(ionochem.ScenarioError, match=message) as err:

@@ -22,8 +22,11 @@ Method
    the (B·S)² Jacobian per iteration (SuperLU through ``scipy.sparse.linalg.splu``; the
    matrix has bandwidth ≈ 2S, so the cost is linear in the number of levels). Positivity,
    per level as in the independent solver: the step of a level is cut so no density falls
-   below a tenth of its value. The step is halved (at most 8 times) only while the scaled
-   residual norm of the column would grow more than a thousandfold: a non-monotone rule,
+   below a tenth of its value — nor, here, rises above ten times it, which stops Newton's
+   overshoot from far below a recombination-limited density (levels in the Earth's shadow
+   fed only by diffusion start from nothing). The step is halved (at most 8 times) only
+   while the scaled residual norm of the column would grow more than a thousandfold: a
+   non-monotone rule,
    because the first full steps from the photochemical start (O+ falling several-fold
    at the top, the molecular ions following the electrons quadratically) raise the norm
    before Newton converges quadratically, and a monotone line search would creep there.
@@ -31,7 +34,11 @@ Method
    relative residual max_i |f_i|/(P_i + L_i + a) ≤ rtol before a step (a: atol or 1e-4 of
    the level's largest gross rate, the same floor), relative step
    ≤ 1e-3, residual ≤ rtol again at the point reached; the column is converged when every
-   level is.
+   level is. One addition for the coupled system: the absolute floor ``atol`` is raised to
+   1e-20 of the largest gross rate in the column at the start, because the errors of the
+   column-wide linear solve scale with the column's largest terms. Without it, O+ leaking
+   by diffusion into the Earth's shadow at a twilight column (1e-27 cm-3 s-1, making
+   molecular ions of 1e-10 cm-3) would have to be resolved to its own relative precision.
 4. If Newton does not converge in ``max_newton`` iterations (or meets a singular
    Jacobian), pseudo-transient continuation on the whole column: (diag(1/Δt) − J) Δn = f
    with a local time step per level, starting at a hundredth of the level's fastest time
@@ -59,6 +66,11 @@ from ionochem.solve.steady import (
     initial_guess,
 )
 
+#: Rates below this fraction of the largest gross rate of the whole column are noise of the
+#: coupled linear solve (its errors scale with the column's largest terms): the absolute
+#: floor ``atol`` of the convergence rule is raised to it (see the module docstring).
+COLUMN_FLOOR = 1e-20
+
 #: A Newton step is halved only while it would raise the column's scaled residual norm more
 #: than this factor (non-monotone: see the module docstring).
 GROWTH_LIMIT = 1e3
@@ -75,27 +87,60 @@ def block_diagonal(J):
 
 
 def sparse_solve(J, rhs):
-    """Solve J x = rhs with one sparse LU (rhs (N,) or (N, K)); None if J is singular."""
+    """Solve J x = rhs with one sparse LU (rhs (N,) or (N, K)); None if that fails.
+
+    An exactly singular J (species with no loss at all where the densities are zero, as in
+    a dark column) is shifted to J − ε I, ε = 1e-12 × its largest diagonal entry — a
+    pseudo-time step of 1e12 relaxation times, harmless to Newton, which only needs a
+    descent direction to reach f = 0.
+    """
+    J = sp.csc_matrix(J)
     try:
-        lu = splu(sp.csc_matrix(J))
+        lu = splu(J)
     except RuntimeError:
-        return None
+        diag = np.abs(J.diagonal())
+        eps = 1e-12 * (diag.max() if diag.size and diag.max() > 0 else 1.0)
+        try:
+            lu = splu(sp.csc_matrix(J - eps * sp.identity(J.shape[0])))
+        except RuntimeError:
+            return None
     x = lu.solve(np.asarray(rhs, float))
     return x if np.all(np.isfinite(x)) else None
 
 
 def _regularise(J, f):
-    """Put −1 on empty diagonal entries of unknowns with nothing happening (rows of zeros).
+    """Give a small negative diagonal to unknowns whose diagonal entry is exactly zero.
 
-    An unknown with no production, no loss and no residual (a species absent from a dark
-    level) makes J singular; giving it the equation Δn = f = 0 keeps it where it is.
+    A species with no loss where the densities are zero (a molecular ion in a dark level:
+    its recombination vanishes with the electrons) makes J exactly singular. Its diagonal
+    becomes −1e-12 × the largest entry of its row (−1 for an empty row): a local
+    pseudo-time step far longer than any of its rates, harmless to Newton, which only
+    needs a descent direction to reach f = 0. (A global shift would swamp levels whose own
+    rates are tiny.)
     """
     J = sp.csr_matrix(J)
-    rowsum = np.asarray(abs(J).sum(axis=1)).ravel()
-    empty = (rowsum == 0) & (f.ravel() == 0)
-    if empty.any():
-        J = J + sp.diags(np.where(empty, -1.0, 0.0))
+    diag = J.diagonal()
+    zero = diag == 0
+    if zero.any():
+        rowmax = np.asarray(abs(J).max(axis=1).todense()).ravel()
+        shift = np.where(zero, -np.where(rowmax > 0, 1e-12 * rowmax, 1.0), 0.0)
+        J = J + sp.diags(shift)
     return J
+
+
+def _bounded_step(n, dn):
+    """Per-level step fraction keeping every density within [n/10, 10 n].
+
+    The lower bound is the positivity rule of :mod:`steady`; the upper bound stops the
+    overshoot of Newton from far below a recombination-limited density (n² α = q gives
+    n → q/(2αn)), which in a coupled column would drag every level's step down with it.
+    Densities below 1e-12 of the level's largest are not bounded (clipped at zero).
+    """
+    dn, lam = _positive_step(n, dn)
+    floor = 1e-12 * n.max(axis=1, initial=0.0)[:, None]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        up = np.where((dn > 0) & (n > floor), 9.0 * n / dn, np.inf)
+    return dn, np.minimum(lam, up.min(axis=1, initial=np.inf))
 
 
 def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
@@ -109,7 +154,7 @@ def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
         dn = sparse_solve(J, -f.ravel())
         if dn is None:
             return n, False, r0
-        dn, lam = _positive_step(n, dn.reshape(B, S))
+        dn, lam = _bounded_step(n, dn.reshape(B, S))
         lam = np.where(np.isfinite(lam), lam, 0.0)
         scale = _scale(P, L, atol)
         norm0 = np.linalg.norm(f / scale)
@@ -195,6 +240,8 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
     method = np.zeros(B, int)
     n = initial_guess(np.maximum(np.where(np.isfinite(n0), n0, 0.0), 0.0), gross, sweeps=4)
     n = np.where(np.isfinite(n), n, 0.0)
+    P, L = gross(n)
+    atol = max(atol, COLUMN_FLOOR * float(np.max(P + L, initial=0.0)))
     n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol,
                          max_iter=max_newton, iterations=iterations)
     if ok:
