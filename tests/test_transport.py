@@ -282,3 +282,57 @@ def test_transport_without_place_needs_a_dip_angle(column):
     with pytest.raises(ionochem.ScenarioError, match="dip_deg") as err:
         ionochem.load_scenario(path)
     assert err.value.key == "transport.dip_deg"
+
+
+def test_twilight_column_with_transport_solves_into_the_shadow(tmp_path):
+    """Zenith angle near 104° with transport: the sunlit top and the dark levels below solve
+    together; O+ diffuses down into the Earth's shadow, where it falls off steeply
+    (no production there; loss by charge exchange), and every density is finite and ≥ 0."""
+    import datetime as dt
+
+    from ionochem.environment.geometry import solar_zenith_angle_deg
+    scen = _mid_with_transport(tmp_path, stop=600.0)
+    t0 = np.datetime64(scen.time.utc.replace(tzinfo=None), "s")
+    t = t0 + np.arange(0, 14 * 60).astype("timedelta64[m]")
+    chi = solar_zenith_angle_deg(t, scen.location.latitude_deg, scen.location.longitude_deg)
+    i = int(np.argmin(np.abs(chi - 104.0)))
+    scen = scen.replace(time=type(scen.time)(utc=t[i].astype(dt.datetime)
+                                             .replace(tzinfo=dt.UTC)))
+    ds = ionochem.Model(scen).solve()
+    dark = ds["dark"].values.astype(bool)
+    assert dark.any() and not dark.all()
+    assert np.all(ds["residual"].values <= 1e-10)
+    d = ds["density"].values[ds["role"].values != "fixed"]
+    assert np.all(np.isfinite(d)) and np.all(d >= 0)
+    o = ds["density"].sel(species="O+").values
+    z = ds["altitude"].values
+    edge = z[dark].max()
+    assert o[z == edge][0] > 0                               # O+ reaches into the shadow
+    assert o[z == edge - 20.0][0] < 1e-2 * o[z == edge][0]   # and dies off within 20 km
+    assert np.all(ds["density"].sel(species="e").values[z >= 300] > 0)
+
+
+@pytest.mark.slow
+def test_f_layer_decays_through_the_night_with_transport(tmp_path):
+    """A transient run from a sunlit afternoon (15 LT) to local midnight with a moving sun
+    and transport keeps a decaying F layer: NmF2 at midnight within 1e5–3e5 cm-3 and
+    hmF2 within 250–400 km at mid latitude (SCIENCE.md §4a, *common practice*;
+    Rishbeth & Garriott 1969, ch. 7, *from memory*), while the E layer collapses below
+    1e3 cm-3 (no night sources here)."""
+    import datetime as dt
+
+    from ionochem.io.scenario import Grid, Solve, Time
+    scen = _mid_with_transport(tmp_path, stop=600.0)
+    times = (0.0, 3 * 3600.0, 9 * 3600.0)
+    scen = scen.replace(grid=Grid(tuple(np.arange(90.0, 600.1, 10.0))),
+                        time=Time(dt.datetime(2025, 3, 20, 14, tzinfo=dt.UTC)),
+                        solve=Solve(mode="transient", times_s=times, start="steady"))
+    model = ionochem.Model(scen)
+    out = model.integrate(np.array(times), initial=model.solve())
+    assert out.attrs["transport"].startswith("O+")
+    ne = out["density"].sel(species="e").isel(time=-1).values
+    z = out["altitude"].values
+    assert float(out["solar_zenith_angle"][-1]) > 120.0
+    assert 1e5 <= ne.max() <= 3e5
+    assert 250.0 <= z[np.argmax(ne)] <= 400.0
+    assert ne[z == 110.0][0] < 1e3
