@@ -1,4 +1,8 @@
-"""ionochem: photochemistry of one ionospheric altitude column from a plain-text reaction list."""
+"""ionochem: photochemistry of one ionospheric altitude column from a plain-text reaction list.
+
+The public names (DESIGN.md §4) are imported on first use, so that the command line starts
+without loading numpy, xarray and the model for ``ionochem --help`` or a bad option.
+"""
 
 from ionochem.errors import (
     Error,
@@ -12,11 +16,28 @@ from ionochem.errors import (
 
 __version__ = "0.1.0"
 
+#: Public name → module that defines it (imported on first access).
+_LAZY = {
+    "Model": "ionochem.model",
+    "load_mechanism": "ionochem.model",
+    "load_reaction_list": "ionochem.model",
+    "load_scenario": "ionochem.model",
+}
+
 __all__ = [
     "Error", "InputError", "MechanismError", "ReactionListError", "ScenarioError",
-    "SolverError", "TableRangeError", "__version__",
+    "SolverError", "TableRangeError", "__version__", *_LAZY,
 ]
 
-from ionochem.model import Model, load_mechanism, load_scenario  # noqa: E402
 
-__all__ += ["Model", "load_mechanism", "load_scenario"]
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
+        value = getattr(importlib.import_module(_LAZY[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'ionochem' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))

@@ -23,10 +23,19 @@ SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
 PRODUCTION_FLOOR = 1e-20
 
 
-def load_mechanism(path):
-    """Parse a reaction list (``*.reactions``) into a :class:`ReactionList`."""
+def load_reaction_list(path):
+    """Parse a reaction list (``*.reactions``) into a :class:`ReactionList`.
+
+    The parsed list is text made structured; :class:`Model` compiles it into a
+    :class:`~ionochem.mechanism.mechanism.Mechanism` (``model.mechanism``: stoichiometry,
+    tendency, Jacobian) bound to a column.
+    """
     from ionochem.mechanism.parser import parse_reaction_list
     return parse_reaction_list(path)
+
+
+#: The contract name (DESIGN.md §4) of :func:`load_reaction_list`.
+load_mechanism = load_reaction_list
 
 
 def load_scenario(path):
@@ -56,6 +65,20 @@ def channel_of(reaction) -> str:
     return f"{absorber}->{'+'.join(prods)}"
 
 
+def _level_channel(reaction, kind):
+    """``"photo:N2->N2+(v=1)"`` for a photo/photoelectron reaction making N2+ in a level,
+    else None (the environment splits only N2+ bin by bin)."""
+    if kind not in ("photo", "photoelectron"):
+        return None
+    ions = [sp for sp, _ in reaction.products if sp.charge > 0]
+    if not ions or ions[0].vib is None or ions[0].base != "N2+":
+        return None
+    absorbers = [sp.name for sp, _ in reaction.reactants if sp.charge == 0]
+    if absorbers != ["N2"]:
+        return None
+    return f"{kind}:N2->N2+(v={ions[0].vib})"
+
+
 class Model:
     """A reaction list solved in the column a scenario describes.
 
@@ -64,7 +87,9 @@ class Model:
     scenario : Scenario
         From :func:`load_scenario`.
     mechanism : ReactionList, optional
-        From :func:`load_mechanism`; default the scenario's own ``reactions``.
+        A parsed reaction list (:func:`load_reaction_list`, contract name
+        :func:`load_mechanism`); default the scenario's own ``reactions``. The keyword
+        ``reaction_list=`` says the same; the compiled form is :attr:`mechanism`.
     environment : Environment, optional
         Reuse an already-built column (for changed copies of a model).
 
@@ -74,10 +99,19 @@ class Model:
         Solved species, the column order of ``n``.
     reactions : list of str
         Reaction ids in order.
+    reaction_list : ReactionList
+        The parsed list the model was built from.
+    mechanism : Mechanism
+        The compiled mechanism (stoichiometry, tendency, Jacobian) on this column's fixed
+        species.
     """
 
-    def __init__(self, scenario, mechanism=None, *, environment=None, _changes=None):
+    def __init__(self, scenario, mechanism=None, *, reaction_list=None, environment=None,
+                 _changes=None):
         from ionochem.environment.column import build_environment
+        if mechanism is not None and reaction_list is not None:
+            raise TypeError("give the reaction list once: mechanism= or reaction_list=")
+        mechanism = reaction_list if mechanism is None else mechanism
         self.scenario = scenario
         if mechanism is None:
             mechanism = load_mechanism(scenario.reactions)
@@ -88,11 +122,14 @@ class Model:
         self._id_index = {r.id: j for j, r in enumerate(rxns)}
         changes = _changes
         if changes is None:
-            changes = (dict(scenario.changes.set), dict(scenario.changes.scale), "scenario")
+            changes = (dict(scenario.changes.set), dict(scenario.changes.scale), "scenario",
+                       {})
         self.changes = {"set": dict(changes[0]), "scale": dict(changes[1])}
+        # Folder each --set expression's table paths resolve against (default: the list's).
+        self._set_dirs = dict(changes[3])
         self._k_expr = [r.k for r in rxns]
         self._scale = np.ones(len(rxns))
-        self._apply_changes(*changes)
+        self._apply_changes(*changes[:3])
 
         needs = set()
         for r, expr in zip(rxns, self._k_expr):
@@ -100,6 +137,9 @@ class Model:
                 if kind in expr.variables:
                     needs.add(f"prescribed:{r.id}" if kind == "prescribed"
                               else f"{kind}:{channel_of(r)}")
+                    level_key = _level_channel(r, kind)
+                    if level_key is not None:
+                        needs.add(level_key)
             for sp, _ in (*r.reactants, *r.products):
                 needs.add(sp.name)
         self._needs = frozenset(needs)
@@ -147,14 +187,41 @@ class Model:
         self._k_static = self._evaluate_k(time_s=None)
         # The expression language allows a source only times constant factors, so a photo
         # rate is coefficient × source(t): precompute the coefficients once for transient runs.
-        self._src_keys = [f"{'photo' if 'photo' in self._k_expr[j].variables else 'photoelectron'}"
-                          f":{channel_of(self._rxns[j])}" for j in self._source_reactions]
+        self._src_keys = [self._source_key(j, "photo" if "photo" in self._k_expr[j].variables
+                                           else "photoelectron")
+                          for j in self._source_reactions]
         if self._source_reactions and self.environment.time_dependent:
             ones = {k: np.ones(A) for k in self._src_keys}
             with np.errstate(all="ignore"):
                 self._src_coef = np.stack([self._evaluate_one(j, ones)
                                            for j in self._source_reactions], -1)
         self.transport = self._species_transport()
+
+    # ---------------------------------------------------------------- public surface
+    @property
+    def reaction_objects(self):
+        """The parsed reaction entries, in the order of :attr:`reactions` (read only)."""
+        return tuple(self._rxns)
+
+    @property
+    def rate_expressions(self):
+        """The compiled rate law of each reaction as used (after ``--set`` changes)."""
+        return tuple(self._k_expr)
+
+    @property
+    def needs(self):
+        """What the environment must supply: ``photo:CHANNEL``, ``photoelectron:CHANNEL``,
+        ``prescribed:ID`` and species names (frozenset of str)."""
+        return self._needs
+
+    def species_table(self, n_solved):
+        """All reported densities from solved ones: ``(dens, names, roles)``.
+
+        ``n_solved`` is shaped (..., altitude, solved species); ``dens`` (..., altitude,
+        reported species) adds electrons, fixed neutrals and derived totals.
+        """
+        from ionochem.io.dataset import species_table
+        return species_table(self, n_solved)
 
     # ---------------------------------------------------------------- changes
     def _ids_for(self, key, where=None):
@@ -175,7 +242,8 @@ class Model:
             for j in self._ids_for(key, where):
                 r = self._rxns[j]
                 self._k_expr[j] = compile_expression(str(text), file=where, line=None,
-                                                     base_dir=base_dir, level=r.level)
+                                                     base_dir=self._set_dirs.get(key, base_dir),
+                                                     level=r.level)
         for key, factor in scale.items():
             factor = float(factor)
             where = self.scenario.source if origin == "scenario" else "--scale"
@@ -185,7 +253,7 @@ class Model:
             for j in self._ids_for(key, where):
                 self._scale[j] *= factor
 
-    def with_changes(self, set_dict=None, scale=None):
+    def with_changes(self, set_dict=None, scale=None, *, base_dir=None):
         """A new model with some rate expressions replaced and some rates scaled.
 
         Parameters
@@ -193,7 +261,11 @@ class Model:
         set_dict : dict[str, str]
             Reaction id (or family id, for all its levels) → new rate expression.
         scale : dict[str, float]
-            Reaction id (or family id) → multiplicative factor on k.
+            Reaction id (or family id) → multiplicative factor on k (0 switches it off).
+        base_dir : path, optional
+            Folder that relative ``table(...)`` paths in ``set_dict`` resolve against
+            (default: the reaction list's folder; the command line passes the working
+            directory).
 
         The changes add to those the scenario already makes. The environment is reused
         unless the new expressions need sources the old ones did not.
@@ -203,14 +275,33 @@ class Model:
         merged_scale = dict(self.changes["scale"])
         for key, f in (scale or {}).items():
             merged_scale[key] = merged_scale.get(key, 1.0) * float(f)
+        dirs = dict(self._set_dirs)
+        if base_dir is not None:
+            dirs.update({key: Path(base_dir) for key in (set_dict or {})})
+        changes = (merged_set, merged_scale, "api", dirs)
         new = Model(self.scenario, self.reaction_list, environment=self.environment,
-                    _changes=(merged_set, merged_scale, "api"))
-        if not new._needs <= self._needs:
-            new = Model(self.scenario, self.reaction_list,
-                        _changes=(merged_set, merged_scale, "api"))
+                    _changes=changes)
+        if not new.needs <= self.needs:
+            new = Model(self.scenario, self.reaction_list, _changes=changes)
         return new
 
     # ---------------------------------------------------------------- rates
+    def _source_key(self, j, kind):
+        """Source key of reaction j: its level's own channel when the environment splits
+        it bin by bin (``photo:N2->N2+(v=1)``), else the channel total."""
+        key = _level_channel(self._rxns[j], kind)
+        if key is not None and key in self._level_keys():
+            return key
+        return f"{kind}:{channel_of(self._rxns[j])}"
+
+    def _level_keys(self):
+        if not hasattr(self, "_level_keys_cache"):
+            sun = getattr(self.environment, "sun", None)
+            req = getattr(sun, "level_requests", {}) if sun is not None else {}
+            self._level_keys_cache = frozenset(f"{b}(v={v})" for b, lv in req.items()
+                                               for v in lv)
+        return self._level_keys_cache
+
     def _vibrational_fractions(self):
         """Share of each family level in photo/photoelectron production of that family."""
         levels = {}
@@ -270,6 +361,11 @@ class Model:
         for kind in ("photo", "photoelectron"):
             if kind in expr.variables:
                 ch = channel_of(r)
+                level_key = _level_channel(r, kind)
+                if level_key is not None and level_key in sources:
+                    # Split bin by bin by the environment (n2plus_levels.level_sources).
+                    out[kind] = sources[level_key]
+                    continue
                 key = f"{kind}:{ch}"
                 if key not in sources:
                     avail = ", ".join(sorted(k for k in sources if k.startswith(kind)))
@@ -453,32 +549,14 @@ class Model:
         ``k`` and ``given`` default to the model's own (one row per altitude); they may
         stack several samples of the column as extra rows. Returns a ``SteadyResult``.
         """
-        from ionochem.solve.steady import solve_steady
+        from ionochem.solve.batch import solve_rows
         k = self._k_static if k is None else k
         given = self.given if given is None else given
-        mech = self.mechanism
-        S = len(mech.solved)
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
-
-        def tendency(n, rows):
-            return mech.tendency(n, k[rows], given[rows])
-
-        def jacobian(n, rows):
-            return mech.jacobian(n, k[rows], given[rows])
-
-        def gross(n, rows):
-            P, L = mech.production_loss(n, k[rows], given[rows])
-            return P[:, :S], L[:, :S]
-
         names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
-        labels = [f"{a:g} km" for a in names]
-        if self.transport is not None:
-            from ionochem.solve.column import steady_with_transport
-            return steady_with_transport(tendency, jacobian, gross, self.transport,
-                                         k.shape[0], rtol=rtol, level_names=labels)
-        return solve_steady(np.zeros((k.shape[0], S)), tendency, jacobian, gross, rtol=rtol,
-                            level_names=labels)
+        return solve_rows(self.mechanism, k, given, rtol=rtol,
+                          level_names=[f"{a:g} km" for a in names], transport=self.transport)
 
     def solve(self):
         """Steady state at every level → ``xarray.Dataset``.
@@ -486,9 +564,12 @@ class Model:
         Photochemical equilibrium level by level, or, with a [transport] section, the
         steady state of the whole column with O+ transport.
         """
+        from ionochem.analysis.diagnostics import add_steady_diagnostics
         from ionochem.io.dataset import steady_dataset
-        res = self.steady_densities()
-        return steady_dataset(self, res)
+        from ionochem.solve.steady import METHOD_NAMES
+        ds = steady_dataset(self, self.steady_densities(), METHOD_NAMES)
+        add_steady_diagnostics(self, ds)
+        return ds
 
     def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
         """Integrate in time from ``initial`` (default: zero ion densities).
@@ -501,7 +582,8 @@ class Model:
         method : {"BDF", "Radau"}
         rtol : float
         atol : float, optional
-            Absolute tolerance, cm-3 (default 1e-8 of the peak production over 1 s, or 1e-6).
+            Absolute tolerance, cm-3 (default 1e-6 cm-3: far below any density of interest,
+            far above the round-off of the largest).
 
         Returns
         -------

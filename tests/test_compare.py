@@ -7,15 +7,13 @@ and lost only by charge transfer O+ + N2 → NO+ + N; NO+ recombines. Then
 
 from __future__ import annotations
 
-import argparse
-
 import numpy as np
 import pytest
 import xarray as xr
 
 import ionochem
-from ionochem.analysis.commands_compare import register
 from ionochem.analysis.compare import band_summary, changed_model, compare
+from ionochem.cli import build_parser
 
 ALT = np.linspace(100.0, 300.0, 21)
 Q = 80.0 * np.exp(-((ALT - 180.0) / 60.0) ** 2) + 5.0     # invented production, cm-3 s-1
@@ -38,11 +36,10 @@ def _scenario(column, q=Q, name="s"):
 
 
 def _run(argv):
-    """Run a subcommand through a parser built from ``register`` alone."""
-    p = argparse.ArgumentParser()
-    sub = p.add_subparsers(dest="command")
-    register(sub)
-    args = p.parse_args(argv)
+    """Run a subcommand of the ``ionochem`` parser; ionochem.Error propagates (cli.main
+    would turn it into one line and exit 2)."""
+    args = build_parser().parse_args(argv)
+    args.command_line = "ionochem " + " ".join(argv)
     return args.func(args)
 
 
@@ -110,8 +107,9 @@ def test_compare_cli_prints_plus_100_percent_and_writes_files(column, tmp_path, 
 
 def test_replacement_entries_and_whole_list_give_the_analytic_doubling(column, tmp_path,
                                                                       capsys):
-    """A file with one replacement entry (C1 at half the rate) and a whole alternative list
-    (ids renamed, same chemistry at half the rate) both give [O+] ratio 2 (analytic)."""
+    """A file with one replacement entry (C1 at half the rate, ``--reactions``) and a whole
+    alternative list (ids renamed, same chemistry at half the rate, ``--list``) both give
+    [O+] ratio 2 (analytic)."""
     scen = _scenario(column)
     half = f"{K_CT / 2:g}"
     repl = tmp_path / "repl.reactions"
@@ -119,17 +117,42 @@ def test_replacement_entries_and_whole_list_give_the_analytic_doubling(column, t
     alt_list = tmp_path / "alt.reactions"
     alt_list.write_text(CHAIN.replace("C1:", "CT_new:").replace(f"k = {K_CT:g}",
                                                                  f"k = {half}"))
-    for f in (repl, alt_list):
+    for f, flag, key in ((repl, "--reactions", "replacements"),
+                         (alt_list, "--list", "alternative")):
         out = tmp_path / f"{f.stem}.nc"
-        assert _run(["compare", str(scen), "--reactions", str(f), "-o", str(out)]) == 0
+        assert _run(["compare", str(scen), flag, str(f), "-o", str(out)]) == 0
         with xr.open_dataset(out) as ds:
             np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 2.0, rtol=1e-8)
             assert ds.attrs["changes_reactions"] == str(f)
         # The Python API records the same.
         base = ionochem.Model(ionochem.load_scenario(scen))
-        ds = compare(base, changed_model(base, reaction_lists=[ionochem.load_mechanism(f)]))
+        rl = ionochem.load_mechanism(f)
+        kw = {key: [rl]} if key == "replacements" else {key: rl}
+        ds = compare(base, changed_model(base, **kw), reaction_lists=[f])
         np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 2.0, rtol=1e-8)
         assert ds.attrs["changes_reactions"] == str(f)
+    capsys.readouterr()
+
+
+def test_added_loss_entry_halves_the_ion_and_ids_must_match_the_option(column, tmp_path,
+                                                                      capsys):
+    """``--add`` appends a second O+ loss equal to C1 (new id): [O+] = P/(2 k [N2]) halves
+    (analytic). A new id under ``--reactions`` and an existing id under ``--add`` are each
+    refused with the file named and the other option suggested."""
+    scen = _scenario(column)
+    extra = tmp_path / "extra.reactions"
+    extra.write_text(f"C2: O+ + N2 -> NO+ + N | k = {K_CT:g} | ref = invented test\n")
+    out = tmp_path / "add.nc"
+    assert _run(["compare", str(scen), "--add", str(extra), "-o", str(out)]) == 0
+    with xr.open_dataset(out) as ds:
+        np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, 0.5, rtol=1e-8)
+    with pytest.raises(ionochem.InputError, match="--add") as exc:
+        _run(["compare", str(scen), "--reactions", str(extra)])
+    assert exc.value.file == str(extra)
+    same = tmp_path / "same.reactions"
+    same.write_text(f"C1: O+ + N2 -> NO+ + N | k = {K_CT:g} | ref = invented test\n")
+    with pytest.raises(ionochem.InputError, match="--reactions"):
+        _run(["compare", str(scen), "--add", str(same)])
     capsys.readouterr()
 
 

@@ -81,7 +81,9 @@ def test_default_list_parses_and_every_line_conserves_atoms_and_charge(rl):
 
 def test_every_reaction_has_a_ref_and_its_own_uncertainty_factor(rl):
     """`check --strict` requirement (DESIGN.md section 5): a ref on every line; the default
-    list also gives its own f on every line, f >= 1 at 200-3000 K (a one-sigma factor)."""
+    list also gives its own f on every line, 1 <= f <= 4 at 200-3000 K (a one-sigma factor;
+    the widest are O+(2P) + O, whose published values spread by a factor 10, and NO+ + e at
+    high Te, where the published Te exponents differ)."""
     assert rl.default_f is not None
     for r in rl.reactions:
         assert r.ref and len(r.ref) > 10, r.id
@@ -89,13 +91,14 @@ def test_every_reaction_has_a_ref_and_its_own_uncertainty_factor(rl):
         temps = {name: T_GRID for name in ("Te", "Ti", "Tn", "Teff", "Tv")}
         f = np.broadcast_to(_eval(r.f, r, temps), T_GRID.shape)
         assert np.all(f >= 1.0), r.id
-        assert np.all(f <= 3.0), r.id
+        assert np.all(f <= 4.0), r.id
 
 
 def test_ids_of_the_varied_reaction_and_refs_marked_from_memory(by_id):
     """O+(2D) + N2 -> N2+ + O carries the memorable id O2D_N2 with its alternative named in
     the ref (SCIENCE.md section 2.4: it must be easy to vary)."""
-    r = by_id["O2D_N2"]
+    r = by_id["O2D_N2(v=0)"]
+    assert r.family == "O2D_N2(v)"
     assert [sp.name for sp, _ in r.reactants] == ["O+(2D)", "N2"]
     assert "Li et al. 1997" in r.ref and "Johnsen & Biondi 1980" in r.ref
     assert "from memory" in r.ref
@@ -125,13 +128,13 @@ def test_n2plus_families_have_the_expected_members(rl):
     loss and DR cover all five levels, relaxation by N2 the four excited ones
     (SCIENCE.md section 2.7)."""
     fam = rl.families
-    five = ["PI_N2(v)", "PE_N2(v)", "DR_N2plus(v)", "N2plus_O_NOplus(v)",
-            "N2plus_O_Oplus(v)", "N2plus_O2(v)", "N2plus_NO(v)"]
+    five = ["PI_N2(v)", "PE_N2(v)", "DR_N2plus(v)", "DR_N2plus_2D2D(v)", "N2plus_O_NOplus(v)",
+            "N2plus_O_Oplus(v)", "N2plus_O2(v)", "N2plus_NO(v)", "O2D_N2(v)", "O2P_N2(v)"]
     for name in five:
         base = name[:-3]
         assert list(fam[name]) == [f"{base}(v={v})" for v in N2PLUS_LEVELS], name
     assert list(fam["N2plus_N2_relax(v)"]) == [f"N2plus_N2_relax(v={v})" for v in range(1, 5)]
-    assert len(fam) == 8
+    assert len(fam) == 11
 
 
 def test_photo_channels_have_the_shapes_the_environment_expects(rl):
@@ -176,8 +179,8 @@ def test_rate_laws_use_the_temperature_of_their_collision(rl):
 
 def test_n2plus_levels_share_the_total_rates(rl, by_id):
     """Without level-resolved data every N2+ level takes the total rate, so the summed N2+
-    equals the unresolved scheme's (SCIENCE.md section 2.7)."""
-    for fam in ("DR_N2plus(v)", "N2plus_O_NOplus(v)", "N2plus_O_Oplus(v)", "N2plus_O2(v)",
+    equals the unresolved scheme's (SCIENCE.md section 2.7); recombination is per level."""
+    for fam in ("N2plus_O_NOplus(v)", "N2plus_O_Oplus(v)", "N2plus_O2(v)",
                 "N2plus_NO(v)"):
         members = [by_id[m] for m in rl.families[fam]]
         ks = [np.broadcast_to(_k(m, Te=T_GRID, Teff=T_GRID), T_GRID.shape) for m in members]
@@ -211,15 +214,62 @@ def test_o_plus_n2_vibrational_factor_is_the_boltzmann_average_of_level_ratios(b
     assert _k(r, Teff=1000.0, Tv=3000.0) > 5 * cold
 
 
-def test_o2_plus_dr_matches_published_piecewise_form(by_id):
-    """O2+ + e: 1.95e-7 (300/Te)^0.70 below 1200 K, 7.38e-8 (1200/Te)^0.56 above (Schunk &
-    Nagy 2009, ch. 8, after Walls & Dunn 1974 and Mehr & Biondi 1969) *(from memory)*: the
-    two branches meet at 1200 K to 0.2 %."""
+def test_o2_plus_dr_is_the_v0_value_with_the_afterglow_exponents(by_id):
+    """O2+ + e: 2.4e-7 (300/Te)^0.70 below 1200 K for v = 0 (Peverall et al. 2001, J. Chem.
+    Phys. 114, 6679, as in Sheehan & St.-Maurice 2004) *(from memory)*, the Te^-0.56 law above
+    1200 K of Mehr & Biondi (1969), Phys. Rev. 181, 264 (abstract); the pieces meet at 1200 K
+    to 0.1 %, and f reaches the afterglow value 1.95e-7 at 300 K (Mehr & Biondi 1969)."""
     r = by_id["DR_O2plus"]
-    np.testing.assert_allclose(_k(r, Te=300.0), 1.95e-7, rtol=1e-12)
-    np.testing.assert_allclose(_k(r, Te=3000.0), 7.38e-8 * (1200 / 3000) ** 0.56, rtol=1e-12)
+    np.testing.assert_allclose(_k(r, Te=300.0), 2.4e-7, rtol=1e-12)
+    np.testing.assert_allclose(_k(r, Te=1000.0), 2.4e-7 * 0.3 ** 0.70, rtol=1e-12)
+    np.testing.assert_allclose(_k(r, Te=3000.0), 2.4e-7 * 0.25 ** 0.70 * (1200 / 3000) ** 0.56,
+                               rtol=1e-3)
     below, above = _k(r, Te=1199.999), _k(r, Te=1200.0)
-    np.testing.assert_allclose(below, above, rtol=2e-3)
+    np.testing.assert_allclose(below, above, rtol=1e-3)
+    f = float(_eval(r.f, r, {"Te": 300.0})[0])
+    assert _k(r, Te=300.0) / f <= 1.95e-7
+
+
+def test_no_plus_dr_uncertainty_covers_the_steeper_published_law(by_id):
+    """The one-sigma range k/f .. k f of the NO+ + e total contains 4.2e-7 (300/Te)^0.85 of
+    Torr, St.-Maurice & Torr (1977), JGR 82, 3287 (abstract) at every Te from 300 to 3000 K,
+    where that law is up to a factor 2.3 below the default 4.0e-7 (300/Te)^0.5."""
+    te = np.array([300.0, 500.0, 1000.0, 1500.0, 2000.0, 3000.0])
+    alt = 4.2e-7 * (300 / te) ** 0.85
+    for rid in ("DR_NOplus_N2D", "DR_NOplus_N4S"):
+        r = by_id[rid]
+        share = 0.85 if rid.endswith("N2D") else 0.15
+        k = _k(r, Te=te) / share
+        f = np.broadcast_to(_eval(r.f, r, {"Te": te}), te.shape)
+        assert np.all(k / f <= alt * (1 + 1e-12)) and np.all(alt <= k * f), rid
+    assert 4.0e-7 * (0.1) ** 0.5 / (4.2e-7 * 0.1 ** 0.85) > 2.1
+
+
+def test_n2_plus_o2_falls_to_a_minimum_near_1000_k_and_rises_above(by_id):
+    """N2+ + O2 (Schunk & Nagy 2009, ch. 8, after McFarland et al. 1973) *(from memory)*:
+    5.1e-11 (300/Teff)^1.16 to 1000 K, 1.26e-11 (Teff/1000)^0.67 above; continuous at
+    1000 K (0.2 %), with its minimum there, at every level."""
+    for v in N2PLUS_LEVELS:
+        r = by_id[f"N2plus_O2(v={v})"]
+        np.testing.assert_allclose(_k(r, Teff=300.0), 5.1e-11, rtol=1e-12)
+        np.testing.assert_allclose(_k(r, Teff=2000.0), 1.26e-11 * 2 ** 0.67, rtol=1e-12)
+        np.testing.assert_allclose(_k(r, Teff=1000.0), _k(r, Teff=1000.001), rtol=2e-3)
+        t = np.linspace(300.0, 3000.0, 271)
+        k = np.broadcast_to(_k(r, Teff=t), t.shape)
+        assert abs(t[np.argmin(k)] - 1000.0) <= 10.0
+        assert k[-1] > 2 * k[np.argmin(k)]
+
+
+def test_o_plus_2p_n2_has_the_n_plus_channel_and_o_quenching_spans_a_decade(by_id):
+    """O+(2P) + N2 -> N+ + NO at 1.0e-10 (Li et al. 1997, J. Chem. Phys. 106, 1373, value as
+    in Schunk & Nagy 2009) *(from memory)* beside the N2+ channel; O+(2P) + O has f with
+    f^2 >= 10, the spread of published values (about a factor 10) *(from memory)*."""
+    r = by_id["O2P_N2_Nplus"]
+    assert sorted(sp.name for sp, _ in r.reactants) == ["N2", "O+(2P)"]
+    assert sorted(sp.name for sp, _ in r.products) == ["N+", "NO"]
+    np.testing.assert_allclose(_k(r), 1.0e-10, rtol=1e-12)
+    f = float(np.ravel(_eval(by_id["O2P_O"].f, by_id["O2P_O"], {}))[0])
+    assert f ** 2 >= 10.0
 
 
 def test_no_plus_and_n2_plus_dr_totals_at_300_and_1000_k(rl, by_id):
@@ -230,20 +280,20 @@ def test_no_plus_and_n2_plus_dr_totals_at_300_and_1000_k(rl, by_id):
         total = _k(by_id["DR_NOplus_N2D"], Te=te) + _k(by_id["DR_NOplus_N4S"], Te=te)
         np.testing.assert_allclose(total, 4.0e-7 * (300 / te) ** 0.5, rtol=1e-12)
         np.testing.assert_allclose(_k(by_id["DR_NOplus_N2D"], Te=te) / total, 0.85, rtol=1e-12)
-        for m in rl.families["DR_N2plus(v)"]:
-            np.testing.assert_allclose(_k(by_id[m], Te=te), 2.2e-7 * (300 / te) ** 0.39,
-                                       rtol=1e-12)
+        n2 = _k(by_id["DR_N2plus(v=0)"], Te=te) + _k(by_id["DR_N2plus_2D2D(v=0)"], Te=te)
+        np.testing.assert_allclose(n2, 2.2e-7 * (300 / te) ** 0.39, rtol=1e-3)
 
 
 def test_ion_neutral_values_at_300_k(by_id):
     """At Teff = 300 K (Schunk & Nagy 2009, ch. 8 tables, *from memory*): O+ + O2 2.15e-11
     (St.-Maurice & Torr polynomial), N2+ + O -> NO+ + N 1.33e-10 (McFarland et al. 1974),
-    N2+ + O2 5.0e-11, O+(2D) + N2 8.0e-10 (Johnsen & Biondi 1980)."""
+    N2+ + O2 5.1e-11, O+(2D) + N2 8.0e-10 (Johnsen & Biondi 1980)."""
     np.testing.assert_allclose(_k(by_id["Oplus_O2"], Teff=300.0), 2.148e-11, rtol=1e-3)
     np.testing.assert_allclose(_k(by_id["N2plus_O_NOplus(v=0)"], Teff=300.0), 1.33e-10,
                                rtol=1e-12)
-    np.testing.assert_allclose(_k(by_id["N2plus_O2(v=0)"], Teff=300.0), 5.0e-11, rtol=1e-12)
-    np.testing.assert_allclose(_k(by_id["O2D_N2"]), 8.0e-10, rtol=1e-12)
+    np.testing.assert_allclose(_k(by_id["N2plus_O2(v=0)"], Teff=300.0), 5.1e-11, rtol=1e-12)
+    total = sum(_k(by_id[f"O2D_N2(v={v})"]) for v in N2PLUS_LEVELS)
+    np.testing.assert_allclose(total, 8.0e-10, rtol=1e-12)
 
 
 def test_metastable_radiative_rates_match_cited_einstein_coefficients(by_id):

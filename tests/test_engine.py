@@ -271,7 +271,7 @@ def test_solver_raises_naming_the_levels_it_cannot_solve():
 
 def test_cli_assignments_accept_family_member_ids():
     """`--set "DR(v=2)=EXPR"` splits at the first '=' outside parentheses."""
-    from ionochem.cli import _parse_assignments
+    from ionochem.cli.options import parse_assignments as _parse_assignments
     got = _parse_assignments(["DR(v=2)=2.2e-7*(300/Te)^0.39", "X = 1e-10"], "set")
     assert got == {"DR(v=2)": "2.2e-7*(300/Te)^0.39", "X": "1e-10"}
     with pytest.raises(ionochem.InputError):

@@ -7,7 +7,7 @@ import pytest
 
 from ionochem.environment.crosssections import (
     CHANNELS,
-    LYMAN_ALPHA_DEFAULT_PHOTONS_CM2_S,
+    O2_DISSOCIATIVE_SHARE_50_100A,
     Spectrum,
     euvac_cross_sections,
     load_user_spectrum,
@@ -114,15 +114,32 @@ def test_unattenuated_ionization_frequencies_match_huebner_1992(species):
 
 
 def test_no_ionization_by_lyman_alpha_is_sigma_times_flux():
-    """NO -> NO+ at the top of the atmosphere is sigma(1216) * F(Ly alpha) =
-    2.0e-18 cm2 * 4e11 photons cm-2 s-1 = 8e-7 s-1 (Watanabe 1954; Woods et al. 2000, the
-    default flux, from memory), independent of F10.7."""
-    for f107 in (70.0, 200.0):
-        j = unattenuated_frequencies(solar_spectrum(f107, f107))["NO->NO+"]
-        assert float(j) == pytest.approx(2.0e-18 * 4.0e11, rel=1e-12)
-    assert LYMAN_ALPHA_DEFAULT_PHOTONS_CM2_S == 4.0e11
+    """NO -> NO+ at the top of the atmosphere is sigma(1216) * F(Ly alpha) (Watanabe 1954,
+    from memory); the default flux follows activity: 3.5e11 at P = 70 (Woods et al. 2000,
+    from memory) and 1.9 times that at P = 200, the cycle-21 maximum/minimum ratio of Lean &
+    Skumanich 1983 (JGR 88, 5751); a given flux replaces the relation."""
+    j70 = float(unattenuated_frequencies(solar_spectrum(70.0, 70.0))["NO->NO+"])
+    j200 = float(unattenuated_frequencies(solar_spectrum(200.0, 200.0))["NO->NO+"])
+    assert j70 == pytest.approx(2.0e-18 * 3.5e11, rel=1e-12)
+    assert j200 / j70 == pytest.approx(1.9, rel=1e-12)
     j = unattenuated_frequencies(solar_spectrum(100, 100, lyman_alpha_photons_cm2_s=6e11))
     assert float(j["NO->NO+"]) == pytest.approx(2.0e-18 * 6e11, rel=1e-12)
+
+
+def test_lyman_alpha_flux_stays_within_the_measured_solar_cycle_range():
+    """Over P = 60..300 the default Lyman alpha flux stays within 2.5e11..1.1e12 photons
+    cm-2 s-1 and rises with activity (measured cycle range 3.5e11 to ~6-7e11, Woods et al.
+    2000 from memory; Lean & Skumanich 1983 ratio 1.9), and is floored at 0.8 of the
+    solar-minimum value as EUVAC's factor is (Richards et al. 1994)."""
+    from ionochem.environment.lyman_alpha import lyman_alpha_flux
+
+    p = np.linspace(60.0, 300.0, 25)
+    flux = lyman_alpha_flux(p, p)
+    assert np.all(np.diff(flux) > 0)
+    assert flux.min() >= 0.8 * 3.5e11 and flux.max() < 1.1e12
+    assert float(lyman_alpha_flux(1.0, 1.0)) == pytest.approx(0.8 * 3.5e11)
+    with pytest.raises(InputError):
+        lyman_alpha_flux(-1.0, 70.0)
 
 
 def test_lyman_alpha_is_attenuated_by_o2_only():
@@ -210,6 +227,19 @@ def test_o2_channels_do_not_exceed_absorption():
     """O2+ + O+ (dissociative) never exceed O2 absorption (Fennelly & Torr 1992)."""
     sigma_abs, sigma = euvac_cross_sections()
     assert np.all(sigma["O2->O2+"] + sigma["O2->O+"] <= sigma_abs["O2"] * (1 + 1e-12))
+
+
+def test_o2_dissociative_ionization_in_the_50_100_angstrom_bin():
+    """The 50-100 A bin gives O+ + O from O2 with the share of the 100-150 A bin,
+    (3.806 - 2.346)/3.806 = 38.4 % of the 1.316 Mb absorption (Fennelly & Torr 1992 via
+    Richards et al. 1994 table 2, from memory), and O2+ the rest; the 100-250 A bins keep
+    their own 38-45 % shares."""
+    sigma_abs, sigma = euvac_cross_sections()
+    assert O2_DISSOCIATIVE_SHARE_50_100A == pytest.approx(0.3836, abs=1e-4)
+    assert sigma["O2->O+"][0] == pytest.approx(0.3836 * 1.316e-18, rel=1e-3)
+    assert sigma["O2->O2+"][0] + sigma["O2->O+"][0] == pytest.approx(1.316e-18, rel=1e-12)
+    share = sigma["O2->O+"][:4] / sigma_abs["O2"][:4]
+    assert np.all((share > 0.37) & (share < 0.46)), share
 
 
 def test_verner_fit_reproduces_helium_threshold_cross_section():

@@ -6,15 +6,13 @@ form.
 
 from __future__ import annotations
 
-import argparse
-
 import numpy as np
 import pytest
 import xarray as xr
 
 import ionochem
-from ionochem.analysis.commands_compare import register
 from ionochem.analysis.rank import rank_reactions
+from ionochem.cli import build_parser
 
 ALT = np.linspace(100.0, 300.0, 21)
 Q = 80.0 * np.exp(-((ALT - 180.0) / 60.0) ** 2) + 5.0     # invented production, cm-3 s-1
@@ -45,10 +43,10 @@ def _sens(column, text):
 
 
 def _run(argv):
-    p = argparse.ArgumentParser()
-    sub = p.add_subparsers(dest="command")
-    register(sub)
-    args = p.parse_args(argv)
+    """Run a subcommand of the ``ionochem`` parser; ionochem.Error propagates (cli.main
+    would turn it into one line and exit 2)."""
+    args = build_parser().parse_args(argv)
+    args.command_line = "ionochem " + " ".join(argv)
     return args.func(args)
 
 
@@ -57,7 +55,7 @@ def test_one_ion_ranks_production_and_recombination_at_one_half(column):
     third at 0.35 (α ∝ Te^-0.7), by both measures (analytic, SCIENCE.md §6)."""
     _, sens = _sens(column, ONE_ION)
     for by in ("max", "mean"):
-        rows = rank_reactions(sens, "O+", None, top=3, by=by)
+        rows = rank_reactions(sens, "O+", None, top=3, by=by, min_share=0)
         # P1 and R1 tie at 0.5 (either order), Te follows.
         assert {r.reaction for r in rows[:2]} == {"P1", "R1"} and rows[2].reaction == "Te"
         signed = {r.reaction: r.signed_at_max for r in rows}
@@ -75,9 +73,11 @@ def test_chain_ranks_closed_form_sensitivities_and_irrelevant_reaction_last(colu
     x = sens["density"].sel(species="NO+").values
     expect = {"D1": -(x + o) / (2 * x + o), "P1": x / (2 * x + o), "C1": o / (2 * x + o)}
     expect["Te"] = -0.5 * expect["D1"]
+    # C1's rate is k [O+][N2]: the local density of N2 acts exactly as k does (analytic).
+    expect["n(N2)"] = expect["C1"]
     for by in ("max", "mean"):
-        rows = rank_reactions(sens, "NO+", None, top=None, by=by)
-        assert len(rows) == 5 and rows[-1].reaction == "RR"
+        rows = rank_reactions(sens, "NO+", None, top=None, by=by, min_share=0)
+        assert len(rows) == 6 and rows[-1].reaction == "RR"
         assert rows[-1].max_abs < 1e-9
         for r in rows[:-1]:
             e = expect[r.reaction]
@@ -146,3 +146,25 @@ def test_rank_through_main(column, capsys):
     err = [ln for ln in capsys.readouterr().err.splitlines()
            if ln.strip() and not ln.startswith("warning:")]
     assert len(err) == 1 and "Xe+" in err[0], err
+
+
+def test_default_ranking_skips_levels_where_the_ion_is_a_trace(column):
+    """O+ = P/(k [N2]) grows ~300-fold from 100 to 300 km (analytic): with the default
+    ``min_share`` (1 % of its own peak) the levels where O+ is below 1 % of its peak do not
+    count, so every maximum sits where O+ is at least 1 % of its peak; ``min_share=0``
+    counts every level again (the defect: O+ ranked by a level where it is 0.13 cm-3)."""
+    from ionochem.analysis.rank import DEFAULT_MIN_SHARE, where_it_matters
+    _, sens = _sens(column, CHAIN)
+    o = sens["density"].sel(species="O+").values
+    keep = where_it_matters(sens, "O+")
+    np.testing.assert_array_equal(keep, o >= DEFAULT_MIN_SHARE * o.max())
+    assert 0 < keep.sum() < keep.size
+    for r in rank_reactions(sens, "O+", None, top=None):
+        assert o[np.argmin(np.abs(ALT - r.altitude_km))] >= DEFAULT_MIN_SHARE * o.max()
+    every = rank_reactions(sens, "O+", None, top=None, min_share=0)
+    S = sens["sensitivity"].sel(species="O+", reaction="C1").values
+    c1 = next(r for r in every if r.reaction == "C1")
+    assert c1.mean_abs == pytest.approx(np.mean(np.abs(S)), rel=1e-12)
+    c1_kept = next(r for r in rank_reactions(sens, "O+", None, top=None)
+                   if r.reaction == "C1")
+    assert c1_kept.mean_abs == pytest.approx(np.mean(np.abs(S[keep])), rel=1e-12)

@@ -13,7 +13,6 @@ the median 1.2533 σ/√N. Tolerances below are four standard errors.
 
 from __future__ import annotations
 
-import argparse
 import pickle
 
 import numpy as np
@@ -315,20 +314,9 @@ def test_resume_with_other_inputs_or_without_flag_is_refused(column, tmp_path):
 
 # ----------------------------------------------------------------------------- command line
 def _cli(monkeypatch, argv):
-    """Run ``ionochem`` with the uncertainty subcommand registered (cli.main's error
-    handling: ionochem.Error → one line on stderr, exit 2)."""
+    """Run ``ionochem`` (cli.main's error handling: ionochem.Error → one line on stderr,
+    exit 2)."""
     import ionochem.cli as cli
-    from ionochem.analysis.commands_uncertainty import register
-    original = cli.build_parser
-
-    def build():
-        p = original()
-        sub = next(a for a in p._actions if isinstance(a, argparse._SubParsersAction))
-        if "uncertainty" not in sub.choices:
-            register(sub)
-        return p
-
-    monkeypatch.setattr(cli, "build_parser", build)
     return cli.main(argv)
 
 

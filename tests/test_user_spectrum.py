@@ -32,10 +32,12 @@ def _scenario(tmp_path, extra):
 
 def test_soft_xray_bins_raise_the_lower_e_region(tmp_path):
     """Soft X-rays are absorbed low down (SCIENCE.md §4): adding them raises Ne most near
-    100–110 km and leaves the F region nearly unchanged."""
+    100–110 km and leaves the F region nearly unchanged. The packaged soft X-rays are
+    switched off in both runs (``soft_xrays = false``) so the user bins act alone."""
     (tmp_path / "xrays.csv").write_text(XRAYS)
-    base = ionochem.Model(ionochem.load_scenario(_scenario(tmp_path, ""))).solve()
-    path = _scenario(tmp_path, 'extra_spectrum = "xrays.csv"')
+    base = ionochem.Model(ionochem.load_scenario(_scenario(tmp_path, "soft_xrays = false"))
+                          ).solve()
+    path = _scenario(tmp_path, 'soft_xrays = false\nextra_spectrum = "xrays.csv"')
     more = ionochem.Model(ionochem.load_scenario(path)).solve()
     ratio = (more["density"].sel(species="e") / base["density"].sel(species="e")).values
     a = base["altitude"].values

@@ -26,6 +26,9 @@ class Budget:
 def budget_table(ds, species: str, altitude_km: float) -> Budget:
     """Rank the reactions producing and destroying ``species`` at the level nearest
     ``altitude_km``; shares are percentages of the gross production or loss."""
+    if "time" in ds["density"].dims:
+        raise InputError("budget: the result has a time axis; select one time first "
+                         "(ds.isel(time=-1))", file="--budget")
     names = list(ds["species"].values)
     if species not in names:
         raise InputError(f"budget: no species {species!r} in the result "
@@ -52,12 +55,14 @@ def budget_table(ds, species: str, altitude_km: float) -> Budget:
 
 
 def format_budget(b: Budget, top: int = 10) -> str:
+    """The budget as text: production then loss, each ranked, ids aligned."""
     lines = [f"budget of {b.species} at {b.altitude_km:g} km (density {b.density:.3e} cm-3)"]
+    width = max([len(r[0]) for r in (*b.production[:top], *b.loss[:top])] + [8])
     for title, rows in (("production", b.production), ("loss", b.loss)):
         total = sum(r[2] for r in rows)
         lines.append(f"  {title}: {total:.3e} cm-3 s-1")
         for rid, eq, val, share in rows[:top]:
-            lines.append(f"    {share:6.2f} %  {val:10.3e}  {rid:<14} {eq}")
+            lines.append(f"    {share:6.2f} %  {val:10.3e}  {rid:<{width}}  {eq}")
         if len(rows) > top:
             rest = sum(r[3] for r in rows[top:])
             lines.append(f"    {rest:6.2f} %  ({len(rows) - top} more)")

@@ -40,7 +40,7 @@ def main_species(names):
 
 # ------------------------------------------------------------------ building the change
 def _needs(model):
-    return getattr(model, "_needs", frozenset())
+    return getattr(model, "needs", frozenset())
 
 
 def _extra_scales(before, after):
@@ -75,47 +75,68 @@ def _model_on(baseline, reaction_list):
     extra_set = {k: v for k, v in baseline.changes["set"].items()
                  if new.changes["set"].get(k) != v}
     extra_scale = _extra_scales(new.changes["scale"], baseline.changes["scale"])
-    if extra_set or extra_scale:
-        new = new.with_changes(extra_set, scale=extra_scale)
+    dirs = getattr(baseline, "_set_dirs", {})
+    groups = {}
+    for key, text in extra_set.items():
+        groups.setdefault(dirs.get(key), {})[key] = text
+    for folder, sets in groups.items():
+        new = new.with_changes(sets, base_dir=folder)
+    if extra_scale:
+        new = new.with_changes({}, scale=extra_scale)
     return new
-
-
-def is_replacement(baseline_list, other_list) -> bool:
-    """True when ``other_list`` is a set of replacement entries for ``baseline_list``.
-
-    That is when every id of ``other_list`` exists in the baseline and it has fewer
-    entries; otherwise it is a whole alternative list.
-    """
-    ids = set(baseline_list.ids) if hasattr(baseline_list, "ids") else {
-        r.id for r in baseline_list.reactions}
-    other = [r.id for r in other_list.reactions]
-    return len(other) < len(ids) and all(i in ids for i in other)
 
 
 def merge_replacements(baseline_list, replacements):
     """The baseline reaction list with the entries of ``replacements`` swapped in by id.
 
     Each replacement entry replaces the whole baseline entry (rate law, uncertainty factor,
-    products and reference); everything else stays. The result's ``sha256`` is that of the
-    two lists together, so provenance tells the merged list apart from the baseline.
+    products and reference); everything else stays. Every id of ``replacements`` must be in
+    the baseline (a new id is an addition: :func:`merge_additions`). The result's ``sha256``
+    is that of the two lists together, so provenance tells the merged list apart.
     """
     new = {r.id: r for r in replacements.reactions}
-    missing = [i for i in new if i not in {r.id for r in baseline_list.reactions}]
+    have = {r.id for r in baseline_list.reactions}
+    missing = [i for i in new if i not in have]
     if missing:
         raise InputError(f"replacement entries name reactions not in the baseline list: "
-                         f"{', '.join(missing)}", file=str(replacements.path))
+                         f"{', '.join(missing)} (to add new reactions use --add FILE)",
+                         file=str(replacements.path))
     reactions = tuple(new.get(r.id, r) for r in baseline_list.reactions)
-    sha = hashlib.sha256((baseline_list.sha256 + replacements.sha256).encode()).hexdigest()
+    return _merged(baseline_list, replacements, reactions, dict(baseline_list.families))
+
+
+def merge_additions(baseline_list, additions):
+    """The baseline reaction list with the entries of ``additions`` appended.
+
+    Every id of ``additions`` must be new (an existing id is a replacement:
+    :func:`merge_replacements`).
+    """
+    have = {r.id for r in baseline_list.reactions}
+    clash = [r.id for r in additions.reactions if r.id in have]
+    if clash:
+        raise InputError(f"added entries repeat ids of the baseline list: {', '.join(clash)} "
+                         "(to replace reactions use --reactions FILE)",
+                         file=str(additions.path))
+    families = dict(baseline_list.families)
+    families.update(additions.families)
+    return _merged(baseline_list, additions, tuple(baseline_list.reactions)
+                   + tuple(additions.reactions), families)
+
+
+def _merged(baseline_list, other, reactions, families):
+    sha = hashlib.sha256((baseline_list.sha256 + other.sha256).encode()).hexdigest()
     merged = dataclasses.replace(baseline_list, reactions=reactions, sha256=sha,
+                                 families=families,
                                  warnings=list(baseline_list.warnings))
     # The merged list keeps the baseline's path (expressions given later with --set resolve
-    # table paths against it); where the replacements came from is recorded beside it.
+    # table paths against it); where the entries came from is recorded beside it.
     merged.replacements_from = tuple(getattr(baseline_list, "replacements_from", ())) + (
-        str(replacements.path),)
+        str(other.path),)
     return merged
 
 
-def changed_model(baseline, *, set_dict=None, scale=None, reaction_lists=()):
+def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), additions=(),
+                  alternative=None, base_dir=None):
     """The baseline model with rate changes applied, on the same environment.
 
     Parameters
@@ -124,24 +145,31 @@ def changed_model(baseline, *, set_dict=None, scale=None, reaction_lists=()):
     set_dict : dict[str, str], optional
         Reaction id (or family id) → new rate expression.
     scale : dict[str, float], optional
-        Reaction id (or family id) → factor on k.
-    reaction_lists : sequence of ReactionList, optional
-        Parsed reaction lists applied in order, each either replacement entries (see
-        :func:`is_replacement`) or a whole alternative list.
+        Reaction id (or family id) → factor on k (0 switches a reaction off).
+    replacements : sequence of ReactionList, optional
+        Entries that replace baseline entries of the same id (:func:`merge_replacements`).
+    additions : sequence of ReactionList, optional
+        Entries with new ids, added to the list (:func:`merge_additions`).
+    alternative : ReactionList, optional
+        A whole other reaction list on the same column (applied first).
+    base_dir : path, optional
+        Folder that table paths in ``set_dict`` resolve against (default: the reaction
+        list's folder).
 
     Returns
     -------
     ionochem.Model
     """
     model = baseline
-    for rl in reaction_lists:
-        if is_replacement(model.reaction_list, rl):
-            merged = merge_replacements(model.reaction_list, rl)
-        else:
-            merged = rl
-        model = _model_on(model, merged)
+    if alternative is not None:
+        model = _model_on(model, alternative)
+    for rl in replacements:
+        model = _model_on(model, merge_replacements(model.reaction_list, rl))
+    for rl in additions:
+        model = _model_on(model, merge_additions(model.reaction_list, rl))
     if set_dict or scale:
-        model = model.with_changes(dict(set_dict or {}), scale=dict(scale or {}))
+        model = model.with_changes(dict(set_dict or {}), scale=dict(scale or {}),
+                                   base_dir=base_dir)
     return model
 
 
@@ -171,6 +199,20 @@ def _change_attrs(baseline, changed, reaction_lists):
     }
 
 
+def _add_equilibrium_flag(out, ds_b, names):
+    """The baseline's ``pce_doubtful`` (species, altitude) on ``out``'s species, 0 for a
+    species only the changed model has; nothing when the baseline has no flag."""
+    if "pce_doubtful" not in ds_b:
+        return
+    flag = ds_b["pce_doubtful"]
+    have = list(flag["species"].values)
+    rows = [flag.sel(species=s).values if s in have else np.zeros(ds_b["altitude"].size, np.int8)
+            for s in names]
+    out["pce_doubtful"] = (("species", "altitude"), np.array(rows, np.int8),
+                           dict(flag.attrs, long_name=flag.attrs.get("long_name", "")
+                                + " (baseline)"))
+
+
 def compare(baseline_model, changed_model, *, baseline=None, changed=None,
             reaction_lists=()):
     """Solve a baseline and a changed model and compare their steady densities.
@@ -190,7 +232,8 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         ``density_baseline`` and ``density_changed`` (species, altitude) in cm-3 and
         ``ratio`` = changed / baseline (NaN where the baseline density is 0, or where the
         species is absent from one of the models), with the provenance of the baseline and
-        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``.
+        the changes as attributes ``changes_set``, ``changes_scale``, ``changes_reactions``,
+        and the baseline's ``pce_doubtful`` flag (species, altitude) when it has one.
     """
     ds_b = baseline_model.solve() if baseline is None else baseline
     ds_c = changed_model.solve() if changed is None else changed
@@ -226,15 +269,64 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         },
         attrs=dict(ds_b.attrs),
     )
+    _add_effective_rates(out, ds_b, ds_c)
     # The baseline's own (scenario) changes keep their names with a prefix; the changes
     # compared take the plain names.
     for key in ("changes_set", "changes_scale"):
         out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
     out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
-    out.attrs["history"] = str(ds_b.attrs.get("history", "")).replace("ionochem run",
-                                                                     "ionochem compare")
     out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
+    _add_equilibrium_flag(out, ds_b, names)
     return out
+
+
+EFFECTIVE_VARIABLES = ("effective_rate_coefficient", "effective_rate_coefficient_first_order",
+                       "effective_rate_coefficient_third_order")
+
+
+def _effective(ds):
+    """All orders of ``effective_rate_coefficient`` in one (family_reaction, altitude)
+    array (each family has one order, NaN in the others), or None."""
+    have = [ds[v] for v in EFFECTIVE_VARIABLES if v in ds]
+    if not have:
+        return None
+    out = have[0]
+    for other in have[1:]:
+        out = out.fillna(other)
+    return out
+
+
+def _add_effective_rates(out, ds_b, ds_c):
+    """The population-weighted rate coefficients of the reaction families both results
+    carry (DESIGN.md §7), baseline and changed (``effective_rate_coefficient_baseline`` /
+    ``_changed``, and the ``_first_order``/``_third_order`` variants, each in its own unit),
+    and ``effective_rate_change`` = changed / baseline: what a per-level change does to the
+    rate an unresolved model would need."""
+    eb, ec = _effective(ds_b), _effective(ds_c)
+    if eb is None or ec is None:
+        return
+    have_c = set(ec["family_reaction"].values)
+    fams = [f for f in eb["family_reaction"].values if f in have_c]
+    if not fams:
+        return
+    vb = eb.sel(family_reaction=fams).values
+    vc = ec.sel(family_reaction=fams).values
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(vb > 0, vc / vb, np.nan)
+    out.coords["family_reaction"] = ("family_reaction", np.array(fams, dtype=object))
+    dims = ("family_reaction", "altitude")
+    for name in EFFECTIVE_VARIABLES:
+        if name not in ds_b or name not in ds_c:
+            continue
+        for tag, ds in (("baseline", ds_b), ("changed", ds_c)):
+            var = ds[name].sel(family_reaction=fams)
+            out[f"{name}_{tag}"] = (dims, var.values,
+                                    {"units": var.attrs.get("units", ""),
+                                     "long_name": f"{var.attrs.get('long_name', name)}, "
+                                                  f"{tag}"})
+    out["effective_rate_change"] = (dims, ratio, {"units": "1", "long_name": "changed / "
+                                                  "baseline population-weighted rate "
+                                                  "coefficient of the family"})
 
 
 # ------------------------------------------------------------------ the summary

@@ -72,7 +72,7 @@ def add_steady_diagnostics(model, ds):
     for name, upper, lower, label in EMISSIONS:
         total = np.zeros(rates.shape[1])
         found = False
-        for j, r in enumerate(model._rxns):
+        for j, r in enumerate(model.reaction_objects):
             reac = [sp.name for sp, c in r.reactants for _ in range(c)]
             prod = [sp.name for sp, c in r.products for _ in range(c)]
             if reac == [upper] and prod == [lower]:
@@ -83,8 +83,8 @@ def add_steady_diagnostics(model, ds):
             labels.append((name, label))
     if ver:
         ds["volume_emission_rate"] = (("emission", "altitude"), np.array(ver),
-                                      {"units": "photons cm-3 s-1",
-                                       "long_name": "volume emission rate"})
+                                      {"units": "cm-3 s-1",
+                                       "long_name": "volume emission rate (photons per cm3 per s)"})
         ds.coords["emission"] = ("emission", np.array([n for n, _ in labels], dtype=object))
         ds.coords["emission_line"] = ("emission", np.array([lab for _, lab in labels],
                                                            dtype=object))
@@ -108,8 +108,13 @@ def add_steady_diagnostics(model, ds):
 
     dark = env.dark(None)
     notes = list(model.warnings)
+    sources = list(getattr(env.sun, "photon_sources", ()) or ())
+    night = any(src.startswith("night:") for src in sources)
     if dark.all():
-        notes.append("every level is dark: photochemistry alone cannot sustain the night "
+        notes.append("every level is dark: only the scattered night-time sources ionize "
+                     "(photochemistry alone, without transport, cannot keep the night F "
+                     "layer)" if night else
+                     "every level is dark: photochemistry alone cannot sustain the night "
                      "ionosphere (no transport, no night-time sources)")
     ds["dark"] = ("altitude", dark.astype(np.int8),
                   {"long_name": "no direct sunlight reaches the level",

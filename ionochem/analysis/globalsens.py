@@ -167,8 +167,6 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         or ``mu_star``, ``mu_star_conf``, ``mu``, ``sigma`` (morris), and
         ``variance_share_linear`` of the same factors for comparison.
     """
-    from ionochem.analysis.sensitivity import sensitivity
-    from ionochem.io.dataset import _provenance
     if method not in METHODS:
         raise InputError(f"unknown method {method!r} (sobol or morris)", file="--method")
     samples = int(samples)
@@ -186,18 +184,8 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
                          f"{', '.join(names)}", file="--species")
     sp_idx = [names.index(s) for s in species]
     lv_idx = nearest_levels(model.altitude_km, altitudes_km)
-    sens = sensitivity(model, central)
-    lin_r, lin_e = linear_variance_shares(model, kernel, sens)
-    sens_names = list(sens["species"].values)
-    order = [sens_names.index(s) for s in names]
-    lin_r, lin_e = lin_r[order], lin_e[order]
-    chosen = select_top_reactions(lin_r, sp_idx, lv_idx, top, kernel.varied_reactions())
-    env_cols = kernel.environment_columns()
-    factor_names = [kernel.reactions[j] for j in chosen] + list(env_cols)
-    columns = chosen + list(env_cols.values())
-    if not columns:
-        raise InputError("no uncertain reaction or environment factor to analyse (every f "
-                         "is 1)", file="--method")
+    chosen, factor_names, columns, lin_sel = _choose_factors(
+        model, kernel, central, names, sp_idx, lv_idx, top)
     problem, X = design(factor_names, samples, method, seed)
     runs = X.shape[0]
     Z = np.zeros((runs, kernel.width))
@@ -216,11 +204,49 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     sub = dens[:, lv_idx][:, :, sp_idx]                               # (runs, L, Ns)
     with np.errstate(divide="ignore", invalid="ignore"):
         Y = np.where(sub > 0, np.log(np.where(sub > 0, sub, 1.0)), np.nan)
+    indices = _indices(problem, X, Y, method, seed, num_resamples, len(columns))
+    ds = _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, lv_idx,
+                         factor_names)
+    ds.attrs.update({"method": method, "samples": samples, "model_runs": int(runs),
+                     "seed": int(seed), "top": int(top)})
+    if method == "morris":
+        ds.attrs["morris_design"] = (f"{MORRIS_LEVELS} levels of eps on the uniform grid "
+                                     f"{MORRIS_RANGE[0]:g}..{MORRIS_RANGE[1]:g}; effects "
+                                     "divided by the range, i.e. per unit eps")
+    return ds
+
+
+def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top):
+    """The ``top`` reactions by first-order variance share, plus the varied environment.
+
+    Returns the chosen reaction indices, the factor names, their columns in the draws, and
+    the first-order shares (species, factor, level) of the factors at the chosen levels.
+    """
+    from ionochem.analysis.sensitivity import sensitivity
+    sens = sensitivity(model, central)
+    lin_r, lin_e = linear_variance_shares(model, kernel, sens)
+    sens_names = list(sens["species"].values)
+    order = [sens_names.index(s) for s in names]
+    lin_r, lin_e = lin_r[order], lin_e[order]
+    chosen = select_top_reactions(lin_r, sp_idx, lv_idx, top, kernel.varied_reactions())
+    env_cols = kernel.environment_columns()
+    factor_names = [kernel.reactions[j] for j in chosen] + list(env_cols)
+    columns = chosen + list(env_cols.values())
+    if not columns:
+        raise InputError("no uncertain reaction or environment factor to analyse (every f "
+                         "is 1)", file="--method")
+    lin_all = np.concatenate([lin_r[:, chosen], lin_e], axis=1)       # (Nsp, F, A)
+    return chosen, factor_names, columns, lin_all[sp_idx][:, :, lv_idx]
+
+
+def _indices(problem, X, Y, method, seed, num_resamples, n_factors):
+    """SALib indices of ln n, {key: (species, factor, level)}; NaN where ln n is flat."""
     keys = (("S1", "S1_conf", "ST", "ST_conf") if method == "sobol"
             else ("mu_star", "mu_star_conf", "mu", "sigma"))
-    out = {key: np.full((len(species), len(columns), len(lv_idx)), np.nan) for key in keys}
-    for li in range(len(lv_idx)):
-        for si in range(len(species)):
+    L, Ns = Y.shape[1], Y.shape[2]
+    out = {key: np.full((Ns, n_factors, L), np.nan) for key in keys}
+    for li in range(L):
+        for si in range(Ns):
             y = Y[:, li, si]
             if not np.all(np.isfinite(y)) or np.ptp(y) <= 1e-14 * max(abs(y).max(), 1.0):
                 continue
@@ -231,20 +257,28 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         width = MORRIS_RANGE[1] - MORRIS_RANGE[0]
         for key in keys:
             out[key] = out[key] / width
-    lin_all = np.concatenate([lin_r[:, chosen], lin_e], axis=1)       # (Nsp, F, A)
-    lin_sel = lin_all[sp_idx][:, :, lv_idx]
-    long = {
-        "S1": "first-order Sobol index of ln density",
-        "S1_conf": "95 % bootstrap half-width of S1",
-        "ST": "total Sobol index of ln density",
-        "ST_conf": "95 % bootstrap half-width of ST",
-        "mu_star": "Morris mean absolute elementary effect of ln density per unit eps",
-        "mu_star_conf": "95 % bootstrap half-width of mu_star",
-        "mu": "Morris mean elementary effect of ln density per unit eps",
-        "sigma": "standard deviation of the Morris elementary effects per unit eps",
-    }
-    data = {key: (("species", "factor", "altitude"), out[key],
-                  {"units": "1", "long_name": long[key]}) for key in keys}
+    return out
+
+
+LONG_NAMES = {
+    "S1": "first-order Sobol index of ln density",
+    "S1_conf": "95 % bootstrap half-width of S1",
+    "ST": "total Sobol index of ln density",
+    "ST_conf": "95 % bootstrap half-width of ST",
+    "mu_star": "Morris mean absolute elementary effect of ln density per unit eps",
+    "mu_star_conf": "95 % bootstrap half-width of mu_star",
+    "mu": "Morris mean elementary effect of ln density per unit eps",
+    "sigma": "standard deviation of the Morris elementary effects per unit eps",
+}
+
+
+def _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, lv_idx,
+                    factor_names):
+    """The result dataset of :func:`global_sensitivity` (without the method attributes)."""
+    from ionochem.io.dataset import ALTITUDE_ATTRS, provenance
+    data = {key: (("species", "factor", "altitude"), val,
+                  {"units": "1", "long_name": LONG_NAMES[key]})
+            for key, val in indices.items()}
     data["variance_share_linear"] = (("species", "factor", "altitude"), lin_sel,
                                      {"units": "1", "long_name": "first-order share "
                                       "S_ij^2 ln^2 f_j / sum over all factors, from the "
@@ -257,26 +291,14 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         data,
         coords={"species": ("species", np.array(species, dtype=object)),
                 "factor": ("factor", np.array(factor_names, dtype=object)),
-                "altitude": ("altitude", model.altitude_km[lv_idx],
-                             {"units": "km", "positive": "up", "standard_name": "altitude"})},
-        attrs=_provenance(model))
+                "altitude": ("altitude", model.altitude_km[lv_idx], ALTITUDE_ATTRS)},
+        attrs=provenance(model))
     ds.attrs.update({
-        "method": method,
-        "samples": samples,
-        "model_runs": int(runs),
-        "seed": int(seed),
-        "top": int(top),
         "factors": ", ".join(factor_names),
         "factor_definition": "eps_j standard normal, ln k_j = ln k_j + eps_j ln f_j(level), "
                              "shared by every level; other rates at their central values",
         "environment_spreads": ", ".join(f"{k}={v:g}" for k, v in kernel.environment.items()),
     })
-    if method == "morris":
-        ds.attrs["morris_design"] = (f"{MORRIS_LEVELS} levels of eps on the uniform grid "
-                                     f"{MORRIS_RANGE[0]:g}..{MORRIS_RANGE[1]:g}; effects "
-                                     "divided by the range, i.e. per unit eps")
-    ds.attrs["history"] = ds.attrs.get("history", "").replace("ionochem run",
-                                                              "ionochem uncertainty")
     return ds
 
 

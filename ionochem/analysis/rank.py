@@ -1,10 +1,13 @@
-"""Rank the reactions (and the electron temperature) that control each species.
+"""Rank the reactions (and the environment factors) that control each species.
 
 Input is a sensitivity dataset (:func:`ionochem.analysis.sensitivity.sensitivity`):
-``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and ``sensitivity_Te``
-(species, altitude) = ∂ln n/∂ln Te. The electron temperature enters the ranking as one more
-pseudo-reaction named ``Te``. Two measures over an altitude range: the largest |S| (with
-its sign and the altitude where it occurs) and the mean |S| over the levels in the range.
+``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and
+``sensitivity_environment`` (species, factor, altitude) = ∂ln n/∂ln factor (Te, Ti, Tn, the
+EUV flux, fixed neutral densities; older files carry only ``sensitivity_Te``). The
+environment factors enter the ranking as pseudo-reactions named ``Te``, ``EUV``, ``n(O)``….
+Two measures over an altitude range: the largest |S| (with its sign and the altitude where
+it occurs) and the mean |S| over the levels in the range, counting only the levels where the
+species is at least a share of its own peak (:data:`DEFAULT_MIN_SHARE`).
 A reaction that matters strongly in a thin layer ranks high on the first, one that matters
 everywhere on the second.
 
@@ -22,6 +25,11 @@ from ionochem.analysis.compare import main_species
 from ionochem.errors import InputError
 
 TE_NAME = "Te"
+
+#: Levels where a species is below this share of its own peak density (in the altitude
+#: range) are left out of its ranking: a sensitivity where the ion is a trace (O+ at 90 km)
+#: says nothing a user needs *(common practice)*. ``min_share=0`` ranks over every level.
+DEFAULT_MIN_SHARE = 0.01
 def default_species(names):
     """N2+, O2+, NO+, O+(total) (or O+ without metastables), e — those present."""
     return main_species(names)
@@ -93,15 +101,43 @@ def sensitivity_matrix(sens_ds, species, altitude_range=None):
                          f"{', '.join(names)})", file="--species")
     inside = _levels(sens_ds, altitude_range)
     S = sens_ds["sensitivity"].sel(species=species).values[:, inside]      # (R, level)
-    S_te = sens_ds["sensitivity_Te"].sel(species=species).values[inside]
     ids = [str(r) for r in sens_ds["reaction"].values]
     eqs = ([str(e) for e in sens_ds["equation"].values] if "equation" in sens_ds.coords
            else [""] * len(ids))
-    return (ids + [TE_NAME], eqs + ["electron temperature (every Te-dependent rate)"],
-            np.vstack([S, S_te[None]]), sens_ds["altitude"].values[inside])
+    names, descr, S_env = environment_rows(sens_ds, species)
+    return (ids + names, eqs + descr, np.vstack([S, S_env[:, inside]]),
+            sens_ds["altitude"].values[inside])
 
 
-def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max"):
+def environment_rows(sens_ds, species):
+    """Names, descriptions and S (factor, altitude) of the environment factors (Te first)."""
+    if "sensitivity_environment" in sens_ds:
+        env = sens_ds["sensitivity_environment"].sel(species=species)
+        names = [str(f) for f in sens_ds["factor"].values]
+        descr = ([str(d) for d in sens_ds["factor_description"].values]
+                 if "factor_description" in sens_ds.coords else [""] * len(names))
+        return names, descr, np.asarray(env.transpose("factor", "altitude").values)
+    S_te = sens_ds["sensitivity_Te"].sel(species=species).values
+    return [TE_NAME], ["electron temperature (every Te-dependent rate)"], S_te[None]
+
+
+def where_it_matters(sens_ds, species, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
+    """Levels of the range where ``species`` is at least ``min_share`` of its peak there.
+
+    Returns a boolean array over the levels of the range (all True without densities).
+    """
+    inside = _levels(sens_ds, altitude_range)
+    if "density" not in sens_ds or not min_share:
+        return np.ones(int(inside.sum()), bool)
+    n = np.asarray(sens_ds["density"].sel(species=species).values, float)[inside]
+    peak = np.nanmax(n) if np.any(np.isfinite(n)) else 0.0
+    if not peak > 0:
+        return np.ones(n.size, bool)
+    return n >= min_share * peak
+
+
+def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max",
+                   min_share=DEFAULT_MIN_SHARE):
     """The reactions (and ``Te``) with the largest |S| for each species.
 
     Parameters
@@ -116,6 +152,9 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max"):
         Rows kept per species (None: all).
     by : {"max", "mean"}
         Order by the largest |S| or by the altitude-mean |S|.
+    min_share : float
+        Rank over the levels where the species is at least this share of its own peak
+        density in the range (:func:`where_it_matters`; 0: every level).
 
     Returns
     -------
@@ -132,7 +171,8 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max"):
     for s in species:
         ids, eqs, S, alt = sensitivity_matrix(sens_ds, s, altitude_range)
         absS = np.abs(S)
-        live = np.isfinite(absS).any(axis=0)
+        live = np.isfinite(absS).any(axis=0) & where_it_matters(sens_ds, s, altitude_range,
+                                                                 min_share)
         if not live.any():
             continue
         absS, S = absS[:, live], S[:, live]
@@ -156,7 +196,8 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max"):
     return rows
 
 
-def format_ranking(sens_ds, species, altitude_range=None, top=10):
+def format_ranking(sens_ds, species, altitude_range=None, top=10,
+                   min_share=DEFAULT_MIN_SHARE):
     """Two tables per species: by the largest |S| and by the altitude-mean |S|."""
     alt = sens_ds["altitude"].values
     lo, hi = altitude_range if altitude_range is not None else (alt.min(), alt.max())
@@ -165,7 +206,7 @@ def format_ranking(sens_ds, species, altitude_range=None, top=10):
     species = [species] if isinstance(species, str) else list(species)
     for s in species:
         for by, what in (("max", "largest |S|"), ("mean", "altitude-mean |S|")):
-            rows = rank_reactions(sens_ds, s, altitude_range, top, by=by)
+            rows = rank_reactions(sens_ds, s, altitude_range, top, by=by, min_share=min_share)
             lines.append(f"{s}: top {len(rows)} by {what}")
             lines.append(f"  {'#':>3} {'reaction':<24}{'S at max':>10}{'at km':>8}"
                          f"{'mean |S|':>10}  equation")
@@ -176,7 +217,7 @@ def format_ranking(sens_ds, species, altitude_range=None, top=10):
     return "\n".join(lines)
 
 
-def ranking_dataset(sens_ds, altitude_range=None):
+def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
     """The sensitivity dataset with the two ranking measures added.
 
     Adds ``max_abs_sensitivity``, ``signed_sensitivity_at_max``,
@@ -187,12 +228,14 @@ def ranking_dataset(sens_ds, altitude_range=None):
     out = sens_ds.copy()
     names = list(sens_ds["species"].values)
     R = sens_ds.sizes["reaction"]
-    shape = (len(names), R + 1)
+    factors = environment_rows(sens_ds, names[0])[0] if names else [TE_NAME]
+    shape = (len(names), R + len(factors))
     mx, sg, at, mean = (np.full(shape, np.nan) for _ in range(4))
     column = {str(r): j for j, r in enumerate(sens_ds["reaction"].values)}
-    column[TE_NAME] = R
+    column.update({f: R + i for i, f in enumerate(factors)})
+    te = column.get(TE_NAME, R)
     for i, s in enumerate(names):
-        for r in rank_reactions(sens_ds, s, altitude_range, top=None):
+        for r in rank_reactions(sens_ds, s, altitude_range, top=None, min_share=min_share):
             j = column[r.reaction]
             mx[i, j], sg[i, j], at[i, j], mean[i, j] = (r.max_abs, r.signed_at_max,
                                                         r.altitude_km, r.mean_abs)
@@ -204,12 +247,18 @@ def ranking_dataset(sens_ds, altitude_range=None):
     for name, arr, units, long in specs:
         out[name] = xr.Variable(("species", "reaction"), arr[:, :R],
                                 {"units": units, "long_name": long})
-        out[f"{name}_Te"] = xr.Variable(("species",), arr[:, R],
+        out[f"{name}_Te"] = xr.Variable(("species",), arr[:, te],
                                         {"units": units,
                                          "long_name": long.replace("k|", "Te|")
                                          .replace("/ d ln k", "/ d ln Te")})
+        if "factor" in sens_ds.dims:
+            out[f"{name}_environment"] = xr.Variable(
+                ("species", "factor"), arr[:, R:],
+                {"units": units, "long_name": long.replace("d ln k", "d ln factor")
+                 .replace("k|", "factor|")})
     alt = sens_ds["altitude"].values
     lo, hi = altitude_range if altitude_range is not None else (alt.min(), alt.max())
     out.attrs["ranking_altitude_range_km"] = np.array([lo, hi], float)
+    out.attrs["ranking_min_share"] = float(min_share)
     out.attrs["analysis"] = "rank: normalized local sensitivities at steady state"
     return out

@@ -9,7 +9,12 @@ the solved densities; derived totals are sums of their members.
 
 The electron temperature is one more parameter: ∂f/∂ln Te = Σ_j ν_j r_j ∂ln k_j/∂ln Te,
 with ∂ln k_j/∂ln Te from a central difference of the rate expressions alone (a step of 1e-5
-in ln Te; no re-solve), so every Te-dependent rate contributes.
+in ln Te; no re-solve), so every Te-dependent rate contributes. The other environment
+factors (``sensitivity_environment``) are built the same way: Ti and Tn (through every rate
+that reads them, Teff included), the solar flux ``EUV`` (every photo and photoelectron rate
+is proportional to it, so ∂ln r_j/∂ln F = 1 for those) and each fixed neutral ``n(X)``
+(∂ln r_j/∂ln n_X = the count of X among the reactants). These are *local*: a neutral's
+density enters the rates at the level, not the optical depth above it.
 
 Cost: one steady solve (or a given solution), one Jacobian and one batched LU solve with
 R + 1 right-hand sides. Dark levels (no densities) get NaN.
@@ -27,6 +32,55 @@ import numpy as np
 import xarray as xr
 
 TE_STEP = 1e-5
+
+
+def _dlnk(model, name):
+    """∂ln k/∂ln T for temperature ``name`` by a central difference, shape (A, R)."""
+    env = model.environment
+    base = getattr(env, name)
+    k_up = model.rate_coefficients(temperatures={name: base * np.exp(TE_STEP)})
+    k_dn = model.rate_coefficients(temperatures={name: base * np.exp(-TE_STEP)})
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where((k_up > 0) & (k_dn > 0),
+                        (np.log(k_up) - np.log(k_dn)) / (2 * TE_STEP), 0.0)
+
+
+def environment_factors(model, dlnk_te):
+    """Environment factors and ∂ln r_j/∂ln factor for each reaction.
+
+    Returns
+    -------
+    factors : list of (name, description)
+        ``Te`` first, then ``Ti``, ``Tn``, ``EUV`` (when the list has photo rates) and
+        ``n(X)`` for each fixed neutral X that is a reactant.
+    dln : ndarray (altitude, reaction, factor)
+    """
+    A, R = dlnk_te.shape
+    factors = [("Te", "electron temperature (every Te-dependent rate)")]
+    cols = [dlnk_te]
+    for name, what in (("Ti", "ion temperature (rates of Ti and Teff)"),
+                       ("Tn", "neutral temperature (rates of Tn and Teff)")):
+        d = _dlnk(model, name)
+        if np.any(d != 0):
+            factors.append((name, what))
+            cols.append(d)
+    photo = np.array([bool(e.variables & {"photo", "photoelectron"})
+                      for e in model.rate_expressions], float)
+    if photo.any():
+        factors.append(("EUV", "solar photon flux (every photo and photoelectron rate)"))
+        cols.append(np.broadcast_to(photo, (A, R)))
+    fixed = getattr(model.environment, "neutrals", {})
+    for name in fixed:
+        # A prescribed rate is a given volume rate: no neutral density scales it.
+        count = np.array([0.0 if "prescribed" in e.variables else
+                          sum(c for sp, c in r.reactants if sp.name == name)
+                          for r, e in zip(model.reaction_objects, model.rate_expressions)],
+                         float)
+        if count.any():
+            factors.append((f"n({name})", f"density of {name} where it reacts (local; not "
+                                          "its optical depth)"))
+            cols.append(np.broadcast_to(count, (A, R)))
+    return factors, np.stack(cols, axis=-1)
 
 
 def _solved_matrix(model, ds):
@@ -77,8 +131,10 @@ def sensitivity(model, result=None):
     -------
     xarray.Dataset
         ``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and
-        ``sensitivity_Te`` (species, altitude) = ∂ln n/∂ln Te, dimensionless, with the
-        densities they refer to.
+        ``sensitivity_Te`` (species, altitude) = ∂ln n/∂ln Te, and
+        ``sensitivity_environment`` (species, factor, altitude) for Te, Ti, Tn, the EUV flux
+        and the fixed neutrals (see the module docstring), dimensionless, with the densities
+        they refer to.
     """
     ds = model.solve() if result is None else result
     mech = model.mechanism
@@ -87,14 +143,11 @@ def sensitivity(model, result=None):
     given = model.given
     J = mech.jacobian(n, k, given)                      # (A, S, S)
     rhs = mech.rate_sensitivity_columns(n, k, given)    # (A, S, R) = ν_j r_j
-    env = model.environment
-    k_up = model.rate_coefficients(temperatures={"Te": env.Te * np.exp(TE_STEP)})
-    k_dn = model.rate_coefficients(temperatures={"Te": env.Te * np.exp(-TE_STEP)})
-    with np.errstate(divide="ignore", invalid="ignore"):
-        dlnk = np.where((k_up > 0) & (k_dn > 0), (np.log(k_up) - np.log(k_dn)) / (2 * TE_STEP),
-                        0.0)
-    rhs_te = np.einsum("asr,ar->as", rhs, dlnk)[..., None]
-    B = np.concatenate([rhs, rhs_te], axis=-1)          # (A, S, R+1)
+    dlnk = _dlnk(model, "Te")
+    factors, dln = environment_factors(model, dlnk)     # dln (A, R, F), F[0] = Te
+    rhs_env = np.einsum("asr,arf->asf", rhs, dln)
+    B = np.concatenate([rhs, rhs_env], axis=-1)         # (A, S, R+F)
+    R = rhs.shape[-1]
     live = np.any(n > 0, axis=1)
     dn = np.full(B.shape, np.nan)
     if model.transport is not None:
@@ -126,16 +179,23 @@ def sensitivity(model, result=None):
     res = xr.Dataset(
         {
             "sensitivity": (("species", "reaction", "altitude"),
-                            np.transpose(norm[:, :, :-1], (0, 2, 1)),
+                            np.transpose(norm[:, :, :R], (0, 2, 1)),
                             {"units": "1", "long_name": "normalized sensitivity "
                              "d ln n / d ln k at steady state"}),
-            "sensitivity_Te": (("species", "altitude"), norm[:, :, -1],
+            "sensitivity_Te": (("species", "altitude"), norm[:, :, R],
                                {"units": "1", "long_name": "normalized sensitivity "
                                 "d ln n / d ln Te through every Te-dependent rate"}),
+            "sensitivity_environment": (("species", "factor", "altitude"),
+                                        np.transpose(norm[:, :, R:], (0, 2, 1)),
+                                        {"units": "1", "long_name": "normalized local "
+                                         "sensitivity d ln n / d ln (environment factor)"}),
             "density": ds["density"],
         },
         coords={"species": ds["species"], "role": ds["role"], "reaction": ds["reaction"],
-                "equation": ds["equation"], "altitude": ds["altitude"]},
+                "equation": ds["equation"], "altitude": ds["altitude"],
+                "factor": ("factor", np.array([f for f, _ in factors], dtype=object)),
+                "factor_description": ("factor", np.array([d for _, d in factors],
+                                                          dtype=object))},
         attrs=dict(ds.attrs),
     )
     res.attrs["method"] = ("exact: one LU factorisation of the steady-state Jacobian per "

@@ -38,8 +38,9 @@ class Environment:
         drift where ions are magnetised, fading below (``magnetisation``), shape (altitude,)
         when a drift is given.
     ti_includes_drift : bool
-        True when Ti was modelled with frictional heating (the drift term is then already in
-        Ti and is not added again to Teff).
+        Whether Ti already holds the frictional heating of the drift (the drift term is then
+        not added again to Teff). The builder sets it True for every column: a tabulated Ti
+        is taken as measured (heated already) and a modelled Ti is heated here.
     prescribed : dict[str, ndarray]
         Volume production rates for reactions written ``k = prescribed``, cm-3 s-1.
     electron_density : ndarray or None
@@ -203,6 +204,9 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                                 file=file, key="temperatures")
     if getattr(temps, "vibrational", "neutral") == "table":
         Tv = ttable["Tv_K"]
+    elif getattr(temps, "vibrational", "neutral") == "electron":
+        from ionochem.environment.n2_vibrational import vibrational_temperature
+        Tv = vibrational_temperature(Tn, Te, temps.vibrational_coupling)
     else:
         Tv = Tn.copy()
 

@@ -56,7 +56,14 @@ Other choices, each with its source
   absorption minus O2+ ionization shortward of the 662 angstrom threshold (the O2 ionization
   yield is close to one there, *(from memory)*), the straddling 650-700 angstrom bin
   receiving the fraction of the bin shortward of threshold. In the 50-100 angstrom bin the
-  table gives absorption = O2+ ionization, so that bin has no O+ from O2.
+  packaged table gives absorption = O2+ ionization, which would leave that bin without O+
+  from O2, although dissociative ionization takes 38-45 % of the O2 ionization in each of
+  the three bins next to it (100-250 angstrom, same table: Fennelly & Torr 1992 as averaged
+  by Richards et al. 1994) and stays a large share of O2 photoionization at photon energies
+  above ~40 eV *(from memory)*. That bin therefore takes the O+ share of the 100-150
+  angstrom bin, 38.4 %, out of its O2+ value (:data:`O2_DISSOCIATIVE_SHARE_50_100A`;
+  *(common practice: continuation of the neighbouring bin)*). The soft X-ray bins below 50
+  angstrom use the same share (``xrays.py``).
 - ``N2->N(2D)+N``: N2 absorption minus N2+ and N+ ionization (never below zero). Each
   dissociation is counted as one N(2D) and one N(4S) *(common practice; the lowest
   predissociating states of N2 reached by EUV photons correlate with N(4S) + N(2D))*.
@@ -120,14 +127,17 @@ MEGABARN_CM2 = 1.0e-18
 
 #: Lyman alpha line centre, angstrom.
 LYMAN_ALPHA_A = 1215.67
-#: Default Lyman alpha flux at 1 AU, photons cm-2 s-1: typical of low-to-moderate solar
-#: activity; the composite of Woods et al. (2000), J. Geophys. Res. 105, 27195, runs from
-#: about 3.5e11 at solar minimum to about 6e11 at maximum *(from memory)*. Held constant: no
-#: F10.7 relation is applied; scenarios override it (``lyman_alpha_photons_cm2_s``).
-LYMAN_ALPHA_DEFAULT_PHOTONS_CM2_S = 4.0e11
+#: The default Lyman alpha flux follows solar activity: see
+#: :func:`ionochem.environment.lyman_alpha.lyman_alpha_flux` (cited there); scenarios may
+#: give a measured value instead (``lyman_alpha_photons_cm2_s``).
 #: NO photoionization cross section at Lyman alpha, cm2 (Watanabe 1954, J. Chem. Phys. 22,
 #: 1564 *(from memory)*); taken equal to the NO absorption there.
 SIGMA_NO_LYMAN_ALPHA_CM2 = 2.0e-18
+#: Share of O2 photoionization that is dissociative (O+ + O) in the 50-100 angstrom bin: the
+#: share of the 100-150 angstrom bin of the packaged table, (3.806 - 2.346) / 3.806
+#: (Fennelly & Torr 1992 via Richards et al. 1994), continued one bin shortward
+#: *(common practice)*; see the module docstring.
+O2_DISSOCIATIVE_SHARE_50_100A = (3.806 - 2.346) / 3.806
 #: O2 absorption cross section at Lyman alpha, cm2 (Watanabe 1958, Adv. Geophys. 5, 153
 #: *(from memory)*).
 SIGMA_O2_ABS_LYMAN_ALPHA_CM2 = 1.0e-20
@@ -405,6 +415,13 @@ def _euvac_cross_sections() -> tuple[dict[str, np.ndarray], dict[str, np.ndarray
     frac_short = np.where(lo < hi, np.clip((lam - lo) / np.where(hi > lo, hi - lo, 1.0), 0, 1),
                           (lo <= lam).astype(float))
     o2_dissoc_ion = np.maximum(t["O2_abs"] - t["O2+_ion"], 0.0) * frac_short
+    o2_ion = np.array(t["O2+_ion"], dtype=float)
+    # 50-100 A: the table has no dissociative ionization there; continue the 100-150 A share
+    # (module docstring).
+    first = (hi <= 100.0) & (o2_dissoc_ion == 0.0) & (t["O2_abs"] > 0)
+    o2_dissoc_ion = np.where(first, O2_DISSOCIATIVE_SHARE_50_100A * t["O2_abs"],
+                             o2_dissoc_ion)
+    o2_ion = np.where(first, t["O2_abs"] - o2_dissoc_ion, o2_ion)
 
     n2_dissoc = np.maximum(t["N2_abs"] - t["N2+_ion"] - t["N+_from_N2"], 0.0)
 
@@ -416,7 +433,7 @@ def _euvac_cross_sections() -> tuple[dict[str, np.ndarray], dict[str, np.ndarray
         "N2->N2+": t["N2+_ion"] * mb,
         "N2->N+": t["N+_from_N2"] * mb,
         "N2->N(2D)+N": n2_dissoc * mb,
-        "O2->O2+": t["O2+_ion"] * mb,
+        "O2->O2+": o2_ion * mb,
         "O2->O+": o2_dissoc_ion * mb,
         "NO->NO+": np.zeros_like(lo),
     }
@@ -444,8 +461,7 @@ def euvac_cross_sections() -> tuple[dict[str, np.ndarray], dict[str, np.ndarray]
     return {k: v.copy() for k, v in a.items()}, {k: v.copy() for k, v in c.items()}
 
 
-def solar_spectrum(f107, f107a, *,
-                   lyman_alpha_photons_cm2_s=LYMAN_ALPHA_DEFAULT_PHOTONS_CM2_S) -> Spectrum:
+def solar_spectrum(f107, f107a, *, lyman_alpha_photons_cm2_s=None) -> Spectrum:
     """The default solar spectrum at 1 AU: 37 EUVAC bins plus the Lyman alpha line.
 
     Parameters
@@ -453,8 +469,8 @@ def solar_spectrum(f107, f107a, *,
     f107, f107a : float or array_like
         Daily and 81-day mean F10.7 (1e-22 W m-2 Hz-1), adjusted to 1 AU; they broadcast.
     lyman_alpha_photons_cm2_s : float or array_like, optional
-        Lyman alpha flux at 1 AU (photons cm-2 s-1); default
-        :data:`LYMAN_ALPHA_DEFAULT_PHOTONS_CM2_S`, held constant over the solar cycle.
+        Lyman alpha flux at 1 AU (photons cm-2 s-1); default (None): scaled with solar
+        activity by :func:`ionochem.environment.lyman_alpha.lyman_alpha_flux`.
 
     Returns
     -------
@@ -463,6 +479,9 @@ def solar_spectrum(f107, f107a, *,
         (38,)``, at 1 AU: scale with :meth:`Spectrum.scaled` for the Earth-Sun distance.
     """
     bins = euvac_flux(f107, f107a)
+    if lyman_alpha_photons_cm2_s is None:
+        from ionochem.environment.lyman_alpha import lyman_alpha_flux
+        lyman_alpha_photons_cm2_s = lyman_alpha_flux(f107, f107a)
     lya = np.asarray(lyman_alpha_photons_cm2_s, dtype=float)
     if not np.all(np.isfinite(lya)) or np.any(lya < 0):
         raise InputError(f"lyman_alpha_photons_cm2_s must be finite and >= 0, got {lya!r}")

@@ -1,9 +1,12 @@
 """The sun over the column: zenith angle, attenuated EUV, photo and photoelectron rates.
 
 :class:`SunColumn` joins the pieces of this stage — solar geometry (``geometry``), the
-photon spectrum and cross sections (``euvac``, ``crosssections``), slant columns through
-spherical shells (``slant``), photo frequencies (``photorates``) and photoelectron impact
-(``secondary``) — into per-channel rates on the grid at any time of a run.
+photon spectrum and cross sections (``euvac``, ``crosssections``, Lyman alpha
+``lyman_alpha``, soft X-rays ``xrays``), slant columns through spherical shells
+(``slant``), photo frequencies (``photorates``), photoelectron impact (``secondary``) and
+the scattered night-time sources (``night_sources``, constant in time, added at every
+level) — into per-channel rates on the grid at any time of a run. ``photon_sources`` lists
+what acts, for the result.
 
 For transient runs the rates are computed on a time lattice (every ``lattice_s`` seconds)
 and interpolated linearly in between, so the stiff integrator sees a continuous right-hand
@@ -20,6 +23,11 @@ from ionochem.errors import ScenarioError
 #: Spacing of the time lattice of photo rates in transient runs, s (a choice: the zenith
 #: angle changes by at most 0.25° in 60 s).
 LATTICE_S = 60.0
+#: Photo and photoelectron frequencies below this (s-1 per molecule) are set to zero: they
+#: make less than one ion per cm3 in 1e70 years, and along grazing rays (the hard soft X-ray
+#: bins reach levels the EUV cannot) the densities they imply, ~1e-135 cm-3, underflow
+#: double precision in the solver's products (a numerical choice).
+NEGLIGIBLE_RATE_S = 1e-100
 
 
 def _extend_down(alt, dens):
@@ -75,14 +83,28 @@ class SunColumn:
             if photons.lyman_alpha_photons_cm2_s is not None:
                 kw["lyman_alpha_photons_cm2_s"] = photons.lyman_alpha_photons_cm2_s
             spectrum = solar_spectrum(scenario.sun.f107, scenario.sun.f107a, **kw)
+            if photons.soft_xrays:
+                from ionochem.environment.xrays import soft_xray_spectrum
+                spectrum = spectrum.concatenate(soft_xray_spectrum(scenario.sun.f107,
+                                                                   scenario.sun.f107a))
             if photons.extra_spectrum is not None:
-                spectrum = spectrum.concatenate(load_user_spectrum(
-                    photons.extra_spectrum, where="photons.extra_spectrum",
-                    scenario_file=scenario.source))
+                extra = load_user_spectrum(photons.extra_spectrum,
+                                           where="photons.extra_spectrum",
+                                           scenario_file=scenario.source)
+                if photons.soft_xrays and np.any(extra.wl_lo_A < 50.0):
+                    self.warnings.append(
+                        f"{scenario.source}: photons.extra_spectrum: it has bins below 50 A "
+                        "and the packaged soft X-rays are on (soft_xrays = true): they are "
+                        "counted twice unless one of them is switched off")
+                spectrum = spectrum.concatenate(extra)
         self.spectrum = spectrum
-        self.photo_channels = sorted(n.split(":", 1)[1] for n in needs
+        from ionochem.environment.n2plus_levels import level_requests
+        # Per-level N2+ channels ("photo:N2->N2+(v=1)") are split from their totals.
+        self.level_requests = level_requests(needs)
+        plain = [n for n in needs if "(v=" not in n]
+        self.photo_channels = sorted(n.split(":", 1)[1] for n in plain
                                      if n.startswith("photo:"))
-        self.pe_channels = sorted(n.split(":", 1)[1] for n in needs
+        self.pe_channels = sorted(n.split(":", 1)[1] for n in plain
                                   if n.startswith("photoelectron:"))
         missing = [c for c in self.photo_channels if c not in spectrum.sigma_channel_cm2]
         if missing:
@@ -92,7 +114,13 @@ class SunColumn:
                 f"{', '.join(sorted(spectrum.sigma_channel_cm2))})",
                 file=scenario.source, key="photons")
         self.secondary = bool(photons.secondary)
-        absorbers = sorted(spectrum.sigma_abs_cm2)
+        absorbers = set(spectrum.sigma_abs_cm2)
+        if photons.night_sources:
+            # The night lines are attenuated by their own absorbers, whatever the solar
+            # spectrum (a user spectrum may lack some).
+            from ionochem.environment.night_sources import night_spectrum
+            absorbers |= set(night_spectrum().sigma_abs_cm2)
+        absorbers = sorted(absorbers)
         if profile is not None:
             alt = np.asarray(profile.altitude_km, float)
             dens = {a: np.asarray(profile[a], float) for a in absorbers if a in profile}
@@ -112,6 +140,48 @@ class SunColumn:
         self.local = {k: env.neutrals[k] for k in ("N2", "O2", "O") if k in env.neutrals}
         self.time_dependent = scenario.solve.mode == "transient"
         self._cache = {}
+        self.photon_sources = [spectrum.source]
+        self.night = None
+        if photons.night_sources:
+            self._init_night()
+
+    def _init_night(self):
+        """Constant night-time (scattered) rates on the grid (``night_sources.py``)."""
+        from ionochem.environment.night_sources import describe, night_rates
+        from ionochem.environment.slant import slant_columns
+        cols = slant_columns(self.grid, 0.0, self.profile_alt, self.profile)
+        photo, pe = night_rates(cols, self.local, secondary=self.secondary)
+        self.night = {f"photo:{k}": v for k, v in photo.items()}
+        self.night.update({f"photoelectron:{k}": v for k, v in pe.items()})
+        self.night.update(self._night_levels(cols))
+        self.photon_sources += [f"night: {d}" for d in describe()]
+
+    def _night_levels(self, cols):
+        """Per-level N2+ keys of the night rates, split as the solar ones are
+        (``n2plus_levels``): photons line by line, photoelectrons by the impact split."""
+        from ionochem.environment.n2plus_levels import (
+            electron_impact_split,
+            photoionization_split,
+        )
+        from ionochem.environment.night_sources import night_frequencies, night_spectrum
+        out = {}
+        spec = night_spectrum()
+        for base, levels in self.level_requests.items():
+            if base == "photo:N2->N2+":
+                jb = night_frequencies(cols, spectrum=spec, per_bin=True)["N2->N2+"]
+                split = photoionization_split(spec.wl_lo_A, spec.wl_hi_A, levels)["fraction"]
+                per_level = jb @ split
+            else:
+                per_level = self.night[base][:, None] * electron_impact_split(levels)
+            for i, v in enumerate(levels):
+                out[f"{base}(v={v})"] = per_level[:, i]
+        return out
+
+    def _with_night(self, out):
+        out = {k: np.where(v < NEGLIGIBLE_RATE_S, 0.0, v) for k, v in out.items()}
+        if self.night is None:
+            return out
+        return {k: v + self.night[k] if k in self.night else v for k, v in out.items()}
 
     # ------------------------------------------------------------------ geometry
     def _utc(self, time_s):
@@ -138,7 +208,9 @@ class SunColumn:
             zero = np.zeros(self.grid.size)
             out = {f"photo:{k}": zero for k in self.photo_channels}
             out.update({f"photoelectron:{k}": zero for k in self.pe_channels})
-            self._cache[t] = (out, np.ones(self.grid.size, bool))
+            out.update({f"{b}(v={v})": zero for b, lv in self.level_requests.items()
+                        for v in lv})
+            self._cache[t] = (self._with_night(out), np.ones(self.grid.size, bool))
             return self._cache[t]
         cols = slant_columns(self.grid, chi, self.profile_alt, self.profile)
         spectrum = self.spectrum.scaled(float(flux_distance_factor(self._utc(t))))
@@ -157,8 +229,12 @@ class SunColumn:
                         f"no photoelectron-impact rate is known for channel {key} (known: "
                         f"{', '.join(sorted(pe))})", file=self.scenario.source, key="photons")
                 out[f"photoelectron:{key}"] = np.where(dark, 0.0, pe[key])
-        self._cache[t] = (out, dark)
-        return out, dark
+        if self.level_requests:
+            from ionochem.environment.n2plus_levels import level_sources
+            for key, val in level_sources(spectrum, cols, out, self.level_requests).items():
+                out[key] = np.where(dark, 0.0, val)
+        self._cache[t] = (self._with_night(out), dark)
+        return self._cache[t]
 
     def _photoelectron(self, spectrum, cols):
         from ionochem.environment.secondary import secondary_frequencies

@@ -17,13 +17,13 @@ from ionochem.mechanism.mechanism import THIRD_BODY
 
 VALIDITY_NOTE = (
     "Photochemical equilibrium column: molecular ions (N2+, O2+, NO+) and metastables are in "
-    "photochemical equilibrium at all heights; O+ is not above about 200-250 km by day, where "
-    "its lifetime exceeds the diffusion time and a box model overestimates it (see the "
-    "pce_doubtful flag). Research output, not a forecast: do not use alone for radio, "
-    "navigation or satellite operations.")
+    "photochemical equilibrium at all heights; O+ is not where its chemical lifetime exceeds "
+    "the diffusion time, and a box model overestimates it there: the pce_doubtful flag marks "
+    "those levels. Research output, not a forecast: do not use alone for radio, navigation or "
+    "satellite operations.")
 
 
-def _species_table(model, n_solved):
+def species_table(model, n_solved):
     """All densities (..., N) with names and roles, from solved densities (..., A, S)."""
     mech = model.mechanism
     lead = n_solved.shape[:-1]
@@ -51,13 +51,51 @@ def _species_table(model, n_solved):
     return dens.reshape(*lead, len(names)), names, roles
 
 
-def _provenance(model):
+#: Attributes of the altitude coordinate in every result (CF).
+ALTITUDE_ATTRS = {"units": "km", "long_name": "altitude", "standard_name": "altitude",
+                  "positive": "up"}
+
+#: Rate coefficients are stored by reaction order so each variable has one unit (CF):
+#: name, unit and long name per number of reactants (a third body M counts).
+ORDER_VARIABLES = {
+    1: ("rate_coefficient_first_order", "s-1",
+        "first-order rate coefficient (photo and photoelectron rates, radiative decay, "
+        "prescribed sources)"),
+    2: ("rate_coefficient", "cm3 s-1", "two-body rate coefficient"),
+    3: ("rate_coefficient_third_order", "cm6 s-1", "three-body rate coefficient"),
+}
+
+
+def reaction_order(r):
+    """Number of reactant particles of a reaction (a third body M counts)."""
+    return sum(c for _, c in r.reactants)
+
+
+def rate_coefficient_vars(model, k, dims):
+    """``rate_coefficient`` (two-body), ``rate_coefficient_first_order`` and
+    ``rate_coefficient_third_order``, each NaN for reactions of another order, and
+    ``reaction_order``; ``k`` has the reaction axis at ``dims.index("reaction")``."""
+    order = np.array([reaction_order(r) for r in model.reaction_objects], np.int8)
+    axis = dims.index("reaction")
+    shape = [1] * len(dims)
+    shape[axis] = order.size
+    out = {"reaction_order": ("reaction", order,
+                              {"units": "1", "long_name": "number of reactant particles"})}
+    for n, (name, units, long) in ORDER_VARIABLES.items():
+        if n == 2 or np.any(order == n):
+            vals = np.where((order == n).reshape(shape), k, np.nan)
+            out[name] = (dims, vals, {"units": units, "long_name": long})
+    return out
+
+
+def provenance(model):
     import ionochem
     scen = model.scenario
     env_attrs = {"neutral_model": scen.neutrals.model,
                  "ion_drift_m_s": float(scen.temperatures.ion_drift_m_s),
                  "temperatures": f"electron {scen.temperatures.electron}, "
-                                 f"ion {scen.temperatures.ion}"}
+                                 f"ion {scen.temperatures.ion}, "
+                                 f"vibrational {_vibrational(scen.temperatures)}"}
     if scen.location is not None:
         env_attrs["latitude_deg"] = scen.location.latitude_deg
         env_attrs["longitude_deg"] = scen.location.longitude_deg
@@ -73,11 +111,13 @@ def _provenance(model):
     if model.environment.sun is not None:
         env_attrs["photon_source"] = model.environment.sun.spectrum.source
         env_attrs["photoelectron_secondaries"] = int(bool(scen.photons.secondary))
+        env_attrs["photon_sources"] = "; ".join(model.environment.sun.photon_sources)
     return env_attrs | {
         "title": scen.title,
         "Conventions": "CF-1.10",
         "source": f"ionochem {ionochem.__version__}",
-        "history": f"{_dt.datetime.now(_dt.UTC).isoformat(timespec='seconds')} ionochem run",
+        "history": f"{_dt.datetime.now(_dt.UTC).isoformat(timespec='seconds')} ionochem "
+                   "(Python API)",
         "scenario_file": scen.source,
         "scenario_sha256": scen.sha256,
         "reaction_list": str(model.reaction_list.path),
@@ -87,6 +127,14 @@ def _provenance(model):
         "electrons": scen.solve.electrons,
         "comment": VALIDITY_NOTE,
     }
+
+
+def _vibrational(temps):
+    """How Tv was set, for the provenance (``electron (c = 0.5)`` for the Te link)."""
+    src = getattr(temps, "vibrational", "neutral")
+    if src == "electron":
+        return f"electron (c = {getattr(temps, 'vibrational_coupling', 0.5):g})"
+    return src
 
 
 def _environment_vars(model, dims=("altitude",)):
@@ -100,11 +148,17 @@ def _environment_vars(model, dims=("altitude",)):
     return out
 
 
-def steady_dataset(model, res):
-    """Dataset of a steady solution (``SteadyResult`` from the steady solver)."""
+def steady_dataset(model, res, method_names):
+    """Dataset of a steady solution (``SteadyResult`` from the steady solver).
+
+    ``method_names`` maps the solver's method codes to names (the solver's
+    ``METHOD_NAMES``); the caller adds the diagnostics
+    (:func:`ionochem.analysis.diagnostics.add_steady_diagnostics`), so this module imports
+    neither the solver nor the analyses.
+    """
     mech = model.mechanism
     alt = model.altitude_km
-    dens, names, roles = _species_table(model, res.n)
+    dens, names, roles = species_table(model, res.n)
     k = model.rate_coefficients()
     given = model.given
     n_all = mech.full_densities(res.n, given)
@@ -125,7 +179,6 @@ def steady_dataset(model, res):
         stoich[col] = nu
         prod[:, col] = rates @ np.clip(nu, 0, None)
         loss[:, col] = rates @ np.clip(-nu, 0, None)
-    from ionochem.solve.steady import METHOD_NAMES
     ds = xr.Dataset(
         {
             "density": (("species", "altitude"), dens.T,
@@ -134,10 +187,7 @@ def steady_dataset(model, res):
                            {"units": "cm-3 s-1", "long_name": "gross chemical production"}),
             "loss": (("species", "altitude"), loss.T,
                      {"units": "cm-3 s-1", "long_name": "gross chemical loss"}),
-            "rate_coefficient": (("reaction", "altitude"), k.T,
-                                 {"units": "cm3 s-1 (bimolecular), s-1 (unimolecular), "
-                                           "cm6 s-1 (termolecular)",
-                                  "long_name": "rate coefficient"}),
+            **rate_coefficient_vars(model, k.T, ("reaction", "altitude")),
             "reaction_rate": (("reaction", "altitude"), rates.T,
                               {"units": "cm-3 s-1", "long_name": "volume reaction rate"}),
             "net_stoichiometry": (("species", "reaction"), stoich,
@@ -150,27 +200,36 @@ def steady_dataset(model, res):
                            {"units": "1", "long_name": "solver iterations"}),
             "solver_method": ("altitude", res.method.astype(np.int8),
                               {"long_name": "method that converged",
-                               "flag_values": np.array(sorted(METHOD_NAMES), np.int8),
-                               "flag_meanings": " ".join(METHOD_NAMES[k]
-                                                         for k in sorted(METHOD_NAMES))}),
+                               "flag_values": np.array(sorted(method_names), np.int8),
+                               "flag_meanings": " ".join(method_names[k]
+                                                         for k in sorted(method_names))}),
         },
         coords={
-            "altitude": ("altitude", alt, {"units": "km", "long_name": "altitude",
-                                           "standard_name": "altitude", "positive": "up"}),
+            "altitude": ("altitude", alt, ALTITUDE_ATTRS),
             "species": ("species", np.array(names, dtype=object)),
             "role": ("species", np.array(roles, dtype=object),
                      {"long_name": "solved, fixed, electron, balance or derived"}),
             "reaction": ("reaction", np.array(model.reactions, dtype=object)),
-            "equation": ("reaction", np.array([_equation(r) for r in model._rxns],
+            "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
     for name, var in _environment_vars(model).items():
         ds[name] = var
-    _add_diagnostics(model, ds)
+    _add_level_outputs(model, ds, k, dens, names, ())
     _add_transport(model, ds, res.n)
     return ds
+
+
+def _add_level_outputs(model, ds, k, dens, names, lead_dims):
+    """level_fraction and effective_rate_coefficient of vibrational families (§7)."""
+    from ionochem.io.level_outputs import level_output_vars
+    out = level_output_vars(model, k, dens, names, lead_dims)
+    coords = {c: out.pop(c) for c in ("family_reaction", "family_species") if c in out}
+    ds.coords.update(coords)
+    for name, var in out.items():
+        ds[name] = var
 
 
 TRANSPORT_NOTE = (
@@ -181,7 +240,15 @@ TRANSPORT_NOTE = (
     "forecast: do not use alone for radio, navigation or satellite operations.")
 
 
-def _transport_attrs(model):
+TRANSIENT_TRANSPORT_NOTE = (
+    "Time-dependent column with O+ transport: every species is integrated in time from the "
+    "initial state; O+ also diffuses along the geomagnetic field (ambipolar diffusion "
+    "projected on the vertical, with the meridional-wind drift), the lowest level follows "
+    "its chemistry alone and the given flux crosses the top. Research output, not a "
+    "forecast: do not use alone for radio, navigation or satellite operations.")
+
+
+def _transport_attrs(model, transient=False):
     env = model.environment
     c = env.transport
     return {"transport": "O+ field-aligned ambipolar diffusion (Schunk & Nagy 2009)",
@@ -190,7 +257,7 @@ def _transport_attrs(model):
             else "IGRF at 300 km (ppigrf)",
             "transport_upper_boundary_flux_cm2_s": float(c.upper_flux_cm2_s),
             "transport_meridional_wind_m_s": float(c.meridional_wind_m_s),
-            "comment": TRANSPORT_NOTE}
+            "comment": TRANSIENT_TRANSPORT_NOTE if transient else TRANSPORT_NOTE}
 
 
 def _add_transport(model, ds, n):
@@ -216,36 +283,86 @@ def _equation(r):
     return f"{side(r.reactants)} -> {side(r.products)}"
 
 
-def _add_diagnostics(model, ds):
-    """Dark levels, zenith angle, lifetimes and the ionization–recombination balance."""
-    from ionochem.analysis.diagnostics import add_steady_diagnostics
-    add_steady_diagnostics(model, ds)
+TRANSIENT_NOTE = (
+    "Time-dependent column: every species is integrated in time from the initial state, "
+    "photochemistry only (no transport). O+ at heights where its chemical lifetime exceeds the "
+    "diffusion time (see pce_doubtful in a steady run of the same scenario) is not realistic. "
+    "Research output, not a forecast: do not use alone for radio, navigation or satellite "
+    "operations.")
 
 
 def transient_dataset(model, times, n):
-    """Dataset of a time integration: n shaped (time, altitude, species)."""
-    dens, names, roles = _species_table(model, np.maximum(n, 0.0))
+    """Dataset of a time integration: n shaped (time, altitude, species).
+
+    Besides the densities: production, loss and reaction rates at each output time, the
+    rate coefficients (which change with the sun), and a CF time coordinate in seconds
+    since the scenario time (``time_s`` keeps the plain seconds).
+    """
+    mech = model.mechanism
+    n = np.maximum(n, 0.0) if n.size else n
+    dens, names, roles = species_table(model, n)
+    T = len(times)
+    keep = [mech.index(s) for s in names if s in mech.all_species]
+    A, R = model.altitude_km.size, len(model.reactions)
+    prod = np.zeros((T, A, len(names)))
+    loss = np.zeros_like(prod)
+    rates = np.zeros((T, A, R))
+    ks = np.zeros((T, A, R))
+    for i, t in enumerate(times):
+        k = model.rate_coefficients(float(t))
+        ks[i] = k
+        rates[i] = mech.rates(k, mech.full_densities(n[i], model.given))
+        P, L = mech.production_loss(n[i], k, model.given)
+        prod[i, :, :len(keep)] = P[:, keep]
+        loss[i, :, :len(keep)] = L[:, keep]
+    for tot in mech.derived:
+        nu = mech.nu_all[[mech.index(m) for m in tot.members]].sum(axis=0)
+        col = names.index(tot.name)
+        prod[..., col] = rates @ np.clip(nu, 0, None)
+        loss[..., col] = rates @ np.clip(-nu, 0, None)
+    stoich = np.zeros((len(names), R))
+    stoich[:len(keep)] = mech.nu_all[keep]
+    for tot in mech.derived:
+        stoich[names.index(tot.name)] = mech.nu_all[[mech.index(m)
+                                                     for m in tot.members]].sum(axis=0)
+    dims3 = ("time", "species", "altitude")
     ds = xr.Dataset(
         {
-            "density": (("time", "species", "altitude"), np.transpose(dens, (0, 2, 1)),
+            "density": (dims3, np.transpose(dens, (0, 2, 1)),
                         {"units": "cm-3", "long_name": "number density"}),
-            "min_density": ("time", n.min(axis=(1, 2)) if n.size else np.zeros(len(times)),
+            "production": (dims3, np.transpose(prod, (0, 2, 1)),
+                           {"units": "cm-3 s-1", "long_name": "gross chemical production"}),
+            "loss": (dims3, np.transpose(loss, (0, 2, 1)),
+                     {"units": "cm-3 s-1", "long_name": "gross chemical loss"}),
+            **rate_coefficient_vars(model, np.transpose(ks, (0, 2, 1)),
+                                    ("time", "reaction", "altitude")),
+            "reaction_rate": (("time", "reaction", "altitude"), np.transpose(rates, (0, 2, 1)),
+                              {"units": "cm-3 s-1", "long_name": "volume reaction rate"}),
+            "net_stoichiometry": (("species", "reaction"), stoich,
+                                  {"units": "1", "long_name": "net stoichiometric coefficient "
+                                   "(products minus reactants)"}),
+            "min_density": ("time", n.min(axis=(1, 2)) if n.size else np.zeros(T),
                             {"units": "cm-3", "long_name": "most negative solved density "
                              "before clipping at zero (integration accuracy check)"}),
         },
         coords={
-            "time": ("time", np.asarray(times, float),
-                     {"units": "s", "long_name": "time since the scenario time"}),
-            "altitude": ("altitude", model.altitude_km, {"units": "km",
-                                                          "standard_name": "altitude",
-                                                          "positive": "up"}),
+            "time": ("time", np.asarray(times, float), _time_attrs(model)),
+            "time_s": ("time", np.asarray(times, float),
+                       {"units": "s", "long_name": "time since the scenario time"}),
+            "altitude": ("altitude", model.altitude_km, ALTITUDE_ATTRS),
             "species": ("species", np.array(names, dtype=object)),
-            "role": ("species", np.array(roles, dtype=object)),
+            "role": ("species", np.array(roles, dtype=object),
+                     {"long_name": "solved, fixed, electron, balance or derived"}),
+            "reaction": ("reaction", np.array(model.reactions, dtype=object)),
+            "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
+                                              dtype=object)),
         },
-        attrs=_provenance(model),
+        attrs=provenance(model),
     )
+    ds.attrs["comment"] = TRANSIENT_NOTE
     for name, var in _environment_vars(model).items():
         ds[name] = var
+    _add_level_outputs(model, ds, ks, dens, names, ("time",))
     env = model.environment
     if env.sun is not None:
         ds["solar_zenith_angle"] = ("time", np.array([env.solar_zenith_angle(t)
@@ -253,5 +370,15 @@ def transient_dataset(model, times, n):
                                     {"units": "degree", "long_name": "solar zenith angle"})
     ds.attrs["mode"] = "transient"
     if model.transport is not None:
-        ds.attrs.update(_transport_attrs(model))
+        ds.attrs.update(_transport_attrs(model, transient=True))
     return ds
+
+
+def _time_attrs(model):
+    """CF time units: seconds since the scenario's UTC time (or since the run start)."""
+    t = getattr(model.scenario, "time", None)
+    if t is not None and getattr(t, "utc", None) is not None:
+        since = t.utc.strftime("%Y-%m-%d %H:%M:%S")
+        return {"units": f"seconds since {since}", "calendar": "standard",
+                "standard_name": "time", "long_name": "time"}
+    return {"units": "s", "long_name": "time since the start of the run (no scenario time)"}

@@ -128,7 +128,10 @@ class Temperatures:
     ion_drift_m_s : float
         Ion-neutral drift speed (m/s), >= 0, default 0.
     vibrational : str
-        Tv of N2: ``"neutral"`` (Tv = Tn, default) or ``"table"`` (column ``Tv_K``).
+        Tv of N2: ``"neutral"`` (Tv = Tn, default), ``"table"`` (column ``Tv_K``) or
+        ``"electron"`` (Tv = Tn + c max(Te - Tn, 0), c = ``vibrational_coupling``).
+    vibrational_coupling : float
+        c in [0, 1] for ``vibrational = "electron"`` (default 0.5).
     profile : TemperatureProfile
         Parameters of the parametric shape (defaults when not given).
     """
@@ -138,6 +141,7 @@ class Temperatures:
     table: Path | None = None
     ion_drift_m_s: float = 0.0
     vibrational: str = "neutral"
+    vibrational_coupling: float = 0.5
     profile: TemperatureProfile = field(default_factory=TemperatureProfile)
 
 
@@ -279,6 +283,11 @@ class Photons:
     lyman_alpha_photons_cm2_s : float or None
         Solar Lyman-alpha flux (photons cm-2 s-1); None means the physics module's cited
         default.
+    soft_xrays : bool
+        Add the solar soft X-rays below 50 A to EUVAC (default True; ``flux = "euvac"`` only).
+    night_sources : bool
+        Add the scattered night-time sources (geocoronal Lyman alpha and beta, He I 584 A,
+        He II 304 A), default True.
     """
 
     flux: str = "euvac"
@@ -286,6 +295,8 @@ class Photons:
     secondary: bool = True
     lyman_alpha_photons_cm2_s: float | None = None
     extra_spectrum: Path | None = None
+    soft_xrays: bool = True
+    night_sources: bool = True
 
 
 @dataclass(frozen=True)
@@ -869,7 +880,7 @@ class _Validator:
     def temperatures(self, value) -> Temperatures:
         key = "temperatures"
         sec = self.table(value, key, ("electron", "ion", "table", "ion_drift_m_s",
-                                      "vibrational", "profile"))
+                                      "vibrational", "vibrational_coupling", "profile"))
         for name in ("electron", "ion"):
             if name not in sec:
                 raise self.fail(f"{key}.{name}", "is required ('table', 'neutral' or "
@@ -877,7 +888,13 @@ class _Validator:
         electron = self.choice(sec["electron"], f"{key}.electron", TEMPERATURE_SOURCES)
         ion = self.choice(sec["ion"], f"{key}.ion", TEMPERATURE_SOURCES)
         vibrational = self.choice(sec.get("vibrational", "neutral"), f"{key}.vibrational",
-                                  ("neutral", "table"))
+                                  ("neutral", "table", "electron"))
+        coupling = 0.5
+        if vibrational == "electron":
+            coupling = self.number(sec.get("vibrational_coupling", 0.5),
+                                   f"{key}.vibrational_coupling", low=0, high=1)
+        else:
+            self.inapplicable(sec, "vibrational_coupling", key, "vibrational is 'electron'")
         drift = self.number(sec.get("ion_drift_m_s", 0.0), f"{key}.ion_drift_m_s", low=0)
         table = None
         if "table" in (electron, ion, vibrational):
@@ -905,7 +922,8 @@ class _Validator:
                 scale_km=self.number(p.get("scale_km", d.scale_km), f"{pkey}.scale_km",
                                      low=0, low_open=True))
         return Temperatures(electron=electron, ion=ion, table=table, ion_drift_m_s=drift,
-                            vibrational=vibrational, profile=profile)
+                            vibrational=vibrational, vibrational_coupling=coupling,
+                            profile=profile)
 
     def production(self, value) -> Production:
         sec = self.table(value, "production", ("table",))
@@ -1024,7 +1042,8 @@ class _Validator:
     def photons(self, value) -> Photons:
         key = "photons"
         sec = self.table(value, key, ("flux", "spectrum", "extra_spectrum", "secondary",
-                                      "lyman_alpha_photons_cm2_s"))
+                                      "lyman_alpha_photons_cm2_s", "soft_xrays",
+                                      "night_sources"))
         flux = self.choice(sec.get("flux", "euvac"), f"{key}.flux", ("euvac", "table"))
         spectrum = None
         if flux == "table":
@@ -1044,8 +1063,15 @@ class _Validator:
         if "lyman_alpha_photons_cm2_s" in sec:
             lya = self.number(sec["lyman_alpha_photons_cm2_s"],
                               f"{key}.lyman_alpha_photons_cm2_s", low=0)
+        # Soft X-rays join EUVAC only; a user spectrum in 'table' mode holds all its bins.
+        soft_xrays = self.boolean(sec.get("soft_xrays", flux == "euvac"), f"{key}.soft_xrays")
+        if soft_xrays and flux != "euvac":
+            raise self.fail(f"{key}.soft_xrays", "applies only with flux = 'euvac' (a user "
+                            "spectrum in 'table' mode holds all its own bins)")
+        night = self.boolean(sec.get("night_sources", True), f"{key}.night_sources")
         return Photons(flux=flux, spectrum=spectrum, secondary=secondary,
-                       lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra)
+                       lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra,
+                       soft_xrays=soft_xrays, night_sources=night)
 
     def transport(self, value, *, grid: Grid, solve: Solve,
                   have_place_and_time: bool) -> Transport:

@@ -23,6 +23,9 @@ Grammar, lowest precedence first::
     atom    := NUMBER | VARIABLE | SOURCE | FUNC '(' expr (',' expr)* ')'
              | 'table' '(' STRING ',' STRING [',' '"extrapolate"'] ')' | '(' expr ')'
 
+Inside a family member (``level`` given), ``table()`` of a level-row table (one with a ``v``
+column, see :mod:`ionochem.mechanism.ratetables`) reads the rows of that level only.
+
 This module must not know about reactions or the atmosphere: it sees text, a file and line for
 messages, the folder table paths resolve against, and (for a family member) its level.
 """
@@ -408,7 +411,7 @@ class _Parser:
         if not name.strip():
             self.error("table() needs a file name", tok)
         table = load_rate_table(self.base_dir / name, column, file=self.file, line=self.line,
-                                name=name)
+                                name=name, level=self.level)
         self.tables.append(table)
         self.variables.add(table.variable)
         return ("table", table, extrapolate)

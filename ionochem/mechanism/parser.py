@@ -334,6 +334,9 @@ def _parse_side(text: str, side: str, level: int | None, ctx: _Context):
             count = int(m.group(1))
             term = m.group(2).strip()
         elif term[0].isdigit():
+            if "0" in term:
+                ctx.fail(f"'{term}' is not a species: it contains the digit zero (0); the "
+                         "oxygen atom is the letter O (e.g. 'O2')")
             ctx.fail(f"write the count and the species apart, e.g. '2 O', not '{term}'")
         if re.search(r"\s", term):
             if "+" in term:
@@ -527,9 +530,13 @@ class _Reader:
         shared: dict[str, CompiledExpr | None] = {}
         for name in ("k", "f"):
             if name in opts:
-                expr = _compile_raw(opts[name], ctx, None, name)
-                shared[name] = None if "v" in expr.variables else _validate(
-                    expr, ctx, None, name)
+                # Compiled at the first level to learn whether it depends on the level (uses
+                # v, or reads a level-row table); if not, one copy serves every level.
+                expr = _compile_raw(opts[name], ctx, a, name)
+                per_level = "v" in expr.variables or any(t.level is not None
+                                                         for t in expr.tables)
+                shared[name] = None if per_level else _validate(
+                    _compile_raw(opts[name], ctx, None, name), ctx, None, name)
         for level in range(a, b + 1):
             member = f"{plain}(v={level})"
             ids.append(member)

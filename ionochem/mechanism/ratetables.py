@@ -6,6 +6,13 @@ other row is the header, the first column is the temperature the rate depends on
 and positive; every other column is a rate coefficient (positive). A column ``<col>_low`` and
 ``<col>_high`` next to ``<col>`` give its uncertainty band.
 
+Level-row tables: a table may start with an integer column ``v`` (whole numbers >= 0) before
+the temperature. Its rows then belong to vibrational levels: a family member of level v reads
+only the rows of its own v (each level a k(T) of its own, with its own band), so one line of a
+reaction list gives a per-level rate. Such a table cannot be used outside a family, every level
+of the family must have at least two rows, the temperatures of a level must be strictly
+increasing and no (v, T) pair may appear twice.
+
 Values are interpolated linearly in log k versus log T. Outside the tabulated range the lookup
 fails with :class:`~ionochem.errors.TableRangeError` unless extrapolation was asked for, which
 continues the end segments in log-log.
@@ -37,7 +44,21 @@ _MAX_BYTES = 10_000_000
 # rounding is not refused *(common practice)*.
 _RTOL = 1e-9
 
-_CACHE: dict[tuple, RateTable] = {}
+_CACHE: dict[tuple, _Parsed] = {}
+
+
+@dataclass(frozen=True, eq=False)
+class _Parsed:
+    """A table column as read from its file (every level), before a level is chosen."""
+
+    path: Path
+    column: str
+    variable: str
+    temperature_K: np.ndarray
+    values: np.ndarray
+    low: np.ndarray | None
+    high: np.ndarray | None
+    levels: np.ndarray | None       # the v of each row, or None for a plain table
 
 
 @dataclass(frozen=True, eq=False)
@@ -60,6 +81,8 @@ class RateTable:
         Rate coefficients at those temperatures (units of the reaction's k).
     low, high : ndarray or None
         Uncertainty band columns ``<column>_low`` / ``<column>_high``, or None.
+    level : int or None
+        For a level-row table, the vibrational level whose rows these are; else None.
     """
 
     name: str
@@ -70,6 +93,7 @@ class RateTable:
     values: np.ndarray
     low: np.ndarray | None
     high: np.ndarray | None
+    level: int | None = None
 
     @property
     def has_bands(self) -> bool:
@@ -162,8 +186,8 @@ def _number(cell: str, what: str, row_line: int, name, file, line) -> float:
     return value
 
 
-def load_rate_table(path, column: str, *, file=None, line=None, name: str | None = None
-                    ) -> RateTable:
+def load_rate_table(path, column: str, *, file=None, line=None, name: str | None = None,
+                    level: int | None = None) -> RateTable:
     """Load one column of a rate table (cached per file and column).
 
     Parameters
@@ -176,6 +200,10 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
         The referring reaction (every error is reported there).
     name : str, optional
         The table's name as written in the reaction list (defaults to ``path``).
+    level : int, optional
+        The family level of the referring reaction (None outside a family). A level-row
+        table (one with a ``v`` column) returns the rows of this level; a plain table
+        ignores it.
 
     Returns
     -------
@@ -185,7 +213,9 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
     ------
     ReactionListError
         Missing or unreadable file, not UTF-8, bad header, missing column, a value that is not
-        a positive number, temperatures not strictly increasing.
+        a positive number, temperatures not strictly increasing; for a level-row table also a
+        ``v`` that is not a whole number >= 0, a repeated (v, T) row, use outside a family
+        (``level`` None) and a level with no rows.
     """
     path = Path(path)
     name = str(path) if name is None else name
@@ -194,13 +224,41 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
     except OSError:
         _fail(name, f"file not found (looked for {path})", file, line)
     key = (str(path.resolve()), column, st.st_mtime_ns, st.st_size)
-    cached = _CACHE.get(key)
-    if cached is not None:
-        if cached.name == name:
-            return cached
-        return RateTable(name, *[getattr(cached, f) for f in
-                                 ("path", "column", "variable", "temperature_K", "values",
-                                  "low", "high")])
+    parsed = _CACHE.get(key)
+    if parsed is None:
+        parsed = _parse(path, column, st, name, file, line)
+        _CACHE[key] = parsed
+    return _select(parsed, name, level, file, line)
+
+
+def _select(p: _Parsed, name, level, file, line) -> RateTable:
+    """The RateTable of one level (or the whole plain table)."""
+    if p.levels is None:
+        return RateTable(name, p.path, p.column, p.variable, p.temperature_K, p.values,
+                         p.low, p.high)
+    present = sorted({int(x) for x in p.levels})
+    if level is None:
+        _fail(name, "has a 'v' column (rows per vibrational level), so it can only be used "
+                    "in a family entry (one with 'levels v = A..B'), where each level reads "
+                    "its own rows", file, line)
+    rows = p.levels == int(level)
+    if not rows.any():
+        _fail(name, f"no rows for level v = {int(level)} (the table has v = "
+                    f"{', '.join(str(x) for x in present)})", file, line)
+    if rows.sum() < 2:
+        _fail(name, f"level v = {int(level)} needs at least two rows of values", file, line)
+
+    def pick(a):
+        if a is None:
+            return None
+        out = a[rows].copy()
+        out.setflags(write=False)
+        return out
+    return RateTable(name, p.path, p.column, p.variable, pick(p.temperature_K),
+                     pick(p.values), pick(p.low), pick(p.high), int(level))
+
+
+def _parse(path: Path, column, st, name, file, line) -> _Parsed:
     if not path.is_file():
         _fail(name, f"not a file ({path})", file, line)
     if st.st_size > _MAX_BYTES:
@@ -231,29 +289,47 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
     if not rows:
         _fail(name, "no header row", file, line)
     header_line, header = rows[0]
-    m = _TEMP_HEADER.fullmatch(header[0])
-    if not m:
-        _fail(name, f"the first column must be the temperature (Te, Ti, Tn or Teff, "
-                    f"optionally with _K), found '{header[0]}'", file, line)
-    variable = m.group(1)
     if len(set(header)) != len(header):
         _fail(name, "repeated column name in the header", file, line)
-    if column == header[0]:
+    has_v = header[0] == "v"
+    if "v" in header[1:]:
+        _fail(name, "the level column 'v' must be the first column (v, then the "
+                    "temperature)", file, line)
+    t_col = 1 if has_v else 0
+    if len(header) <= t_col:
+        _fail(name, "the header has no temperature column after 'v'", file, line)
+    m = _TEMP_HEADER.fullmatch(header[t_col])
+    if not m:
+        where = "the column after 'v'" if has_v else "the first column"
+        _fail(name, f"{where} must be the temperature (Te, Ti, Tn or Teff, "
+                    f"optionally with _K), found '{header[t_col]}'", file, line)
+    variable = m.group(1)
+    if column == header[t_col]:
         _fail(name, f"column '{column}' is the temperature column", file, line)
+    if has_v and column == "v":
+        _fail(name, "column 'v' is the level column", file, line)
     if column not in header:
-        _fail(name, f"no column '{column}' (columns: {', '.join(header[1:])})", file, line)
+        _fail(name, f"no column '{column}' (columns: "
+                    f"{', '.join(header[t_col + 1:])})", file, line)
     idx = header.index(column)
     lo_name, hi_name = f"{column}_low", f"{column}_high"
     has_lo, has_hi = lo_name in header, hi_name in header
     if has_lo != has_hi:
         _fail(name, f"column '{lo_name if has_lo else hi_name}' needs its partner "
                     f"'{hi_name if has_lo else lo_name}'", file, line)
-    cols = [0, idx] + ([header.index(lo_name), header.index(hi_name)] if has_lo else [])
+    cols = [t_col, idx] + ([header.index(lo_name), header.index(hi_name)] if has_lo else [])
     table = []
+    levels = []
     for row_line, cells in rows[1:]:
         if len(cells) != len(header):
             _fail(name, f"line {row_line} has {len(cells)} values, the header has "
                         f"{len(header)}", file, line)
+        if has_v:
+            cell = cells[0]
+            if not re.fullmatch(r"\+?\d{1,3}", cell):
+                _fail(name, f"line {row_line}: level v '{cell}' is not a whole number "
+                            "from 0 to 999", file, line)
+            levels.append(int(cell))
         vals = [_number(cells[c], header[c], row_line, name, file, line) for c in cols]
         if vals[0] <= 0:
             _fail(name, f"line {row_line}: temperature {vals[0]:g} K is not positive",
@@ -267,11 +343,25 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
         _fail(name, "needs at least two rows of values", file, line)
     arr = np.array(table, dtype=float)
     T = arr[:, 0]
-    steps = np.diff(T)
-    if (steps <= 0).any():
-        i = int(np.argmax(steps <= 0)) + 1
-        _fail(name, f"temperatures must be strictly increasing ({header[0]} = {T[i]:g} "
-                    f"after {T[i - 1]:g}, line {rows[1 + i][0]})", file, line)
+    row_lines = [r[0] for r in rows[1:]]
+    lv = np.array(levels, dtype=int) if has_v else np.zeros(len(T), dtype=int)
+    if has_v:
+        seen: dict[tuple[int, float], int] = {}
+        for i, (v, t) in enumerate(zip(lv, T, strict=True)):
+            first = seen.setdefault((int(v), float(t)), row_lines[i])
+            if first != row_lines[i]:
+                _fail(name, f"duplicate row for v = {int(v)}, {header[t_col]} = {t:g} "
+                            f"(lines {first} and {row_lines[i]})", file, line)
+    for v in np.unique(lv):
+        idx_v = np.nonzero(lv == v)[0]
+        steps = np.diff(T[idx_v])
+        if (steps <= 0).any():
+            i = idx_v[int(np.argmax(steps <= 0)) + 1]
+            j = idx_v[int(np.argmax(steps <= 0))]
+            within = f" within level v = {int(v)}" if has_v else ""
+            _fail(name, f"temperatures must be strictly increasing{within} "
+                        f"({header[t_col]} = {T[i]:g} after {T[j]:g}, line {row_lines[i]})",
+                  file, line)
     values = arr[:, 1]
     low = high = None
     if has_lo:
@@ -279,11 +369,9 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
         wrong = (low > values) | (high < values)
         if wrong.any():
             i = int(np.argmax(wrong))
-            _fail(name, f"line {rows[1 + i][0]}: the band {lo_name} .. {hi_name} must "
+            _fail(name, f"line {row_lines[i]}: the band {lo_name} .. {hi_name} must "
                         f"contain {column}", file, line)
     for a in (T, values, low, high):
         if a is not None:
             a.setflags(write=False)
-    result = RateTable(name, path, column, variable, T, values, low, high)
-    _CACHE[key] = result
-    return result
+    return _Parsed(path, column, variable, T, values, low, high, lv if has_v else None)

@@ -8,13 +8,18 @@ rendered to memory and written atomically.
 from __future__ import annotations
 
 import io
+import re
 from pathlib import Path
 
 import numpy as np
 
+from ionochem.errors import InputError
 from ionochem.io.netcdf import atomic_write_bytes
+from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
+from ionochem.plot.legend import legend_figure_right, legend_right
 
-# The project's palette (its own choice; colour-blind-distinguishable hues).
+# The project's palette (its own choice; colour-blind-distinguishable hues). The two O+
+# metastables differ in both colour and dash so that they can be told apart in print.
 STYLE = {
     "O+(total)": dict(color="#1b7f5b", lw=2.4, ls="-"),
     "O+": dict(color="#1b7f5b", lw=2.4, ls="-"),
@@ -22,11 +27,41 @@ STYLE = {
     "NO+": dict(color="#2c5aa0", lw=2.0, ls="-"),
     "N2+": dict(color="#d68910", lw=2.0, ls="-"),
     "N+": dict(color="#7d3c98", lw=1.6, ls="-."),
-    "O+(2D)": dict(color="#48c9b0", lw=1.2, ls=":"),
-    "O+(2P)": dict(color="#76d7c4", lw=1.2, ls=(0, (1, 2))),
+    "O+(2D)": dict(color="#0097a7", lw=1.5, ls=(0, (1, 1.5))),
+    "O+(2P)": dict(color="#d81b60", lw=1.5, ls=(0, (6, 2))),
     "N(2D)": dict(color="#8d6e63", lw=1.2, ls=(0, (5, 2, 1, 2))),
-    "e": dict(color="black", lw=1.8, ls="--"),
+    # Electrons on top of the ion they equal (NO+ after sunset, O+ high up).
+    "e": dict(color="black", lw=1.8, ls="--", zorder=3),
 }
+# Colours for species outside the palette, chosen apart from its hues.
+EXTRA_COLOURS = ("#6b8e23", "#5d6d7e", "#b7950b", "#a04000", "#117a65", "#884ea0")
+# Shade of a vibrational level against its family's colour: v = 0 darker, higher levels
+# lighter (negative: towards black, positive: towards white).
+_LEVEL_SHADE = (-0.45, 0.3, 0.5, 0.65, 0.78)
+
+
+def style_of(name, others=()):
+    """Line style of a species: the palette's, a level's shade of its family's colour, or
+    the next of :data:`EXTRA_COLOURS` (``others``: the names drawn before it).
+
+    Returns
+    -------
+    dict
+        Matplotlib line properties (``color``, ``lw`` and, for palette species, ``ls``).
+    """
+    from matplotlib.colors import to_rgb
+    if name in STYLE:
+        return dict(STYLE[name])
+    m = re.fullmatch(r"(.+)\(v=(\d+)\)", str(name))
+    if m and m.group(1) in STYLE:
+        rgb = np.array(to_rgb(STYLE[m.group(1)]["color"]))
+        t = _LEVEL_SHADE[min(int(m.group(2)), len(_LEVEL_SHADE) - 1)]
+        rgb = rgb * (1 + t) if t < 0 else rgb + (1 - rgb) * t
+        return dict(color=tuple(float(c) for c in rgb), lw=1.3)
+    unknown = [o for o in others if o not in STYLE and not re.fullmatch(r".+\(v=\d+\)", o)]
+    return dict(color=EXTRA_COLOURS[len(unknown) % len(EXTRA_COLOURS)], lw=1.2)
+
+
 PROFILE_SPECIES = ("e", "O+(total)", "O2+", "NO+", "N2+", "N+", "O+(2D)", "O+(2P)")
 
 
@@ -64,63 +99,217 @@ def _figure_bytes(fig, path):
     return buf.getvalue()
 
 
-def plot_profiles(ds, path, *, species=None, title=None):
-    """Densities against altitude on a log density axis (steady results)."""
+def save_figure(fig, path):
+    """Render ``fig`` in the format of the suffix of ``path``, close it, write atomically.
+
+    Returns
+    -------
+    Path
+    """
+    import matplotlib.pyplot as plt
+    try:
+        data = _figure_bytes(fig, path)
+    finally:
+        plt.close(fig)
+    atomic_write_bytes(path, data)
+    return Path(path)
+
+
+def profiles_figure(ds, *, species=None, title=None):
+    """Densities against altitude on a log density axis (steady results).
+
+    Levels where a drawn species is not in photochemical equilibrium (``pce_doubtful``) are
+    shaded and its curve is faded there (:mod:`ionochem.plot.equilibrium`); the legend sits
+    right of the axes, clear of the curves.
+    """
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
     names = species or _species_to_draw(ds)
     alt = ds["altitude"].values
     fig, ax = plt.subplots(figsize=(6.4, 6.0))
+    masks = {s: doubtful_mask(ds, s) for s in names}
     for s in names:
         n = ds["density"].sel(species=s).values
-        shown = np.where(n > 0, n, np.nan)
-        ax.plot(shown, alt, label=s, **STYLE.get(s, dict(lw=1.0)))
+        plot_marked(ax, np.where(n > 0, n, np.nan), alt, masks[s], label=s,
+                    **style_of(s, names[:names.index(s)]))
     style_density_axes(ax, alt, [ds["density"].sel(species=s).values for s in names])
-    ax.legend(loc="best", fontsize=9, framealpha=0.9)
+    handles, labels = ax.get_legend_handles_labels()
+    shade = shade_doubtful(ax, alt, masks)
+    if shade is not None:
+        handles.append(shade)
+        labels.append(shade.get_label())
+    legend_right(ax, handles, labels)
     sza = ds.get("solar_zenith_angle")
     subtitle = ""
     if sza is not None and sza.ndim == 0 and np.isfinite(sza.item()):
         subtitle = f"\nsolar zenith angle {sza.item():.1f}°, photochemical equilibrium"
     ax.set_title((title or ds.attrs.get("title", "")) + subtitle, fontsize=10)
-    data = _figure_bytes(fig, path)
-    plt.close(fig)
-    atomic_write_bytes(path, data)
-    return Path(path)
+    return fig
 
 
-def plot_time_series(ds, path, *, altitudes_km=(120.0, 200.0, 300.0), species=None,
+def plot_profiles(ds, path, *, species=None, title=None):
+    """Write :func:`profiles_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
+
+    Returns
+    -------
+    Path
+    """
+    return save_figure(profiles_figure(ds, species=species, title=title), path)
+
+
+def chosen_altitudes(ds, altitudes_km):
+    """Grid levels nearest to the requested altitudes (km), sorted, without repeats.
+
+    Raises
+    ------
+    InputError
+        An altitude outside the grid (by more than one level spacing), or none given.
+    """
+    alt = np.asarray(ds["altitude"].values, float)
+    wanted = np.atleast_1d(np.asarray(altitudes_km, float))
+    if wanted.size == 0:
+        raise InputError("give at least one altitude to plot", file="--altitudes")
+    step = float(np.max(np.diff(alt))) if alt.size > 1 else 0.0
+    outside = wanted[(wanted < alt.min() - step) | (wanted > alt.max() + step)
+                     | ~np.isfinite(wanted)]
+    if outside.size:
+        raise InputError(f"altitude {outside[0]:g} km is outside the grid "
+                         f"({alt.min():g}-{alt.max():g} km)", file="--altitudes")
+    return sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in wanted})
+
+
+def time_series_figure(ds, *, altitudes_km=(120.0, 200.0, 300.0), species=None,
                      title=None):
-    """Densities against time at a few altitudes (transient results), one panel each."""
+    """Densities against time at chosen altitudes (transient results), one panel each.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A transient result (``density`` (time, species, altitude)).
+    path : str or Path
+        Output figure (PNG, PDF or SVG, from the suffix).
+    altitudes_km : sequence of float
+        One panel per altitude, at the nearest grid level.
+    species : sequence of str, optional
+    title : str, optional
+
+    Notes
+    -----
+    The bottom axis is hours since the scenario time; the top axis gives the local mean solar
+    time (UT + longitude/15 h, *common practice*) and the solar zenith angle at the ticks,
+    when the dataset carries them. A dotted line marks sunset at the panel's altitude: the
+    time the zenith angle passes 90° + arccos(R/(R + z)), where the straight ray to the Sun
+    grazes the solid Earth (the model's own darkness rule, :mod:`ionochem.environment.slant`).
+    """
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
     names = species or _species_to_draw(ds)
-    alt = ds["altitude"].values
-    chosen = sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in altitudes_km})
-    fig, axes = plt.subplots(1, len(chosen), figsize=(4.2 * len(chosen), 4.6), sharey=True,
-                             squeeze=False)
-    t_h = ds["time"].values / 3600.0
-    for ax, a in zip(axes[0], chosen):
+    chosen = chosen_altitudes(ds, altitudes_km)
+    fig, axes = plt.subplots(1, len(chosen), figsize=(3.9 * len(chosen) + 0.6, 4.8),
+                             sharey=True, squeeze=False, layout="constrained")
+    t_h, local_h = _time_hours(ds)
+    sza = ds["solar_zenith_angle"].values if "solar_zenith_angle" in ds else None
+    for ax, a in zip(axes[0], chosen, strict=True):
+        top = 0.0
         for s in names:
             n = ds["density"].sel(species=s, altitude=a).values
-            ax.plot(t_h, np.where(n > 0, n, np.nan), label=s, **STYLE.get(s, dict(lw=1.0)))
+            ax.plot(t_h, np.where(n > 0, n, np.nan), label=s,
+                    **style_of(s, names[:names.index(s)]))
+            top = max(top, float(np.nanmax(n)))
         ax.set_yscale("log")
-        top = max(float(np.nanmax(ds["density"].sel(species=s, altitude=a).values))
-                  for s in names)
         if top > 0:
             # Densities decay without bound after sunset; show six decades below the top.
             ax.set_ylim(max(1e-2, top * 1e-6), top * 3)
-        ax.set_xlabel("time since start (h)")
+        ax.set_xlim(t_h.min(), t_h.max())
+        ax.set_xlabel("time since the scenario time (h)")
         ax.set_title(f"{a:g} km", fontsize=10)
         ax.grid(True, alpha=0.3)
+        if sza is not None:
+            _mark_sunset(ax, t_h, sza, a)
+        if local_h is not None:
+            _top_time_axis(ax, t_h, local_h, sza)
     axes[0][0].set_ylabel("number density (cm$^{-3}$)")
-    axes[0][-1].legend(loc="best", fontsize=8)
+    handles, labels = axes[0][0].get_legend_handles_labels()
+    if sza is not None:
+        from matplotlib.lines import Line2D
+        handles.append(Line2D([], [], color="0.35", ls=":", lw=1.2))
+        labels.append("geometric sunset at that\naltitude (solid Earth's shadow;\n"
+                      "EUV fades earlier, absorbed\nalong the grazing path)")
+    legend_figure_right(fig, handles, labels)
     fig.suptitle(title or ds.attrs.get("title", ""), fontsize=11)
-    data = _figure_bytes(fig, path)
-    plt.close(fig)
-    atomic_write_bytes(path, data)
-    return Path(path)
+    return fig
+
+
+def plot_time_series(ds, path, *, altitudes_km=(120.0, 200.0, 300.0), species=None,
+                     title=None):
+    """Write :func:`time_series_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
+
+    Returns
+    -------
+    Path
+    """
+    fig = time_series_figure(ds, altitudes_km=altitudes_km, species=species, title=title)
+    return save_figure(fig, path)
+
+
+def _time_hours(ds):
+    """Hours since the scenario time (time,) and local mean solar time in hours (or None).
+
+    Accepts a time coordinate in seconds (bare, or CF "seconds since ...") or decoded
+    datetimes.
+    """
+    t = ds["time"].values
+    start = ds.attrs.get("time_utc")
+    units = str(ds["time"].attrs.get("units", ""))
+    if np.issubdtype(t.dtype, np.datetime64):
+        ref = np.datetime64(start.replace("+00:00", "")) if start else t[0]
+        seconds = (t - ref) / np.timedelta64(1, "s")
+    else:
+        seconds = np.asarray(t, float)
+        if " since " in units:
+            start = units.split(" since ", 1)[1].strip()
+    hours = seconds / 3600.0
+    lon = ds.attrs.get("longitude_deg")
+    if start is None or lon is None:
+        return hours, None
+    ref = np.datetime64(str(start).replace("+00:00", "").replace("Z", "").strip())
+    ut0 = (ref - ref.astype("datetime64[D]")) / np.timedelta64(1, "s") / 3600.0
+    return hours, ut0 + hours + float(lon) / 15.0
+
+
+def _top_time_axis(ax, t_h, local_h, sza):
+    """Local time (and zenith angle) at the bottom axis's ticks, on a top axis."""
+    from matplotlib.ticker import FixedLocator, FuncFormatter
+    offset = float(local_h[0] - t_h[0])
+    top = ax.secondary_xaxis("top", functions=(lambda x: x + offset, lambda x: x - offset))
+    ticks = [x for x in ax.get_xticks() if t_h.min() - 1e-9 <= x <= t_h.max() + 1e-9]
+    top.xaxis.set_major_locator(FixedLocator([x + offset for x in ticks]))
+
+    def fmt(v, _pos):
+        m = int(round((v % 24.0) * 60.0)) % (24 * 60)
+        text = f"{m // 60:02d}:{m % 60:02d}"
+        if sza is not None:
+            text += f"\n{np.interp(v - offset, t_h, sza):.0f}°"
+        return text
+
+    top.xaxis.set_major_formatter(FuncFormatter(fmt))
+    top.tick_params(labelsize=8)
+    top.set_xlabel("local solar time" + (", solar zenith angle" if sza is not None else ""),
+                   fontsize=9)
+
+
+def _mark_sunset(ax, t_h, sza, altitude_km):
+    """Dotted line where the zenith angle passes the shadow limit of the altitude."""
+    from ionochem.environment.slant import EARTH_RADIUS_KM
+    limit = 90.0 + np.degrees(np.arccos(EARTH_RADIUS_KM / (EARTH_RADIUS_KM + altitude_km)))
+    above = np.asarray(sza, float) > limit
+    cross = np.flatnonzero(~above[:-1] & above[1:])
+    for i in cross:
+        frac = (limit - sza[i]) / (sza[i + 1] - sza[i])
+        ax.axvline(t_h[i] + frac * (t_h[i + 1] - t_h[i]), color="0.35", ls=":", lw=1.2,
+                   zorder=1)
 
 
 def plot_result(ds, path, **kw):

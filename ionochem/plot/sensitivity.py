@@ -1,23 +1,28 @@
 """Figures of normalized sensitivities: a heat map over altitude and a bar chart.
 
-One row of panels per species: on the left, S = ∂ln n/∂ln k of its top N reactions (and Te)
+One row of panels per species: on the left, S = ∂ln n/∂ln k of its top N reactions (and
+∂ln n/∂ln x of the environment factors x ranked beside them: Te, EUV, neutral densities…)
 against altitude on a diverging colour map centred at zero (red raises the density, blue
-lowers it); on the right, the same reactions as bars: the value of S where |S| is largest
-(filled) and the altitude-mean |S| (outlined). The ranking comes from
-:mod:`ionochem.analysis.rank`; nothing here computes chemistry. Figures are rendered to
-memory and written atomically.
+lowers it), with the levels left out of the ranking (the species below ``min_share`` of its
+peak) hatched; on the right, the same rows as bars named by reaction: the value of S where
+|S| is largest (filled, labelled with that altitude) and the altitude-mean |S| (outlined).
+The ranking comes from :mod:`ionochem.analysis.rank`; nothing here computes chemistry.
+Figures are rendered to memory and written atomically.
 """
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 
-from ionochem.analysis.rank import default_species, rank_reactions, sensitivity_matrix
+from ionochem.analysis.rank import (
+    DEFAULT_MIN_SHARE,
+    default_species,
+    rank_reactions,
+    sensitivity_matrix,
+    where_it_matters,
+)
 from ionochem.errors import InputError
-from ionochem.io.netcdf import atomic_write_bytes
-from ionochem.plot.profiles import STYLE, _figure_bytes
+from ionochem.plot.profiles import save_figure, style_of
 
 #: Diverging map (matplotlib's ``RdBu_r``): positive S red, negative blue, zero white.
 CMAP = "RdBu_r"
@@ -25,27 +30,31 @@ POSITIVE = "#b2182b"
 NEGATIVE = "#2166ac"
 
 
-def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10,
-                     title=None):
-    """Heat map and bar chart of the top ``top`` reactions of each species.
+def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
+                       title=None, by="max", min_share=DEFAULT_MIN_SHARE):
+    """Heat map and bar chart of the top ``top`` reactions (and environment factors) of each
+    species, ranked as :func:`ionochem.analysis.rank.rank_reactions` ranks them.
 
     Parameters
     ----------
     sens_ds : xarray.Dataset
         ``sensitivity`` (species, reaction, altitude) and ``sensitivity_Te``.
-    path : str or Path
-        Output figure (PNG, PDF or SVG, from the suffix).
     species : sequence of str, optional
         One row of panels each; default the main ions present.
     altitude_range : (float, float), optional
         km; default the whole grid.
     top : int
-        Reactions shown per species (ranked by the largest |S|).
+        Rows shown per species.
     title : str, optional
+    by : {"max", "mean"}
+        Order by the largest |S| or by the altitude-mean |S|.
+    min_share : float
+        Rank over the levels where the species is at least this share of its peak density;
+        the other levels are hatched on the heat map.
 
     Returns
     -------
-    Path
+    matplotlib.figure.Figure
     """
     import matplotlib
     matplotlib.use("Agg")
@@ -55,7 +64,7 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
     species = list(species) if species else default_species(sens_ds["species"].values)
     panels = []
     for s in species:
-        rows = rank_reactions(sens_ds, s, altitude_range, top)
+        rows = rank_reactions(sens_ds, s, altitude_range, top, by=by, min_share=min_share)
         if rows:
             panels.append((s, rows))
     if not panels:
@@ -65,8 +74,10 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
     fig, axes = plt.subplots(len(panels), 2, figsize=(12.0, height * len(panels)),
                              squeeze=False, gridspec_kw={"width_ratios": [2.2, 1.0]},
                              layout="constrained")
+    hatched = False
     for (s, rows), (ax_h, ax_b) in zip(panels, axes, strict=True):
         ids, _, S, alt = sensitivity_matrix(sens_ds, s, altitude_range)
+        matters = where_it_matters(sens_ds, s, altitude_range, min_share)
         pick = [ids.index(r.reaction) for r in rows]
         M = S[pick]                                        # (top, level)
         lim = np.nanmax(np.abs(M)) if np.isfinite(M).any() else 1.0
@@ -78,10 +89,18 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
         ax_h.set_yticklabels([r.reaction for r in rows], fontsize=8)
         ax_h.invert_yaxis()
         ax_h.set_xlabel("altitude (km)")
-        colour = STYLE.get(s, {}).get("color", "black")
-        ax_h.set_title(f"{s}: S = ∂ln n/∂ln k (top {len(rows)} by largest |S|)",
+        colour = style_of(s)["color"]
+        edges_alt = np.asarray(edges)
+        for i in np.flatnonzero(~matters):
+            ax_h.axvspan(edges_alt[i], edges_alt[i + 1], facecolor="none", edgecolor="0.55",
+                         hatch="////", lw=0)
+            hatched = True
+        measure = "largest |S|" if by == "max" else "altitude-mean |S|"
+        ax_h.set_title(f"{s}: top {len(rows)} reactions and environment factors by {measure}",
                        fontsize=10, color=colour)
-        fig.colorbar(mesh, ax=ax_h, pad=0.01, label="S")
+        fig.colorbar(mesh, ax=ax_h, pad=0.01,
+                     label="normalized sensitivity\nS = ∂ln n / ∂ln k (reaction),\n"
+                           "∂ln n / ∂ln x (environment x)")
         y = np.arange(len(rows))
         signed = np.array([r.signed_at_max for r in rows])
         mean = np.array([r.mean_abs for r in rows])
@@ -89,23 +108,47 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
                   color=np.where(signed >= 0, POSITIVE, NEGATIVE), alpha=0.85)
         ax_b.barh(y, mean, height=0.6, fill=False, edgecolor="0.2", lw=1.0)
         ax_b.set_yticks(y)
-        ax_b.set_yticklabels([f"{r.altitude_km:g} km" for r in rows], fontsize=8)
+        ax_b.set_yticklabels([r.reaction for r in rows], fontsize=8)
         ax_b.invert_yaxis()
         ax_b.axvline(0.0, color="0.4", lw=0.8)
-        ax_b.set_xlabel("S at the largest |S|; outline: mean |S|")
+        # The altitude of the largest |S| beside each bar, outside its end.
+        reach = float(np.max(np.abs(np.concatenate([signed, mean])))) or 1.0
+        ax_b.set_xlim(min(-0.05, signed.min()) - 0.65 * reach,
+                      max(0.05, signed.max(), mean.max()) + 0.65 * reach)
+        for yi, r, v, m in zip(y, rows, signed, mean, strict=True):
+            end = max(v, m) if v >= 0 else v
+            ax_b.text(end + (0.03 if v >= 0 else -0.03) * reach, yi,
+                      f"{r.altitude_km:g} km", va="center", fontsize=7, color="0.25",
+                      ha="left" if v >= 0 else "right")
+        ax_b.set_xlabel("S where |S| is largest (at the altitude written)\n"
+                        "outline: altitude-mean |S|")
         ax_b.grid(True, axis="x", alpha=0.3)
-    fig.legend(handles=[Patch(color=POSITIVE, label="S > 0 (raises the density)"),
-                        Patch(color=NEGATIVE, label="S < 0 (lowers it)"),
-                        Patch(fill=False, edgecolor="0.2", label="altitude-mean |S|")],
-               fontsize=8, loc="outside lower center", ncol=3)
+    handles = [Patch(color=POSITIVE, label="S > 0 (raises the density)"),
+               Patch(color=NEGATIVE, label="S < 0 (lowers it)"),
+               Patch(fill=False, edgecolor="0.2", label="altitude-mean |S|")]
+    if hatched:
+        handles.append(Patch(facecolor="none", edgecolor="0.55", hatch="////",
+                             label=f"not ranked: species below {100 * min_share:g} % of its "
+                                   "peak"))
+    fig.legend(handles=handles, fontsize=8, loc="outside lower center", ncol=len(handles))
     alt_all = sens_ds["altitude"].values
     lo, hi = altitude_range if altitude_range is not None else (alt_all.min(), alt_all.max())
     fig.suptitle((title or sens_ds.attrs.get("title", ""))
                  + f"\nnormalized sensitivities, {lo:g}-{hi:g} km", fontsize=11)
-    data = _figure_bytes(fig, path)
-    plt.close(fig)
-    atomic_write_bytes(path, data)
-    return Path(path)
+    return fig
+
+
+def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10,
+                     title=None, by="max", min_share=DEFAULT_MIN_SHARE):
+    """Write :func:`sensitivity_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
+
+    Returns
+    -------
+    Path
+    """
+    fig = sensitivity_figure(sens_ds, species=species, altitude_range=altitude_range, top=top,
+                             title=title, by=by, min_share=min_share)
+    return save_figure(fig, path)
 
 
 def _edges(alt):

@@ -1,7 +1,7 @@
 """Figures of an uncertainty result: Monte Carlo bands, Sobol indices, Morris screening.
 
 Monte Carlo: the median profile of each main species with its 68 % (16–84 %) band shaded
-darker and its 90 % (5–95 %) band lighter, in the project's colours
+darker and its 90 % (5–95 %) band lighter with thin edges, in the project's colours
 (:data:`ionochem.plot.profiles.STYLE`). Sobol and Morris: one panel per species, the index
 of each factor against altitude. Figures are rendered to memory and written atomically;
 nothing here computes chemistry.
@@ -9,14 +9,21 @@ nothing here computes chemistry.
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 
-from ionochem.io.netcdf import atomic_write_bytes
-from ionochem.plot.profiles import STYLE, _figure_bytes, _species_to_draw, style_density_axes
+from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
+from ionochem.plot.legend import legend_figure_right, legend_right
+from ionochem.plot.profiles import (
+    _species_to_draw,
+    save_figure,
+    style_density_axes,
+    style_of,
+)
 
-BAND_ALPHA = {0.90: 0.15, 0.68: 0.32}
+#: Fill opacity of each band (the inner band is drawn over the outer one) and the width of the
+#: 90 % band's edge lines (the project's choice).
+BAND_ALPHA = {0.90: 0.2, 0.68: 0.35}
+EDGE_WIDTH = 0.7
 
 
 def plot_uncertainty(ds, path, *, species=None, title=None):
@@ -33,16 +40,23 @@ def _pyplot():
     return plt
 
 
-def plot_bands(ds, path, *, species=None, title=None):
-    """Median densities against altitude with shaded 68 % and 90 % Monte Carlo bands."""
+def bands_figure(ds, *, species=None, title=None):
+    """Median densities against altitude with shaded 68 % and 90 % Monte Carlo bands.
+
+    The 90 % band is a light fill with thin edges at the 5 % and 95 % quantiles, so that it
+    stays visible where bands of several species overlap; levels where the central solution
+    is not in photochemical equilibrium are shaded (:mod:`ionochem.plot.equilibrium`).
+    """
+    from matplotlib.patches import Patch
     plt = _pyplot()
     names = species or [s for s in _species_to_draw(ds) if s not in ("O+(2D)", "O+(2P)")]
     alt = ds["altitude"].values
     q = ds["density_quantiles"]
     fig, ax = plt.subplots(figsize=(6.4, 6.0))
+    masks = {s: doubtful_mask(ds, s) for s in names}
     shown_vals = []
     for s in names:
-        style = STYLE.get(s, dict(lw=1.0))
+        style = style_of(s, names[:names.index(s)])
         colour = style.get("color", "grey")
 
         def quant(p, s=s):
@@ -52,24 +66,40 @@ def plot_bands(ds, path, *, species=None, title=None):
         for (lo, hi), width in (((0.05, 0.95), 0.90), ((0.16, 0.84), 0.68)):
             ax.fill_betweenx(alt, quant(lo), quant(hi), color=colour, alpha=BAND_ALPHA[width],
                              lw=0)
-        med = quant(0.5)
-        ax.plot(med, alt, label=s, **style)
+        for p in (0.05, 0.95):
+            ax.plot(quant(p), alt, color=colour, lw=EDGE_WIDTH, alpha=0.9)
+        plot_marked(ax, quant(0.5), alt, masks[s], label=s, **style)
         shown_vals.append(quant(0.05))
         shown_vals.append(quant(0.95))
     style_density_axes(ax, alt, shown_vals)
-    ax.legend(loc="best", fontsize=9, framealpha=0.9,
-              title="median; 68 % and 90 % bands", title_fontsize=8)
+    handles, labels = ax.get_legend_handles_labels()
+    handles += [Patch(facecolor="0.3", alpha=BAND_ALPHA[0.68] + BAND_ALPHA[0.90], lw=0),
+                Patch(facecolor=(0.3, 0.3, 0.3, BAND_ALPHA[0.90]), edgecolor="0.3",
+                      lw=EDGE_WIDTH)]
+    labels += ["68 % band (16-84 %)", "90 % band (5-95 %)"]
+    shade = shade_doubtful(ax, alt, masks)
+    if shade is not None:
+        handles.append(shade)
+        labels.append(shade.get_label())
+    legend_right(ax, handles, labels, title="median of the samples", title_fontsize=8)
     sub = f"\nMonte Carlo over rate uncertainties, {ds.attrs.get('samples', '?')} samples"
     if ds.attrs.get("environment_spreads"):
         sub += f" (environment {ds.attrs['environment_spreads']})"
     ax.set_title((title or ds.attrs.get("title", "")) + sub, fontsize=10)
-    data = _figure_bytes(fig, path)
-    plt.close(fig)
-    atomic_write_bytes(path, data)
-    return Path(path)
+    return fig
 
 
-def plot_global(ds, path, *, species=None, title=None):
+def plot_bands(ds, path, *, species=None, title=None):
+    """Write :func:`bands_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
+
+    Returns
+    -------
+    Path
+    """
+    return save_figure(bands_figure(ds, species=species, title=title), path)
+
+
+def global_figure(ds, *, species=None, title=None):
     """Sobol total indices (first-order dashed) or Morris μ* against altitude, per species."""
     plt = _pyplot()
     method = ds.attrs.get("method")
@@ -90,7 +120,7 @@ def plot_global(ds, path, *, species=None, title=None):
             if method == "sobol":
                 ax.plot(ds["S1"].sel(species=s, factor=name).values, alt, ls="--",
                         color=colour, lw=0.9)
-        ax.set_title(s, fontsize=10, color=STYLE.get(s, {}).get("color", "black"))
+        ax.set_title(s, fontsize=10, color=style_of(s)["color"])
         if method == "sobol":
             vals = ds[["S1", "ST"]].sel(species=s).to_array().values
             vals = vals[np.isfinite(vals)]
@@ -102,12 +132,20 @@ def plot_global(ds, path, *, species=None, title=None):
         ax.set_visible(False)
     for ax in axes[:, 0]:
         ax.set_ylabel("altitude (km)")
-    axes.flat[0].legend(loc="best", fontsize=7)
+    handles, labels = axes.flat[0].get_legend_handles_labels()
+    legend_figure_right(fig, handles, labels, fontsize=7)
     fig.supxlabel("total (solid) and first-order (dashed) Sobol index of ln n"
                   if method == "sobol" else "Morris μ* of ln n per unit ε", fontsize=10)
     fig.suptitle(f"{title or ds.attrs.get('title', '')}\n{method}, "
                  f"{ds.attrs.get('model_runs', '?')} solves", fontsize=11)
-    data = _figure_bytes(fig, path)
-    plt.close(fig)
-    atomic_write_bytes(path, data)
-    return Path(path)
+    return fig
+
+
+def plot_global(ds, path, *, species=None, title=None):
+    """Write :func:`global_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
+
+    Returns
+    -------
+    Path
+    """
+    return save_figure(global_figure(ds, species=species, title=title), path)

@@ -1,20 +1,24 @@
-"""The ``ionochem uncertainty`` subcommand.
+"""``ionochem uncertainty``: Monte Carlo over rate uncertainties, or global sensitivity.
 
-``register(subparsers)`` adds it to the command's argparse subparsers; the handler prints a
-short table on stdout and returns 0. Errors are raised as :class:`ionochem.Error` and become
-one line on stderr (exit 2) in :mod:`ionochem.cli`. Command-line glue only: it loads the
-scenario named on the command line and hands the model to
-:mod:`ionochem.analysis.uncertainty` (Monte Carlo) or :mod:`ionochem.analysis.globalsens`
+Command-line glue only: it loads the scenario named on the command line and hands the model
+to :mod:`ionochem.analysis.uncertainty` (Monte Carlo) or :mod:`ionochem.analysis.globalsens`
 (Sobol, Morris).
 """
 
 from __future__ import annotations
 
 import sys
-from pathlib import Path
 
-import numpy as np
-
+from ionochem.cli.options import (
+    Table,
+    check_output,
+    check_outputs,
+    fmt_value,
+    load_model,
+    print_warnings,
+    scenario_inputs,
+    stamp_history,
+)
 from ionochem.errors import InputError
 
 REPORT_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
@@ -60,6 +64,12 @@ def register(subparsers):
                    help="replace the rate expression of a reaction first (repeatable)")
     u.add_argument("--scale", action="append", metavar="ID=FACTOR",
                    help="multiply a rate coefficient first (repeatable)")
+    u.add_argument("--reactions", action="append", metavar="FILE",
+                   help="replacement entries (by id) applied before sampling (repeatable)")
+    u.add_argument("--add", action="append", metavar="FILE",
+                   help="entries with new ids added before sampling (repeatable)")
+    u.add_argument("--csv", metavar="FILE",
+                   help="write the printed table (median and 68 %% factor) as CSV")
     u.add_argument("--no-progress", action="store_true", help="no progress bar")
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
@@ -86,10 +96,9 @@ def _parse_altitudes(text):
 
 
 def _check_args(args):
-    for flag, path in (("-o", args.output), ("--plot", args.plot)):
-        if path and not (Path(path).parent if str(Path(path).parent) else Path(".")).is_dir():
-            raise InputError(f"output folder {Path(path).parent} does not exist", file=path,
-                             key=flag)
+    check_outputs(args, inputs=[args.scenario])
+    if args.samples < 1:
+        raise InputError("--samples must be at least 1", file="--samples")
     if args.workers is not None and args.workers < 1:
         raise InputError("--workers must be at least 1", file="--workers")
     if args.batch is not None and args.batch < 1:
@@ -105,17 +114,24 @@ def _check_args(args):
 def cmd_uncertainty(args):
     """``ionochem uncertainty``: returns 0."""
     from ionochem.analysis.uncertainty import parse_spreads, remove_store
-    from ionochem.cli import _load_model
     from ionochem.io.netcdf import write_netcdf
     _check_args(args)
+    files = [*(args.reactions or []), *(args.add or [])]
+    check_output(args.csv, "--csv", inputs=[args.scenario, *files])
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
-    scen, model = _load_model(args)
+    scen, model = load_model(args)
+    check_outputs(args, inputs=scenario_inputs(scen) + files)
+    if files:
+        from ionochem.analysis.compare import changed_model
+        from ionochem.mechanism.parser import parse_reaction_list
+        model = changed_model(model,
+                              replacements=[parse_reaction_list(f) for f in args.reactions or []],
+                              additions=[parse_reaction_list(f) for f in args.add or []])
     if scen.solve.mode != "steady":
         print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
               "states (photochemical equilibrium)", file=sys.stderr)
-    for w in model.warnings:
-        print(f"warning: {w}", file=sys.stderr)
+    print_warnings(model.warnings)
     common = dict(seed=args.seed, environment=spreads, batch=args.batch,
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
                   resume=args.resume,
@@ -134,9 +150,13 @@ def cmd_uncertainty(args):
                   "with --resume to continue", file=sys.stderr)
         raise
     if args.method == "montecarlo":
-        _print_montecarlo(ds)
+        table = _print_montecarlo(ds)
     else:
-        _print_global(ds)
+        table = _print_global(ds)
+    stamp_history(ds, args)
+    if args.csv:
+        table.write_csv(args.csv)
+        print(f"wrote {args.csv}")
     if args.output:
         write_netcdf(ds, args.output)
         print(f"wrote {args.output}")
@@ -157,6 +177,7 @@ def _main_species(names):
 
 
 def _print_montecarlo(ds, out=None):
+    import numpy as np
     out = sys.stdout if out is None else out
     alt = ds["altitude"].values
     names = list(ds["species"].values)
@@ -168,7 +189,7 @@ def _print_montecarlo(ds, out=None):
           + (f", environment {ds.attrs['environment_spreads']}"
              if ds.attrs.get("environment_spreads") else ""), file=out)
     print("median density (cm-3) and the 68 % range as a factor (sqrt(n84/n16))", file=out)
-    print("  alt_km " + "".join(f"{s:>19}" for s in species), file=out)
+    table = Table(["alt_km", *[c for s in species for c in (s, f"{s} x")]])
     q = ds["density_quantiles"]
     for a in rows:
         cells = []
@@ -177,10 +198,13 @@ def _print_montecarlo(ds, out=None):
             lo = float(q.sel(quantile=0.16, species=s, altitude=a))
             hi = float(q.sel(quantile=0.84, species=s, altitude=a))
             fac = np.sqrt(hi / lo) if lo > 0 else np.nan
-            cells.append(f"{med:11.3e} x{fac:5.2f} ")
-        print(f"{a:8.1f} " + "".join(f"{c:>19}" for c in cells), file=out)
+            cells += [fmt_value(med).strip(), f"{fac:.2f}"]
+        table.add(f"{a:.1f}", *cells)
+    print(table.text(), file=out)
     share = ds["variance_share"]
     print("largest shares of var(ln n) (from the samples; first-order in brackets)", file=out)
+    shares = Table(["species", "altitude", "reaction", "share", "first-order"],
+                   align=[">", ">", "<", ">", ">"])
     for s in species:
         for a in rows:
             v = share.sel(species=s, altitude=a).values
@@ -188,11 +212,14 @@ def _print_montecarlo(ds, out=None):
                 continue
             j = int(np.nanargmax(v))
             lin = float(ds["variance_share_linear"].sel(species=s, altitude=a).values[j])
-            print(f"  {s:>9} {a:7.1f} km: {ds['reaction'].values[j]:<16} {v[j]:6.1%} "
-                  f"[{lin:6.1%}]", file=out)
+            shares.add(s, f"{a:g} km", ds["reaction"].values[j], f"{v[j]:.1%}",
+                       f"[{lin:.1%}]")
+    print(shares.text(), file=out)
+    return table
 
 
 def _print_global(ds, out=None):
+    import numpy as np
     out = sys.stdout if out is None else out
     method = ds.attrs["method"]
     key, second = (("S1", "ST") if method == "sobol" else ("mu_star", "sigma"))
@@ -201,6 +228,9 @@ def _print_global(ds, out=None):
           f"seed {ds.attrs['seed']}; factors: {ds.attrs['factors']}", file=out)
     print(f"per species and altitude: the three largest factors by {key} "
           f"({key} / {second})", file=out)
+    table = Table(["species", "altitude", *[f"{n} {key}/{second}" for n in
+                                             ("first", "second", "third")]],
+                  align=[">", ">", "<", "<", "<"])
     for s in ds["species"].values:
         for a in ds["altitude"].values:
             v = ds[key].sel(species=s, altitude=a).values
@@ -208,5 +238,7 @@ def _print_global(ds, out=None):
                 continue
             w = ds[second].sel(species=s, altitude=a).values
             order = np.argsort(-np.nan_to_num(v, nan=-np.inf))[:3]
-            cells = ", ".join(f"{ds['factor'].values[j]} {v[j]:.2f}/{w[j]:.2f}" for j in order)
-            print(f"  {s:>9} {a:7.1f} km: {cells}", file=out)
+            cells = [f"{ds['factor'].values[j]} {v[j]:.2f}/{w[j]:.2f}" for j in order]
+            table.add(s, f"{a:g} km", *cells, *[""] * (3 - len(cells)))
+    print(table.text(), file=out)
+    return table

@@ -1,0 +1,115 @@
+"""Shares of the variance of ln n among the uncertain factors of an ensemble.
+
+From the samples (regression of ln n on the standard normals) and to first order (the exact
+sensitivities times the one-sigma log factors). Arrays in, arrays out.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ionochem.analysis.sampling import ENV_EUV, ENV_TE
+
+
+def sample_variance_shares(z_factors, log_dens):
+    """Shares of var(ln n) carried by each factor, from the samples.
+
+    Parameters
+    ----------
+    z_factors : ndarray (N, P)
+        The standard-normal draws of the P varied factors.
+    log_dens : ndarray (N, M)
+        ln n of M outputs (species × altitude, flattened); columns with a non-finite value
+        give NaN.
+
+    Returns
+    -------
+    share : ndarray (P, M)
+        Normalised to sum to 1 over the factors.
+    explained : ndarray (M,)
+        Fraction of var(ln n) the linear model explains (NaN with the correlation method).
+    method : str
+        ``"regression"`` (least squares of ln n on all ε at once, share_j ∝ β_j² var ε_j)
+        when N ≥ 2 (P + 1), else ``"correlation"`` (adjusted squared correlation of ln n
+        with each ε_j alone).
+    """
+    N, P = z_factors.shape
+    M = log_dens.shape[1]
+    share = np.full((P, M), np.nan)
+    explained = np.full(M, np.nan)
+    good = np.all(np.isfinite(log_dens), axis=0)
+    if N < 3 or P == 0 or not good.any():
+        return share, explained, "none"
+    X = z_factors - z_factors.mean(axis=0)
+    Y = log_dens[:, good] - log_dens[:, good].mean(axis=0)
+    sst = np.sum(Y * Y, axis=0)
+    live = sst > 1e-30 * np.maximum(np.abs(log_dens[:, good]).max(axis=0), 1.0) ** 2 * N
+    if N >= 2 * (P + 1):
+        beta = np.linalg.lstsq(X, Y, rcond=None)[0]          # (P, M_good)
+        contrib = beta ** 2 * np.var(z_factors, axis=0)[:, None] * N
+        resid = Y - X @ beta
+        r2 = 1.0 - np.sum(resid * resid, axis=0) / np.where(live, sst, 1.0)
+        method = "regression"
+    else:
+        xy = X.T @ Y
+        rho2 = xy ** 2 / (np.sum(X * X, axis=0)[:, None] * np.where(live, sst, 1.0))
+        # Adjusted r² (Ezekiel 1930, Methods of Correlation Analysis): without it the
+        # chance correlations of the many unimportant factors, each about 1/(N − 1), would
+        # dilute the normalised shares of the important ones.
+        contrib = np.clip(1.0 - (1.0 - rho2) * (N - 1) / (N - 2), 0.0, None)
+        r2 = np.full(Y.shape[1], np.nan)
+        method = "correlation"
+    tot = contrib.sum(axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sh = np.where(live & (tot > 0), contrib / tot, np.nan)
+    share[:, good] = sh
+    explained[good] = np.where(live, r2, np.nan)
+    return share, explained, method
+
+
+def linear_variance_shares(model, kernel, sens):
+    """First-order shares S_ij² σ_j² / Σ from the exact local sensitivities.
+
+    Parameters
+    ----------
+    model : ionochem.Model
+    kernel : SampleKernel
+    sens : xarray.Dataset
+        From :func:`ionochem.analysis.sensitivity.sensitivity`.
+
+    Returns
+    -------
+    reactions : ndarray (species, R, A)
+    environment : ndarray (species, E, A)
+        For the varied environment factors, in ``kernel.environment_columns()`` order:
+        ∂ln n/∂ln X is Σ_j S_ij (photo reactions) for ``euv``, Σ_j c_gj S_ij (c_gj the
+        count of g among the reactants of j) for a fixed neutral g, and the sensitivity to
+        Te for ``Te``.
+    """
+    S = np.nan_to_num(sens["sensitivity"].values)             # (species, R, A)
+    sig = kernel.log_sigma().T                                 # (R, A)
+    var_r = S ** 2 * sig[None] ** 2
+    env_cols = kernel.environment_columns()
+    mech = model.mechanism
+    env = []
+    for name in env_cols:
+        if name == ENV_EUV:
+            s = S[:, kernel.photo_mask, :].sum(axis=1)
+            ln = kernel.ln_euv
+        elif name == ENV_TE:
+            s = np.nan_to_num(sens["sensitivity_Te"].values)
+            ln = kernel.ln_te
+        else:
+            count = (mech.slots == mech.index(name)).sum(axis=1).astype(float)   # (R,)
+            s = np.einsum("srA,r->sA", S, count)
+            ln = kernel.ln_given[kernel.given_names.index(name)]
+        env.append(s ** 2 * ln ** 2)
+    var_e = np.stack(env, axis=1) if env else np.zeros((S.shape[0], 0, S.shape[2]))
+    tot = var_r.sum(axis=1) + var_e.sum(axis=1)                # (species, A)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rs = np.where(tot[:, None] > 0, var_r / tot[:, None], np.nan)
+        es = np.where(tot[:, None] > 0, var_e / tot[:, None], np.nan)
+    dead = ~np.isfinite(sens["sensitivity"].values).all(axis=1)     # dark levels
+    rs[np.broadcast_to(dead[:, None], rs.shape)] = np.nan
+    es[np.broadcast_to(dead[:, None], es.shape)] = np.nan
+    return rs, es

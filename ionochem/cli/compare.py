@@ -1,0 +1,163 @@
+"""``ionochem compare``: a baseline and changed rates on the same column.
+
+Changes are explicit: ``--set``/``--scale`` change rates, ``--reactions FILE`` replaces
+entries by id, ``--add FILE`` adds entries with new ids, ``--list FILE`` swaps in a whole
+alternative reaction list. The analysis is :mod:`ionochem.analysis.compare`.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from ionochem.cli.options import (
+    Table,
+    check_output,
+    check_outputs,
+    parse_assignments,
+    parse_scales,
+    print_warnings,
+    scenario_inputs,
+    stamp_history,
+)
+from ionochem.errors import InputError
+
+
+def register(subparsers):
+    c = subparsers.add_parser(
+        "compare", help="solve a baseline and changed rates on the same column and compare")
+    c.add_argument("scenario")
+    c.add_argument("--set", action="append", metavar="ID=EXPR",
+                   help="replace the rate expression of a reaction (repeatable; table paths "
+                        "resolve against the working directory)")
+    c.add_argument("--scale", action="append", metavar="ID=F",
+                   help="multiply a rate coefficient by F ≥ 0 (repeatable)")
+    c.add_argument("--reactions", action="append", metavar="FILE",
+                   help="replacement entries: each replaces the baseline entry of the same id "
+                        "(repeatable)")
+    c.add_argument("--add", action="append", metavar="FILE",
+                   help="entries with new ids, added to the baseline list (repeatable)")
+    c.add_argument("--list", metavar="FILE", dest="alternative",
+                   help="a whole alternative reaction list on the same column")
+    c.add_argument("--species", action="append", metavar="NAME",
+                   help="species summarised (repeatable; any species of the result, family "
+                        "levels such as 'N2+(v=1)' included; default the main ions)")
+    c.add_argument("-o", "--output", help="write the comparison dataset (netCDF)")
+    c.add_argument("--plot", help="write the comparison figure (PNG, PDF, SVG)")
+    c.add_argument("--csv", metavar="FILE", help="write the printed summary as CSV")
+    c.add_argument("--bands", metavar="NAME=LO:HI,...",
+                   help="altitude bands of the summary, km (default E=90:150,F1=150:200,"
+                        "F2=200:300)")
+    c.set_defaults(func=cmd_compare)
+
+
+def note_steady(scen):
+    if scen.solve.mode != "steady":
+        print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; this command works "
+              "on the steady state (photochemical equilibrium)", file=sys.stderr)
+
+
+def baseline_model(path):
+    """Scenario and model of a scenario file, warnings printed."""
+    import ionochem
+    scen = ionochem.load_scenario(path)
+    note_steady(scen)
+    model = ionochem.Model(scen)
+    print_warnings(model.warnings)
+    return scen, model
+
+
+def cmd_compare(args):
+    from ionochem.analysis.compare import (
+        DEFAULT_BANDS,
+        band_summary,
+        changed_model,
+        compare,
+        parse_bands,
+    )
+    from ionochem.mechanism.parser import parse_reaction_list
+    files = [*(args.reactions or []), *(args.add or [])]
+    if args.alternative:
+        files.append(args.alternative)
+    check_outputs(args, inputs=[args.scenario, *files])
+    check_output(args.csv, "--csv", inputs=[args.scenario, *files])
+    bands = parse_bands(args.bands) if args.bands else DEFAULT_BANDS
+    sets = parse_assignments(args.set, "set")
+    scales = parse_scales(args.scale)
+    if not (sets or scales or files):
+        raise InputError("compare needs at least one change: --set ID=EXPR, --scale ID=F, "
+                         "--reactions FILE, --add FILE or --list FILE", file=args.scenario)
+    replacements = [parse_reaction_list(f) for f in args.reactions or []]
+    additions = [parse_reaction_list(f) for f in args.add or []]
+    alternative = parse_reaction_list(args.alternative) if args.alternative else None
+    scen, base = baseline_model(args.scenario)
+    check_outputs(args, inputs=scenario_inputs(scen) + files)
+    changed = changed_model(base, set_dict=sets, scale=scales, replacements=replacements,
+                            additions=additions, alternative=alternative, base_dir=Path.cwd())
+    for w in changed.warnings:
+        if w not in base.warnings:
+            print(f"warning: changed model: {w}", file=sys.stderr)
+    ds = compare(base, changed, reaction_lists=files)
+    stamp_history(ds, args)
+    species = None
+    if args.species:
+        names = list(ds["species"].values)
+        unknown = [s for s in args.species if s not in names]
+        if unknown:
+            raise InputError(f"no species {', '.join(unknown)} in the result (species: "
+                             f"{', '.join(names)})", file="--species")
+        species = list(args.species)
+    what = "; ".join(x for x in (ds.attrs["changes_set"], ds.attrs["changes_scale"],
+                                 ds.attrs["changes_reactions"]) if x)
+    print(f"{ds.attrs.get('title', '')}\nchanged: {what or '(no effective change)'}")
+    rows = band_summary(ds, bands, species=species)
+    table = band_table(rows)
+    print("percentage change of the changed model against the baseline "
+          "(100 (changed/baseline - 1))")
+    print(table.text())
+    if "effective_rate_change" in ds:
+        print(effective_rate_table(ds).text())
+    if args.csv:
+        table.write_csv(args.csv)
+        print(f"wrote {args.csv}")
+    if args.output:
+        from ionochem.io.netcdf import write_netcdf
+        write_netcdf(ds, args.output)
+        print(f"wrote {args.output}")
+    if args.plot:
+        from ionochem.plot.compare import plot_compare
+        plot_compare(ds, args.plot, species=species)
+        print(f"wrote {args.plot}")
+    return 0
+
+
+def band_table(rows):
+    """The band summary as an aligned table (one row per species and band)."""
+    import numpy as np
+
+    def pct(x):
+        return f"{x:+.2f}" if np.isfinite(x) else "-"
+
+    table = Table(["species", "band", "median %", "largest %", "at km"],
+                  align=["<", "<", ">", ">", ">"])
+    for r in rows:
+        at = f"{r.largest_alt_km:g}" if np.isfinite(r.largest_alt_km) else "-"
+        table.add(r.species, f"{r.band} {r.low_km:g}-{r.high_km:g}", pct(r.median_pct),
+                  pct(r.largest_pct), at)
+    return table
+
+
+def effective_rate_table(ds):
+    """Largest change of each family's population-weighted rate coefficient."""
+    import numpy as np
+    var = ds["effective_rate_change"]
+    table = Table(["family reaction", "largest change of effective k %", "at km"],
+                  align=["<", ">", ">"])
+    alt = ds["altitude"].values
+    for name in var[var.dims[0]].values:
+        pct = 100.0 * (var.sel({var.dims[0]: name}).values - 1.0)
+        if not np.any(np.isfinite(pct)):
+            continue
+        i = int(np.nanargmax(np.abs(pct)))
+        table.add(name, f"{pct[i]:+.2f}", f"{alt[i]:g}")
+    return table

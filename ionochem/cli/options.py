@@ -1,0 +1,235 @@
+"""Option parsing and terminal output shared by the ``ionochem`` subcommands.
+
+What every command needs and nothing below the command layer does: ``ID=VALUE`` options
+(``--set``, ``--scale``), ``SPECIES@KM`` budgets, checks of output targets before any work,
+loading a scenario into a model with command-line changes, and aligned tables on the
+terminal (or CSV with ``--csv``). Errors are :class:`ionochem.InputError` naming the option.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+import stat
+import sys
+from pathlib import Path
+
+from ionochem.errors import InputError
+
+#: Heights of the printed tables, km *(common practice: the E, F1 and F2 regions)*.
+DEFAULT_REPORT_KM = (100, 120, 150, 200, 250, 300, 400)
+
+#: Figure formats the plots can write (matplotlib's raster and vector back-ends).
+FIGURE_FORMATS = ("png", "pdf", "svg", "eps", "ps", "jpg", "jpeg", "tif", "tiff", "webp")
+
+
+# ------------------------------------------------------------------ ID=VALUE options
+def assignment_split(item):
+    """Index of the first ``=`` outside parentheses (ids like ``DR(v=2)`` contain one)."""
+    depth = 0
+    for i, ch in enumerate(item):
+        if ch == "(":
+            depth += 1
+        elif ch == ")":
+            depth -= 1
+        elif ch == "=" and depth == 0:
+            return i
+    return None
+
+
+def parse_assignments(items, what):
+    """``["ID=VALUE", ...]`` of option ``--what`` → ``{ID: VALUE}`` (strings)."""
+    out = {}
+    for item in items or ():
+        cut = assignment_split(item)
+        if cut is None:
+            raise InputError(f"{what} {item!r} must look like ID=VALUE", file=f"--{what}")
+        key, value = item[:cut].strip(), item[cut + 1:].strip()
+        if not key or not value:
+            raise InputError(f"{what} {item!r} must look like ID=VALUE", file=f"--{what}")
+        out[key] = value
+    return out
+
+
+def parse_scales(items):
+    """``--scale ID=F`` options → ``{ID: F}``; F ≥ 0 (0 switches a reaction off)."""
+    import numpy as np
+    out = {}
+    for key, value in parse_assignments(items, "scale").items():
+        try:
+            f = float(value)
+        except ValueError:
+            raise InputError(f"scale factor {value!r} for {key} is not a number",
+                             file="--scale") from None
+        if not np.isfinite(f) or f < 0:
+            raise InputError(f"scale factor for {key} must be a finite number ≥ 0 "
+                             "(0 switches the reaction off)", file="--scale")
+        out[key] = f
+    return out
+
+
+def parse_budget(item):
+    """``"N2+@200"`` → ``("N2+", 200.0)``."""
+    import numpy as np
+    if "@" not in item:
+        raise InputError(f"budget {item!r} must look like SPECIES@KM (N2+@200)",
+                         file="--budget")
+    name, km = item.rsplit("@", 1)
+    try:
+        value = float(km)
+    except ValueError:
+        raise InputError(f"budget altitude {km!r} is not a number", file="--budget") from None
+    if not np.isfinite(value):
+        raise InputError(f"budget altitude {km!r} is not a finite number", file="--budget")
+    return name.strip(), value
+
+
+# ------------------------------------------------------------------ output targets
+def check_output(path, flag, *, figure=False, inputs=()):
+    """Refuse an output target before any work is done.
+
+    The folder must exist and be writable; the target must not be a folder, a device or
+    another non-regular file, nor one of the command's input files; a figure needs a
+    format the plots can write. Returns the path (or ``None`` when not given).
+    """
+    if path is None:
+        return None
+    text = str(path)
+    if not text.strip():
+        raise InputError("an empty output path was given", file=flag)
+    if "\0" in text:
+        raise InputError("the output path contains a NUL character", file=flag)
+    p = Path(text)
+    if figure:
+        suffix = p.suffix.lower().lstrip(".")
+        if suffix not in FIGURE_FORMATS:
+            raise InputError(f"figure format {p.suffix or '(none)'!r} is not supported; use "
+                             f"one of {', '.join('.' + f for f in FIGURE_FORMATS)}",
+                             file=text, key=flag)
+    folder = p.parent if str(p.parent) else Path(".")
+    try:
+        if not folder.is_dir():
+            raise InputError(f"output folder {folder} does not exist", file=text, key=flag)
+        if not os.access(folder, os.W_OK | os.X_OK):
+            raise InputError(f"output folder {folder} is not writable", file=text, key=flag)
+        if p.exists() or p.is_symlink():
+            st = p.stat()
+            if stat.S_ISDIR(st.st_mode):
+                raise InputError("the output path is a folder; give a file name", file=text,
+                                 key=flag)
+            if not stat.S_ISREG(st.st_mode):
+                raise InputError("the output path is not a regular file (a device, pipe or "
+                                 "socket); refusing to replace it", file=text, key=flag)
+            for other in inputs:
+                if other is not None and _same_file(p, other):
+                    raise InputError(f"the output would overwrite the input file {other}",
+                                     file=text, key=flag)
+    except OSError as exc:
+        raise InputError(f"output path cannot be used: {exc.strerror or exc}", file=text,
+                         key=flag) from None
+    return text
+
+
+def _same_file(a, b):
+    try:
+        return os.path.samefile(a, b)
+    except OSError:
+        return False
+
+
+def check_outputs(args, *, inputs=()):
+    """Check ``args.output`` (``-o``) and ``args.plot`` (``--plot``) before any work."""
+    check_output(getattr(args, "output", None), "-o", inputs=inputs)
+    check_output(getattr(args, "plot", None), "--plot", figure=True, inputs=inputs)
+    out, fig = getattr(args, "output", None), getattr(args, "plot", None)
+    if out and fig and Path(out).resolve() == Path(fig).resolve():
+        raise InputError("-o and --plot name the same file", file=out)
+
+
+def scenario_inputs(scenario):
+    """Files a scenario reads (to keep outputs from overwriting them)."""
+    out = [scenario.source, scenario.reactions]
+    for value in vars(scenario).values():
+        for attr in ("table", "spectrum", "electron_table"):
+            path = getattr(value, attr, None)
+            if path:
+                out.append(path)
+    return out
+
+
+# ------------------------------------------------------------------ models
+def load_model(args):
+    """Scenario and model of ``args.scenario`` with ``--set``/``--scale`` applied.
+
+    Table paths inside ``--set`` expressions resolve against the working directory.
+    """
+    import ionochem
+    scen = ionochem.load_scenario(args.scenario)
+    model = ionochem.Model(scen)
+    sets = parse_assignments(getattr(args, "set", None), "set")
+    scales = parse_scales(getattr(args, "scale", None))
+    if sets or scales:
+        model = model.with_changes(sets, scale=scales, base_dir=Path.cwd())
+    return scen, model
+
+
+def stamp_history(ds, args):
+    """Record the command line that made ``ds`` in its CF ``history`` attribute."""
+    import datetime as dt
+    when = dt.datetime.now(dt.UTC).isoformat(timespec="seconds")
+    ds.attrs["history"] = f"{when} {getattr(args, 'command_line', 'ionochem')}"
+    return ds
+
+
+def print_warnings(warnings, prefix="warning"):
+    for w in warnings:
+        print(f"{prefix}: {w}", file=sys.stderr)
+
+
+# ------------------------------------------------------------------ tables
+def report_levels(altitude_km, wanted=DEFAULT_REPORT_KM):
+    """Grid altitudes nearest the ``wanted`` heights inside the grid (km, sorted)."""
+    import numpy as np
+    alt = np.asarray(altitude_km, float)
+    rows = sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in wanted
+                   if alt.min() - 1e-9 <= a <= alt.max() + 1e-9})
+    if not rows:
+        rows = sorted({float(alt[0]), float(alt[len(alt) // 2]), float(alt[-1])})
+    return rows
+
+
+def fmt_value(v, width=11):
+    """A density or rate for the terminal: 3 significant digits; below 1e-30 is shown as 0."""
+    import numpy as np
+    v = float(v)
+    if np.isfinite(v) and abs(v) < 1e-30:
+        v = 0.0
+    return f"{v:{width}.3e}"
+
+
+class Table:
+    """Rows of cells printed aligned (columns as wide as their longest cell) or as CSV."""
+
+    def __init__(self, header, align=None):
+        self.header = [str(h) for h in header]
+        self.rows = []
+        self.align = align or [">"] * len(self.header)
+
+    def add(self, *cells):
+        self.rows.append([str(c) for c in cells])
+
+    def text(self, indent="  "):
+        widths = [max(len(r[i]) for r in [self.header, *self.rows])
+                  for i in range(len(self.header))]
+        lines = []
+        for row in [self.header, *self.rows]:
+            cells = [f"{c:{a}{w}}" for c, a, w in zip(row, self.align, widths)]
+            lines.append(indent + "  ".join(cells).rstrip())
+        return "\n".join(lines)
+
+    def write_csv(self, path):
+        from ionochem.io.netcdf import atomic_path
+        with atomic_path(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(self.header)
+            w.writerows([c.strip() for c in r] for r in self.rows)

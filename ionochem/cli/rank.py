@@ -1,0 +1,145 @@
+"""``ionochem rank``: the reactions (and environment factors) that control each species.
+
+The analysis is :mod:`ionochem.analysis.rank` on the exact sensitivities of
+:func:`ionochem.analysis.sensitivity.sensitivity`.
+"""
+
+from __future__ import annotations
+
+from ionochem.cli.compare import baseline_model
+from ionochem.cli.options import check_output, check_outputs, scenario_inputs, stamp_history
+from ionochem.errors import InputError
+
+
+def register(subparsers):
+    r = subparsers.add_parser(
+        "rank", help="rank the reactions (and Te) that control each species")
+    r.add_argument("scenario")
+    r.add_argument("--species", action="append", metavar="NAME",
+                   help="species to rank for (repeatable; any species of the result, family "
+                        "levels such as 'N2+(v=1)' included; default N2+, O2+, NO+, "
+                        "O+(total) or O+, e)")
+    r.add_argument("--altitudes", metavar="LO:HI", help="altitude range, km (default: all)")
+    r.add_argument("--min-share", type=float, default=None, metavar="F",
+                   help="rank over the levels where the species is at least F of its own "
+                        "peak density in the range (default 0.01; 0: every level)")
+    r.add_argument("--top", type=int, default=10, metavar="N",
+                   help="reactions listed per species (default 10)")
+    r.add_argument("-o", "--output", help="write sensitivities and rankings (netCDF)")
+    r.add_argument("--plot", help="write the heat map and bar chart (PNG, PDF, SVG)")
+    r.add_argument("--csv", metavar="FILE", help="write the printed ranking as CSV")
+    r.set_defaults(func=cmd_rank)
+
+
+def cmd_rank(args):
+    from ionochem.analysis.rank import (
+        DEFAULT_MIN_SHARE,
+        default_species,
+        parse_altitude_range,
+        rank_reactions,
+        ranking_dataset,
+    )
+    check_outputs(args, inputs=[args.scenario])
+    check_output(args.csv, "--csv", inputs=[args.scenario])
+    rng = parse_altitude_range(args.altitudes) if args.altitudes else None
+    if args.top < 1:
+        raise InputError("--top must be at least 1", file="--top")
+    share = DEFAULT_MIN_SHARE if args.min_share is None else args.min_share
+    if not 0.0 <= share < 1.0:
+        raise InputError("--min-share must be at least 0 and below 1", file="--min-share")
+    scen, model = baseline_model(args.scenario)
+    check_outputs(args, inputs=scenario_inputs(scen))
+    sens = model.sensitivity()
+    names = list(sens["species"].values)
+    species = list(args.species) if args.species else default_species(names)
+    unknown = [s for s in species if s not in names]
+    if unknown:
+        raise InputError(f"no species {', '.join(unknown)} in the result (species: "
+                         f"{', '.join(names)})", file="--species")
+    print(sens.attrs.get("title", ""))
+    alt = sens["altitude"].values
+    lo, hi = rng if rng is not None else (alt.min(), alt.max())
+    print(f"normalized sensitivities S = d ln n / d ln k over {lo:g}-{hi:g} km, at the levels "
+          f"where each species is at least {share:g} of its peak (factors other than "
+          "reactions: d ln n / d ln factor)")
+    csv_table = None
+    for s in species:
+        for by, what in (("max", "largest |S|"), ("mean", "altitude-mean |S|")):
+            rows = rank_reactions(sens, s, rng, args.top, by=by, min_share=share)
+            table = ranking_table(rows, by)
+            print(f"{s}: top {len(rows)} by {what}")
+            print(table.text())
+            if by == "max":
+                csv_table = _extend(csv_table, s, table)
+    _print_effective(model, sens, species, rng, min(args.top, 3))
+    if args.csv and csv_table is not None:
+        csv_table.write_csv(args.csv)
+        print(f"wrote {args.csv}")
+    if args.output:
+        from ionochem.io.netcdf import write_netcdf
+        out = stamp_history(ranking_dataset(sens, rng, min_share=share), args)
+        write_netcdf(out, args.output)
+        print(f"wrote {args.output}")
+    if args.plot:
+        from ionochem.plot.sensitivity import plot_sensitivity
+        plot_sensitivity(sens, args.plot, species=species, altitude_range=rng, top=args.top,
+                         min_share=share)
+        print(f"wrote {args.plot}")
+    return 0
+
+
+def ranking_table(rows, by):
+    from ionochem.cli.options import Table
+    table = Table(["#", "reaction", "S at max", "at km", "mean |S|", "equation"],
+                  align=[">", "<", ">", ">", ">", "<"])
+    for r in rows:
+        place = r.rank_max if by == "max" else r.rank_mean
+        table.add(place, r.reaction, f"{r.signed_at_max:+.4f}", f"{r.altitude_km:g}",
+                  f"{r.mean_abs:.4f}", r.equation)
+    return table
+
+
+def _extend(acc, species, table):
+    """One CSV table over every species (a leading species column)."""
+    from ionochem.cli.options import Table
+    if acc is None:
+        acc = Table(["species", *table.header])
+    for row in table.rows:
+        acc.rows.append([species, *row])
+    return acc
+
+
+def _print_effective(model, sens, species, rng, top):
+    """For the level species asked for (or their family totals): which rates move the
+    effective rate coefficient of each family that consumes the levels."""
+    import numpy as np
+
+    from ionochem.analysis.levels import effective_rate_sensitivity
+    from ionochem.cli.options import Table
+    totals = {s.split("(v=")[0] if "(v=" in s else s for s in species}
+    eff = effective_rate_sensitivity(model, sens)
+    if eff is None:
+        return
+    fams = [f for f, t in zip(eff["family_reaction"].values, eff["family_species"].values,
+                              strict=True) if t in totals]
+    if not fams:
+        return
+    var = eff["effective_rate_sensitivity"]
+    if rng is not None:
+        var = var.sel(altitude=slice(*rng))
+    alt = var["altitude"].values
+    table = Table(["family reaction", "reaction", "S_eff at max", "at km"],
+                  align=["<", "<", ">", ">"])
+    for fam in fams:
+        vals = var.sel(family_reaction=fam).values                 # (R, A)
+        mx = np.nanmax(np.where(np.isfinite(vals), np.abs(vals), -1.0), axis=1)
+        for j in np.argsort(-mx, kind="stable")[:top]:
+            if mx[j] <= 0:
+                continue
+            i = int(np.nanargmax(np.where(np.isfinite(vals[j]), np.abs(vals[j]), -1.0)))
+            table.add(fam, str(var["reaction"].values[j]), f"{vals[j, i]:+.4f}", f"{alt[i]:g}")
+    print("effective (population-weighted) rate coefficients of the families consuming "
+          f"{', '.join(sorted(totals & set(eff['family_species'].values)))}: "
+          "S_eff = d ln k_eff / d ln k, largest first")
+    print(table.text())
+

@@ -1,0 +1,161 @@
+"""``ionochem run``: solve a scenario, print the main densities, write dataset and figure."""
+
+from __future__ import annotations
+
+import sys
+
+from ionochem.cli.options import (
+    DEFAULT_REPORT_KM,
+    Table,
+    check_output,
+    check_outputs,
+    fmt_value,
+    load_model,
+    parse_budget,
+    print_warnings,
+    report_levels,
+    scenario_inputs,
+    stamp_history,
+)
+from ionochem.errors import InputError
+
+#: Species of the printed table, those present, in this order.
+MAIN_SPECIES = ("N2+", "O2+", "NO+", "O+", "O+(total)", "N+", "e")
+
+
+def register(subparsers):
+    r = subparsers.add_parser("run", help="solve a scenario and report densities")
+    r.add_argument("scenario")
+    r.add_argument("-o", "--output", help="write the result dataset (netCDF)")
+    r.add_argument("--plot", help="write a profile figure (PNG, PDF, SVG)")
+    r.add_argument("--plot-levels", metavar="FILE", dest="plot_levels",
+                   help="write the N2+ vibrational level distribution figure (steady runs; "
+                        "PNG, PDF, SVG)")
+    r.add_argument("--csv", metavar="FILE", help="write the printed density table as CSV")
+    r.add_argument("--set", action="append", metavar="ID=EXPR",
+                   help="replace the rate expression of a reaction (repeatable; table paths "
+                        "resolve against the working directory)")
+    r.add_argument("--scale", action="append", metavar="ID=FACTOR",
+                   help="multiply a rate coefficient (repeatable; 0 switches it off)")
+    r.add_argument("--budget", action="append", metavar="SPECIES@KM",
+                   help="print the production and loss terms of a species at an altitude "
+                        "(transient runs: at the last output time)")
+    r.add_argument("--altitudes", metavar="KM,KM,...",
+                   help="heights of the printed table and of the transient figure "
+                        f"(default {','.join(str(a) for a in DEFAULT_REPORT_KM)}; transient: "
+                        "200)")
+    r.set_defaults(func=cmd_run)
+
+
+def parse_km_list(text, flag="--altitudes"):
+    """``"100,150.5"`` → ``[100.0, 150.5]`` (km)."""
+    import numpy as np
+    out = []
+    for item in str(text).split(","):
+        item = item.strip()
+        if not item:
+            continue
+        try:
+            value = float(item)
+        except ValueError:
+            raise InputError(f"altitude {item!r} is not a number (km)", file=flag) from None
+        if not np.isfinite(value):
+            raise InputError(f"altitude {item!r} is not a finite number (km)", file=flag)
+        out.append(value)
+    if not out:
+        raise InputError("no altitude given", file=flag)
+    return out
+
+
+def cmd_run(args):
+    import numpy as np
+
+    from ionochem.io.netcdf import write_netcdf
+    check_outputs(args, inputs=[args.scenario])
+    check_output(args.csv, "--csv")
+    check_output(getattr(args, "plot_levels", None), "--plot-levels", figure=True,
+                 inputs=[args.scenario])
+    budgets = [parse_budget(b) for b in (args.budget or [])]
+    heights = parse_km_list(args.altitudes) if args.altitudes else None
+    scen, model = load_model(args)
+    check_outputs(args, inputs=scenario_inputs(scen))
+    budgets += [parse_budget(b) for b in scen.output.budget]
+    print_warnings(model.warnings)
+    transient = scen.solve.mode == "transient"
+    if transient and getattr(args, "plot_levels", None):
+        raise InputError("--plot-levels needs a steady run (solve.mode is 'transient')",
+                         file="--plot-levels")
+    if transient:
+        initial = model.solve() if scen.solve.start == "steady" else None
+        ds = model.integrate(np.asarray(scen.solve.times_s, float), initial=initial)
+        table = transient_table(ds, heights[0] if heights else 200.0)
+    else:
+        ds = model.solve()
+        table = density_table(ds, heights or DEFAULT_REPORT_KM)
+    stamp_history(ds, args)
+    print(ds.attrs.get("title", ""))
+    print(table.text())
+    if not transient:
+        bal = ds.attrs.get("column_balance")
+        if bal is not None:
+            print(f"column ionization {ds.attrs['column_ionization_cm2_s']:.4e} cm-2 s-1, "
+                  f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1 "
+                  f"(balance {bal:.1e})")
+        for note in ds.attrs.get("warnings", "").split("; "):
+            if note and note not in model.warnings:
+                print(f"warning: {note}", file=sys.stderr)
+        dark = ds["dark"].values.astype(bool)
+        if dark.any() and not dark.all():
+            print(f"{int(dark.sum())} dark level(s) below "
+                  f"{ds['altitude'].values[dark].max():g} km", file=sys.stderr)
+    if budgets:
+        from ionochem.analysis.budget import budget_table, format_budget
+        at = ds
+        if transient:
+            at = ds.isel(time=-1)
+            print(f"budgets at the last output time, t = {float(at['time_s']):g} s")
+        for name, km in budgets:
+            print(format_budget(budget_table(at, name, km)))
+    if args.csv:
+        table.write_csv(args.csv)
+        print(f"wrote {args.csv}")
+    if args.output:
+        write_netcdf(ds, args.output)
+        print(f"wrote {args.output}")
+    if args.plot:
+        if transient and heights:
+            from ionochem.plot.profiles import plot_time_series
+            plot_time_series(ds, args.plot, altitudes_km=heights)
+        else:
+            from ionochem.plot.profiles import plot_result
+            plot_result(ds, args.plot)
+        print(f"wrote {args.plot}")
+    if getattr(args, "plot_levels", None):
+        from ionochem.plot.levels import plot_levels
+        plot_levels(ds, args.plot_levels)
+        print(f"wrote {args.plot_levels}")
+    return 0
+
+
+def density_table(ds, heights):
+    """The main densities (cm-3) at the grid levels nearest ``heights``."""
+    species = [s for s in MAIN_SPECIES if s in ds["species"].values]
+    table = Table(["alt_km", *species])
+    for a in report_levels(ds["altitude"].values, heights):
+        vals = ds["density"].sel(altitude=a, species=species).values
+        table.add(f"{a:.1f}", *(fmt_value(v).strip() for v in vals))
+    return table
+
+
+def transient_table(ds, height_km):
+    """The main densities (cm-3) against time at the level nearest ``height_km``."""
+    import numpy as np
+    species = [s for s in MAIN_SPECIES if s in ds["species"].values]
+    alt = ds["altitude"].values
+    a = float(alt[np.argmin(np.abs(alt - height_km))])
+    table = Table([f"time_s (at {a:g} km)", *species])
+    seconds = ds["time_s"].values if "time_s" in ds else ds["time"].values
+    for i, t in enumerate(seconds):
+        vals = ds["density"].isel(time=i).sel(altitude=a, species=species).values
+        table.add(f"{float(t):.1f}", *(fmt_value(v).strip() for v in vals))
+    return table

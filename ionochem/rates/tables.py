@@ -1,0 +1,236 @@
+"""CSV files of the laboratory toolkit: reading numeric tables, writing level-row rate tables,
+and the reaction-list entry that uses them.
+
+Reading: ``#`` comment lines and blank lines may come anywhere; the first other line is the
+header; every other line is a row of plain decimal numbers, as many as the header has
+columns. Every problem is an :class:`~ionochem.errors.InputError` at ``file:line``.
+
+Level-row rate table (what ``ionochem rates fit`` writes; the format of
+docs/reaction-list.md, "Rate tables", with an integer column ``v``)::
+
+    v,Te_K,k,k_low,k_high
+    0,300,2.2e-07,1.9e-07,2.5e-07
+    ...
+
+The level column ``v`` comes first, then the temperature (docs/reaction-list.md, "Level-row
+tables"); rows are grouped by level, temperatures increasing within a level. Inside a family
+entry (``| levels v = A..B``) each level reads the rows of its own ``v``.
+
+This module knows nothing of the column; it only writes files the reaction-list parser reads.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ionochem.errors import InputError
+from ionochem.io.netcdf import atomic_path
+
+__all__ = ["NumericTable", "read_numeric_csv", "write_level_table", "write_csv",
+           "family_entry", "LEVEL_COLUMN", "level_of_column"]
+
+LEVEL_COLUMN = "v"
+_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+_LEVEL_NAME = re.compile(r"(?:.*[_ ])?v=?(\d+)")
+_MAX_BYTES = 50_000_000
+
+
+@dataclass(frozen=True)
+class NumericTable:
+    """A CSV table of numbers.
+
+    Attributes
+    ----------
+    path : str
+    header : tuple of str
+    columns : dict of str to ndarray
+        Each column as floats, in file order.
+    lines : ndarray of int
+        1-based file line of each row (for error messages).
+    header_line : int
+        1-based file line of the header.
+    """
+
+    path: str
+    header: tuple
+    columns: dict
+    lines: np.ndarray
+    header_line: int
+
+    def __getitem__(self, name):
+        return self.columns[name]
+
+    def fail(self, message, row=None):
+        """Raise an InputError at the header line or at the line of ``row``."""
+        line = int(self.lines[row]) if row is not None else self.header_line
+        raise InputError(message, file=self.path, line=line)
+
+
+def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
+    """Read a CSV of numbers.
+
+    Parameters
+    ----------
+    path : str or Path
+    required : sequence of str
+        Columns that must be present.
+    first : str, optional
+        Name the first column must have.
+    min_rows : int
+        Fewest data rows accepted.
+
+    Returns
+    -------
+    NumericTable
+    """
+    name = str(path)
+    p = Path(path)
+    if not p.is_file():
+        raise InputError("file not found", file=name)
+    if p.stat().st_size > _MAX_BYTES:
+        raise InputError(f"larger than {_MAX_BYTES} bytes", file=name)
+    data = p.read_bytes()
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError("not valid UTF-8", file=name,
+                         line=data[:exc.start].count(b"\n") + 1) from None
+    if "\x00" in text:
+        raise InputError("contains a NUL byte", file=name,
+                         line=text[:text.index("\x00")].count("\n") + 1)
+    text = text.removeprefix("\ufeff")
+    rows = []
+    for number, raw in enumerate(text.splitlines(), start=1):
+        stripped = raw.strip()
+        if not stripped or stripped.startswith("#"):
+            continue
+        try:
+            cells = next(csv.reader(io.StringIO(raw)))
+        except csv.Error as exc:
+            raise InputError(f"CSV error: {exc}", file=name, line=number) from None
+        rows.append((number, [c.strip() for c in cells]))
+    if not rows:
+        raise InputError("no header row", file=name)
+    header_line, header = rows[0]
+    if any(not h for h in header):
+        raise InputError("empty column name in the header", file=name, line=header_line)
+    if len(set(header)) != len(header):
+        dup = next(h for h in header if header.count(h) > 1)
+        raise InputError(f"column '{dup}' appears twice in the header", file=name,
+                         line=header_line)
+    if first is not None and header[0] != first:
+        raise InputError(f"the first column must be '{first}', found '{header[0]}'",
+                         file=name, line=header_line)
+    for col in required:
+        if col not in header:
+            raise InputError(f"no column '{col}' (columns: {', '.join(header)})", file=name,
+                             line=header_line)
+    values = []
+    lines = []
+    for number, cells in rows[1:]:
+        if len(cells) != len(header):
+            raise InputError(f"{len(cells)} values, the header has {len(header)}", file=name,
+                             line=number)
+        row = []
+        for col, cell in zip(header, cells):
+            if not _NUMBER.fullmatch(cell):
+                raise InputError(f"{col} '{cell}' is not a number", file=name, line=number)
+            value = float(cell)
+            if not np.isfinite(value):
+                raise InputError(f"{col} '{cell}' is too large", file=name, line=number)
+            row.append(value)
+        values.append(row)
+        lines.append(number)
+    if len(values) < min_rows:
+        raise InputError(f"needs at least {min_rows} rows of values, found {len(values)}",
+                         file=name, line=header_line)
+    arr = np.array(values, dtype=float).reshape(len(values), len(header))
+    cols = {h: arr[:, i] for i, h in enumerate(header)}
+    return NumericTable(name, tuple(header), cols, np.array(lines, dtype=int), header_line)
+
+
+def level_of_column(name):
+    """The level number a column name carries (``v0``, ``v=2``, ``sigma_v3``), or None."""
+    m = _LEVEL_NAME.fullmatch(name)
+    return int(m.group(1)) if m else None
+
+
+def write_csv(path, header, columns, comments=()):
+    """Write columns of numbers (and ``#`` comment lines first) atomically."""
+    cols = [np.asarray(c) for c in columns]
+    buf = io.StringIO()
+    for c in comments:
+        buf.write(f"# {c}\n")
+    buf.write(",".join(header) + "\n")
+    for row in zip(*cols):
+        buf.write(",".join(_fmt(v) for v in row) + "\n")
+    with atomic_path(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        fh.write(buf.getvalue())
+    return Path(path)
+
+
+def _fmt(v):
+    if isinstance(v, (int, np.integer)):
+        return str(int(v))
+    return f"{float(v):.6g}"
+
+
+def write_level_table(path, temperature_K, rates, *, low=None, high=None,
+                      temperature_column="Te_K", column="k", comments=()):
+    """Write a level-row rate table.
+
+    Parameters
+    ----------
+    path : str or Path
+    temperature_K : array_like, shape (temperature,)
+        Increasing temperatures (K).
+    rates : dict of int to array_like, each shape (temperature,)
+        Rate coefficient (cm3 s-1) of each level ``v``.
+    low, high : dict of int to array_like, optional
+        Band columns ``<column>_low`` / ``<column>_high`` per level.
+    temperature_column : str
+        Header of the temperature column (``Te_K`` for electron collisions).
+    column : str
+        Name of the rate column.
+    comments : sequence of str
+        ``#`` lines written first (provenance).
+    """
+    T = np.asarray(temperature_K, float)
+    levels = sorted(rates)
+    header = [LEVEL_COLUMN, temperature_column, column]
+    with_band = low is not None and high is not None
+    if with_band:
+        header += [f"{column}_low", f"{column}_high"]
+    cols = [[] for _ in header]
+    for v in levels:
+        cols[0].extend([int(v)] * T.size)
+        parts = [T, np.asarray(rates[v], float)]
+        if with_band:
+            parts += [np.asarray(low[v], float), np.asarray(high[v], float)]
+        for c, part in zip(cols[1:], parts):
+            c.extend(part.tolist())
+    return write_csv(path, header, cols, comments)
+
+
+def family_entry(reaction_id, reaction, table_name, levels, *, column="k", ref=None,
+                 fraction=None):
+    """The reaction-list family entry that reads a level-row table.
+
+    Returns text like ``ID(v): N2+(v) + e -> N + N | k = table("file.csv", "k") |
+    levels v = 0..4 | ref = ...``; with ``fraction`` (a branching fraction of one product
+    channel) the rate is ``F*table(...)``.
+    """
+    lo, hi = min(levels), max(levels)
+    k = f'table("{table_name}", "{column}")'
+    if fraction is not None:
+        k = f"{fraction:g}*{k}"
+    parts = [f"{reaction_id}(v): {reaction}", f"k = {k}", f"levels v = {lo}..{hi}"]
+    if ref:
+        parts.append(f"ref = {ref}")
+    return " | ".join(parts)

@@ -1,0 +1,321 @@
+"""Properties of the figures a reader relies on, checked on the drawn matplotlib objects.
+
+The reference for the geometry is matplotlib's own renderer (window extents of legends,
+axes and lines in display pixels); for the marks it is the dataset drawn (the
+``pce_doubtful`` flag, the quantiles, the ranking) and, for the transient time axis, the
+definition of local mean solar time (UT + longitude/15 h) and the geometric shadow height
+(the straight ray to the Sun grazes a sphere of radius R: χ = 90° + arccos(R/(R + z))).
+The demo column is the bundled mid-latitude scenario on a coarser grid (invented site).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import ionochem
+from ionochem.analysis.compare import compare
+from ionochem.analysis.rank import rank_reactions
+from ionochem.analysis.uncertainty import monte_carlo
+from ionochem.errors import InputError
+from ionochem.plot.compare import compare_figure
+from ionochem.plot.equilibrium import SHADE_COLOUR
+from ionochem.plot.profiles import STYLE, plot_profiles, profiles_figure, time_series_figure
+from ionochem.plot.sensitivity import sensitivity_figure
+from ionochem.plot.uncertainty import BAND_ALPHA, bands_figure
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+@pytest.fixture(scope="module")
+def model(tmp_path_factory):
+    """The Quickstart column (invented site) on a 10 km grid, to keep the solves short."""
+    text = (ROOT / "scenarios" / "midlatitude_equinox.toml").read_text()
+    text = text.replace("../reactions/ionosphere.reactions",
+                        str(ROOT / "reactions" / "ionosphere.reactions"))
+    text = text.replace("step = 2.0", "step = 10.0")
+    path = tmp_path_factory.mktemp("figs") / "coarse.toml"
+    path.write_text(text)
+    return ionochem.Model(ionochem.load_scenario(path))
+
+
+@pytest.fixture(scope="module")
+def steady(model):
+    return model.solve()
+
+
+@pytest.fixture(scope="module")
+def compared(model, steady):
+    changed = model.with_changes({"O2D_N2": "1.5e-10"})
+    return compare(model, changed, baseline=steady)
+
+
+def _drawn(fig):
+    fig.canvas.draw()
+    return fig.canvas.get_renderer()
+
+
+def _legends(fig):
+    out = list(fig.legends)
+    out += [ax.get_legend() for ax in fig.axes if ax.get_legend() is not None]
+    assert out, "the figure has no legend"
+    return out
+
+
+def assert_legends_clear_of_data(fig):
+    """No legend box overlaps an axes' data area, nor contains a point of a drawn line."""
+    r = _drawn(fig)
+    for leg in _legends(fig):
+        box = leg.get_window_extent(r)
+        for ax in fig.axes:
+            assert not box.overlaps(ax.get_window_extent(r)), \
+                f"legend overlaps the axes titled {ax.get_title()!r}"
+            for line in ax.get_lines():
+                xy = line.get_transform().transform(np.column_stack(line.get_data()))
+                xy = xy[np.isfinite(xy).all(axis=1)]
+                inside = ((xy[:, 0] > box.x0) & (xy[:, 0] < box.x1)
+                          & (xy[:, 1] > box.y0) & (xy[:, 1] < box.y1))
+                assert not inside.any(), f"legend covers the line {line.get_label()!r}"
+
+
+def _line(ax, label):
+    found = [ln for ln in ax.get_lines() if ln.get_label() == label]
+    assert found, f"no line labelled {label!r}"
+    return found[0]
+
+
+def _shaded_spans(ax):
+    """(low, high) altitude of each grey span drawn by the equilibrium marks."""
+    from matplotlib.colors import to_rgba
+    from matplotlib.patches import Rectangle
+    out = []
+    for p in ax.patches:
+        if np.allclose(p.get_facecolor()[:3], to_rgba(SHADE_COLOUR)[:3]):
+            if isinstance(p, Rectangle):
+                out.append((p.get_y(), p.get_y() + p.get_height()))
+            else:
+                y = np.asarray(p.get_xy())[:, 1]
+                out.append((float(y.min()), float(y.max())))
+    return out
+
+
+def _lowest_flag(ds, names):
+    alt = ds["altitude"].values
+    lows = [alt[ds["pce_doubtful"].sel(species=s).values > 0].min() for s in names
+            if (ds["pce_doubtful"].sel(species=s).values > 0).any()]
+    return min(lows)
+
+
+def test_metastable_oplus_curves_differ_in_colour_and_dash(steady):
+    """O+(2D) and O+(2P) are drawn in different colours and different dash patterns."""
+    fig = profiles_figure(steady)
+    ax = fig.axes[0]
+    d, p = _line(ax, "O+(2D)"), _line(ax, "O+(2P)")
+    assert d.get_color() != p.get_color()
+    assert d._dash_pattern != p._dash_pattern
+    assert STYLE["O+(2D)"]["color"] != STYLE["O+(2P)"]["color"]
+
+
+def test_profile_legend_clear_and_equilibrium_shading_from_the_flag(steady):
+    """The legend sits outside the data; the grey span starts half a level below the
+    lowest level where a drawn species is flagged ``pce_doubtful`` and reaches the top."""
+    fig = profiles_figure(steady)
+    assert_legends_clear_of_data(fig)
+    ax = fig.axes[0]
+    drawn = [ln.get_label() for ln in ax.get_lines() if not ln.get_label().startswith("_")]
+    spans = _shaded_spans(ax)
+    assert spans, "no shaded altitudes although O+ is flagged at the top"
+    low = _lowest_flag(steady, drawn)
+    assert min(lo for lo, _ in spans) == pytest.approx(low - 5.0)
+    assert max(hi for _, hi in spans) == pytest.approx(steady["altitude"].values.max())
+    text = " ".join(t.get_text() for t in _legends(fig)[0].get_texts())
+    assert "not in photochemical equilibrium" in text and f"{low:g} km" in text
+
+
+def test_profile_without_flag_has_no_shading(steady):
+    """A dataset without ``pce_doubtful`` (a file written elsewhere) draws no span."""
+    fig = profiles_figure(steady.drop_vars("pce_doubtful"))
+    assert _shaded_spans(fig.axes[0]) == []
+
+
+def test_compare_figure_plain_label_legend_outside_and_shading(compared):
+    """The change axis reads "change from baseline (%)"; the legend is clear of both panels;
+    both panels shade the baseline's flagged levels."""
+    fig = compare_figure(compared)
+    ax_n, ax_r = fig.axes[:2]
+    assert ax_r.get_xlabel() == "change from baseline (%)"
+    assert_legends_clear_of_data(fig)
+    assert _shaded_spans(ax_n) and _shaded_spans(ax_n) == _shaded_spans(ax_r)
+    assert "pce_doubtful" in compared
+
+
+def test_rank_bars_are_named_by_reaction_and_colour_bar_says_what_s_is(model):
+    """The bar chart's y labels are the ranked reaction ids (the ranking's own order); the
+    colour bar is labelled as the normalized sensitivity ∂ln n/∂ln k."""
+    sens = model.sensitivity()
+    fig = sensitivity_figure(sens, species=["N2+"], altitude_range=(150, 300), top=6)
+    heat, bars, cbar = fig.axes[0], fig.axes[1], fig.axes[2]
+    rows = rank_reactions(sens, "N2+", (150, 300), 6)
+    fig.canvas.draw()
+    assert [t.get_text() for t in bars.get_yticklabels()] == [r.reaction for r in rows]
+    assert [t.get_text() for t in heat.get_yticklabels()] == [r.reaction for r in rows]
+    label = cbar.get_ylabel()
+    assert "normalized sensitivity" in label and "∂ln n" in label and "∂ln k" in label
+    assert_legends_clear_of_data(fig)
+
+
+def test_rank_heat_map_hatches_exactly_the_levels_left_out_of_the_ranking(model):
+    """Over the whole grid, O+ is below 1 % of its peak at the lowest levels: those levels,
+    and only those (ionochem.analysis.rank.where_it_matters), are hatched; the title names
+    environment factors beside reactions."""
+    from ionochem.analysis.rank import where_it_matters
+    sens = model.sensitivity()
+    species = "O+(total)" if "O+(total)" in list(sens["species"].values) else "O+"
+    fig = sensitivity_figure(sens, species=[species], top=4, min_share=0.01)
+    heat = fig.axes[0]
+    alt = sens["altitude"].values
+    matters = where_it_matters(sens, species, None, 0.01)
+    assert (~matters).any() and matters.any()
+    hatched = [p for p in heat.patches if p.get_hatch()]
+    centres = sorted(p.get_x() + p.get_width() / 2 for p in hatched)
+    np.testing.assert_allclose(centres, alt[~matters], atol=1e-6)
+    assert "environment factors" in heat.get_title()
+
+
+def test_uncertainty_90_percent_band_is_visible(model):
+    """The 90 % band is filled at least as opaque as 0.2 and edged by lines at the 5 % and
+    95 % quantiles of the dataset; the legend is clear of the bands."""
+    mc = monte_carlo(model, 12, seed=3)
+    fig = bands_figure(mc, species=["NO+", "e"])
+    ax = fig.axes[0]
+    assert BAND_ALPHA[0.90] >= 0.2
+    q = mc["density_quantiles"].sel(species="NO+")
+    edges = [ln.get_xdata() for ln in ax.get_lines()]
+    for p in (0.05, 0.95):
+        want = q.sel(quantile=p).values
+        assert any(np.allclose(np.asarray(x, float), want, equal_nan=True) for x in edges)
+    assert_legends_clear_of_data(fig)
+    labels = [t.get_text() for t in _legends(fig)[0].get_texts()]
+    assert "90 % band (5-95 %)" in labels
+
+
+def _transient(alt=(100.0, 200.0, 300.0)):
+    """An invented transient dataset: 3 levels, 2 species, zenith angle 70° + 10°/h."""
+    t = np.arange(0.0, 5.01, 0.25) * 3600.0
+    dens = np.exp(-t / 7200.0)[:, None, None] * np.array([[1e5], [1e4]]) * np.ones(len(alt))
+    return xr.Dataset(
+        {"density": (("time", "species", "altitude"), dens),
+         "solar_zenith_angle": ("time", 70.0 + 10.0 * t / 3600.0)},
+        coords={"time": ("time", t, {"units": "s"}), "altitude": ("altitude", list(alt)),
+                "species": ["e", "NO+"], "role": ("species", ["electron", "solved"])},
+        attrs={"title": "invented", "time_utc": "2025-03-20T15:30:00+00:00",
+               "longitude_deg": 15.0})
+
+
+@pytest.mark.parametrize("time_form", ["seconds", "cf_seconds", "decoded"])
+def test_transient_time_axis_local_time_zenith_angle_and_shadow(time_form):
+    """Chosen altitudes give one panel each; the top axis reads local mean solar time
+    (15:30 UT at 15° E → 16:30) with the zenith angle; the dotted sunset line at 300 km
+    sits where χ = 90° + arccos(R/(R+z)) with R = 6371 km (geometric shadow). The same
+    for a time coordinate in bare seconds, in CF "seconds since" units, and decoded to
+    datetimes (as xarray reads a CF file back)."""
+    ds = _transient()
+    if time_form == "cf_seconds":
+        ds["time"].attrs["units"] = "seconds since 2025-03-20 15:30:00"
+    elif time_form == "decoded":
+        ds = ds.assign_coords(time=np.datetime64("2025-03-20T15:30:00")
+                              + (ds["time"].values * 1e3).astype("timedelta64[ms]"))
+    fig = time_series_figure(ds, altitudes_km=[300.0, 200.0])
+    panels = [ax for ax in fig.axes if ax.get_title()]
+    assert [ax.get_title() for ax in panels] == ["200 km", "300 km"]
+    fig.canvas.draw()
+    top = panels[1].child_axes[0]
+    assert "local solar time" in top.get_xlabel() and "zenith" in top.get_xlabel()
+    first = [t.get_text() for t in top.get_xticklabels() if t.get_text()][0]
+    assert first.splitlines() == ["16:30", "70°"]
+    chi = 90.0 + np.degrees(np.arccos(6371.0 / (6371.0 + 300.0)))
+    want_h = (chi - 70.0) / 10.0
+    vlines = [ln.get_xdata()[0] for ln in panels[1].get_lines() if ln.get_linestyle() == ":"]
+    assert vlines == [pytest.approx(want_h, abs=1e-9)]
+    assert_legends_clear_of_data(fig)
+
+
+def test_transient_altitude_outside_the_grid_is_refused():
+    """An altitude far outside the grid is an input error naming --altitudes."""
+    with pytest.raises(InputError, match="outside the grid"):
+        time_series_figure(_transient(), altitudes_km=[2000.0])
+
+
+def test_plot_profiles_writes_a_png(steady, tmp_path):
+    """The writer renders the figure to a PNG file (magic bytes)."""
+    out = plot_profiles(steady, tmp_path / "p.png")
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_docs_figures_are_made_with_the_readme_commands():
+    """Every scenario command the README shows with ``--plot`` is, option for option (output
+    files aside), a command docs/figures/make_figures.py runs for a figure, so the figures in the
+    docs show what the README's commands give (e.g. the default top 10 and 1000 samples);
+    and every PNG in docs/figures is made by the script."""
+    import importlib.util
+    import shlex
+    spec = importlib.util.spec_from_file_location("make_figures",
+                                                  ROOT / "docs" / "figures" / "make_figures.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+
+    def options(argv):
+        out, skip = [], False
+        for a in argv:
+            if skip:
+                skip = False
+            elif a in ("-o", "--plot", "--plot-levels"):
+                skip = True
+            else:
+                out.append(a)
+        return out
+
+    made = {tuple(options(args)) for _, args, _ in mod.COMMANDS}
+    text = (ROOT / "README.md").read_text().replace("\\\n", " ")
+    # Commands on the demo scenarios; the laboratory toolkit's figures are those of its
+    # worked example (examples/rates_demo, checked end to end by tests/test_rates_demo.py).
+    shown = [shlex.split(ln.strip())[1:] for ln in text.splitlines()
+             if ln.startswith("ionochem ") and "--plot" in ln and " scenarios/" in ln]
+    assert len(shown) >= 4
+    for argv in shown:
+        assert tuple(options(argv)) in made, argv
+    pngs = {p.name for p in (ROOT / "docs" / "figures").glob("*.png")}
+    assert pngs == {figure for figure, _, _ in mod.COMMANDS}
+
+
+def test_global_sensitivity_figure_legend_is_outside_every_panel():
+    """Sobol panels (invented indices on 4 levels, 3 factors, 4 species) keep the factor
+    legend outside every panel's data area."""
+    from ionochem.plot.uncertainty import global_figure
+    rng = np.random.default_rng(0)
+    dims = ("species", "factor", "altitude")
+    shape = (4, 3, 4)
+    ds = xr.Dataset({"S1": (dims, rng.uniform(0, 0.5, shape)),
+                     "ST": (dims, rng.uniform(0.5, 1.0, shape))},
+                    coords={"species": ["e", "NO+", "O2+", "N2+"],
+                            "factor": ["A", "B", "C"], "altitude": [100.0, 150.0, 200.0, 250.0]},
+                    attrs={"method": "sobol", "title": "invented", "model_runs": 10})
+    assert_legends_clear_of_data(global_figure(ds))
+
+
+def test_level_members_get_shades_of_their_family_colour_distinct_from_the_palette():
+    """N2+(v=0) and N2+(v=1) are drawn in shades of the N2+ colour (same hue, matplotlib's
+    HSV conversion), different from each other, from N2+ and from every palette colour."""
+    from matplotlib.colors import rgb_to_hsv, to_rgb
+
+    from ionochem.plot.profiles import style_of
+    base = to_rgb(STYLE["N2+"]["color"])
+    shades = [to_rgb(style_of(f"N2+(v={v})")["color"]) for v in range(5)]
+    palette = {to_rgb(st["color"]) for st in STYLE.values()}
+    assert len(set(shades)) == 5 and not set(shades) & palette
+    for c in shades:
+        assert abs(rgb_to_hsv(c)[0] - rgb_to_hsv(base)[0]) < 0.02
+    assert to_rgb(style_of("X+", ["N2+", "e"])["color"]) not in palette
