@@ -286,8 +286,9 @@ def test_transport_without_place_needs_a_dip_angle(column):
 
 def test_twilight_column_with_transport_solves_into_the_shadow(tmp_path):
     """Zenith angle near 104° with transport: the sunlit top and the dark levels below solve
-    together; O+ diffuses down into the Earth's shadow, where it falls off steeply
-    (no production there; loss by charge exchange), and every density is finite and ≥ 0."""
+    together; O+ diffuses down into the Earth's shadow (more O+ there than the scattered
+    night-time sources alone keep in the photochemical column), and every density is
+    finite and ≥ 0."""
     import datetime as dt
 
     from ionochem.environment.geometry import solar_zenith_angle_deg
@@ -307,8 +308,9 @@ def test_twilight_column_with_transport_solves_into_the_shadow(tmp_path):
     o = ds["density"].sel(species="O+").values
     z = ds["altitude"].values
     edge = z[dark].max()
-    assert o[z == edge][0] > 0                               # O+ reaches into the shadow
-    assert o[z == edge - 20.0][0] < 1e-2 * o[z == edge][0]   # and dies off within 20 km
+    photo = ionochem.Model(scen.replace(transport=None)).solve()
+    o_photo = photo["density"].sel(species="O+").values
+    assert o[z == edge][0] > 1.5 * o_photo[z == edge][0]     # O+ diffuses into the shadow
     assert np.all(ds["density"].sel(species="e").values[z >= 300] > 0)
 
 
