@@ -33,8 +33,10 @@ def solve_batch(kernel, z, k_base=None, first=0):
     S = len(kernel.mechanism.solved)
     A = kernel.altitude_km.size
     try:
-        res = solve_rows(kernel.mechanism, k, given, rtol=kernel.rtol,
-                         transport=getattr(kernel, "transport", None))
+        transport = getattr(kernel, "transport", None)
+        n0 = None if transport is None else np.tile(kernel.n_nominal, (z.shape[0], 1))
+        res = solve_rows(kernel.mechanism, k, given, rtol=kernel.rtol, n0=n0,
+                         transport=transport)
     except SolverError as exc:
         rows = np.asarray(exc.levels, int)
         where = [f"sample {first + r // A} at {kernel.altitude_km[r % A]:g} km"

@@ -148,6 +148,10 @@ class SampleKernel:
         # O+ transport couples the levels of each sample's column; its coefficients stay at
         # the nominal temperatures (a sampled Te changes the rates only).
         self.transport = getattr(model, "transport", None)
+        # With transport each sample's Newton starts from the nominal column (a few
+        # iterations) rather than from its own photochemical start.
+        self.n_nominal = (model.steady_densities().n if self.transport is not None
+                          else None)
 
     # -------------------------------------------------------------- layout of the draws
     @property

@@ -109,11 +109,13 @@ def _transport_te_column(model, n):
 def _column_solve(model, n, B, live):
     """−J⁻¹ B for the live levels of a transport-coupled column: one sparse LU."""
     from scipy.sparse.linalg import splu
+
+    from ionochem.solve.column import ORDERING
     A, S, K = B.shape
     J = model.column_jacobian(n)
     keep = np.repeat(live, S)
     Jl = J[keep][:, keep].tocsc()
-    lu = splu(Jl)
+    lu = splu(Jl, permc_spec=ORDERING)
     x = lu.solve(np.ascontiguousarray(B[live].reshape(-1, K)))
     return -x.reshape(-1, S, K)
 

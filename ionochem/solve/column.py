@@ -71,6 +71,11 @@ from ionochem.solve.steady import (
 #: floor ``atol`` of the convergence rule is raised to it (see the module docstring).
 COLUMN_FLOOR = 1e-20
 
+#: Column ordering for SuperLU. The level-major unknowns already give a band of width ≈ 2S,
+#: which the natural order keeps (fill stays in the band); COLAMD factorises the 200-level
+#: demo column about twice as slowly (measured with benchmarks/bench_transport.py).
+ORDERING = "NATURAL"
+
 #: A Newton step is halved only while it would raise the column's scaled residual norm more
 #: than this factor (non-monotone: see the module docstring).
 GROWTH_LIMIT = 1e3
@@ -96,12 +101,12 @@ def sparse_solve(J, rhs):
     """
     J = sp.csc_matrix(J)
     try:
-        lu = splu(J)
+        lu = splu(J, permc_spec=ORDERING)
     except RuntimeError:
         diag = np.abs(J.diagonal())
         eps = 1e-12 * (diag.max() if diag.size and diag.max() > 0 else 1.0)
         try:
-            lu = splu(sp.csc_matrix(J - eps * sp.identity(J.shape[0])))
+            lu = splu(sp.csc_matrix(J - eps * sp.identity(J.shape[0])), permc_spec=ORDERING)
         except RuntimeError:
             return None
     x = lu.solve(np.asarray(rhs, float))
@@ -146,9 +151,9 @@ def _bounded_step(n, dn):
 def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
     B, S = n.shape
     res = np.full(B, np.inf)
+    f = tendency(n)
+    P, L = gross(n)
     for _ in range(max_iter):
-        f = tendency(n)
-        P, L = gross(n)
         r0 = _relative_residual(f, P, L, atol)
         J = _regularise(jacobian(n), f)
         dn = sparse_solve(J, -f.ravel())
@@ -159,23 +164,22 @@ def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
         scale = _scale(P, L, atol)
         norm0 = np.linalg.norm(f / scale)
         mu = 1.0
-        trial = n + lam[:, None] * dn
         for _ in range(8):
-            normt = np.linalg.norm(tendency(trial) / scale)
-            if normt <= GROWTH_LIMIT * norm0 or mu < 1e-3:
+            trial = np.maximum(n + mu * lam[:, None] * dn, 0.0)
+            ft = tendency(trial)
+            if np.linalg.norm(ft / scale) <= GROWTH_LIMIT * norm0 or mu < 1e-3:
                 break
             mu /= 2
-            trial = n + mu * lam[:, None] * dn
-        trial = np.maximum(trial, 0.0)
         step = np.abs(trial - n)
         floor = 1e-12 * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
         rel_step = np.max(step / (trial + floor[:, None]), axis=1, initial=0.0)
-        n = trial
+        n, f = trial, ft
+        P, L = gross(n)
         iterations += 1
         res = r0
         if np.all((r0 <= rtol) & (rel_step <= STEP_TOL)):
-            f = tendency(n)
-            P, L = gross(n)
+            # The residual at the point reached confirms it (quadratic convergence puts
+            # it far inside the tolerance).
             res = _relative_residual(f, P, L, atol)
             if np.all(res <= rtol):
                 return n, True, res
@@ -268,7 +272,7 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
 
 
 def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=1e-10,
-                          atol=1e-30, level_names=None):
+                          atol=1e-30, level_names=None, n0=None):
     """Steady state of stacked columns: local chemistry plus one species' transport.
 
     Parameters
@@ -283,9 +287,10 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
         B, a whole number of columns of ``transport.A`` levels.
     rtol, atol, level_names
         As in :func:`solve_column`.
-
-    The start is the photochemical steady state of every level (:mod:`steady`, to a
-    relative residual of 1e-6) when it exists, zero otherwise.
+    n0 : ndarray (B, S), optional
+        Start (e.g. the nominal column for the samples of an ensemble). By default the
+        photochemical steady state of every level (:mod:`steady`, to a relative residual
+        of 1e-6) when it exists, zero otherwise.
 
     Returns
     -------
@@ -309,10 +314,13 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
         Pt, Lt = transport.gross(n)
         return P + Pt, L + Lt
 
-    try:
-        start = solve_steady(np.zeros((n_rows, S)), tendency, jacobian, gross,
-                             rtol=max(rtol, 1e-6)).n
-    except SolverError:
-        start = np.zeros((n_rows, S))
+    if n0 is not None:
+        start = np.asarray(n0, float)
+    else:
+        try:
+            start = solve_steady(np.zeros((n_rows, S)), tendency, jacobian, gross,
+                                 rtol=max(rtol, 1e-6)).n
+        except SolverError:
+            start = np.zeros((n_rows, S))
     return solve_column(start, col_tendency, col_jacobian, col_gross, rtol=rtol, atol=atol,
                         level_names=level_names)
