@@ -61,6 +61,18 @@ def add_steady_diagnostics(model, ds):
                             {"units": "s", "long_name": "O+ vertical diffusion time "
                              "H_n^2/(D_a sin^2 I), H_n the scale height of atomic oxygen"})
     doubtful = (life > tau_d[None, :]) & np.isfinite(life) & (dens.values > 0)
+    if getattr(model, "transport", None) is not None:
+        # Transported species are not assumed in equilibrium, nor the electrons and totals
+        # that follow them: the flag concerns the species still solved locally.
+        moved = set(model.scenario.transport.species)
+        names = list(ds["species"].values)
+        for tot in mech.derived:
+            if moved & set(tot.members):
+                moved.add(tot.name)
+        moved.add(ELECTRON)
+        for i, name in enumerate(names):
+            if name in moved:
+                doubtful[i] = False
     ds["pce_doubtful"] = (("species", "altitude"), doubtful.astype(np.int8),
                           {"long_name": "photochemical equilibrium doubtful: lifetime longer "
                            "than the diffusion time", "flag_values": np.array([0, 1], np.int8),
