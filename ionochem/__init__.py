@@ -20,6 +20,7 @@ __version__ = "0.1.0"
 _LAZY = {
     "Model": "ionochem.model",
     "load_mechanism": "ionochem.model",
+    "load_observations": "ionochem.io.observations",
     "load_reaction_list": "ionochem.model",
     "load_scenario": "ionochem.model",
 }

@@ -7,7 +7,24 @@ exit status 2; anything else escaping is a bug (exit 1, traceback).
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
+
+#: What a column or header name may look like to be quoted back in a message.
+_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_+\-()=,.]{0,39}")
+
+
+def safe_name(text, quote: bool = True) -> str:
+    """``text`` quoted for a message when it looks like a column name, else a stand-in.
+
+    Error messages about a file must not repeat arbitrary content of it (a table path may
+    point at any file the user can read); a short name of letters, digits and ``_+-()=,.``
+    is quoted, anything else is described as ``(not a column name)``.
+    """
+    text = str(text).strip()
+    if not _NAME.fullmatch(text):
+        return "(not a column name)"
+    return repr(text) if quote else text
 
 
 class Error(Exception):
@@ -65,9 +82,11 @@ class MechanismError(InputError):
 class SolverError(Error):
     """A column the solvers could not bring to a valid answer.
 
-    ``levels`` holds the altitudes (km) that failed.
+    ``levels`` holds the altitudes (km) that failed and ``species``, where known, the species
+    with the largest residual at each of them.
     """
 
-    def __init__(self, message: str, *, levels=(), **kw):
+    def __init__(self, message: str, *, levels=(), species=(), **kw):
         super().__init__(message, **kw)
         self.levels = tuple(levels)
+        self.species = tuple(species)

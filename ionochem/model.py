@@ -12,7 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError, MechanismError, TableRangeError
+from ionochem.errors import InputError, MechanismError, SolverError, TableRangeError
 from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 
 SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
@@ -117,6 +117,9 @@ class Model:
             mechanism = load_mechanism(scenario.reactions)
         self.reaction_list = mechanism
         rxns = list(mechanism.reactions)
+        if not rxns:
+            raise MechanismError("the reaction list holds no reactions",
+                                 file=getattr(mechanism, "path", None) or scenario.reactions)
         self._rxns = rxns
         self.reactions = [r.id for r in rxns]
         self._id_index = {r.id: j for j, r in enumerate(rxns)}
@@ -151,6 +154,11 @@ class Model:
                                    electrons=scenario.solve.electrons,
                                    balance_ion=scenario.solve.balance_ion)
         mech = self.mechanism
+        if not mech.solved:
+            raise MechanismError("the reaction list has no species to solve: every species "
+                                 "in it is fixed by the neutral source "
+                                 f"({', '.join(sorted(env.neutrals)) or 'none'})",
+                                 file=getattr(mechanism, "path", None) or scenario.reactions)
         problems = mech.structural_problems()
         if problems:
             name, r = problems[0]
@@ -164,7 +172,8 @@ class Model:
         list_warnings = [w for w in getattr(mechanism, "warnings", [])
                          if not any(str(getattr(w, "message", w)).startswith(f"{n} is produced")
                                     for n in env.neutrals)]
-        self.warnings = list(env.warnings) + list_warnings
+        self.warnings = (list(getattr(scenario, "warnings", ())) + list(env.warnings)
+                         + list_warnings)
         A = env.altitude_km.size
         given = np.zeros((A, len(mech.given)))
         total_neutral = sum(env.neutrals.values())
@@ -185,6 +194,8 @@ class Model:
              for j in self._source_reactions], -1) if self._source_reactions \
             else np.zeros((A, 0))
         self._k_static = self._evaluate_k(time_s=None)
+        from ionochem.mechanism.bounds import implausible_rates
+        self.warnings += implausible_rates(rxns, self._k_static)
         # The expression language allows a source only times constant factors, so a photo
         # rate is coefficient × source(t): precompute the coefficients once for transient runs.
         self._src_keys = [self._source_key(j, "photo" if "photo" in self._k_expr[j].variables
@@ -555,8 +566,25 @@ class Model:
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
         names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
-        return solve_rows(self.mechanism, k, given, rtol=rtol,
-                          level_names=[f"{a:g} km" for a in names], transport=self.transport)
+        try:
+            return solve_rows(self.mechanism, k, given, rtol=rtol,
+                              level_names=[f"{a:g} km" for a in names],
+                              transport=self.transport)
+        except SolverError as exc:
+            raise self._solver_failure(exc, rtol) from None
+
+    def _solver_failure(self, exc, rtol):
+        """``exc`` at the scenario's file, with what to try."""
+        hints = []
+        if rtol < 1e-12:
+            hints.append(f"relax solve.rtol (now {rtol:g}; 1e-10 is the default)")
+        hints.append("check the rates of the reactions that make and destroy "
+                     f"{', '.join(dict.fromkeys(exc.species)) or 'those species'} at these "
+                     "heights (`ionochem reactions SCENARIO --altitude KM`)")
+        hints.append("or run the column with [solve] mode = \"transient\" to see whether it "
+                     "settles")
+        return SolverError(f"{exc.message}; try: {'; '.join(hints)}", file=self.scenario.source,
+                           key="solve", levels=exc.levels, species=exc.species)
 
     def solve(self):
         """Steady state at every level → ``xarray.Dataset``.
@@ -611,7 +639,16 @@ class Model:
             return mech.jacobian(n, self.rate_coefficients(t), self.given)
 
         times = np.asarray(times_s, float)
-        out = integrate(times, n0, tendency, jacobian, method=method, rtol=rtol, atol=atol)
+        try:
+            out = integrate(times, n0, tendency, jacobian, method=method, rtol=rtol,
+                            atol=atol)
+        except SolverError as exc:
+            if exc.file is not None:
+                raise
+            raise SolverError(f"{exc.message}; try fewer or closer output times, or check "
+                              "the rate laws for values far outside their physical bounds",
+                              file=self.scenario.source, key="solve.times_s",
+                              levels=exc.levels) from None
         return transient_dataset(self, times, out)
 
     def sensitivity(self, **kw):

@@ -94,8 +94,8 @@ def test_missing_level_is_an_error_naming_the_level(level_table):
 @pytest.mark.parametrize("content, words", [
     ("v,Te,k\n0,300,1\n0,400,2\n0,300,3\n", "duplicate row for v = 0, Te = 300 (lines 2 and 4)"),
     ("v,Te,k\n0,300,1\n0,200,2\n", "strictly increasing within level v = 0"),
-    ("v,Te,k\n0.5,300,1\n0.5,400,2\n", "level v '0.5' is not a whole number"),
-    ("v,Te,k\n-1,300,1\n-1,400,2\n", "level v '-1' is not a whole number"),
+    ("v,Te,k\n0.5,300,1\n0.5,400,2\n", "line 2: the level v is not a whole number"),
+    ("v,Te,k\n-1,300,1\n-1,400,2\n", "line 2: the level v is not a whole number"),
     ("Te,v,k\n300,0,1\n400,0,2\n", "'v' must be the first column"),
     ("v,k,Te\n0,1,300\n0,2,400\n", "the column after 'v' must be the temperature"),
     ("v,Te,k\n0,300,1\n1,400,2\n", "level v = 0 needs at least two rows"),

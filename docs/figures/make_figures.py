@@ -43,6 +43,11 @@ COMMANDS = (
     ("rank_n2plus_levels.png",
      ["rank", "scenarios/midlatitude_equinox.toml", "--species", "N2+(v=1)", "--altitudes",
       "200:300"], "--plot"),
+    ("fit_brackenfold.png",
+     ["fit", "scenarios/tabulated_column.toml", "--observed",
+      "scenarios/observations/brackenfold_n2plus_ne.csv", "--free", "PI_N2", "--free",
+      "N2plus_O_NOplus", "--free", "DR_N2plus", "--constrain-electrons", "--profile",
+      "N2plus_O_NOplus", "--profile-points", "9"], "--plot"),
 )
 
 

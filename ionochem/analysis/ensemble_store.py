@@ -15,17 +15,28 @@ batches in flight and ``--resume`` recomputes nothing that was finished:
     temporary file in the folder and renamed into place (an interrupted write leaves no
     half file under a batch name).
 
+``.lock``
+    Held (``fcntl.flock``) by the run using the store: a second run on the same store is
+    refused at once with a clear message instead of interleaving batches. The lock goes with
+    the process, so a killed run leaves no stale lock.
+
+A batch file that cannot be read back (a file cut short by a crash of the machine, say) is
+set aside as ``batch_….npz.damaged`` when the store is opened and its samples count as
+missing, so a resumed run recomputes them (``discarded`` lists them); hidden temporary files
+a killed run left are removed then too. A folder without a manifest is not taken for a store.
+
 The store knows nothing of chemistry: it keeps arrays by sample index. It must not decide
 which samples to compute; the ensemble runner asks it which ranges are missing.
 """
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import re
 import shutil
-import tempfile
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -42,17 +53,18 @@ def store_path_for(output) -> Path:
 
 
 def _atomic_write(folder: Path, name: str, write) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=f".{name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            write(fh)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, folder / name)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    from ionochem.io.netcdf import registered_temporary
+    with registered_temporary(str(folder), f".{name}") as tmp:
+        try:
+            with open(tmp, "wb") as fh:
+                write(fh)
+                fh.flush()
+                os.fsync(fh.fileno())
+            os.replace(tmp, folder / name)
+        except BaseException:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise
 
 
 class EnsembleStore:
@@ -75,37 +87,116 @@ class EnsembleStore:
         self.manifest = {"format": FORMAT, **manifest}
         text = json.dumps(self.manifest, sort_keys=True)
         self.manifest = json.loads(text)          # normalise tuples → lists for comparison
+        #: Batch files set aside because they could not be read back.
+        self.discarded: list[str] = []
+        self._lock_fd = None
+        where = str(self.folder)
         mpath = self.folder / "manifest.json"
-        if self.folder.exists():
-            if not resume:
-                raise InputError(
-                    f"{self.folder} holds samples of an earlier run: pass --resume to continue "
-                    "it, or remove the folder to start again", file=str(self.folder))
-            if not mpath.is_file():
-                raise InputError("the sample folder has no manifest.json: it was not made by "
-                                 "ionochem uncertainty; remove it to start again",
-                                 file=str(self.folder))
-            try:
-                stored = json.loads(mpath.read_text())
-            except (OSError, ValueError) as exc:
-                raise InputError(f"unreadable manifest.json ({exc}); remove the folder to "
-                                 "start again", file=str(self.folder)) from None
-            diff = sorted(k for k in set(stored) | set(self.manifest)
-                          if stored.get(k) != self.manifest.get(k))
-            if diff:
-                shown = "; ".join(f"{k}: stored {_short(stored.get(k))}, now "
-                                  f"{_short(self.manifest.get(k))}" for k in diff)
-                raise InputError("cannot resume: the stored samples were made with different "
-                                 f"inputs ({shown}); remove the folder or use another output",
-                                 file=str(self.folder))
-        else:
+        created = False
+        if not self.folder.exists() and not self.folder.is_symlink():
             parent = self.folder.parent if str(self.folder.parent) else Path(".")
             if not parent.is_dir():
-                raise InputError(f"output folder {parent} does not exist",
-                                 file=str(self.folder))
-            self.folder.mkdir()
+                raise InputError(f"output folder {parent} does not exist", file=where)
+            try:
+                self.folder.mkdir()
+                created = True
+            except FileExistsError:
+                pass                                 # another run made it just now
+            except OSError as exc:
+                raise InputError(f"cannot make the sample folder: {exc.strerror}",
+                                 file=where) from None
+        if not self.folder.is_dir():
+            raise InputError("the sample store path exists and is not a folder; remove or "
+                             "rename it", file=where)
+        self._lock()
+        self._sweep_temporaries()
+        if not created and not mpath.exists():
+            # An empty folder (a run stopped right after making it) is taken over.
+            created = not [p for p in self.folder.iterdir() if p.name != ".lock"]
+        if created:
             _atomic_write(self.folder, "manifest.json",
                           lambda fh: fh.write(text.encode() + b"\n"))
+            return
+        if not mpath.is_file():
+            self._unlock()
+            raise InputError("this folder has no manifest.json, so it is not an ionochem "
+                             "sample store (or the run that made it was stopped before "
+                             "writing one); remove or rename it, or choose another -o",
+                             file=where)
+        if not resume:
+            self._unlock()
+            raise InputError("holds samples of an earlier run: pass --resume to continue it, "
+                             "or remove the folder to start again", file=where)
+        try:
+            stored = json.loads(mpath.read_text(encoding="utf-8"))
+            if not isinstance(stored, dict):
+                raise ValueError("not a JSON object")
+        except (OSError, ValueError) as exc:
+            self._unlock()
+            raise InputError(f"unreadable manifest.json ({exc}); remove the folder to start "
+                             "again", file=where) from None
+        diff = sorted(k for k in set(stored) | set(self.manifest)
+                      if stored.get(k) != self.manifest.get(k))
+        if diff:
+            self._unlock()
+            shown = "; ".join(f"{k}: stored {_short(stored.get(k))}, now "
+                              f"{_short(self.manifest.get(k))}" for k in diff)
+            raise InputError("cannot resume: the stored samples were made with different "
+                             f"inputs ({shown}); remove the folder or use another output",
+                             file=where)
+        self._set_aside_damaged()
+
+    # ------------------------------------------------------------------ locking
+    def _lock(self):
+        """Take the store's lock or refuse: one run per store."""
+        try:
+            import fcntl
+        except ImportError:                       # not POSIX: no lock
+            return
+        path = self.folder / ".lock"
+        try:
+            fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as exc:
+            raise InputError(f"cannot create the store lock: {exc.strerror}",
+                             file=str(self.folder)) from None
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            holder = ""
+            with contextlib.suppress(OSError, ValueError):
+                holder = f" (process {int(os.read(fd, 32).decode().strip())})"
+            os.close(fd)
+            raise InputError(f"another ionochem run is using this sample store{holder}; "
+                             "wait for it to finish or give another -o",
+                             file=str(self.folder)) from None
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+        self._lock_fd = fd
+
+    def _unlock(self):
+        if self._lock_fd is not None:
+            with contextlib.suppress(OSError):
+                os.close(self._lock_fd)
+            self._lock_fd = None
+
+    def close(self) -> None:
+        """Release the lock (also released when the process ends)."""
+        self._unlock()
+
+    def _sweep_temporaries(self):
+        """Remove temporary files a killed run left (safe: this run holds the lock)."""
+        for p in self.folder.iterdir():
+            if p.name.startswith(".") and p.name.endswith(".tmp"):
+                with contextlib.suppress(OSError):
+                    p.unlink()
+
+    def _set_aside_damaged(self):
+        """Rename batch files that cannot be read back; their samples become missing."""
+        for p in sorted(self.folder.iterdir()):
+            if _BATCH.match(p.name) and not _readable(p):
+                with contextlib.suppress(OSError):
+                    os.replace(p, p.with_name(p.name + ".damaged"))
+                    self.discarded.append(p.name)
 
     # ------------------------------------------------------------------ reading
     def finished(self):
@@ -129,9 +220,21 @@ class EnsembleStore:
         return [(a, b) for a, b in gaps if b > a]
 
     def read(self, start: int, stop: int):
-        """``(z, n)`` of one stored batch."""
-        with np.load(self.folder / _name(start, stop), allow_pickle=False) as data:
-            return data["z"], data["n"]
+        """``(z, n)`` of one stored batch.
+
+        Raises
+        ------
+        InputError
+            When the batch file cannot be read back (damaged since the store was opened).
+        """
+        path = self.folder / _name(start, stop)
+        try:
+            with np.load(path, allow_pickle=False) as data:
+                return data["z"], data["n"]
+        except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile) as exc:
+            raise InputError(f"batch {path.name} cannot be read ({type(exc).__name__}); run "
+                             "again with --resume to recompute it", file=str(self.folder)
+                             ) from None
 
     def load(self, total: int):
         """All stored samples in index order: ``z`` (total, F) and ``n`` (total, A, S).
@@ -165,7 +268,18 @@ class EnsembleStore:
 
     def remove(self) -> None:
         """Delete the store (after the final output was written)."""
+        self._unlock()
         shutil.rmtree(self.folder, ignore_errors=True)
+
+
+def _readable(path) -> bool:
+    """Whether a batch file opens and holds ``z`` and ``n`` of matching length."""
+    try:
+        with np.load(path, allow_pickle=False) as data:
+            z, n = data["z"], data["n"]
+            return z.shape[0] == n.shape[0]
+    except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile):
+        return False
 
 
 def _name(start, stop):

@@ -197,9 +197,13 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     def rows(a, b):
         return Z[a:b]
 
-    z, n = run_ensemble(model, kernel, rows, runs, batch=batch, workers=workers,
-                        scheduler=scheduler, store=store, progress=progress,
-                        on_batch=on_batch)
+    try:
+        z, n = run_ensemble(model, kernel, rows, runs, batch=batch, workers=workers,
+                            scheduler=scheduler, store=store, progress=progress,
+                            on_batch=on_batch)
+    finally:
+        if store is not None:
+            store.close()
     dens, _, _ = species_samples(model, kernel, z, n)                 # (runs, A, Nsp)
     sub = dens[:, lv_idx][:, :, sp_idx]                               # (runs, L, Ns)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -119,7 +119,13 @@ def open_store(output, manifest, *, resume=False):
                              file="--resume")
         return None
     from ionochem.analysis.ensemble_store import EnsembleStore, store_path_for
-    return EnsembleStore(store_path_for(output), manifest, resume=resume)
+    store = EnsembleStore(store_path_for(output), manifest, resume=resume)
+    if store.discarded:
+        import warnings
+        warnings.warn(f"{store.folder}: {len(store.discarded)} damaged batch file(s) set "
+                      f"aside as *.damaged and recomputed: {', '.join(store.discarded)}",
+                      stacklevel=2)
+    return store
 
 
 def manifest_for(model, kernel, method, samples, seed, **extra):
@@ -200,9 +206,13 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
     def rows(a, b):
         return draw_normals(seed, a, b, kernel.width)
 
-    z, n = run_ensemble(model, kernel, rows, samples, batch=batch, workers=workers,
-                        scheduler=scheduler, store=store, progress=progress,
-                        on_batch=on_batch)
+    try:
+        z, n = run_ensemble(model, kernel, rows, samples, batch=batch, workers=workers,
+                            scheduler=scheduler, store=store, progress=progress,
+                            on_batch=on_batch)
+    finally:
+        if store is not None:
+            store.close()
     ds = summarise(model, kernel, z, n, seed=seed)
     ds.attrs["batch_samples"] = int(batch or default_batch(kernel.altitude_km.size))
     return ds

@@ -16,7 +16,7 @@ from ionochem.errors import Error
 
 #: Subcommand modules of this package, in the order ``ionochem --help`` lists them; each
 #: has ``register(subparsers)`` which adds its parser and sets ``func``.
-COMMANDS = ("run", "check", "reactions", "compare", "rank", "uncertainty", "rates")
+COMMANDS = ("run", "check", "reactions", "compare", "rank", "uncertainty", "fit", "rates")
 
 
 def build_parser():
@@ -39,8 +39,17 @@ def main(argv=None):
     argv = sys.argv[1:] if argv is None else list(argv)
     args = parser.parse_args(argv)
     args.command_line = "ionochem " + " ".join(argv)
+    import warnings
+
+    def one_line(message, category, filename, lineno, file=None, line=None):
+        print(f"warning: {message}", file=sys.stderr)
+
+    warnings.showwarning = one_line
+    from ionochem.io.netcdf import terminate_cleanly
     try:
-        return args.func(args)
+        # SIGTERM removes the temporary files being written and ends with status 143.
+        with terminate_cleanly():
+            return args.func(args)
     except Error as exc:
         print(str(exc), file=sys.stderr)
         return 2

@@ -10,6 +10,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
+from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
     check_output,
@@ -48,6 +49,7 @@ def register(subparsers):
     c.add_argument("--bands", metavar="NAME=LO:HI,...",
                    help="altitude bands of the summary, km (default E=90:150,F1=150:200,"
                         "F2=200:300)")
+    add_observed_option(c)
     c.set_defaults(func=cmd_compare)
 
 
@@ -87,6 +89,7 @@ def cmd_compare(args):
     if not (sets or scales or files):
         raise InputError("compare needs at least one change: --set ID=EXPR, --scale ID=F, "
                          "--reactions FILE, --add FILE or --list FILE", file=args.scenario)
+    observed = load_observed(args)
     replacements = [parse_reaction_list(f) for f in args.reactions or []]
     additions = [parse_reaction_list(f) for f in args.add or []]
     alternative = parse_reaction_list(args.alternative) if args.alternative else None
@@ -117,6 +120,11 @@ def cmd_compare(args):
     print(table.text())
     if "effective_rate_change" in ds:
         print(effective_rate_table(ds).text())
+    if observed is not None:
+        from ionochem.analysis.misfit import misfit_of_dataset
+        print_misfit(observed, {
+            "baseline": misfit_of_dataset(observed, ds, density=ds["density_baseline"]),
+            "changed": misfit_of_dataset(observed, ds, density=ds["density_changed"])})
     if args.csv:
         table.write_csv(args.csv)
         print(f"wrote {args.csv}")
@@ -126,7 +134,7 @@ def cmd_compare(args):
         print(f"wrote {args.output}")
     if args.plot:
         from ionochem.plot.compare import plot_compare
-        plot_compare(ds, args.plot, species=species)
+        plot_compare(ds, args.plot, species=species, observed=observed)
         print(f"wrote {args.plot}")
     return 0
 

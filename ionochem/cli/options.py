@@ -138,19 +138,34 @@ def _same_file(a, b):
 
 
 def check_outputs(args, *, inputs=()):
-    """Check ``args.output`` (``-o``) and ``args.plot`` (``--plot``) before any work."""
-    check_output(getattr(args, "output", None), "-o", inputs=inputs)
-    check_output(getattr(args, "plot", None), "--plot", figure=True, inputs=inputs)
-    out, fig = getattr(args, "output", None), getattr(args, "plot", None)
-    if out and fig and Path(out).resolve() == Path(fig).resolve():
-        raise InputError("-o and --plot name the same file", file=out)
+    """Check ``-o``, ``--plot`` and ``--csv`` of ``args`` before any work.
+
+    Each target passes :func:`check_output` and no two of them (nor any of ``inputs``) name
+    the same file.
+    """
+    targets = [(flag, getattr(args, attr, None)) for flag, attr in
+               (("-o", "output"), ("--plot", "plot"), ("--csv", "csv"))]
+    for flag, path in targets:
+        check_output(path, flag, figure=flag == "--plot", inputs=inputs)
+    given = [(flag, path) for flag, path in targets if path]
+    for i, (flag_a, a) in enumerate(given):
+        for flag_b, b in given[i + 1:]:
+            if _resolved(a) == _resolved(b):
+                raise InputError(f"{flag_a} and {flag_b} name the same file", file=a)
+
+
+def _resolved(path):
+    try:
+        return Path(path).resolve()
+    except (OSError, RuntimeError, ValueError):
+        return Path(path).absolute()
 
 
 def scenario_inputs(scenario):
     """Files a scenario reads (to keep outputs from overwriting them)."""
     out = [scenario.source, scenario.reactions]
     for value in vars(scenario).values():
-        for attr in ("table", "spectrum", "electron_table"):
+        for attr in ("table", "no_table", "spectrum", "extra_spectrum", "electron_table"):
             path = getattr(value, attr, None)
             if path:
                 out.append(path)

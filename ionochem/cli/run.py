@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     DEFAULT_REPORT_KM,
     Table,
@@ -44,6 +45,10 @@ def register(subparsers):
                    help="heights of the printed table and of the transient figure "
                         f"(default {','.join(str(a) for a in DEFAULT_REPORT_KM)}; transient: "
                         "200)")
+    r.add_argument("--allow-long", action="store_true",
+                   help="allow a transient run beyond the two-day bound (docs/scenario.md, "
+                        "Long runs)")
+    add_observed_option(r)
     r.set_defaults(func=cmd_run)
 
 
@@ -77,6 +82,7 @@ def cmd_run(args):
                  inputs=[args.scenario])
     budgets = [parse_budget(b) for b in (args.budget or [])]
     heights = parse_km_list(args.altitudes) if args.altitudes else None
+    observed = load_observed(args)
     scen, model = load_model(args)
     check_outputs(args, inputs=scenario_inputs(scen))
     budgets += [parse_budget(b) for b in scen.output.budget]
@@ -86,6 +92,9 @@ def cmd_run(args):
         raise InputError("--plot-levels needs a steady run (solve.mode is 'transient')",
                          file="--plot-levels")
     if transient:
+        from ionochem.cli.limits import check_transient
+        check_transient(scen, len(model.species), len(model.reactions),
+                        allow_long=args.allow_long)
         initial = model.solve() if scen.solve.start == "steady" else None
         ds = model.integrate(np.asarray(scen.solve.times_s, float), initial=initial)
         table = transient_table(ds, heights[0] if heights else 200.0)
@@ -108,6 +117,11 @@ def cmd_run(args):
         if dark.any() and not dark.all():
             print(f"{int(dark.sum())} dark level(s) below "
                   f"{ds['altitude'].values[dark].max():g} km", file=sys.stderr)
+    if observed is not None:
+        from ionochem.analysis.misfit import misfit_of_dataset
+        if transient:
+            print("note: the misfit is of the last output time", file=sys.stderr)
+        print_misfit(observed, {"model": misfit_of_dataset(observed, ds)})
     if budgets:
         from ionochem.analysis.budget import budget_table, format_budget
         at = ds
@@ -128,7 +142,7 @@ def cmd_run(args):
             plot_time_series(ds, args.plot, altitudes_km=heights)
         else:
             from ionochem.plot.profiles import plot_result
-            plot_result(ds, args.plot)
+            plot_result(ds, args.plot, observed=observed)
         print(f"wrote {args.plot}")
     if getattr(args, "plot_levels", None):
         from ionochem.plot.levels import plot_levels

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
     check_output,
@@ -71,8 +72,11 @@ def register(subparsers):
     u.add_argument("--csv", metavar="FILE",
                    help="write the printed table (median and 68 %% factor) as CSV")
     u.add_argument("--no-progress", action="store_true", help="no progress bar")
+    u.add_argument("--allow-long", action="store_true",
+                   help="allow an ensemble beyond the work bound (docs/scenario.md, Long runs)")
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
+    add_observed_option(u)
     u.set_defaults(func=cmd_uncertainty)
     return subparsers
 
@@ -120,6 +124,7 @@ def cmd_uncertainty(args):
     check_output(args.csv, "--csv", inputs=[args.scenario, *files])
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
+    observed = load_observed(args)
     scen, model = load_model(args)
     check_outputs(args, inputs=scenario_inputs(scen) + files)
     if files:
@@ -128,6 +133,10 @@ def cmd_uncertainty(args):
         model = changed_model(model,
                               replacements=[parse_reaction_list(f) for f in args.reactions or []],
                               additions=[parse_reaction_list(f) for f in args.add or []])
+    from ionochem.cli.limits import check_ensemble
+    runs = 1 if args.method == "montecarlo" else args.top + len(spreads or ()) + 2
+    check_ensemble(args.samples, runs, model.altitude_km.size, len(model.species),
+                   len(model.reactions), allow_long=args.allow_long)
     if scen.solve.mode != "steady":
         print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
               "states (photochemical equilibrium)", file=sys.stderr)
@@ -153,6 +162,8 @@ def cmd_uncertainty(args):
         table = _print_montecarlo(ds)
     else:
         table = _print_global(ds)
+    if observed is not None:
+        _print_observed_misfit(observed, ds)
     stamp_history(ds, args)
     if args.csv:
         table.write_csv(args.csv)
@@ -166,9 +177,23 @@ def cmd_uncertainty(args):
             remove_store(args.output)
     if args.plot:
         from ionochem.plot.uncertainty import plot_uncertainty
-        plot_uncertainty(ds, args.plot)
+        plot_uncertainty(ds, args.plot, observed=observed)
         print(f"wrote {args.plot}")
     return 0
+
+
+def _print_observed_misfit(observed, ds):
+    """Misfit of the Monte Carlo median and of the central (unperturbed) column."""
+    from ionochem.analysis.misfit import misfit_of_dataset
+    if "density_quantiles" not in ds:
+        print("note: --observed: no misfit for a global-sensitivity run (no density "
+              "profiles); the misfit needs --method montecarlo", file=sys.stderr)
+        return
+    fits = {"median": misfit_of_dataset(
+        observed, ds, density=ds["density_quantiles"].sel(quantile=0.5))}
+    if "density_central" in ds:
+        fits["central"] = misfit_of_dataset(observed, ds, density=ds["density_central"])
+    print_misfit(observed, fits)
 
 
 def _main_species(names):

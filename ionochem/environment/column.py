@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ionochem.errors import ScenarioError
+from ionochem.errors import ScenarioError, safe_name
 
 NEUTRAL_SPECIES = ("N2", "O2", "O", "N", "NO", "He", "H", "Ar")
 
@@ -97,6 +97,26 @@ class Environment:
         return self.sun.dark(time_s)
 
 
+def _check_neutral_names(neutrals, file):
+    """Every column of a neutral table names a neutral species (no ion, no electron).
+
+    A column ``O2+`` would fix that ion at the tabulated density and silently break charge
+    balance, so it is refused.
+    """
+    from ionochem.mechanism.species import parse_species
+    for name in neutrals:
+        try:
+            sp = parse_species(name)
+        except ValueError as exc:
+            raise ScenarioError(f"column {safe_name(name)} is not a species name ({exc})",
+                                file=file, key="neutrals.table") from None
+        if sp.charge != 0 or sp.name in ("e", "M"):
+            raise ScenarioError(f"column {safe_name(name)} is charged or not a neutral; a "
+                                "neutral table holds neutral densities only (ions and "
+                                "electrons are solved, or given with [solve] electrons = "
+                                "'table')", file=file, key="neutrals.table")
+
+
 def build_environment(scenario, needs=frozenset()) -> Environment:
     """Build the column a scenario describes.
 
@@ -122,6 +142,7 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                                 key="neutrals.table")
         Tn = table.pop("Tn_K")
         neutrals = {k: v for k, v in table.items() if k != "altitude_km"}
+        _check_neutral_names(neutrals, file)
         profile_source = None
     else:
         from ionochem.environment.neutral_source import msis_column

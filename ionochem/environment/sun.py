@@ -15,6 +15,8 @@ side and each lattice node is computed once.
 
 from __future__ import annotations
 
+import collections
+
 import numpy as np
 
 from ionochem.environment.slant import EARTH_RADIUS_KM
@@ -23,6 +25,9 @@ from ionochem.errors import ScenarioError
 #: Spacing of the time lattice of photo rates in transient runs, s (a choice: the zenith
 #: angle changes by at most 0.25° in 60 s).
 LATTICE_S = 60.0
+#: Lattice times whose rates are kept (oldest dropped first): 512 nodes are 8.5 hours, and the
+#: integrator only moves forward, so a long run's memory stays bounded (a few tens of MB).
+MAX_CACHED_NODES = 512
 #: Photo and photoelectron frequencies below this (s-1 per molecule) are set to zero: they
 #: make less than one ion per cm3 in 1e70 years, and along grazing rays (the hard soft X-ray
 #: bins reach levels the EUV cannot) the densities they imply, ~1e-135 cm-3, underflow
@@ -139,7 +144,8 @@ class SunColumn:
         # Absorber densities on the grid, for photoelectron sharing.
         self.local = {k: env.neutrals[k] for k in ("N2", "O2", "O") if k in env.neutrals}
         self.time_dependent = scenario.solve.mode == "transient"
-        self._cache = {}
+        # Rates at lattice times, most recent last; bounded so a long run's memory is too.
+        self._cache = collections.OrderedDict()
         self.photon_sources = [spectrum.source]
         self.night = None
         if photons.night_sources:
@@ -197,7 +203,10 @@ class SunColumn:
     def _node(self, t):
         """Rates at lattice time t (s): dict of channel → (altitude,), and dark mask."""
         if t in self._cache:
+            self._cache.move_to_end(t)
             return self._cache[t]
+        while len(self._cache) >= MAX_CACHED_NODES:
+            self._cache.popitem(last=False)
         from ionochem.environment.geometry import flux_distance_factor
         from ionochem.environment.photorates import photo_frequencies
         from ionochem.environment.slant import slant_columns

@@ -17,12 +17,14 @@ from __future__ import annotations
 
 import csv
 import math
+import re
 from collections.abc import Collection, Sequence
 from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError, ScenarioError
+from ionochem.errors import InputError, ScenarioError, safe_name
+from ionochem.io.paths import PathProblem, read_bounded
 
 __all__ = ["ALTITUDE_TOLERANCE_KM", "read_csv_columns", "read_profile_table"]
 
@@ -84,17 +86,15 @@ def read_csv_columns(path: str | Path, *, where: str | None = None,
     """
     path = Path(path)
     try:
-        text = path.read_bytes().decode("utf-8-sig")
-    except FileNotFoundError:
-        raise _fail("table file not found", path, None, where, scenario_file) from None
-    except IsADirectoryError:
-        raise _fail("is a folder, not a table file", path, None, where, scenario_file) from None
+        text = read_bounded(path).decode("utf-8-sig")
+    except PathProblem as exc:
+        raise _fail(f"table file {exc}", path, None, where, scenario_file) from None
     except UnicodeDecodeError as exc:
         raise _fail(f"not UTF-8 text ({exc.reason} at byte {exc.start})", path, None, where,
                     scenario_file) from None
-    except OSError as exc:
-        raise _fail(f"cannot read the table: {exc.strerror}", path, None, where,
-                    scenario_file) from None
+    if "\0" in text:
+        raise _fail("contains a NUL character: not a text table", path, None, where,
+                    scenario_file)
 
     numbered = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
                 if ln.strip() and not ln.lstrip().startswith("#")]
@@ -110,8 +110,8 @@ def read_csv_columns(path: str | Path, *, where: str | None = None,
     seen = set()
     for name in header:
         if name in seen:
-            raise _fail(f"column {name!r} appears twice in the header", path, header_line,
-                        where, scenario_file)
+            raise _fail(f"column {safe_name(name)} appears twice in the header", path,
+                        header_line, where, scenario_file)
         seen.add(name)
 
     values: list[list[float]] = []
@@ -123,13 +123,13 @@ def read_csv_columns(path: str | Path, *, where: str | None = None,
         row = []
         for name, cell in zip(header, cells, strict=True):
             cell = cell.strip()
-            try:
-                value = float(cell)
-            except ValueError:
-                raise _fail(f"cell {cell!r} in column {name!r} is not a number",
+            value = _ascii_float(cell)
+            if value is None:
+                raise _fail(f"the cell in column {safe_name(name)} is not a number "
+                            "(ASCII digits, e.g. 1.5e6)",
                             path, lineno, where, scenario_file) from None
             if not math.isfinite(value):
-                raise _fail(f"cell {cell!r} in column {name!r} is not a finite number",
+                raise _fail(f"the cell in column {safe_name(name)} is not a finite number",
                             path, lineno, where, scenario_file)
             row.append(value)
         values.append(row)
@@ -138,6 +138,18 @@ def read_csv_columns(path: str | Path, *, where: str | None = None,
         raise _fail("the table has a header but no data rows", path, header_line, where,
                     scenario_file)
     return header, np.asarray(values, dtype=float), np.asarray(lines, dtype=int)
+
+
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
+                     r"|[+-]?(?:inf|infinity|nan)", re.IGNORECASE)
+
+
+def _ascii_float(cell: str) -> float | None:
+    """The number in ``cell`` written with ASCII digits, or None (``float`` alone would
+    accept Unicode digits such as '١' and underscores)."""
+    if not _NUMBER.fullmatch(cell):
+        return None
+    return float(cell)
 
 
 def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, *,
@@ -191,7 +203,7 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
 
     header, data, lines = read_csv_columns(path, where=where, scenario_file=scenario_file)
     if header[0] != "altitude_km":
-        raise fail(f"the first column must be 'altitude_km', not {header[0]!r}")
+        raise fail(f"the first column must be 'altitude_km', not {safe_name(header[0])}")
     if len(header) < 2:
         raise fail("the table has no column besides altitude_km")
     alt = data[:, 0]
@@ -216,7 +228,8 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
         missing = [name for name in wanted if name not in index]
         if missing:
             raise fail(f"missing column{'s' if len(missing) > 1 else ''} "
-                       f"{', '.join(missing)}; the table has: {', '.join(header)}")
+                       f"{', '.join(missing)}; the table has: "
+                       f"{', '.join(safe_name(h, quote=False) for h in header)}")
     if nonnegative is True:
         must_be_nonneg = set(wanted)
     elif nonnegative is False:
@@ -246,7 +259,7 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
             if bad.size:
                 i = bad[0]
                 need = "a positive temperature" if name.endswith("_K") else "non-negative"
-                raise fail(f"column {name!r} has {col[i]:g}; it must be {need}",
+                raise fail(f"column {safe_name(name)} has {col[i]:g}; it must be {need}",
                            int(lines[i]))
         if np.all(col > 0):
             out[name] = np.exp(np.interp(x, alt, np.log(col)))

@@ -40,7 +40,8 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import ReactionListError
-from ionochem.mechanism.ratetables import RateTable, load_rate_table
+from ionochem.io.paths import PathProblem, resolve_path
+from ionochem.mechanism.ratetables import RateTable, load_rate_table, where_tables
 
 __all__ = ["CompiledExpr", "compile_expression", "VARIABLES", "SOURCES", "FUNCTIONS",
            "MAX_DEPTH", "MAX_LENGTH"]
@@ -64,7 +65,7 @@ _KNOWN_NAMES = list(VARIABLES) + list(SOURCES) + list(FUNCTIONS) + ["table"]
 
 _TOKEN = re.compile(r"""
     (?P<ws>[ \t]+)
-  | (?P<num>(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)
+  | (?P<num>(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?)
   | (?P<name>[A-Za-z_][A-Za-z0-9_]*)
   | (?P<str>"[^"\\\n]*"|'[^'\\\n]*')
   | (?P<op>\*\*|<=|>=|==|!=|[-+*/^(),<>])
@@ -129,6 +130,8 @@ def _tokenize(text: str) -> list[_Tok]:
                 msg = _BAD_CHARS[ch]
             elif ch.isspace():
                 msg = f"unexpected white-space character U+{ord(ch):04X}"
+            elif ch.isdecimal():
+                msg = f"'{ch}' is not an ASCII digit: write numbers with 0-9"
             elif ch.isprintable():
                 msg = f"unexpected character '{ch}'"
             else:
@@ -410,8 +413,12 @@ class _Parser:
         name, column = args[0], args[1]
         if not name.strip():
             self.error("table() needs a file name", tok)
-        table = load_rate_table(self.base_dir / name, column, file=self.file, line=self.line,
-                                name=name, level=self.level)
+        try:
+            path = resolve_path(name, self.base_dir)
+        except PathProblem as exc:
+            self.error(f"table({name!r}): {exc}; {where_tables(self.base_dir)}", tok)
+        table = load_rate_table(path, column, file=self.file, line=self.line, name=name,
+                                level=self.level, base_dir=self.base_dir)
         self.tables.append(table)
         self.variables.add(table.variable)
         return ("table", table, extrapolate)

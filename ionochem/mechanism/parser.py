@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ionochem.errors import ReactionListError
+from ionochem.io.paths import PathProblem, read_bounded, resolve_path
 from ionochem.mechanism.expressions import CompiledExpr, compile_expression
 from ionochem.mechanism.species import (
     Species,
@@ -37,11 +38,11 @@ _MAX_ENTRY = 20_000
 _ID = re.compile(r"[A-Za-z0-9_.\-]+")
 _FAMILY_ID = re.compile(r"([A-Za-z0-9_.\-]+)\(v\)")
 _FIELD_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
-_LEVELS = re.compile(r"levels\s+v\s*=\s*(-?\d+)\s*\.\.\s*(-?\d+)")
+_LEVELS = re.compile(r"levels\s+v\s*=\s*(-?[0-9]+)\s*\.\.\s*(-?[0-9]+)")
 _JOIN = re.compile(r"\s+\+\s+")
-_COUNT = re.compile(r"(\d+)\s+(\S.*)")
+_COUNT = re.compile(r"([0-9]+)\s+(\S.*)")
 _STATE = re.compile(r"\(([^()]*)\)$")
-_PLACEHOLDER = re.compile(r"(?:v\s*=\s*)?v(?:\s*([+-])\s*(\d+))?")
+_PLACEHOLDER = re.compile(r"(?:v\s*=\s*)?v(?:\s*([+-])\s*([0-9]+))?")
 _UNITS = {1: "s-1", 2: "cm3 s-1", 3: "cm6 s-1"}
 _FIELDS = ("k", "f", "ref", "levels")
 
@@ -333,7 +334,7 @@ def _parse_side(text: str, side: str, level: int | None, ctx: _Context):
                          "to 99")
             count = int(m.group(1))
             term = m.group(2).strip()
-        elif term[0].isdigit():
+        elif term[0] in "0123456789":
             if "0" in term:
                 ctx.fail(f"'{term}' is not a species: it contains the digit zero (0); the "
                          "oxygen atom is the letter O (e.g. 'O2')")
@@ -402,8 +403,8 @@ def _parse_fields(fields: list[str], ctx: _Context) -> dict[str, object]:
         if name == "levels":
             lm = _LEVELS.fullmatch(text)
             if not lm:
-                ctx.fail(f"write levels as 'levels v = A..B' with whole numbers, found "
-                         f"'{text[:60]}'")
+                ctx.fail(f"write levels as 'levels v = A..B' with whole numbers (ASCII "
+                         f"digits 0-9), found '{text[:60]}'")
             a, b = int(lm.group(1)), int(lm.group(2))
             if a < 0:
                 ctx.fail(f"levels v = {a}..{b}: levels must be 0 or more")
@@ -648,15 +649,11 @@ def parse_reaction_list(path) -> ReactionList:
         characters, or anything malformed, at ``path:line``.
     """
     name = str(path)
-    p = Path(path)
     try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise ReactionListError("file not found", file=name) from None
-    except IsADirectoryError:
-        raise ReactionListError("is a folder, not a reaction list", file=name) from None
-    except OSError as exc:
-        raise ReactionListError(f"cannot be read ({exc.strerror})", file=name) from None
+        p = resolve_path(path)
+        data = read_bounded(p)
+    except PathProblem as exc:
+        raise ReactionListError(f"reaction list {exc}", file=name) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:

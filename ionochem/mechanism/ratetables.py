@@ -32,13 +32,14 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import ReactionListError, TableRangeError
+from ionochem.errors import ReactionListError, TableRangeError, safe_name
+from ionochem.io.paths import PathProblem, read_bounded, regular_file
 
 __all__ = ["RateTable", "load_rate_table", "clear_cache", "TEMPERATURE_COLUMNS"]
 
 TEMPERATURE_COLUMNS = ("Te", "Ti", "Tn", "Teff")
 _TEMP_HEADER = re.compile(r"(Te|Ti|Tn|Teff)(_K)?")
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 _MAX_BYTES = 10_000_000
 # Relative slack when checking the range, so a temperature equal to an end point up to
 # rounding is not refused *(common practice)*.
@@ -179,15 +180,24 @@ def _fail(name, message, file, line):
 def _number(cell: str, what: str, row_line: int, name, file, line) -> float:
     text = cell.strip()
     if not _NUMBER.fullmatch(text):
-        _fail(name, f"line {row_line}: {what} '{text}' is not a number", file, line)
+        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is not a number "
+                    "(ASCII digits, e.g. 1.5e-10)", file, line)
     value = float(text)
     if not np.isfinite(value):
-        _fail(name, f"line {row_line}: {what} '{text}' is too large", file, line)
+        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is too large",
+              file, line)
     return value
 
 
+def where_tables(base_dir) -> str:
+    """Where a table path may point, for messages."""
+    return (f"table paths are absolute or relative to {base_dir} (the reaction list's folder, "
+            "or the working directory for --set) and must name a regular CSV file of at "
+            f"most {_MAX_BYTES} bytes")
+
+
 def load_rate_table(path, column: str, *, file=None, line=None, name: str | None = None,
-                    level: int | None = None) -> RateTable:
+                    level: int | None = None, base_dir=None) -> RateTable:
     """Load one column of a rate table (cached per file and column).
 
     Parameters
@@ -204,6 +214,8 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
         The family level of the referring reaction (None outside a family). A level-row
         table (one with a ``v`` column) returns the rows of this level; a plain table
         ignores it.
+    base_dir : str or Path, optional
+        The folder relative names resolve against (named in "not found" messages).
 
     Returns
     -------
@@ -219,14 +231,15 @@ def load_rate_table(path, column: str, *, file=None, line=None, name: str | None
     """
     path = Path(path)
     name = str(path) if name is None else name
+    hint = where_tables(path.parent if base_dir is None else base_dir)
     try:
-        st = path.stat()
-    except OSError:
-        _fail(name, f"file not found (looked for {path})", file, line)
-    key = (str(path.resolve()), column, st.st_mtime_ns, st.st_size)
+        st = regular_file(path, _MAX_BYTES)
+    except PathProblem as exc:
+        _fail(name, f"{exc} (looked for {path}); {hint}", file, line)
+    key = (str(path), column, st.st_mtime_ns, st.st_size)
     parsed = _CACHE.get(key)
     if parsed is None:
-        parsed = _parse(path, column, st, name, file, line)
+        parsed = _parse(path, column, st, name, file, line, hint)
         _CACHE[key] = parsed
     return _select(parsed, name, level, file, line)
 
@@ -258,15 +271,11 @@ def _select(p: _Parsed, name, level, file, line) -> RateTable:
                      pick(p.values), pick(p.low), pick(p.high), int(level))
 
 
-def _parse(path: Path, column, st, name, file, line) -> _Parsed:
-    if not path.is_file():
-        _fail(name, f"not a file ({path})", file, line)
-    if st.st_size > _MAX_BYTES:
-        _fail(name, f"larger than {_MAX_BYTES} bytes", file, line)
+def _parse(path: Path, column, st, name, file, line, hint) -> _Parsed:
     try:
-        data = path.read_bytes()
-    except OSError as exc:
-        _fail(name, f"cannot be read ({exc.strerror})", file, line)
+        data = read_bounded(path, _MAX_BYTES)
+    except PathProblem as exc:
+        _fail(name, f"{exc}; {hint}", file, line)
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -302,7 +311,7 @@ def _parse(path: Path, column, st, name, file, line) -> _Parsed:
     if not m:
         where = "the column after 'v'" if has_v else "the first column"
         _fail(name, f"{where} must be the temperature (Te, Ti, Tn or Teff, "
-                    f"optionally with _K), found '{header[t_col]}'", file, line)
+                    f"optionally with _K), found {safe_name(header[t_col])}", file, line)
     variable = m.group(1)
     if column == header[t_col]:
         _fail(name, f"column '{column}' is the temperature column", file, line)
@@ -310,7 +319,8 @@ def _parse(path: Path, column, st, name, file, line) -> _Parsed:
         _fail(name, "column 'v' is the level column", file, line)
     if column not in header:
         _fail(name, f"no column '{column}' (columns: "
-                    f"{', '.join(header[t_col + 1:])})", file, line)
+                    f"{', '.join(safe_name(h, quote=False) for h in header[t_col + 1:])})",
+              file, line)
     idx = header.index(column)
     lo_name, hi_name = f"{column}_low", f"{column}_high"
     has_lo, has_hi = lo_name in header, hi_name in header
@@ -326,9 +336,9 @@ def _parse(path: Path, column, st, name, file, line) -> _Parsed:
                         f"{len(header)}", file, line)
         if has_v:
             cell = cells[0]
-            if not re.fullmatch(r"\+?\d{1,3}", cell):
-                _fail(name, f"line {row_line}: level v '{cell}' is not a whole number "
-                            "from 0 to 999", file, line)
+            if not re.fullmatch(r"\+?[0-9]{1,3}", cell):
+                _fail(name, f"line {row_line}: the level v is not a whole number "
+                            "from 0 to 999 (ASCII digits)", file, line)
             levels.append(int(cell))
         vals = [_number(cells[c], header[c], row_line, name, file, line) for c in cols]
         if vals[0] <= 0:

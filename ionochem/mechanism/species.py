@@ -50,8 +50,8 @@ ELECTRON_MASS_AMU = 5.48579909065e-4
 # N+(3P) -> N+ (NIST Atomic Spectra Database ground levels *(from memory)*).
 _GROUND_TERMS = {("O", 1): "4S", ("O", 0): "3P", ("N", 0): "4S", ("N", 1): "3P"}
 
-_ELEMENT = re.compile(r"([A-Z][a-z]?)(\d*)")
-_FORMULA = re.compile(r"(?:[A-Z][a-z]?\d*)+")
+_ELEMENT = re.compile(r"([A-Z][a-z]?)([0-9]*)")
+_FORMULA = re.compile(r"(?:[A-Z][a-z]?[0-9]*)+")
 _TERM = re.compile(r"[A-Za-z0-9]+'*")
 _VIB = re.compile(r"v\s*=\s*(\S*)")
 _MAX_NAME = 64
@@ -142,13 +142,13 @@ def _parse_state(state: str, name: str) -> tuple[str | None, int | None]:
             if vib is not None:
                 raise ValueError(f"two vibrational levels in species '{name}'")
             level = m.group(1)
-            if level == "v" or re.fullmatch(r"v\s*[-+]\s*\d+", level or ""):
+            if level == "v" or re.fullmatch(r"v\s*[-+]\s*[0-9]+", level or ""):
                 raise ValueError(f"species '{name}' uses the family level v outside a family")
-            if not re.fullmatch(r"0|[1-9]\d{0,3}", level):
+            if not re.fullmatch(r"0|[1-9][0-9]{0,3}", level):
                 raise ValueError(f"vibrational level in species '{name}' must be a whole "
-                                 f"number 0 or more, found '{level}'")
+                                 f"number 0 or more in ASCII digits, found '{level}'")
             vib = int(level)
-        elif re.fullmatch(r"v\s*([-+]\s*\d+)?", part):
+        elif re.fullmatch(r"v\s*([-+]\s*[0-9]+)?", part):
             raise ValueError(f"species '{name}' uses the family level v outside a family "
                              "(a family has an id ending in (v) and a 'levels v = A..B' field)")
         elif _TERM.fullmatch(part):
@@ -223,10 +223,13 @@ def parse_species(text: str) -> Species:
     charge = charge_text.count("+") - charge_text.count("-")
     state_text = None
     if rest:
-        if rest[0].isdigit() and charge_text:
+        if rest[0] in "0123456789" and charge_text:
             raise ValueError(f"write the charge as repeated signs (e.g. N2++), not "
                              f"'{charge_text}{rest[0]}', in species '{name}'")
         if rest[0] != "(":
+            if rest[0].isdecimal():
+                raise ValueError(f"'{rest[0]}' in species '{name}' is not an ASCII digit: "
+                                 "write counts with 0-9")
             raise ValueError(f"unexpected '{rest[0]}' in species '{name}'")
         close = rest.find(")")
         if close < 0:

@@ -31,7 +31,7 @@ def _species(ds, wanted):
     return out
 
 
-def compare_figure(ds, *, species=None, title=None):
+def compare_figure(ds, *, species=None, title=None, observed=None):
     """Profiles (baseline solid, changed dashed) beside the percentage change.
 
     Parameters
@@ -42,6 +42,8 @@ def compare_figure(ds, *, species=None, title=None):
         Default: electrons and the main ions present.
     title : str, optional
         Default: the dataset's title and the changes.
+    observed : xarray.Dataset, optional
+        Measurements (:func:`ionochem.load_observations`) drawn on the profiles.
 
     Returns
     -------
@@ -75,6 +77,8 @@ def compare_figure(ds, *, species=None, title=None):
     ax_r.axvline(0.0, color="0.5", lw=0.8)
     ax_r.set_xlabel("change from baseline (%)")
     ax_r.grid(True, alpha=0.3)
+    from ionochem.plot.observations import overlay_observations
+    overlay_observations(ax_n, observed, names)
     handles, labels = ax_n.get_legend_handles_labels()
     handles += [Line2D([], [], color="0.3", ls="-"), Line2D([], [], color="0.3", ls="--")]
     labels += ["baseline", "changed"]
@@ -92,11 +96,12 @@ def compare_figure(ds, *, species=None, title=None):
     return fig
 
 
-def plot_compare(ds, path, *, species=None, title=None):
+def plot_compare(ds, path, *, species=None, title=None, observed=None):
     """Write :func:`compare_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
 
     Returns
     -------
     Path
     """
-    return save_figure(compare_figure(ds, species=species, title=title), path)
+    return save_figure(compare_figure(ds, species=species, title=title, observed=observed),
+                       path)

@@ -115,8 +115,11 @@ def save_figure(fig, path):
     return Path(path)
 
 
-def profiles_figure(ds, *, species=None, title=None):
+def profiles_figure(ds, *, species=None, title=None, observed=None):
     """Densities against altitude on a log density axis (steady results).
+
+    ``observed`` (from :func:`ionochem.load_observations`) adds the measurements of the
+    species shown, with error bars (:mod:`ionochem.plot.observations`).
 
     Levels where a drawn species is not in photochemical equilibrium (``pce_doubtful``) are
     shaded and its curve is faded there (:mod:`ionochem.plot.equilibrium`); the legend sits
@@ -134,6 +137,8 @@ def profiles_figure(ds, *, species=None, title=None):
         plot_marked(ax, np.where(n > 0, n, np.nan), alt, masks[s], label=s,
                     **style_of(s, names[:names.index(s)]))
     style_density_axes(ax, alt, [ds["density"].sel(species=s).values for s in names])
+    from ionochem.plot.observations import overlay_observations
+    overlay_observations(ax, observed, names)
     handles, labels = ax.get_legend_handles_labels()
     shade = shade_doubtful(ax, alt, masks)
     if shade is not None:
@@ -150,14 +155,15 @@ def profiles_figure(ds, *, species=None, title=None):
     return fig
 
 
-def plot_profiles(ds, path, *, species=None, title=None):
+def plot_profiles(ds, path, *, species=None, title=None, observed=None):
     """Write :func:`profiles_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
 
     Returns
     -------
     Path
     """
-    return save_figure(profiles_figure(ds, species=species, title=title), path)
+    return save_figure(profiles_figure(ds, species=species, title=title,
+                                       observed=observed), path)
 
 
 def chosen_altitudes(ds, altitudes_km):
@@ -315,7 +321,9 @@ def _mark_sunset(ax, t_h, sza, altitude_km):
 
 
 def plot_result(ds, path, **kw):
-    """Profiles for a steady result, time series for a transient one."""
+    """Profiles for a steady result, time series for a transient one (``observed`` is
+    drawn on profiles only)."""
     if "time" in ds.dims:
+        kw.pop("observed", None)
         return plot_time_series(ds, path, **kw)
     return plot_profiles(ds, path, **kw)

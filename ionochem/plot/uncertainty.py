@@ -26,11 +26,12 @@ BAND_ALPHA = {0.90: 0.2, 0.68: 0.35}
 EDGE_WIDTH = 0.7
 
 
-def plot_uncertainty(ds, path, *, species=None, title=None):
-    """Write the figure of an uncertainty dataset (by its ``method`` attribute)."""
+def plot_uncertainty(ds, path, *, species=None, title=None, observed=None):
+    """Write the figure of an uncertainty dataset (by its ``method`` attribute); the
+    measurements ``observed`` are drawn on the Monte Carlo bands."""
     if ds.attrs.get("method") in ("sobol", "morris"):
         return plot_global(ds, path, species=species, title=title)
-    return plot_bands(ds, path, species=species, title=title)
+    return plot_bands(ds, path, species=species, title=title, observed=observed)
 
 
 def _pyplot():
@@ -40,7 +41,7 @@ def _pyplot():
     return plt
 
 
-def bands_figure(ds, *, species=None, title=None):
+def bands_figure(ds, *, species=None, title=None, observed=None):
     """Median densities against altitude with shaded 68 % and 90 % Monte Carlo bands.
 
     The 90 % band is a light fill with thin edges at the 5 % and 95 % quantiles, so that it
@@ -72,6 +73,8 @@ def bands_figure(ds, *, species=None, title=None):
         shown_vals.append(quant(0.05))
         shown_vals.append(quant(0.95))
     style_density_axes(ax, alt, shown_vals)
+    from ionochem.plot.observations import overlay_observations
+    overlay_observations(ax, observed, names)
     handles, labels = ax.get_legend_handles_labels()
     handles += [Patch(facecolor="0.3", alpha=BAND_ALPHA[0.68] + BAND_ALPHA[0.90], lw=0),
                 Patch(facecolor=(0.3, 0.3, 0.3, BAND_ALPHA[0.90]), edgecolor="0.3",
@@ -89,14 +92,15 @@ def bands_figure(ds, *, species=None, title=None):
     return fig
 
 
-def plot_bands(ds, path, *, species=None, title=None):
+def plot_bands(ds, path, *, species=None, title=None, observed=None):
     """Write :func:`bands_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
 
     Returns
     -------
     Path
     """
-    return save_figure(bands_figure(ds, species=species, title=title), path)
+    return save_figure(bands_figure(ds, species=species, title=title, observed=observed),
+                       path)
 
 
 def global_figure(ds, *, species=None, title=None):

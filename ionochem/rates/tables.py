@@ -31,6 +31,7 @@ import numpy as np
 
 from ionochem.errors import InputError
 from ionochem.io.netcdf import atomic_path
+from ionochem.io.paths import PathProblem, read_bounded, resolve_path
 
 __all__ = ["NumericTable", "read_numeric_csv", "write_level_table", "write_csv",
            "family_entry", "LEVEL_COLUMN", "level_of_column"]
@@ -90,12 +91,10 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
     NumericTable
     """
     name = str(path)
-    p = Path(path)
-    if not p.is_file():
-        raise InputError("file not found", file=name)
-    if p.stat().st_size > _MAX_BYTES:
-        raise InputError(f"larger than {_MAX_BYTES} bytes", file=name)
-    data = p.read_bytes()
+    try:
+        data = read_bounded(resolve_path(path), _MAX_BYTES)
+    except PathProblem as exc:
+        raise InputError(str(exc), file=name) from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:

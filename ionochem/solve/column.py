@@ -31,11 +31,11 @@ Method
    at the top, the molecular ions following the electrons quadratically) raise the norm
    before Newton converges quadratically, and a monotone line search would creep there.
 3. Convergence, per level exactly as in :mod:`ionochem.solve.steady` (docs/validation.md):
-   relative residual max_i |f_i|/(P_i + L_i + a) ≤ rtol before a step (a: atol or 1e-4 of
-   the level's largest gross rate, the same floor), relative step
-   ≤ 1e-3, residual ≤ rtol again at the point reached; the column is converged when every
-   level is. One addition for the coupled system: the absolute floor ``atol`` is raised to
-   1e-20 of the largest gross rate in the column at the start, because the errors of the
+   relative residual max_i |f_i|/(P_i + L_i + floor) ≤ rtol before a step (the same floor),
+   relative step ≤ 1e-3 (or every residual of the level below ``atol``), residual ≤ rtol
+   again at the point reached; the column is converged when every level is. One addition
+   for the coupled system: the floor is raised to 1e-20 of the largest gross rate in the
+   column at the start, because the errors of the
    column-wide linear solve scale with the column's largest terms. Without it, O+ leaking
    by diffusion into the Earth's shadow at a twilight column (1e-27 cm-3 s-1, making
    molecular ions of 1e-10 cm-3) would have to be resolved to its own relative precision.
@@ -60,7 +60,9 @@ from ionochem.solve.steady import (
     METHOD_NEWTON,
     STEP_TOL,
     SteadyResult,
+    _negligible,
     _positive_step,
+    _rate_floor,
     _relative_residual,
     _scale,
     initial_guess,
@@ -148,20 +150,23 @@ def _bounded_step(n, dn):
     return dn, np.minimum(lam, up.min(axis=1, initial=np.inf))
 
 
-def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
+def _newton(n, tendency, jacobian, gross, *, rtol, atol, floor, max_iter, iterations):
+    """Damped Newton on the column; ``floor`` the rate-scale floor, ``atol`` the absolute
+    residual floor (cm-3 s-1) below which a level is converged whatever its step."""
     B, S = n.shape
     res = np.full(B, np.inf)
     f = tendency(n)
     P, L = gross(n)
     for _ in range(max_iter):
-        r0 = _relative_residual(f, P, L, atol)
+        r0 = _relative_residual(f, P, L, floor)
+        tiny = _negligible(f, atol)
         J = _regularise(jacobian(n), f)
         dn = sparse_solve(J, -f.ravel())
         if dn is None:
             return n, False, r0
         dn, lam = _bounded_step(n, dn.reshape(B, S))
         lam = np.where(np.isfinite(lam), lam, 0.0)
-        scale = _scale(P, L, atol)
+        scale = _scale(P, L, floor)
         norm0 = np.linalg.norm(f / scale)
         mu = 1.0
         for _ in range(8):
@@ -171,16 +176,16 @@ def _newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
                 break
             mu /= 2
         step = np.abs(trial - n)
-        floor = 1e-12 * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
-        rel_step = np.max(step / (trial + floor[:, None]), axis=1, initial=0.0)
+        small = 1e-12 * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
+        rel_step = np.max(step / (trial + small[:, None]), axis=1, initial=0.0)
         n, f = trial, ft
         P, L = gross(n)
         iterations += 1
         res = r0
-        if np.all((r0 <= rtol) & (rel_step <= STEP_TOL)):
+        if np.all((r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny)):
             # The residual at the point reached confirms it (quadratic convergence puts
             # it far inside the tolerance).
-            res = _relative_residual(f, P, L, atol)
+            res = _relative_residual(f, P, L, floor)
             if np.all(res <= rtol):
                 return n, True, res
     return n, False, res
@@ -245,15 +250,15 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
     n = initial_guess(np.maximum(np.where(np.isfinite(n0), n0, 0.0), 0.0), gross, sweeps=4)
     n = np.where(np.isfinite(n), n, 0.0)
     P, L = gross(n)
-    atol = max(atol, COLUMN_FLOOR * float(np.max(P + L, initial=0.0)))
-    n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol,
+    floor = max(_rate_floor(atol, rtol), COLUMN_FLOOR * float(np.max(P + L, initial=0.0)))
+    n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol, floor=floor,
                          max_iter=max_newton, iterations=iterations)
     if ok:
         method[:] = METHOD_NEWTON
     else:
-        n = _continuation(n, tendency, jacobian, gross, atol=atol, max_iter=max_continuation,
+        n = _continuation(n, tendency, jacobian, gross, atol=floor, max_iter=max_continuation,
                           iterations=iterations)
-        n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol,
+        n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol, floor=floor,
                              max_iter=max_newton, iterations=iterations)
         method[:] = METHOD_CONTINUATION
     valid = (res <= rtol) & np.all(np.isfinite(n) & (n >= 0), axis=1)

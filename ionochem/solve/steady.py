@@ -13,27 +13,28 @@ Method
    species with no production goes to zero exactly.
 2. Damped Newton on all levels together: J Δn = −f solved by batched LU (numpy.linalg.solve).
    Positivity: per level, the step is cut so no density falls below a tenth of its value
-   (a species at exactly zero with a negative step stays at zero; one below 1e-12 of the
-   level's largest density is clipped at zero rather than cutting the step). The step is then halved
+   (a species at exactly zero with a negative step stays at zero). The step is then halved
    until the scaled residual norm does not grow (at most 8 halvings).
 3. Convergence, per level (documented in docs/validation.md): the relative residual
-   max_i |f_i| / (P_i + L_i + a) ≤ rtol before a Newton step, that step's relative size
-   max_i |Δn_i| / (n_i + floor) ≤ 1e-3 (floor = 1e-12 × the largest density of the level),
-   and the relative residual ≤ rtol again at the point the step reached. P_i and L_i are the
-   gross production and loss; a = max(atol, 1e-4 × the level's largest P_j + L_j) is the
-   floor below which a residual is noise: ``atol`` an absolute one (cm-3 s-1), the second
-   the round-off of the level's balance. A species carrying less than 1e-4 of the level's
-   largest flow is thus resolved to rtol × 1e-4 of that flow (1e-14 of it by default) —
-   the linear solve cannot do better, as its errors scale with the level's largest
-   densities — while every species carrying more keeps a relative residual ≤ 2 rtol. Near
-   the terminator, trace species fed at 1e-25 cm-3 s-1 next to 1e-5 would otherwise
-   never converge.
+   max_i |f_i| / (P_i + L_i + floor_r) ≤ rtol before a Newton step, that step's relative
+   size max_i |Δn_i| / (n_i + floor_n) ≤ 1e-3 (floor_n = 1e-12 × the largest density of the
+   level), and the relative residual ≤ rtol again at the point the step reached. P_i and L_i
+   are the gross production and loss; floor_r is the larger of atol / max(rtol, 1e-10) and
+   1e-20 × the level's fastest gross rate. ``atol`` is an absolute floor (cm-3 s-1): a level
+   whose every residual |f_i| is below it is converged whatever its step (a dark level with
+   production of 1e-160 cm-3 s-1 cannot be resolved further and holds nothing physical).
+   Densities below 1e-12 of the level's largest are negligible: they neither limit the
+   level's step (step 2 clips each on its own) nor enter the step test. Without that, in a
+   twilight column a species at 1e-200 cm-3 that must fall to 1e-260 held the whole level to
+   tenfold steps, and the level never converged.
 4. Levels Newton does not bring to convergence in ``max_newton`` iterations go to
    pseudo-transient continuation: (I/Δt − J) Δn = f with Δt growing as the residual falls
    (switched evolution relaxation), which follows the physical relaxation and cannot jump
    to a non-physical root; Newton then polishes the result.
 5. Anything still unconverged, negative or not finite raises :class:`SolverError` naming
-   the levels. Levels with no production at all solve to zero.
+   the levels and, per level, the species with the largest relative residual
+   (``SolverError.species``); the caller adds the input file and advice. Levels with no
+   production at all solve to zero.
 """
 
 from __future__ import annotations
@@ -46,9 +47,14 @@ from ionochem.errors import SolverError
 
 #: Relative Newton step below which a level whose residual already met rtol is converged.
 STEP_TOL = 1e-3
-#: Fraction of a level's largest gross rate below which a species' rates are resolved in
-#: absolute, not relative, terms (see the convergence rule in the module docstring).
-LEVEL_FLOOR = 1e-4
+#: Densities below this fraction of the largest density of their level are negligible: they
+#: do not limit the level's Newton step and their relative step is not tested
+#: *(common practice: far below double precision relative to the level's main species)*.
+NEGLIGIBLE = 1e-12
+#: Floor of each species' rate scale as a fraction of the level's fastest gross rate
+#: (see :func:`_scale`); 1e-20 lies four orders below double-precision rounding of the main
+#: species' balance *(common practice)*.
+LEVEL_FLOOR = 1e-20
 
 METHOD_NEWTON = 1
 METHOD_CONTINUATION = 2
@@ -66,16 +72,34 @@ class SteadyResult:
 
 
 def _scale(P, L, atol):
-    """Residual scale P_i + L_i + a, a = max(atol, LEVEL_FLOOR × the level's largest P + L)."""
-    gross = P + L
-    return gross + np.maximum(atol, LEVEL_FLOOR * gross.max(axis=1, initial=0.0)[:, None])
+    """Rate scale (B, S) of each species' residual, cm-3 s-1.
+
+    Its gross rate P + L plus a floor: ``atol`` (the absolute residual floor divided by
+    rtol, see :func:`solve_steady`) or, when larger, the :data:`LEVEL_FLOOR` fraction of the
+    fastest gross rate of the level — a species whose whole turnover lies that far below the
+    level's main one cannot change anything that matters, and its residual is rounding noise
+    of the others.
+    """
+    turnover = np.max(P + L, axis=1, keepdims=True, initial=0.0)
+    return P + L + np.maximum(atol, LEVEL_FLOOR * turnover)
 
 
 def _relative_residual(f, P, L, atol):
-    """max_i |f_i| / (P_i + L_i + a) per level (see :func:`_scale`)."""
+    """max_i |f_i| / scale_i per level, shape (B,)."""
     if not f.shape[1]:
         return np.zeros(f.shape[0])
     return np.max(np.abs(f) / _scale(P, L, atol), axis=1)
+
+
+def _rate_floor(atol, rtol):
+    """Floor of the rate scale (cm-3 s-1): atol / rtol, with rtol taken ≥ 1e-10 so that a
+    very small rtol cannot blow the floor up."""
+    return atol / max(rtol, 1e-10)
+
+
+def _negligible(f, floor):
+    """Levels (B,) whose every residual is below the absolute floor (cm-3 s-1)."""
+    return np.max(np.abs(f), axis=1, initial=0.0) <= floor
 
 
 def _solve(J, rhs):
@@ -95,15 +119,20 @@ def _solve(J, rhs):
 def _positive_step(n, dn):
     """Per-level fraction of the step that keeps every density at least n/10.
 
-    Densities below 1e-12 of the level's largest (the step-size floor of the convergence
-    rule) do not limit the step: they are clipped at zero instead, so round-off of the
-    linear solve in a trace species cannot stall the whole level.
+    Only densities above :data:`NEGLIGIBLE` times the level's largest set the fraction; a
+    negligible density (one that cannot change any other species' rates measurably) is
+    clipped on its own, so that a species at 1e-200 cm-3 falling towards 1e-260 does not
+    shrink the step of the whole level to a crawl.
     """
     dn = np.where((n <= 0) & (dn < 0), 0.0, dn)
-    floor = 1e-12 * n.max(axis=1, initial=0.0)[:, None]
+    big = n.max(axis=1, keepdims=True, initial=0.0)
+    significant = n > NEGLIGIBLE * big
     with np.errstate(divide="ignore", invalid="ignore"):
-        limit = np.where((dn < 0) & (n > floor), -0.9 * n / dn, np.inf)
+        limit = np.where((dn < 0) & significant, -0.9 * n / dn, np.inf)
     lam = np.minimum(1.0, limit.min(axis=1)) if n.shape[1] else np.ones(n.shape[0])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        floor = np.where(lam[:, None] > 0, -0.9 * n / lam[:, None], 0.0)
+    dn = np.where(~significant & (dn < floor), floor, dn)
     return dn, lam
 
 
@@ -121,7 +150,11 @@ def initial_guess(n0, gross, sweeps=12):
 
 
 def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
-    """Damped Newton on the rows of ``n``; returns (n, converged mask, residual)."""
+    """Damped Newton on the rows of ``n``; returns (n, converged mask, residual).
+
+    ``atol`` is the absolute residual floor (cm-3 s-1): residuals below it are noise.
+    """
+    floor = _rate_floor(atol, rtol)
     converged = np.zeros(n.shape[0], bool)
     res = np.full(n.shape[0], np.inf)
     active = np.arange(n.shape[0])
@@ -131,14 +164,15 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
         na = n[active]
         f = tendency(na, active)
         P, L = gross(na, active)
-        r0 = _relative_residual(f, P, L, atol)
+        r0 = _relative_residual(f, P, L, floor)
+        tiny = _negligible(f, atol)
         J = jacobian(na, active)
         dn = _solve(J, -f)
         dn, lam = _positive_step(na, dn)
         lam = np.where(np.isfinite(lam), lam, 0.0)
         # Backtracking: halve the step on levels whose scaled residual grew.
         trial = na + lam[:, None] * dn
-        scale = _scale(P, L, atol)
+        scale = _scale(P, L, floor)
         norm0 = np.linalg.norm(f / scale, axis=1)
         for _ in range(8):
             ft = tendency(trial, active)
@@ -150,22 +184,25 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
             trial = na + lam[:, None] * dn
         trial = np.maximum(trial, 0.0)
         step = np.abs(trial - na)
-        floor = 1e-12 * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
-        rel_step = np.max(step / (trial + floor[:, None]), axis=1, initial=0.0)
+        small = NEGLIGIBLE * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
+        rel_step = np.max(step / (trial + small[:, None]), axis=1, initial=0.0)
         n[active] = trial
         iterations[active] += 1
         res[active] = r0
         # Residual met before the step and the step itself small: Newton converges
         # quadratically, so the point after it is far inside the tolerance. Confirmed below.
-        done = (r0 <= rtol) & (rel_step <= STEP_TOL)
+        # A level whose every residual is already below the absolute floor (a dark level
+        # with production of 1e-160 cm-3 s-1, say) is converged whatever the step: its
+        # densities are known to within floor / loss frequency, physically nothing.
+        done = (r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny)
         # Final residual at the accepted point for the rows marked done.
         if done.any():
             idx = active[done]
             fd = tendency(n[idx], idx)
             Pd, Ld = gross(n[idx], idx)
-            rd = _relative_residual(fd, Pd, Ld, atol)
+            rd = _relative_residual(fd, Pd, Ld, floor)
             res[idx] = rd
-            ok = rd <= rtol
+            ok = (rd <= rtol) | _negligible(fd, atol)
             converged[idx[ok]] = True
             done_ok = np.zeros_like(done)
             done_ok[np.nonzero(done)[0][ok]] = True
@@ -176,6 +213,7 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
 
 def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations):
     """Pseudo-transient continuation (switched evolution relaxation) on rows of ``n``."""
+    atol = _rate_floor(atol, rtol)          # the rate-scale floor, as in newton()
     B, S = n.shape
     rows = np.arange(B)
     f = tendency(n, rows)
@@ -206,7 +244,7 @@ def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iteratio
 
 
 def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
-                 max_newton=60, max_continuation=400, level_names=None):
+                 max_newton=60, max_continuation=400, level_names=None, species_names=None):
     """Steady state of B independent chemical systems.
 
     Parameters
@@ -222,6 +260,8 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
         Absolute floor on rates, cm-3 s-1.
     level_names : sequence, optional
         Label of each row for error messages (for example altitudes in km).
+    species_names : sequence, optional
+        Name of each of the S species, to say which one stalled.
 
     Returns
     -------
@@ -265,10 +305,27 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
     valid = conv & np.all(np.isfinite(n) & (n >= 0), axis=1)
     if not valid.all():
         labels = np.asarray(level_names if level_names is not None else all_rows)
-        failed = labels[~valid]
+        bad = np.nonzero(~valid)[0]
+        failed = labels[bad]
         shown = ", ".join(str(x) for x in failed[:12]) + (" …" if failed.size > 12 else "")
+        stalled = _stalled_species(n[bad], bad, tendency, gross, _rate_floor(atol, rtol),
+                                   species_names)
+        worst = ", ".join(dict.fromkeys(stalled))
         raise SolverError(
             f"steady state not reached at {failed.size} level(s): {shown} "
-            f"(largest relative residual {np.nanmax(res[~valid]):.3g})",
-            levels=failed.tolist())
+            f"(largest relative residual {np.nanmax(res[~valid]):.3g}"
+            + (f"; stalled: {worst}" if worst else "") + ")",
+            levels=failed.tolist(), species=stalled)
     return SteadyResult(n=n, residual=res, iterations=iterations, method=method)
+
+
+def _stalled_species(n, rows, tendency, gross, floor, names):
+    """Per failed level, the species with the largest relative residual (or not finite)."""
+    if names is None or not n.shape[1]:
+        return []
+    with np.errstate(all="ignore"):
+        f = tendency(n, rows)
+        P, L = gross(n, rows)
+        rel = np.abs(f) / _scale(P, L, floor)
+    rel = np.where(np.isfinite(rel) & np.isfinite(n) & (n >= 0), rel, np.inf)
+    return [str(names[j]) for j in np.argmax(rel, axis=1)]

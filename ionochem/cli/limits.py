@@ -1,0 +1,73 @@
+"""Up-front estimates of a command's work and memory, refused beyond documented bounds.
+
+A transient run over ``times_s = [0, 1e9]`` would integrate for days and an ensemble of
+``--samples 1000000000`` would never finish nor fit in memory. Before any work the commands
+estimate both and refuse, naming the option and the bound, unless ``--allow-long`` is given.
+Memory has a ceiling that ``--allow-long`` does not lift. The bounds (docs/scenario.md, "Long
+runs") are round numbers *(common practice)*: a transient run of two simulated days takes a
+few minutes on one core for a 200-level column, an ensemble of two million level solves a
+few minutes as well.
+"""
+
+from __future__ import annotations
+
+from ionochem.errors import InputError
+
+#: Longest simulated span of a transient run without --allow-long (s): two days.
+MAX_TRANSIENT_SPAN_S = 2 * 86400.0
+#: Most level solves (samples × model runs per sample × levels) without --allow-long.
+MAX_LEVEL_SOLVES = 2_000_000
+#: Ceiling of the estimated memory of the results (bytes), --allow-long or not.
+MAX_RESULT_BYTES = 4 * 1024 ** 3
+
+
+def _gib(n):
+    return f"{n / 1024 ** 3:.1f} GiB"
+
+
+def check_transient(scenario, n_species, n_reactions, *, allow_long=False):
+    """Refuse a transient run whose span or output is beyond the bounds.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        With ``solve.times_s`` (s) and the grid.
+    n_species, n_reactions : int
+        Sizes of the mechanism (species and reactions stored per output time).
+    allow_long : bool
+        ``--allow-long``: lift the span bound (not the memory ceiling).
+    """
+    times = scenario.solve.times_s or ()
+    if not times:
+        return
+    span = float(times[-1])
+    levels = len(scenario.grid.altitude_km)
+    # density, production, loss (species) and rate coefficients and rates (reactions),
+    # float64, per output time and level; times three for the copies made while writing.
+    nbytes = 3 * 8 * len(times) * levels * (3 * n_species + 2 * n_reactions)
+    if nbytes > MAX_RESULT_BYTES:
+        raise InputError(f"{len(times)} output times × {levels} levels would need about "
+                         f"{_gib(nbytes)} of memory, above the {_gib(MAX_RESULT_BYTES)} "
+                         "ceiling; give fewer output times or levels",
+                         file=scenario.source, key="solve.times_s")
+    if span > MAX_TRANSIENT_SPAN_S and not allow_long:
+        raise InputError(f"the run spans {span:g} s ({span / 86400:.3g} days), beyond the "
+                         f"{MAX_TRANSIENT_SPAN_S:g} s (2 days) a transient run may take "
+                         "without --allow-long (it holds neutrals and temperatures fixed, "
+                         "so long spans are rarely meant)",
+                         file=scenario.source, key="solve.times_s")
+
+
+def check_ensemble(samples, runs_per_sample, levels, n_species, n_reactions, *,
+                   allow_long=False):
+    """Refuse an ensemble whose work or memory is beyond the bounds (``--samples``)."""
+    solves = samples * runs_per_sample * levels
+    nbytes = 8 * samples * runs_per_sample * levels * (n_species + n_reactions)
+    if nbytes > MAX_RESULT_BYTES:
+        raise InputError(f"{samples} samples would need about {_gib(nbytes)} of memory, above "
+                         f"the {_gib(MAX_RESULT_BYTES)} ceiling; use fewer samples or levels",
+                         file="--samples")
+    if solves > MAX_LEVEL_SOLVES and not allow_long:
+        raise InputError(f"{samples} samples mean {solves:.3g} level solves, beyond the "
+                         f"{MAX_LEVEL_SOLVES:.0e} allowed without --allow-long; use fewer "
+                         "samples or add --allow-long", file="--samples")
