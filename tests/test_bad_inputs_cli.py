@@ -20,20 +20,30 @@ HERE = Path(__file__).parent / "bad_inputs"
 
 
 def _rows(name):
+    """Rows of a manifest. A missing or empty manifest is an error at collection (the run
+    fails), never an empty parametrisation that pytest would report as a skip."""
     path = HERE / name
-    if not path.exists():
-        return []
+    if not path.is_file():
+        raise FileNotFoundError(f"bad-input manifest {path} is missing: the corpus tests "
+                                "cannot run without it")
     with path.open(newline="", encoding="utf-8") as fh:
-        return list(csv.DictReader(fh, delimiter="\t"))
+        rows = list(csv.DictReader(fh, delimiter="\t"))
+    if not rows:
+        raise ValueError(f"bad-input manifest {path} lists no file")
+    return rows
 
 
 REACTION_ROWS = _rows("reactions.tsv")
 SCENARIO_ROWS = _rows("scenarios.tsv")
 
 
-def test_corpus_is_large_enough():
-    """The issue asks for at least 40 malformed inputs in the corpus."""
+def test_corpus_is_large_enough_and_every_file_is_listed():
+    """The issue asks for at least 40 malformed inputs in the corpus; every corpus file is in
+    a manifest and every manifest row names an existing file (none silently left out)."""
     assert len(REACTION_ROWS) + len(SCENARIO_ROWS) >= 40
+    listed = {r["file"] for r in REACTION_ROWS + SCENARIO_ROWS}
+    present = {p.name for p in HERE.iterdir() if p.suffix in (".reactions", ".toml")}
+    assert listed == present, (sorted(listed - present), sorted(present - listed))
 
 
 @pytest.mark.parametrize("row", REACTION_ROWS, ids=[r["file"] for r in REACTION_ROWS])

@@ -1,7 +1,8 @@
 """The command layer (ionochem.cli): checks before work, explicit changes, new commands.
 
 Columns are synthetic (invented rates and densities, tests/conftest.py); expected values are
-closed forms of the one-ion column n = sqrt(q/α) (Chapman 1931; SCIENCE.md §6).
+closed forms of the one-ion column n = sqrt(q/α) (Chapman 1931; S(n, q) = ½ and S(n, α) = −½
+exactly).
 """
 
 from __future__ import annotations

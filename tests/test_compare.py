@@ -72,7 +72,7 @@ def test_halving_the_only_loss_of_an_ion_doubles_it(column):
 
 def test_ratio_is_nan_where_the_baseline_density_is_zero(column):
     """Levels without production have zero densities: the ratio is NaN there (not 0 or inf)
-    and the band statistics skip them (definition of the ratio, DESIGN.md §4 contract)."""
+    and the band statistics skip them (definition of the ratio; docs/outputs.md, 'Comparisons')."""
     q = np.where(ALT < 160.0, 0.0, Q)
     base = ionochem.Model(ionochem.load_scenario(_scenario(column, q=q)))
     ds = compare(base, changed_model(base, scale={"C1": 0.5}))
@@ -157,7 +157,7 @@ def test_added_loss_entry_halves_the_ion_and_ids_must_match_the_option(column, t
 
 
 def test_custom_bands_are_used(column, capsys):
-    """``--bands`` replaces the default E/F1/F2 bands (command-line contract, DESIGN.md §4);
+    """``--bands`` replaces the default E/F1/F2 bands (command line: README.md, 'What it does');
     O+ still shows +100 % in each."""
     assert _run(["compare", str(_scenario(column)), "--scale", "C1=0.5",
                  "--bands", "low=100:200,high=200:300"]) == 0
@@ -173,16 +173,16 @@ def test_custom_bands_are_used(column, capsys):
 ])
 def test_compare_errors_are_one_line_input_errors(column, argv, message):
     """Bad input raises ionochem.InputError with a one-line message (error contract,
-    DESIGN.md §4)."""
+    docs/reaction-list.md, 'Error messages')."""
     with pytest.raises(ionochem.InputError, match=message) as info:
         _run(["compare", str(_scenario(column)), *argv])
     assert "\n" not in str(info.value)
 
 
 def test_compare_through_main_exits_2_on_unknown_id(column, capsys):
-    """Through the ``ionochem`` entry point: exit 0 on success, exit 2 with one line on
-    stderr for an unknown reaction id (CLI contract, DESIGN.md §4). Needs the subcommand
-    wired into ionochem.cli."""
+    """Through the ``ionochem`` entry point: exit 0 on success, exit 2 with one line on stderr
+    for an unknown reaction id (exit status 2 and one line: docs/reaction-list.md, 'Error
+    messages'). Needs the subcommand wired into ionochem.cli."""
     from ionochem.cli import main
     scen = str(_scenario(column))
     assert main(["compare", scen, "--scale", "C1=0.5"]) == 0

@@ -1,5 +1,6 @@
 """The default reaction list in the mid-latitude demo column against the checks of the trade
-(SCIENCE.md §5, common practice), NRLMSIS through pymsis, and the night and twilight cases.
+(*(common practice)*, listed in docs/validation.md, 'Default ionosphere'), NRLMSIS through
+pymsis, and the night and twilight cases.
 """
 
 from __future__ import annotations
@@ -69,7 +70,7 @@ def test_neutrals_equal_a_direct_pymsis_call(mid):
 
 def test_no_plus_exceeds_o2_plus_in_the_e_region(mid):
     """NO+ > O2+ over 120–140 km and within a factor 3 of it over 100–120 km
-    (SCIENCE.md §5, common practice; without soft X-rays the two are comparable low down)."""
+    (*(common practice)*; without soft X-rays the two are comparable low down)."""
     _, ds = mid
     a = ds["altitude"].values
     ratio = _d(ds, "NO+") / _d(ds, "O2+")
@@ -79,13 +80,13 @@ def test_no_plus_exceeds_o2_plus_in_the_e_region(mid):
 
 
 def test_oplus_overtakes_molecular_ions_in_the_f1_region(mid, solmin):
-    """O+ overtakes the molecular ions between 160 and 210 km by day (SCIENCE.md §5, common
-    practice), at moderate activity and at solar minimum.
+    """O+ overtakes the molecular ions between 160 and 210 km by day *(common
+    practice)*, at moderate activity and at solar minimum.
 
-    SCIENCE.md also expects the crossover lower at solar minimum. A photochemical column gives
-    the opposite: O+ (lost linearly, n ∝ q) falls faster with the EUV flux than the
-    recombination-limited molecular ions (n ∝ sqrt(q)), so the crossover rises when q falls.
-    We assert what the physics of this model implies and record the departure in
+    The trade's rule of thumb also puts the crossover lower at solar minimum. A photochemical
+    column gives the opposite: O+ (lost linearly, n ∝ q) falls faster with the EUV flux than the
+    recombination-limited molecular ions (n ∝ sqrt(q)), so the crossover rises when q falls. We
+    assert what the physics of this model implies and record the departure in
     docs/validation.md.
     """
     z_mid, z_min = _crossover_km(mid[1]), _crossover_km(solmin[1])
@@ -99,11 +100,20 @@ def test_oplus_overtakes_molecular_ions_in_the_f1_region(mid, solmin):
 
 
 def test_n2plus_is_a_small_fraction_of_electrons(mid):
-    """N2+ is 0.05–3 % of the electrons over 150–250 km (SCIENCE.md §5, common practice)."""
+    """N2+ is 0.1-2 % of the electrons at every level of 150-250 km, and above 0.5 % at its
+    maximum there.
+
+    Reasoning for the band: the trade's figure is "about 0.1-1 %" *(common practice)*; the
+    upper edge is doubled because the F1-region N2+ is fed largely by O+(2D) + N2, whose rate
+    coefficient differs between evaluations by up to a factor of several (1e-10 to 8e-10
+    cm3 s-1, *(from memory)*). This is a plausibility band, not an oracle: the factors that
+    set N2+ (photo rates, level shares, Earth-Sun distance) are checked exactly in
+    test_pipeline_factors.py. The model gave 0.45-1.45 % when this was written."""
     _, ds = mid
     a = ds["altitude"].values
     frac = (_d(ds, "N2+") / _d(ds, "e"))[(a >= 150) & (a <= 250)]
-    assert np.all((frac > 5e-4) & (frac < 3e-2)), (frac.min(), frac.max())
+    assert np.all((frac > 1e-3) & (frac < 2e-2)), (frac.min(), frac.max())
+    assert frac.max() > 5e-3
 
 
 def _sunspot_number(f107):
@@ -135,18 +145,22 @@ def test_e_region_density_meets_the_foe_formula_with_soft_xrays(mid):
 
 def test_e_region_density_below_the_foe_formula_without_soft_xrays(mid):
     """Switched off (``[photons] soft_xrays = false``), the EUVAC-only column falls short of
-    the Davies (1990, from memory) NmE, but not by more than a factor 3, and the soft X-rays
-    raise Ne most at the bottom of the E region, where they are absorbed (SCIENCE.md §4a);
-    the shortfall found is recorded in docs/validation.md."""
+    the Davies (1990, from memory) NmE by 20-50 %: a photochemical model with EUVAC and the
+    accepted recombination rates "usually underestimates NmE by 30-40 %" (Mikhailov,
+    International Journal of Geomagnetism and Aeronomy vol. 4, paper GAI00345, citing
+    Buonsanto et al. 1995 and Titheridge 1997), widened by 10 points either way for the foE
+    formula, whose foE is good to about 5 % (so NmE to about 10 %) *(common practice)*. The
+    soft X-rays raise Ne most at the bottom of the E region, where they are absorbed (their
+    cross sections are small, so they reach the E region, *(common practice)*); the shortfall
+    found is recorded in docs/validation.md."""
     model, ds = mid
     scen = model.scenario
     scen = scen.replace(photons=dataclasses.replace(scen.photons, soft_xrays=False))
     off = ionochem.Model(scen).solve()
     nmE = _davies_nme(model, off)
     ne110 = float(off["density"].sel(species="e", altitude=110.0))
-    assert nmE / 3 < ne110 < nmE
     shortfall = 1 - ne110 / nmE
-    assert 0.05 < shortfall < 0.67
+    assert 0.20 < shortfall < 0.50, shortfall
     gain = _d(ds, "e") / _d(off, "e")
     a = ds["altitude"].values
     assert gain[a == 100.0][0] > gain[a == 140.0][0] > 1.0
@@ -164,10 +178,21 @@ def test_all_densities_positive_and_balance_closes(mid):
     assert np.all(ds["residual"].values < 1e-8)
 
 
+def test_newton_alone_converges_in_few_iterations_on_the_demo_column(mid):
+    """Every level of the demo column converges by Newton alone (no continuation) in at most
+    8 iterations (4 at most when this test was written): the solver's start and residual
+    scaling use gross production and loss the right way round. A swap of the two leaves the
+    densities nearly unchanged but needs up to 145 iterations and continuation."""
+    _, ds = mid
+    assert np.all(ds["solver_method"].values == 1)
+    assert ds["iterations"].values.max() <= 8
+
+
 def test_lifetime_flags_oplus_above_the_f1_region(mid):
     """O+ is flagged as out of photochemical equilibrium in the upper F region (its lifetime
-    passes the ambipolar diffusion time near 300 km here) and the
-    molecular ions never are (SCIENCE.md §1: molecular lifetimes are seconds to a minute)."""
+    passes the ambipolar diffusion time near 300 km here) and the molecular ions never are
+    (molecular-ion lifetimes are seconds to a minute, *(common practice)*; README.md, 'Validity
+    and limits')."""
     _, ds = mid
     a = ds["altitude"].values
     flag = ds["pce_doubtful"]
@@ -249,13 +274,3 @@ def test_twilight_column_with_dark_lower_levels_solves():
     assert np.all(e[~dark] > 0)
     # Grazing rays through the dense lower atmosphere are absorbed; the top is sunlit.
     assert np.all(e[a >= 300] > 0)
-
-
-def test_flux_follows_the_earth_sun_distance():
-    """The photo rates of an unattenuated top level scale as (1 AU / r)² between perihelion
-    (early January) and aphelion (early July), ≈ 6.9 % apart (astronomical almanac values,
-    r = 0.9833 and 1.0167 AU; from memory)."""
-    from ionochem.environment.geometry import flux_distance_factor
-    jan = float(flux_distance_factor(np.datetime64("2025-01-04T12:00")))
-    jul = float(flux_distance_factor(np.datetime64("2025-07-04T12:00")))
-    assert jan / jul == pytest.approx((1.0167 / 0.9833) ** 2, rel=2e-3)

@@ -1,7 +1,7 @@
 """The default reaction list ``reactions/ionosphere.reactions``: structure and cited values.
 
-The structural checks hold the list to its own contract (DESIGN.md section 5; the reaction
-classes and solved species of SCIENCE.md section 2). The value checks evaluate rate laws
+The structural checks hold the list to its own contract (docs/reaction-list.md; the reaction
+classes and solved species of reactions/README.md). The value checks evaluate rate laws
 through the parser's compiled expressions and compare them with the published forms named
 in each docstring; those forms are quoted from memory, as the list itself says, so a
 mismatch means either a typing error in the list or in this test: check the source.
@@ -63,8 +63,9 @@ def _net(reaction):
 # ----------------------------------------------------------------------------- structure
 
 def test_default_list_parses_and_every_line_conserves_atoms_and_charge(rl):
-    """Each reaction conserves every element and the charge (DESIGN.md section 5: the parser
-    refuses unbalanced lines; recounted here from the species' own element counts)."""
+    """Each reaction conserves every element and the charge (docs/reaction-list.md, 'Balance':
+    the parser refuses unbalanced lines; recounted here from the species' own element
+    counts)."""
     assert len(rl.reactions) > 50
     assert not rl.warnings
     for r in rl.reactions:
@@ -80,7 +81,7 @@ def test_default_list_parses_and_every_line_conserves_atoms_and_charge(rl):
 
 
 def test_every_reaction_has_a_ref_and_its_own_uncertainty_factor(rl):
-    """`check --strict` requirement (DESIGN.md section 5): a ref on every line; the default
+    """`check --strict` requirement (docs/reaction-list.md): a ref on every line; the default
     list also gives its own f on every line, 1 <= f <= 4 at 200-3000 K (a one-sigma factor;
     the widest are O+(2P) + O, whose published values spread by a factor 10, and NO+ + e at
     high Te, where the published Te exponents differ)."""
@@ -96,7 +97,8 @@ def test_every_reaction_has_a_ref_and_its_own_uncertainty_factor(rl):
 
 def test_ids_of_the_varied_reaction_and_refs_marked_from_memory(by_id):
     """O+(2D) + N2 -> N2+ + O carries the memorable id O2D_N2 with its alternative named in
-    the ref (SCIENCE.md section 2.4: it must be easy to vary)."""
+    the ref (its rate differs between evaluations, so it must be easy to vary:
+    reactions/README.md)."""
     r = by_id["O2D_N2(v=0)"]
     assert r.family == "O2D_N2(v)"
     assert [sp.name for sp, _ in r.reactants] == ["O+(2D)", "N2"]
@@ -105,7 +107,7 @@ def test_ids_of_the_varied_reaction_and_refs_marked_from_memory(by_id):
 
 
 def test_every_solved_species_is_produced_and_lost(rl):
-    """Closure (SCIENCE.md section 2): O+, O+(2D), O+(2P), N2+(v=0..4), O2+, NO+, N+ and
+    """Closure (reactions/README.md, 'Species'): O+, O+(2D), O+(2P), N2+(v=0..4), O2+, NO+, N+ and
     N(2D) each have at least one net source and one net sink in the list; nothing else is
     left unsolved besides the fixed neutrals and the electrons."""
     produced, lost = set(), set()
@@ -126,7 +128,7 @@ def test_every_solved_species_is_produced_and_lost(rl):
 def test_n2plus_families_have_the_expected_members(rl):
     """N2+ is resolved into v = 0..4 (v = 4 standing for 4 and above); production, every
     loss and DR cover all five levels, relaxation by N2 the four excited ones
-    (SCIENCE.md section 2.7)."""
+    (docs/reaction-list.md, 'Families')."""
     fam = rl.families
     five = ["PI_N2(v)", "PE_N2(v)", "DR_N2plus(v)", "DR_N2plus_2D2D(v)", "N2plus_O_NOplus(v)",
             "N2plus_O_Oplus(v)", "N2plus_O2(v)", "N2plus_NO(v)", "O2D_N2(v)", "O2P_N2(v)"]
@@ -179,7 +181,8 @@ def test_rate_laws_use_the_temperature_of_their_collision(rl):
 
 def test_n2plus_levels_share_the_total_rates(rl, by_id):
     """Without level-resolved data every N2+ level takes the total rate, so the summed N2+
-    equals the unresolved scheme's (SCIENCE.md section 2.7); recombination is per level."""
+    equals the unresolved scheme's (docs/reaction-list.md, 'Families'); recombination is per
+    level."""
     for fam in ("N2plus_O_NOplus(v)", "N2plus_O_Oplus(v)", "N2plus_O2(v)",
                 "N2plus_NO(v)"):
         members = [by_id[m] for m in rl.families[fam]]
@@ -318,7 +321,7 @@ def test_rates_are_positive_and_finite_over_ionospheric_temperatures(rl):
 
 
 def test_check_strict_accepts_the_default_list(capsys):
-    """`ionochem check --strict` exits 0 on the default list (DESIGN.md section 4)."""
+    """`ionochem check --strict` exits 0 on the default list (README.md, 'What it does')."""
     assert cli_main(["check", "--strict", str(LIST_PATH)]) == 0
     err = capsys.readouterr().err
     assert "warning" not in err

@@ -44,7 +44,7 @@ def test_demo_scenario_runs(path, tmp_path, capsys):
 @pytest.mark.parametrize("path", SLOW, ids=[s.stem for s in SLOW])
 def test_transient_demo_scenario_runs_and_ions_decay_after_sunset(path, tmp_path, capsys):
     """After sunset the molecular ions at 150 km disappear within tens of minutes
-    (lifetimes of seconds to a minute once production stops; SCIENCE.md §1)."""
+    (lifetimes of seconds to a minute once production stops; *(common practice)*)."""
     ds = _run(path, tmp_path, capsys)
     n = ds["density"].sel(species="O2+", altitude=150.0).values
     assert n[-1] < 1e-3 * n[0]

@@ -4,32 +4,28 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from _oracles import euvac_reference_flux, euvac_reference_table
 
 from ionochem.environment.euvac import euvac_flux, euvac_table
 from ionochem.errors import InputError
 
-# A few rows of Richards, Fennelly & Torr (1994) table 1, as reprinted in Schunk & Nagy
-# (2009), Ionospheres, 2nd ed., table 9.2 *(typed from memory)*:
-# bin: (wl_lo_A, wl_hi_A, F74113 in 1e9 photons cm-2 s-1, A_i)
-PUBLISHED_ROWS = {
-    1: (50.0, 100.0, 1.200, 1.0017e-2),
-    6: (284.15, 284.15, 0.210, 1.3768e-1),
-    9: (303.78, 303.78, 6.900, 3.3333e-3),
-    18: (584.33, 584.33, 1.270, 5.1583e-3),
-    31: (850.0, 900.0, 3.537, 5.6750e-3),
-    37: (1000.0, 1050.0, 2.467, 4.3750e-3),
-}
+# The published table (Richards, Fennelly & Torr 1994, table 1) is shipped as test reference
+# data in tests/reference/euvac_richards1994_table1.csv (transcribed from the independent copy
+# in the PyPI package EUVpy 1.0.0; see the file header), read with the csv module.
+REF = euvac_reference_table()
 
 
-def test_table_rows_match_published_values():
-    """Selected rows equal Richards et al. (1994) table 1 (Schunk & Nagy 2009 reprint)."""
+def test_packaged_table_equals_published_table_row_by_row():
+    """All 37 rows of the packaged table (bin, edges, F74113, A_i) equal Richards et al.
+    (1994) table 1 as carried by tests/reference/ (independent copy from EUVpy 1.0.0)."""
     t = euvac_table()
-    for b, (lo, hi, f, a) in PUBLISHED_ROWS.items():
-        i = b - 1
-        assert t["bin"][i] == b
-        assert (t["wl_lo_A"][i], t["wl_hi_A"][i]) == (lo, hi)
-        assert t["F74113_photons_cm2_s"][i] == pytest.approx(f * 1e9, rel=1e-12)
-        assert t["A_i"][i] == pytest.approx(a, rel=1e-12)
+    assert REF["bin"].size == 37
+    np.testing.assert_array_equal(t["bin"], REF["bin"].astype(int))
+    np.testing.assert_allclose(t["wl_lo_A"], REF["wl_lo_A"], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(t["wl_hi_A"], REF["wl_hi_A"], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(t["F74113_photons_cm2_s"],
+                               REF["F74113_1e9_photons_cm2_s"] * 1e9, rtol=1e-12)
+    np.testing.assert_allclose(t["A_i"], REF["A_i"], rtol=1e-12)
 
 
 def test_table_has_37_bins_covering_50_to_1050_angstrom():
@@ -45,29 +41,34 @@ def test_table_has_37_bins_covering_50_to_1050_angstrom():
 
 
 def test_flux_at_p_80_equals_reference_spectrum_exactly():
-    """At P = (F10.7 + F10.7A)/2 = 80 the EUVAC factor is 1: flux = F74113 (Richards et al.
-    1994, eq. 1), whichever F10.7 pair gives P = 80."""
-    ref = euvac_table()["F74113_photons_cm2_s"]
-    assert np.array_equal(euvac_flux(80.0, 80.0).photons_cm2_s, ref)
-    assert np.array_equal(euvac_flux(60.0, 100.0).photons_cm2_s, ref)
+    """At P = (F10.7 + F10.7A)/2 = 80 the EUVAC factor is 1: flux = F74113 of the published
+    table (Richards et al. 1994, eq. 1), whichever F10.7 pair gives P = 80."""
+    ref = REF["F74113_1e9_photons_cm2_s"] * 1e9
+    np.testing.assert_allclose(euvac_flux(80.0, 80.0).photons_cm2_s, ref, rtol=1e-12)
+    np.testing.assert_allclose(euvac_flux(60.0, 100.0).photons_cm2_s, ref, rtol=1e-12)
 
 
-def test_flux_scaling_at_p_150_follows_linear_law():
-    """flux_i = F74113_i (1 + A_i (P - 80)) at P = 150, with the published rows typed above
-    (Richards et al. 1994, eq. 1 and table 1)."""
-    flux = euvac_flux(140.0, 160.0).photons_cm2_s
-    for b, (_, _, f, a) in PUBLISHED_ROWS.items():
-        assert flux[b - 1] == pytest.approx(f * 1e9 * (1 + a * 70.0), rel=1e-12)
+@pytest.mark.parametrize("f107,f107a", [(60.0, 60.0), (68.0, 72.0), (100.0, 120.0),
+                                        (140.0, 160.0), (180.0, 220.0), (300.0, 250.0)])
+def test_flux_equals_published_model_at_every_bin(f107, f107a):
+    """Every bin of euvac_flux equals Richards et al. (1994) eq. 1 evaluated in the test on the
+    published table (tests/reference), floor at 0.8 included, from solar minimum (where the
+    284 and 335 angstrom factors hit the floor) to high activity."""
+    np.testing.assert_allclose(euvac_flux(f107, f107a).photons_cm2_s,
+                               euvac_reference_flux(f107, f107a), rtol=1e-12)
 
 
 def test_factor_is_floored_at_0_8_for_low_activity():
-    """At P = 60 the 284 angstrom line (A = 0.13768) would get 1 - 2.75 < 0: EUVAC floors
-    the factor at 0.8 (Richards et al. 1994); the 304 angstrom line (A = 3.33e-3) keeps
+    """At P = 60 the 284 angstrom line (A = 0.13768, Richards et al. 1994 table 1) would get
+    1 - 2.75 < 0: EUVAC floors the factor at 0.8; the 304 angstrom line (A = 3.33e-3) keeps
     1 - 0.0667."""
     flux = euvac_flux(60.0, 60.0).photons_cm2_s
-    assert flux[5] == pytest.approx(0.8 * 0.210e9, rel=1e-12)
-    assert flux[8] == pytest.approx(6.900e9 * (1 - 3.3333e-3 * 20), rel=1e-12)
-    ref = euvac_table()["F74113_photons_cm2_s"]
+    assert REF["wl_lo_A"][5] == 284.15 and REF["wl_lo_A"][8] == 303.78
+    assert flux[5] == pytest.approx(0.8 * REF["F74113_1e9_photons_cm2_s"][5] * 1e9,
+                                    rel=1e-12)
+    assert flux[8] == pytest.approx(REF["F74113_1e9_photons_cm2_s"][8] * 1e9
+                                    * (1 - REF["A_i"][8] * 20), rel=1e-12)
+    ref = REF["F74113_1e9_photons_cm2_s"] * 1e9
     assert np.all(flux >= 0.8 * ref * (1 - 1e-12))
 
 
@@ -101,27 +102,3 @@ def test_rejects_non_physical_indices(bad):
     """F10.7 is a positive radio flux: anything else is an input error."""
     with pytest.raises(InputError):
         euvac_flux(bad, 100.0)
-
-
-def test_table_matches_independent_euvpy_copy():
-    """The packaged table equals the independent EUVAC table of the PyPI package EUVpy
-    (module EUVpy.empiricalModels.models.EUVAC.euvac, array euvacTable: bin, lo, hi,
-    F74113 in 1e9 photons cm-2 s-1, A_i)."""
-    mod = pytest.importorskip("EUVpy.empiricalModels.models.EUVAC.euvac")
-    ref = np.asarray(mod.euvacTable, dtype=float)
-    t = euvac_table()
-    assert ref.shape == (37, 5)
-    assert np.array_equal(t["bin"], ref[:, 0].astype(int))
-    assert np.allclose(t["wl_lo_A"], ref[:, 1], rtol=0, atol=1e-9)
-    assert np.allclose(t["wl_hi_A"], ref[:, 2], rtol=0, atol=1e-9)
-    assert np.allclose(t["F74113_photons_cm2_s"], ref[:, 3] * 1e9, rtol=1e-12)
-    assert np.allclose(t["A_i"], ref[:, 4], rtol=1e-12)
-
-
-def test_flux_matches_euvpy_model_where_no_floor_applies():
-    """EUVpy's euvac() returns photons m-2 s-1 without the 0.8 floor (it is commented out
-    there); at P = 150 and 200 no factor is below 0.8, so both must agree."""
-    mod = pytest.importorskip("EUVpy.empiricalModels.models.EUVAC.euvac")
-    for f107, f107a in ((150.0, 150.0), (180.0, 220.0)):
-        ref = np.asarray(mod.euvac(f107, f107a)[0])[0] * 1e-4
-        assert np.allclose(euvac_flux(f107, f107a).photons_cm2_s, ref, rtol=1e-10)

@@ -93,7 +93,7 @@ def test_variables_and_source_attributes():
 ])
 def test_rejected_expressions_name_file_and_line(text, words):
     """Everything outside the documented grammar is a ReactionListError at file:line
-    (DESIGN.md §5: nothing in a reaction file is executed as code)."""
+    (docs/reaction-list.md, 'Expressions': nothing in a reaction file is executed as code)."""
     with pytest.raises(ReactionListError) as info:
         compile_expression(text, file="x.reactions", line=12, base_dir=".")
     assert info.value.file == "x.reactions" and info.value.line == 12
@@ -101,8 +101,9 @@ def test_rejected_expressions_name_file_and_line(text, words):
 
 
 def test_nesting_limit_is_64_levels():
-    """64 nested parentheses compile, 65 are refused (DESIGN.md §5: nested at most 64 deep);
-    a million-fold nesting is refused without reaching Python's recursion limit."""
+    """64 nested parentheses compile, 65 are refused (docs/reaction-list.md, 'Expressions':
+    nested at most 64 deep); a million-fold nesting is refused without reaching Python's
+    recursion limit."""
     assert value("(" * 64 + "2" + ")" * 64) == 2
     for text in ("(" * 65 + "2" + ")" * 65, "-" * 100 + "1", "2^" * 100 + "2",
                  "exp(" * 70 + "1" + ")" * 70, "(" * 10**6):
@@ -202,7 +203,7 @@ def test_bands_scale_the_whole_expression(power_law_table):
 ])
 def test_malformed_tables_are_errors_at_the_referring_line(tmp_path, content, words):
     """Every table problem is a ReactionListError at the referring line with the table's
-    name in the message (DESIGN.md §5)."""
+    name in the message (docs/reaction-list.md, 'Rate tables')."""
     clear_cache()
     (tmp_path / "t.csv").write_text(content)
     with pytest.raises(ReactionListError) as info:

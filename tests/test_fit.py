@@ -2,7 +2,7 @@
 
 Checks against sources outside the code under test: synthetic truth (observations made by
 the model itself with known multipliers and Gaussian noise in ln density, drawn with
-numpy's generator), the analytic one-ion column n = sqrt(q/α) (SCIENCE.md §6), whose ln n
+numpy's generator), the analytic one-ion column n = sqrt(q/α) (analytic), whose ln n
 depends on ln q − ln α only, central finite differences of the misfit, and the frequentist
 coverage of 68 % Gaussian intervals (a linear model with known Gaussian errors covers the
 truth 68.27 % of the time). The columns are synthetic with invented rates.
@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import xarray as xr
+from test_observations import ALT, small_column  # tests/ is on sys.path (rootdir conftest)
 
 import ionochem
 from ionochem.analysis.fit import (
@@ -22,7 +23,6 @@ from ionochem.analysis.fit import (
     resolve_parameters,
 )
 from ionochem.cli import main
-from tests.test_observations import ALT, small_column
 
 
 def synthetic_observations(model, species, scale, log_s, rng, path=None, te=None):
@@ -124,7 +124,7 @@ R1: O+ + e -> O | k = 2.0e-7*(300/Te)^0.7 | f = 1.3 | ref = invented test
 
 
 def test_production_and_recombination_are_reported_degenerate(column):
-    """In the one-ion column ln n = (ln q − ln α)/2 exactly (SCIENCE.md §6), so the data
+    """In the one-ion column ln n = (ln q − ln α)/2 exactly (analytic), so the data
     constrain only ln m(P1) − ln m(R1): the fit names P1 and R1 as degenerate, and with
     their priors their posterior correlation is close to +1."""
     z = np.linspace(150.0, 300.0, 8)
@@ -224,8 +224,8 @@ def test_profile_likelihood_matches_the_gaussian_interval(small_model):
 
 def test_fit_command_writes_the_contract_variables(column, tmp_path, capsys):
     """``ionochem fit`` prints the fitted multipliers and writes FIT.nc with the variables
-    of DESIGN.md §4 and a figure; bad --free / --prior, and an electron constraint without
-    electron-density rows, exit 2."""
+    of docs/outputs.md ("Fits") and a figure; bad --free / --prior, and an electron
+    constraint without electron-density rows, exit 2."""
     scen = small_column(column)
     model = ionochem.Model(ionochem.load_scenario(scen))
     obs_path = tmp_path / "o.csv"

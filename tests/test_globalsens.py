@@ -76,7 +76,7 @@ def test_morris_ranks_the_larger_factor_first_with_mu_star_half_log_factor(model
 
 def test_top_reaction_selection_follows_first_order_variance_share(model):
     """With --top 1 only the reaction with the largest S² ln² f (P1: ¼ ln² 1.5 against
-    ¼ ln² 1.3, SCIENCE.md §6 sensitivities ±½) is a factor; select_top_reactions orders by
+    ¼ ln² 1.3, sensitivities ±½ of n = sqrt(q/α)) is a factor; select_top_reactions orders by
     the mean share over the chosen species and levels (a broad share beats one level)."""
     ds = G.global_sensitivity(model, 8, method="morris", top=1, seed=0, species=["O+"])
     assert list(ds["factor"].values) == ["P1"]
@@ -113,7 +113,7 @@ def test_global_run_resumes_to_the_uninterrupted_indices(model, tmp_path):
 
 def test_bad_global_options_are_input_errors(model):
     """Unknown species, altitudes outside the grid and an unknown method are
-    ionochem.InputError (DESIGN.md §4), raised before any sample is solved."""
+    ionochem.InputError (DEVELOPERS.md, errors), raised before any sample is solved."""
     with pytest.raises(InputError, match="species"):
         G.global_sensitivity(model, 8, method="morris", species=["N2+"])
     with pytest.raises(InputError, match="outside the grid"):

@@ -2,7 +2,7 @@
 
 References: closed-form steady state of a two-level family with production, loss and
 relaxation (linear algebra, written out in the docstrings); finite differences of
-independent Newton solves for the sensitivities; DESIGN.md §7 for the output names.
+independent Newton solves for the sensitivities; docs/outputs.md for the output names.
 """
 
 from __future__ import annotations

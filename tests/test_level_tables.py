@@ -2,7 +2,7 @@
 
 The reference values are analytic: each level's rows tabulate an exact power law
 k_v(Te) = a_v (300/Te)^b_v, which log-log interpolation must reproduce exactly; the error
-cases follow the format rules of DESIGN.md §5 (errors at the referring file:line, with the
+cases follow the format rules of docs/reaction-list.md (errors at the referring file:line, with the
 table's name).
 """
 
@@ -72,7 +72,7 @@ def test_bands_are_per_level(level_table):
 
 def test_level_table_outside_a_family_is_an_error_at_the_referring_line(level_table):
     """A table with a v column used by a plain entry is a ReactionListError at that entry's
-    line naming the table (DESIGN.md §5)."""
+    line naming the table (docs/reaction-list.md, 'Rate tables')."""
     text = '# header\n\nDR: N2+ + e -> N + N | k = table("dr_levels.csv", "k")\n'
     with pytest.raises(ReactionListError) as info:
         parse_reaction_text(text, path="x.reactions", base_dir=level_table)
@@ -102,7 +102,7 @@ def test_missing_level_is_an_error_naming_the_level(level_table):
 ])
 def test_malformed_level_tables_are_errors_at_the_referring_line(tmp_path, content, words):
     """Level-row table problems are ReactionListErrors at the referring line with the
-    table's name (DESIGN.md §5)."""
+    table's name (docs/reaction-list.md, 'Rate tables')."""
     clear_cache()
     (tmp_path / "t.csv").write_text(content)
     with pytest.raises(ReactionListError) as info:
@@ -134,7 +134,7 @@ def test_plain_table_in_a_family_is_shared_by_every_level(tmp_path):
 def test_check_command_reports_level_table_errors_at_file_and_line(tmp_path, capsys, entry,
                                                                    line, words):
     """`ionochem check` prints `file:line: message` and exits 2 for each level-table error
-    (DESIGN.md §4 command-line contract)."""
+    (docs/reaction-list.md, 'Error messages')."""
     clear_cache()
     _write_levels(tmp_path, "lv.csv")
     (tmp_path / "dup.csv").write_text("v,Te,k\n0,300,1\n0,900,1\n1,300,1\n1,300,2\n")

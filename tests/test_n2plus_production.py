@@ -3,7 +3,8 @@ electron-impact split, and the production the model hands to each level.
 
 References: Franck-Condon factors of Gilmore, Laher & Espy (1992), J. Phys. Chem. Ref. Data
 21, 1005 (values quoted from memory, as in tests/test_photorates.py); state thresholds of
-SCIENCE.md section 4 (N2+ X 15.58 eV / 796 Å, A 16.7 eV / 743 Å, B 18.75 eV / 661 Å).
+NIST ionization energies *(from memory)* (N2+ X 15.58 eV / 796 Å, A 16.7 eV / 743 Å,
+B 18.75 eV / 661 Å).
 """
 
 from __future__ import annotations

@@ -80,7 +80,7 @@ def test_diffuse_attenuation_matches_an_integral_over_directions(column):
 def test_only_he_ii_304_makes_secondaries():
     """Photoelectron energies hν − threshold: He II 304 Å on O gives 40.8 − 13.6 = 27.2 eV,
     (27.2 − 15)/35 = 0.35 secondary pairs (Rees 1989, common practice); He I 584 Å on O
-    gives 7.6 eV and Lyman α and β too little: no secondaries (SCIENCE.md §4)."""
+    gives 7.6 eV and Lyman α and β too little: no secondaries (photon energy minus threshold)."""
     dens = {"O": np.array([1e9]), "N2": np.zeros(1), "O2": np.zeros(1)}
     photo, pe = night_rates(ZERO, dens)
     spec = night_spectrum()

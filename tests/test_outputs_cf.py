@@ -14,11 +14,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 import xarray as xr
+from cf_xarray.units import units as cf_units  # in the test extra: a missing one fails here
 
 from ionochem.cli import main
-
-pytest.importorskip("cf_xarray")   # in the test extra; a missing extra fails loudly below
-from cf_xarray.units import units as cf_units  # noqa: E402
 
 SCEN = Path(__file__).resolve().parents[1] / "scenarios"
 

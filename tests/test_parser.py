@@ -1,4 +1,4 @@
-"""Reaction lists: the format of DESIGN.md §5 and the bad-input corpus."""
+"""Reaction lists: the format of docs/reaction-list.md and the bad-input corpus."""
 
 import csv
 import hashlib
@@ -38,7 +38,8 @@ def test_manifest_lists_every_reaction_file_in_the_corpus():
 @pytest.mark.parametrize("row", MANIFEST, ids=[r["file"] for r in MANIFEST])
 def test_bad_input_is_refused_at_the_expected_line(row):
     """Each malformed list is a ReactionListError at the line the manifest gives, with the
-    manifest's words in the message, printed as 'FILE:LINE: ...' (DESIGN.md §4 CLI contract)."""
+    manifest's words in the message, printed as 'FILE:LINE: ...' (docs/reaction-list.md, 'Error
+    messages')."""
     path = str(BAD / row["file"])
     with pytest.raises(ReactionListError) as info:
         parse_reaction_list(path)
@@ -50,7 +51,8 @@ def test_bad_input_is_refused_at_the_expected_line(row):
 
 def test_good_list_parses_with_canonical_species_and_units():
     """The documented example: ground states bare, hv dropped, units by molecularity
-    (s-1, cm3 s-1, cm6 s-1, DESIGN.md §5), continuation keeps the first line."""
+    (s-1, cm3 s-1, cm6 s-1, docs/reaction-list.md, 'Units of k by molecularity'), continuation
+    keeps the first line."""
     rl = parse_reaction_text(GOOD, path="demo.reactions")
     ids = [r.id for r in rl.reactions]
     assert ids == ["P1", "P2", "R1", "DR(v=0)", "DR(v=1)", "DR(v=2)", "REL(v=1)",

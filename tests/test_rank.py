@@ -52,7 +52,7 @@ def _run(argv):
 
 def test_one_ion_ranks_production_and_recombination_at_one_half(column):
     """n = sqrt(q/α): P and R rank first and second at |S| = 0.5 with opposite signs, Te
-    third at 0.35 (α ∝ Te^-0.7), by both measures (analytic, SCIENCE.md §6)."""
+    third at 0.35 (α ∝ Te^-0.7), by both measures (analytic, n = sqrt(q/α))."""
     _, sens = _sens(column, ONE_ION)
     for by in ("max", "mean"):
         rows = rank_reactions(sens, "O+", None, top=3, by=by, min_share=0)
@@ -103,7 +103,8 @@ def test_altitude_range_restricts_the_levels(column):
 
 def test_rank_cli_prints_both_tables_and_writes_files(column, tmp_path, capsys):
     """The table lists the reactions by largest and by altitude-mean |S| (both printed);
-    the netCDF carries the ranking measures; the PNG is non-empty (DESIGN.md §4 command)."""
+    the netCDF carries the ranking measures; the PNG is non-empty (README.md, 'What it does';
+    docs/outputs.md, 'Rankings')."""
     path, _ = _sens(column, CHAIN)
     out, fig = tmp_path / "r.nc", tmp_path / "r.png"
     assert _run(["rank", str(path), "--species", "NO+", "--top", "3", "-o", str(out),
@@ -127,7 +128,7 @@ def test_rank_cli_prints_both_tables_and_writes_files(column, tmp_path, capsys):
     (["--top", "0"], "at least 1"),
 ])
 def test_rank_errors_are_one_line_input_errors(column, argv, message):
-    """Bad options raise ionochem.InputError with one line (error contract, DESIGN.md §4)."""
+    """Bad options raise ionochem.InputError with one line (DEVELOPERS.md, errors)."""
     path, _ = _sens(column, CHAIN)
     with pytest.raises(ionochem.InputError, match=message) as info:
         _run(["rank", str(path), *argv])
@@ -136,8 +137,8 @@ def test_rank_errors_are_one_line_input_errors(column, argv, message):
 
 def test_rank_through_main(column, capsys):
     """Through the ``ionochem`` entry point: exit 0, and exit 2 with one error line for an
-    unknown species (CLI contract, DESIGN.md §4). Needs the subcommand wired into
-    ionochem.cli."""
+    unknown species (exit status 2 and one line: docs/reaction-list.md, 'Error messages'). Needs
+    the subcommand wired into ionochem.cli."""
     from ionochem.cli import main
     path, _ = _sens(column, CHAIN)
     assert main(["rank", str(path)]) == 0

@@ -4,9 +4,10 @@ A corpus of our own, one group per class of the issue (paths, outputs, scenario 
 mechanisms, unbounded work, resume), beyond tests/bad_inputs. Every case runs the real
 command in a subprocess with a wall-clock timeout and an address-space limit
 (``resource.setrlimit(RLIMIT_AS)``), so a hang or an unbounded read fails the test instead of
-the machine. The promise checked is the one of DESIGN.md §4 and docs: bad input gives exit
-status 2 and one line ``file: key: message`` or ``file:line: message`` naming the file — never
-a traceback, a hang or a silent result — and outputs are refused before any work.
+the machine. The promise checked is the one of docs/reaction-list.md ('Error messages') and
+docs/scenario.md ('Rules'): bad input gives exit status 2 and one line
+``file: key: message`` or ``file:line: message`` naming the file — never a traceback, a
+hang or a silent result — and outputs are refused before any work.
 
 External references: POSIX file types (``/dev/zero`` and ``/dev/urandom`` are character
 devices, ``os.mkfifo`` makes a FIFO whose open blocks without a writer), and the ranges'

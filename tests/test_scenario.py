@@ -1,6 +1,6 @@
 """Scenario files: strict validation, defaults, paths, times and the bad-input corpus.
 
-References: the scenario specification (DESIGN.md section 6 and docs/scenario.md, which the
+References: the scenario specification (docs/scenario.md, which the
 checks outside the project rely on), the TOML 1.0.0 specification (https://toml.io/en/v1.0.0,
 for date-time values and its offset date-time example), numpy.linspace as the reference for
 evenly spaced grids, and hashlib for the file digest. Scenario contents are invented.
@@ -23,6 +23,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+import ionochem
+from ionochem.environment.column import build_environment
 from ionochem.errors import ScenarioError
 from ionochem.io.scenario import (
     Scenario,
@@ -81,12 +83,11 @@ def _with(data, dotted, value):
 def test_bad_input_corpus_reports_manifest_key_and_text(row):
     """Each malformed scenario of tests/bad_inputs/scenarios.tsv fails with
     ``FILE: KEY: message`` (``FILE:N:`` for TOML syntax) and the listed text, as
-    DESIGN.md section 4 requires of the command line. Table errors surface when the tables
-    are read (Scenario.read_tables, called when the model is built)."""
+    docs/scenario.md requires of the command line. Table errors surface when the tables are
+    read, by the environment stage while the model is built."""
     path = str(CORPUS / row["file"])
     with pytest.raises(ScenarioError) as info:
-        scen = load_scenario(path)
-        scen.read_tables()
+        ionochem.Model(load_scenario(path))
     text = str(info.value)
     key = row["key"]
     prefix = f"{path}:{key[5:]}: " if key.startswith("line:") else f"{path}: {key}: "
@@ -96,8 +97,9 @@ def test_bad_input_corpus_reports_manifest_key_and_text(row):
 
 
 def test_bad_input_corpus_is_complete_and_listed():
-    """The brief asks for at least 15 malformed scenarios; every .toml in the corpus folder
-    is in the manifest and every manifest row exists (so none is silently skipped)."""
+    """At least 15 malformed scenarios (one per rule of docs/scenario.md at least); every .toml
+    in the corpus folder is in the manifest and every manifest row exists (so none is silently
+    skipped)."""
     rows = {r["file"] for r in _manifest()}
     files = {p.name for p in CORPUS.glob("*.toml")}
     assert len(rows) >= 15
@@ -109,20 +111,20 @@ def test_bad_input_corpus_is_complete_and_listed():
                                   "temperature_table_missing_te"])
 def test_table_errors_appear_only_when_tables_are_read(name):
     """docs/scenario.md: table contents are read when the model is built, not by
-    load_scenario, so these corpus files load and then fail in read_tables."""
+    load_scenario, so these corpus files load and then fail when the model is built."""
     scen = load_scenario(CORPUS / f"{name}.toml")
     with pytest.raises(ScenarioError):
-        scen.read_tables()
+        ionochem.Model(scen)
 
 
 def test_corpus_base_without_the_defect_is_valid():
     """The corpus files differ from a valid scenario by one defect: removing the unknown key
-    of unknown_top_key.toml gives a scenario whose tables all read."""
+    of unknown_top_key.toml gives a scenario whose tables all read when the model is built."""
     text = (CORPUS / "unknown_top_key.toml").read_text().replace('colour = "blue"\n', "")
     scen = scenario_from_dict(tomllib.loads(text), path="x.toml", base_dir=CORPUS)
-    tables = scen.read_tables()
-    assert set(tables) == {"neutrals.table", "production.table"}
-    assert tables["production.table"]["P1"].shape == (5,)
+    env = ionochem.Model(scen).environment
+    assert set(env.prescribed) == {"P1"} and env.prescribed["P1"].shape == (5,)
+    assert env.neutrals and np.all(env.Tn > 0)
 
 
 # ------------------------------------------------------------------------ defaults, paths
@@ -166,7 +168,7 @@ def test_profile_defaults_equal_those_of_the_shape_that_uses_them():
 
 
 def test_paths_resolve_against_the_scenario_folder_not_the_cwd(base, tmp_path, monkeypatch):
-    """DESIGN.md section 6: relative paths resolve against the scenario file."""
+    """docs/scenario.md, 'Rules': relative paths resolve against the scenario file."""
     sub = tmp_path / "case"
     sub.mkdir()
     for name in ("tiny.reactions", "n.csv"):
@@ -184,7 +186,7 @@ def test_paths_resolve_against_the_scenario_folder_not_the_cwd(base, tmp_path, m
 
 
 def test_sha256_is_that_of_the_file_bytes(tmp_path, base):
-    """Provenance (DESIGN.md section 7): the scenario hash is SHA-256 of the file, checked
+    """Provenance (docs/outputs.md): the scenario hash is SHA-256 of the file, checked
     with hashlib."""
     text = ('title = "t"\nreactions = "tiny.reactions"\n[grid]\naltitude_km = [100, 200]\n'
             '[neutrals]\nmodel = "table"\ntable = "n.csv"\n'
@@ -196,7 +198,7 @@ def test_sha256_is_that_of_the_file_bytes(tmp_path, base):
 
 
 def test_scenario_is_frozen_and_replace_makes_a_changed_copy(base, tmp_path):
-    """The brief: a frozen dataclass with a dataclasses.replace-friendly design."""
+    """DEVELOPERS.md, 'Scenario': a frozen dataclass with a dataclasses.replace-friendly design."""
     s = scenario_from_dict(base, path="s.toml", base_dir=tmp_path)
     with pytest.raises(dataclasses.FrozenInstanceError):
         s.title = "other"
@@ -206,7 +208,7 @@ def test_scenario_is_frozen_and_replace_makes_a_changed_copy(base, tmp_path):
 
 
 def test_missing_scenario_file_is_a_scenario_error(tmp_path):
-    """DESIGN.md section 4: bad input is an ionochem error, never a traceback."""
+    """docs/scenario.md, 'Rules': bad input is an ionochem error, never a traceback."""
     with pytest.raises(ScenarioError, match="not found"):
         load_scenario(tmp_path / "nope.toml")
 
@@ -222,7 +224,7 @@ def test_non_utf8_scenario_names_the_line(tmp_path):
 # ------------------------------------------------------------------------ grid
 
 def test_grid_range_includes_stop_and_matches_linspace(base, tmp_path):
-    """DESIGN.md section 6: { start, stop, step } with stop included; the levels equal
+    """docs/scenario.md, '[grid]': { start, stop, step } with stop included; the levels equal
     numpy.linspace(start, stop, n + 1)."""
     s = scenario_from_dict(_with(base, "grid.altitude_km",
                                  {"start": 100, "stop": 100.3, "step": 0.1}),
@@ -252,7 +254,8 @@ def test_any_whole_step_range_gives_n_plus_one_levels(tmp_path_factory, start, s
 
 @pytest.mark.parametrize("n_extra, ok", [(1e-11, True), (-1e-11, True), (1e-7, False)])
 def test_step_must_divide_the_range_to_relative_1e_9(base, tmp_path, n_extra, ok):
-    """The brief: (stop - start)/step must be whole to a relative tolerance of 1e-9."""
+    """docs/scenario.md, '[grid]': (stop - start)/step must be whole to a relative tolerance of
+    1e-9."""
     spec = {"start": 100.0, "stop": 100.0 + 3 * (1 + n_extra) * 10.0, "step": 10.0}
     data = _with(base, "grid.altitude_km", spec)
     if ok:
@@ -273,7 +276,7 @@ def test_step_must_divide_the_range_to_relative_1e_9(base, tmp_path, n_extra, ok
     ("100:300", "grid.altitude_km", "must be a list"),
 ])
 def test_bad_grids_are_rejected_at_their_key(base, tmp_path, value, key, text):
-    """DESIGN.md section 6 and the brief: empty, repeated, decreasing, negative, wrongly
+    """docs/scenario.md, '[grid]': empty, repeated, decreasing, negative, wrongly
     typed or incomplete grids are errors at the dotted key."""
     err = _err(_with(base, "grid.altitude_km", value), tmp_path)
     assert err.key == key and text in err.message
@@ -287,7 +290,7 @@ def test_bad_grids_are_rejected_at_their_key(base, tmp_path, value, key, text):
     "production.tables", "output.budgets", "grid.altitude_km.stride",
 ])
 def test_unknown_keys_are_errors_at_every_level(base, tmp_path, dotted):
-    """DESIGN.md section 6: unknown keys are errors (at every level, the brief adds)."""
+    """docs/scenario.md, 'Rules': unknown keys are errors at every level."""
     data = _with(base, "temperatures.electron", "profile") if "profile" in dotted else base
     err = _err(_with(data, dotted, 1), tmp_path)
     assert err.key == dotted and "unknown key" in err.message
@@ -299,7 +302,7 @@ def test_unknown_keys_are_errors_at_every_level(base, tmp_path, dotted):
 ])
 def test_boolean_is_not_a_number(base, tmp_path, dotted):
     """TOML 1.0 has a distinct boolean type; Python's bool is an int subclass, so a naive
-    check would take true for 1. The brief: bool is not a number."""
+    check would take true for 1. docs/scenario.md, 'Rules': bool is not a number."""
     err = _err(_with(base, dotted, True), tmp_path)
     assert err.key == dotted and "boolean" in err.message
 
@@ -348,7 +351,7 @@ def test_keys_for_another_setting_are_errors(base, tmp_path, dotted, value, cond
 
 
 def test_missing_required_keys(base, tmp_path):
-    """DESIGN.md section 6: title and reactions are required; the brief: grid and the
+    """docs/scenario.md: title and reactions are required; grid and the
     temperature sources too."""
     for key in ("title", "reactions"):
         data = {k: v for k, v in base.items() if k != key}
@@ -374,8 +377,8 @@ def test_transient_and_electron_table_settings(base, tmp_path):
                                                  "electron_table": "ne.csv"}),
                            base_dir=tmp_path)
     assert s.solve.balance_ion == "O+" and s.solve.electron_table == tmp_path / "ne.csv"
-    assert s.read_tables()["solve.electron_table"]["Ne"][0] == pytest.approx(
-        np.exp(np.interp(100, [50, 500], np.log([1e3, 1e5]))))
+    ne = build_environment(s).electron_density
+    assert ne[0] == pytest.approx(np.exp(np.interp(100, [50, 500], np.log([1e3, 1e5]))))
 
 
 def test_temperature_table_columns_follow_the_chosen_sources(base, tmp_path):
@@ -384,12 +387,14 @@ def test_temperature_table_columns_follow_the_chosen_sources(base, tmp_path):
     (tmp_path / "t.csv").write_text("altitude_km,Tv_K,Ti_K\n50,300,250\n500,3000,1200\n")
     data = _with(base, "temperatures", {"electron": "profile", "ion": "table",
                                         "vibrational": "table", "table": "t.csv"})
-    s = scenario_from_dict(data, base_dir=tmp_path)
-    assert s.table_requests()["temperatures.table"][1] == ["Ti_K", "Tv_K"]
-    assert set(s.read_tables()["temperatures.table"]) == {"Ti_K", "Tv_K"}
+    env = build_environment(scenario_from_dict(data, base_dir=tmp_path))
+    # log-linear interpolation of the table onto the 100 km level (docs/scenario.md)
+    w = (100.0 - 50.0) / 450.0
+    assert env.Ti[0] == pytest.approx(250.0 * (1200.0 / 250.0) ** w)
+    assert env.Tv[0] == pytest.approx(300.0 * (3000.0 / 300.0) ** w)
     data = _with(data, "temperatures.electron", "table")
     with pytest.raises(ScenarioError, match="missing column Te_K"):
-        scenario_from_dict(data, base_dir=tmp_path).read_tables()
+        build_environment(scenario_from_dict(data, base_dir=tmp_path))
 
 
 def test_profile_parameters_are_stored_with_defaults_for_the_rest(base, tmp_path):
@@ -414,8 +419,8 @@ def _msis(base):
 
 
 def test_msis21_is_the_default_with_location_and_time(base, tmp_path):
-    """DESIGN.md section 6: the neutral model defaults to msis2.1 when location and time are
-    given."""
+    """docs/scenario.md, '[neutrals]': the neutral model defaults to msis2.1 when location and
+    time are given."""
     s = scenario_from_dict(_msis(base), base_dir=tmp_path)
     assert s.neutrals.model == "msis2.1" and s.neutrals.table is None
     assert (s.sun.f107, s.sun.f107a, s.geomagnetic.ap) == (150.0, 145.0, 8.0)
@@ -424,8 +429,8 @@ def test_msis21_is_the_default_with_location_and_time(base, tmp_path):
 
 @pytest.mark.parametrize("section", ["location", "time", "sun", "geomagnetic"])
 def test_msis_needs_every_environment_section(base, tmp_path, section):
-    """The brief: msis models require location, time, sun and geomagnetic; the error names
-    the missing section."""
+    """docs/scenario.md, '[neutrals]': msis models require location, time, sun and geomagnetic;
+    the error names the missing section."""
     data = _msis(base)
     data["neutrals"] = {"model": "msis2.0"}
     del data[section]
@@ -434,20 +439,21 @@ def test_msis_needs_every_environment_section(base, tmp_path, section):
 
 
 def test_no_neutral_source_is_an_error(base, tmp_path):
-    """DESIGN.md section 6: without location and time the model must be named ('table')."""
+    """docs/scenario.md, '[neutrals]': without location and time the model must be named
+    ('table')."""
     data = {k: v for k, v in base.items() if k != "neutrals"}
     assert _err(data, tmp_path).key == "neutrals.model"
     assert _err(_with(base, "neutrals", {"model": "table"}), tmp_path).key == "neutrals.table"
 
 
 def test_msis00_accepts_a_no_table(base, tmp_path):
-    """SCIENCE.md section 2: NRLMSIS 2.0 and 00 have no NO; a NO table may be given."""
+    """NRLMSIS 2.0 and 00 have no NO (Emmert et al. 2022, J. Geophys. Res. Space Phys.: NO is
+    new in 2.1); a NO table may be given."""
     (tmp_path / "no.csv").write_text("altitude_km,NO\n50,1e8\n500,1e5\n")
     data = _msis(base)
     data["neutrals"] = {"model": "msis00", "no_table": "no.csv"}
     s = scenario_from_dict(data, base_dir=tmp_path)
     assert s.neutrals.no_table == tmp_path / "no.csv"
-    assert s.table_requests()["neutrals.no_table"][1] == ["NO"]
 
 
 def test_toml_offset_datetime_is_converted_to_utc(tmp_path, base):
@@ -472,8 +478,8 @@ def test_toml_offset_datetime_is_converted_to_utc(tmp_path, base):
     (1718992800, "must be a date and time"),
 ])
 def test_times_without_zone_or_not_times_are_rejected(base, tmp_path, value, text):
-    """TOML 1.0.0 distinguishes offset from local date-times; the brief requires an offset
-    or Z."""
+    """TOML 1.0.0 distinguishes offset from local date-times; docs/scenario.md, '[time]'
+    requires an offset or Z."""
     err = _err(_with(base, "time", {"utc": value}), tmp_path)
     assert err.key == "time.utc" and text in err.message.lower()
 
@@ -493,7 +499,7 @@ def test_environment_values_out_of_range(base, tmp_path, dotted, value):
 
 
 def test_require_names_the_missing_section(base, tmp_path):
-    """DESIGN.md section 6: sun and place are needed only for photo reactions; the model
+    """docs/scenario.md, 'Rules': sun and place are needed only for photo reactions; the model
     asks with require(), which raises at the missing section's key."""
     s = scenario_from_dict(base, path="s.toml", base_dir=tmp_path)
     with pytest.raises(ScenarioError) as info:

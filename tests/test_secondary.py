@@ -26,8 +26,9 @@ def _line(wl_A, absorber, key, sigma=1e-17, flux=1e9):
 
 
 def test_yield_is_zero_below_threshold():
-    """SCIENCE.md section 4: a photoelectron below about 15-20 eV makes no further ion pair;
-    the yield is zero up to its threshold and positive above."""
+    """*(common practice)*, e.g. Richards & Torr 1988, J. Geophys. Res. 93, 4060: a
+    photoelectron below about 15-20 eV makes no further ion pair; the yield is zero up to its
+    threshold and positive above."""
     e = np.array([0.0, 5.0, 7.6, 14.99, 15.0])
     assert np.all(ionization_yield(e) == 0)
     assert ionization_yield(20.0) > 0
@@ -42,8 +43,8 @@ def test_yield_tends_to_e_over_35_ev_at_high_energy():
 
 
 def test_584_photon_on_o_makes_no_secondaries():
-    """SCIENCE.md section 4: 584 angstrom (21.2 eV) on O (13.62 eV) frees a 7.6 eV electron,
-    which cannot ionize: no secondary ion pairs at all."""
+    """Photon energy minus threshold: 584 angstrom (21.2 eV) on O (13.62 eV) frees a 7.6 eV
+    electron, which cannot ionize: no secondary ion pairs at all."""
     spec = _line(584.33, "O", "O->O+")
     dens = {"O": np.array([1e9, 1e10]), "N2": np.array([1e9, 1e10]),
             "O2": np.array([1e8, 1e9])}
@@ -57,7 +58,8 @@ def test_secondary_count_of_a_100_angstrom_photon_on_n2():
     """A 100 angstrom photon (124.0 eV) ionizing N2 (15.58 eV) frees a 108.4 eV electron
     that makes (108.4 - 15)/35 = 2.67 ion pairs (Y(E) of the module, W = 35 eV after Rees
     1989); in pure N2 the secondary N2 ionization frequency is that times the primary one,
-    20 % of it as N+ (SCIENCE.md section 4)."""
+    20 % of it as N+ (Itikawa 2006, J. Phys. Chem. Ref. Data 35, 31, partial cross sections
+    near 100 eV, *(from memory)*)."""
     spec = _line(100.0, "N2", "N2->N2+")
     cols = {"N2": np.array([0.0, 1e16])}
     dens = {"N2": np.array([1e10, 1e10])}

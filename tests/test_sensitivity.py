@@ -40,7 +40,7 @@ def _one_ion_model(column):
 
 def test_one_ion_sensitivities_are_plus_and_minus_one_half(column):
     """n = sqrt(q/α) gives S(n, q) = +1/2 and S(n, α) = −1/2 exactly, for O+ and e, at
-    every level, to 1e-8 (analytic balance q = α n², SCIENCE.md §6)."""
+    every level, to 1e-8 (analytic balance q = α n²)."""
     sens = _one_ion_model(column).sensitivity()
     for s in ("O+", "e"):
         S = sens["sensitivity"].sel(species=s)
@@ -124,7 +124,7 @@ def _te_breakpoints(model):
 def test_te_sensitivity_matches_central_differences_away_from_breakpoints(demo):
     """∂ln n/∂ln Te equals the central difference of steady states re-solved with every
     rate at Te·exp(±h), h = 3e-4, to 1e-4 absolute, at every level more than one grid step
-    from a piecewise rate's Te breakpoint (numerical differentiation; SCIENCE.md §6 on
+    from a piecewise rate's Te breakpoint (numerical differentiation; on
     breakpoints)."""
     model, sens = demo
     Te = model.environment.Te
@@ -150,7 +150,7 @@ def test_te_sensitivity_matches_central_differences_away_from_breakpoints(demo):
 
 def test_raising_o2d_n2_raises_f_region_n2plus_with_sensitivity_below_one(demo):
     """O+(2D) + N2 → N2+ + O is an F-region source of N2+ among others: raising it raises
-    N2+ there, with 0 < S < 1 over 160-400 km (common practice; SCIENCE.md §2 item 4)."""
+    N2+ there, with 0 < S < 1 over 160-400 km *(common practice)*."""
     model, sens = demo
     alt = sens["altitude"].values
     f_region = (alt >= 160) & (alt <= 400)

@@ -149,7 +149,8 @@ def test_ray_that_meets_the_ground_has_infinite_column():
 
 def test_tangent_point_below_the_profile_bottom_is_refused():
     """A profile starting at 80 km cannot serve a 100 km level at 95° (tangent point near
-    75 km, SCIENCE.md §4 geometry): refused with a message, never extrapolated silently."""
+    75 km: (R_E + 100 km) sin 95° − R_E, the geometry of a straight ray): refused with a
+    message, never extrapolated silently."""
     cut = ZP >= 80.0
     with pytest.raises(ValueError, match="extend the profile downward"):
         slant_columns([100.0], 95.0, ZP[cut], {"A": ISO["A"][cut]})

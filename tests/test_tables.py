@@ -141,8 +141,8 @@ def test_grid_outside_table_names_the_point_and_the_range(tmp_path):
 
 
 def test_grid_may_exceed_the_table_by_rounding_only(tmp_path):
-    """The brief's tolerance: 1e-9 km beyond the table end is rounding (accepted, value of
-    the end node); 1e-6 km is extrapolation (rejected)."""
+    """docs/scenario.md, 'Profile tables': 1e-9 km beyond the table end is rounding (accepted,
+    value of the end node); 1e-6 km is extrapolation (rejected)."""
     _write(tmp_path / "n.csv", ["altitude_km", "O"], [[100, 1e10], [300, 1e8]])
     out = read_profile_table(tmp_path / "n.csv", [300.0 + 5e-10], where="neutrals.table")
     assert out["O"][0] == pytest.approx(1e8, rel=1e-12)

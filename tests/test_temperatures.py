@@ -60,7 +60,7 @@ def test_frictional_heating_of_ions_on_n2_at_1_km_s():
 @pytest.mark.parametrize("m_ion", [M_O, 30.006, M_O2])
 @pytest.mark.parametrize("v", [300.0, 1000.0, 2500.0])
 def test_drift_is_counted_exactly_once(m_ion, v):
-    """SCIENCE.md §3 / St.-Maurice & Torr (1978) algebra: with Ti heated by friction,
+    """St.-Maurice & Torr (1978), J. Geophys. Res. 83, 969, algebra: with Ti heated by friction,
     Ti = Tn + m_n v²/(3k), the effective temperature is exactly Tn + m_n v²/(3k) — the
     same whether the caller heats Ti first (ti_includes_drift=True) or lets the function
     heat an unheated Ti (False); heating twice would give more."""

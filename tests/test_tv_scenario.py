@@ -53,7 +53,7 @@ def test_electron_link_gives_the_documented_tv(column, c):
 ])
 def test_bad_tv_settings_are_refused_with_their_key(column, lines, words):
     """Out-of-range coupling, a coupling without the Te link and an unknown source are
-    ScenarioErrors naming the key (DESIGN.md §4)."""
+    ScenarioErrors naming the key (docs/scenario.md, 'Rules')."""
     path = _scenario(column, "")
     path.write_text(path.read_text().replace('table = "s_temps.csv"',
                                              f'table = "s_temps.csv"\n{lines}'))

@@ -3,7 +3,7 @@
 The columns are synthetic (invented rates and densities). The reference case is the single
 ion with production q and recombination α: n = sqrt(q/α), so with log-normal factors
 ln n = ln n0 + ε_q ln f_q / 2 − ε_α ln f_α / 2 is normal with standard deviation
-σ = ½ sqrt(ln² f_q + ln² f_α) (SCIENCE.md §6: S(n, q) = ½, S(n, α) = −½ exactly).
+σ = ½ sqrt(ln² f_q + ln² f_α) (for n = sqrt(q/α): S(n, q) = ½, S(n, α) = −½ exactly).
 
 Sampling error of the quantile estimates (large-sample theory of order statistics, e.g.
 David & Nagaraja 2003, *Order Statistics*, 3rd ed., §10.3): for a normal variable the
@@ -185,7 +185,7 @@ def test_electron_temperature_and_neutral_factors_have_analytic_spreads(column):
 
 def test_unknown_or_impossible_environment_factors_are_refused(column):
     """euv without photo reactions, a species that is not a fixed neutral, and factors
-    below 1 are input errors naming the option (DESIGN.md §4: errors are ionochem.Error)."""
+    below 1 are input errors naming the option (DEVELOPERS.md: errors are ionochem.Error)."""
     model = _one_ion(column)
     with pytest.raises(InputError, match="photo"):
         U.SampleKernel(model, {"euv": 1.2})
@@ -247,7 +247,7 @@ def test_same_seed_gives_same_quantiles_in_any_batch_size(column):
 @pytest.mark.slow
 def test_two_worker_local_cluster_reproduces_serial_run(column):
     """A two-process dask LocalCluster gives the serial quantiles to 1e-12 relative
-    (DESIGN.md §8: work beyond one process through dask.distributed)."""
+    (README.md: work beyond one process through dask.distributed)."""
     model = _chain(column)
     serial = U.monte_carlo(model, 40, seed=21, batch=6)
     dist = U.monte_carlo(model, 40, seed=21, batch=6, workers=2)
@@ -324,7 +324,7 @@ def test_command_writes_dataset_and_figure_and_removes_its_samples(column, tmp_p
                                                                    monkeypatch, capsys):
     """``ionochem uncertainty S --samples 50 -o out.nc --plot out.png`` exits 0, writes a
     dataset with the quantiles of every species and a PNG, and removes out.nc.samples
-    (DESIGN.md §4 command line)."""
+    (README.md, 'What it does')."""
     model_path = column(TWO_FACTOR, ALT, neutrals={"O": O_DENS},
                         Tn=np.linspace(200, 1000, ALT.size), Te=TE, production={"P1": Q})
     out, fig = tmp_path / "out.nc", tmp_path / "out.png"
@@ -343,7 +343,7 @@ def test_command_writes_dataset_and_figure_and_removes_its_samples(column, tmp_p
 
 def test_command_bad_option_is_one_line_and_exit_2(column, monkeypatch, capsys):
     """A bad --vary-environment value and --resume without -o are one line on stderr and
-    exit status 2 (DESIGN.md §4)."""
+    exit status 2 (docs/reaction-list.md, 'Error messages')."""
     path = column(TWO_FACTOR, ALT, neutrals={"O": O_DENS},
                   Tn=np.linspace(200, 1000, ALT.size), Te=TE, production={"P1": Q})
     rc = _cli(monkeypatch, ["uncertainty", str(path), "--samples", "10",

@@ -31,9 +31,10 @@ def _scenario(tmp_path, extra):
 
 
 def test_soft_xray_bins_raise_the_lower_e_region(tmp_path):
-    """Soft X-rays are absorbed low down (SCIENCE.md §4): adding them raises Ne most near
-    100–110 km and leaves the F region nearly unchanged. The packaged soft X-rays are
-    switched off in both runs (``soft_xrays = false``) so the user bins act alone."""
+    """Soft X-rays are absorbed low down (soft X-ray cross sections are small, so the photons
+    reach the E region; *(common practice)*): adding them raises Ne most near 100–110 km and
+    leaves the F region nearly unchanged. The packaged soft X-rays are switched off in both
+    runs (``soft_xrays = false``) so the user bins act alone."""
     (tmp_path / "xrays.csv").write_text(XRAYS)
     base = ionochem.Model(ionochem.load_scenario(_scenario(tmp_path, "soft_xrays = false"))
                           ).solve()

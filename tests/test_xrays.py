@@ -40,18 +40,18 @@ def test_table_holds_the_published_bins_below_50_angstrom():
 
 
 def test_table_matches_the_independent_euvpy_copy():
-    """The packaged F and A_i equal the copy of Solomon & Qian (2005) table A1 in the PyPI
-    package EUVpy (module EUVpy.empiricalModels.models.SOLOMON.solomon, array solomonTable:
-    bin, λ1 and λ2 in nm, …, F in photons cm-2 s-1, A_i), bins 1–5, the fifth cut to
-    32–50 Å (18/38 of its flux)."""
-    mod = pytest.importorskip("EUVpy.empiricalModels.models.SOLOMON.solomon")
-    ref = np.asarray(mod.solomonTable, dtype=float)[:5]
+    """The packaged F and A_i equal Solomon & Qian (2005) table A1, bins 1-5, as carried by
+    the PyPI package EUVpy 1.0.0 and shipped in tests/reference/solomon_qian2005_tableA1.csv
+    (edges in nm there), the fifth bin cut to 32-50 Å (18/38 of its flux)."""
+    from _oracles import REFERENCE, read_csv
+
+    ref = read_csv(REFERENCE / "solomon_qian2005_tableA1.csv")
     t = soft_xray_table()
-    np.testing.assert_allclose(t["wl_lo_A"], ref[:, 1] * 10, rtol=1e-12)
-    np.testing.assert_allclose(t["wl_hi_A"][:4], ref[:4, 2] * 10, rtol=1e-12)
-    np.testing.assert_allclose(t["F"][:4], ref[:4, 6], rtol=1e-12)
-    assert t["F"][4] == pytest.approx(ref[4, 6] * 18 / 38, rel=1e-3)
-    np.testing.assert_allclose(t["A_i"], ref[:, 7], rtol=1e-12)
+    np.testing.assert_allclose(t["wl_lo_A"], ref["lambda1_nm"] * 10, rtol=1e-12)
+    np.testing.assert_allclose(t["wl_hi_A"][:4], ref["lambda2_nm"][:4] * 10, rtol=1e-12)
+    np.testing.assert_allclose(t["F"][:4], ref["F_photons_cm2_s"][:4], rtol=1e-12)
+    assert t["F"][4] == pytest.approx(ref["F_photons_cm2_s"][4] * 18 / 38, rel=1e-3)
+    np.testing.assert_allclose(t["A_i"], ref["A_i"], rtol=1e-12)
 
 
 def test_flux_follows_the_euvac_type_scaling_with_its_floor():
@@ -153,9 +153,10 @@ def test_packaged_cross_sections_equal_xraydb_live():
 
 
 def test_molecules_absorb_as_the_sum_of_their_atoms_and_join_euvac():
-    """σ(N2) = 2σ(N), σ(O2) = 2σ(O), σ(O) = σ(O) (SCIENCE.md §4); continued over EUVAC's
-    50–100 Å bin the atomic sums come within 30 % of the Fennelly & Torr (1992) values
-    there (0.72, 1.316 and 0.73 Mb), so the X-ray and EUV parts join."""
+    """σ(N2) = 2σ(N), σ(O2) = 2σ(O), σ(O) = σ(O) (a molecule absorbs as the sum of its atoms
+    well above the edges, *(common practice)*); continued over EUVAC's 50–100 Å bin the
+    atomic sums come within 30 % of the Fennelly & Torr (1992) values there (0.72, 1.316 and
+    0.73 Mb), so the X-ray and EUV parts join."""
     spec = soft_xray_spectrum(100.0, 100.0)
     lo, hi = spec.wl_lo_A, spec.wl_hi_A
     mid = HC_EV_A / (0.5 * (lo + hi))
@@ -232,7 +233,7 @@ def test_switch_and_scenario_key(tmp_path):
 
 def test_bad_switch_is_refused_by_the_command_line(tmp_path, capsys):
     """Through ``ionochem run``: exit 2 and one line ``file: photons.soft_xrays: …``, no
-    traceback (DESIGN.md §4)."""
+    traceback (docs/scenario.md, 'Rules')."""
     text = MID.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
     path = tmp_path / "s.toml"
     path.write_text(text.replace('flux = "euvac"', 'flux = "euvac"\nsoft_xrays = 1'))
