@@ -16,7 +16,8 @@ from ionochem.errors import Error
 
 #: Subcommand modules of this package, in the order ``ionochem --help`` lists them; each
 #: has ``register(subparsers)`` which adds its parser and sets ``func``.
-COMMANDS = ("run", "check", "reactions", "compare", "rank", "uncertainty", "fit", "rates")
+COMMANDS = ("run", "check", "reactions", "compare", "rank", "uncertainty", "fit", "rates",
+            "sweep")
 
 
 def build_parser():

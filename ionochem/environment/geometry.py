@@ -21,7 +21,7 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["solar_zenith_angle_deg", "earth_sun_distance_au", "flux_distance_factor",
-           "julian_day"]
+           "julian_day", "equation_of_time_min", "local_solar_time_h", "utc_at_local_solar_time"]
 
 # J2000.0 epoch, 2000-01-01 12:00 (Meeus 1998, ch. 21: JD 2451545.0).
 _J2000 = np.datetime64("2000-01-01T12:00:00", "us")
@@ -174,3 +174,77 @@ def flux_distance_factor(utc):
     r = np.asarray(earth_sun_distance_au(utc))
     f = 1.0 / (r * r)
     return float(f) if np.ndim(f) == 0 else f
+
+
+def equation_of_time_min(utc):
+    """Equation of time, apparent minus mean solar time (minutes), Meeus (1998) eq. 28.3.
+
+    Parameters
+    ----------
+    utc : numpy.datetime64 or array of datetime64
+        Times in UTC.
+
+    Returns
+    -------
+    float or ndarray
+        Minutes, within about ±17 over the year; same shape as ``utc``.
+    """
+    e = _sun(utc)["eot_min"]
+    return float(e) if np.ndim(e) == 0 else e
+
+
+def local_solar_time_h(utc, longitude_deg):
+    """Local apparent (true) solar time at a longitude, hours in [0, 24).
+
+    True solar time is UTC + longitude/15 h + the equation of time (the NOAA calculator's
+    ``tst`` of :func:`solar_zenith_angle_deg`): 12 h is the Sun's meridian transit, where
+    the zenith angle is least for the day.
+
+    Parameters
+    ----------
+    utc : numpy.datetime64 or array of datetime64
+        Times in UTC.
+    longitude_deg : float or array
+        Degrees east.
+
+    Returns
+    -------
+    float or ndarray
+        Hours.
+    """
+    s = _sun(utc)
+    tst = np.mod(s["day_fraction"] * 1440.0 + s["eot_min"]
+                 + 4.0 * np.asarray(longitude_deg, float), 1440.0) / 60.0
+    return float(tst) if np.ndim(tst) == 0 else tst
+
+
+def utc_at_local_solar_time(date, hour, longitude_deg):
+    """The UTC moment at which the local apparent solar time is ``hour`` on ``date``.
+
+    Inverse of :func:`local_solar_time_h` on one local day: solves
+    UTC = date + hour − longitude/15 h − EoT(UTC) by fixed-point iteration (the equation of
+    time changes by less than 30 s a day, so three steps reach well below a millisecond).
+
+    Parameters
+    ----------
+    date : numpy.datetime64 (day precision) or datetime.date
+        The local (solar) calendar date.
+    hour : float
+        Local apparent solar time, hours, 0 ≤ hour ≤ 24.
+    longitude_deg : float
+        Degrees east (west negative); 180..360 are taken as −180..0.
+
+    Returns
+    -------
+    numpy.datetime64
+        Microsecond precision. It may fall on the UTC day before or after ``date``.
+    """
+    day = np.datetime64(date, "D").astype("datetime64[us]")
+    lon = float(longitude_deg)
+    lon = lon - 360.0 if lon > 180.0 else lon
+    mean_min = 60.0 * float(hour) - 4.0 * lon
+    t = day + np.timedelta64(int(round(mean_min * 60e6)), "us")
+    for _ in range(3):
+        eot = float(_sun(t)["eot_min"])
+        t = day + np.timedelta64(int(round((mean_min - eot) * 60e6)), "us")
+    return t

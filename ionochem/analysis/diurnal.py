@@ -1,0 +1,88 @@
+"""A column through whole days with the sun moving, on a local-time axis.
+
+The run starts at local apparent solar midnight (true solar time 0 h, see
+:func:`ionochem.environment.geometry.local_solar_time_h`) ``days − 1`` days before the
+scenario's local date, from zero ion densities, and integrates in time
+(:meth:`ionochem.Model.integrate`, which moves the sun) to the end of the scenario's local
+day. The last day is returned on a ``local_hour`` axis: hours since that day's local
+apparent midnight (0 … 24, both ends). The true solar time of an output differs from its
+``local_hour`` by the drift of the equation of time over the elapsed time, under 30 s a day
+(Meeus 1998, ch. 28).
+
+With ``days ≥ 2`` the day-to-day change ``diurnal_change(species, altitude)`` — the largest
+|ln((n_last + 1)/(n_previous + 1))| over the day at equal local times, densities in cm-3 —
+says how close the column is to a periodic state. Molecular ions and metastables forget
+their start within minutes of sunrise; O+ near the F2 peak keeps a memory of a night (hours),
+so two days are the default and a third changes O+ little *(common practice)*.
+
+This module works on a built model; it must not read files.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+DAY_S = 86400.0
+#: Density floor of the day-to-day change, cm-3 (below it a species is absent).
+CHANGE_FLOOR_CM3 = 1.0
+
+
+def diurnal_times(days: int, step_s: float) -> np.ndarray:
+    """Output times (s after the start) of a ``days``-day run every ``step_s`` seconds."""
+    per_day = int(round(DAY_S / step_s))
+    return np.arange(days * per_day + 1, dtype=float) * (DAY_S / per_day)
+
+
+def check_step(step_minutes: float):
+    """Minutes between outputs: a divisor of a day's 1440 minutes, at least 1."""
+    from ionochem.errors import InputError
+    if not np.isfinite(step_minutes) or step_minutes < 1 or step_minutes > 1440:
+        raise InputError("the output step must lie between 1 and 1440 minutes",
+                         file="--step-minutes")
+    if abs(1440.0 / step_minutes - round(1440.0 / step_minutes)) > 1e-9:
+        raise InputError(f"{step_minutes:g} minutes does not divide a day (1440 minutes)",
+                         file="--step-minutes")
+
+
+def diurnal_dataset(model, days: int, step_s: float):
+    """Integrate ``model`` (its scenario time at a local apparent midnight) over ``days``
+    days and return the last day on ``local_hour``.
+
+    Parameters
+    ----------
+    model : ionochem.Model
+        Built from a transient scenario whose time is the start (local midnight).
+    days : int
+        Days integrated, ≥ 1.
+    step_s : float
+        Seconds between outputs (a divisor of a day).
+
+    Returns
+    -------
+    xarray.Dataset
+        The transient dataset of the last day with ``time`` replaced by ``local_hour``
+        (h), ``time_s`` kept as a coordinate (s after the start), and, for ``days ≥ 2``,
+        ``diurnal_change(species, altitude)``.
+    """
+    times = diurnal_times(days, step_s)
+    ds = model.integrate(times)
+    per_day = (times.size - 1) // days
+    last = slice((days - 1) * per_day, None)
+    out = ds.isel(time=last)
+    hours = (times[last] - (days - 1) * DAY_S) / 3600.0
+    out = out.assign_coords(local_hour=("time", hours)).swap_dims(time="local_hour")
+    out = out.drop_vars("time")
+    out["local_hour"].attrs = {"units": "h", "long_name": "hours since local apparent solar "
+                               "midnight (true solar time, to within the drift of the "
+                               "equation of time)"}
+    if days >= 2:
+        prev = ds["density"].isel(time=slice((days - 2) * per_day, (days - 1) * per_day + 1))
+        now = ds["density"].isel(time=last)
+        change = np.abs(np.log((now.values + CHANGE_FLOOR_CM3)
+                               / (prev.values + CHANGE_FLOOR_CM3))).max(axis=0)
+        out["diurnal_change"] = (("species", "altitude"), change,
+                                 {"units": "1", "long_name": "largest |ln((n + 1)/(n_prev + 1))| "
+                                  "between the last two days at equal local times (n in cm-3)"})
+    out.attrs["diurnal_days"] = int(days)
+    out.attrs["diurnal_step_s"] = float(step_s)
+    return out

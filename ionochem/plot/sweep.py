@@ -1,0 +1,137 @@
+"""The map of a sweep: altitude against a swept key.
+
+With sensitivities (``ionochem sweep --sensitivity``) the map shows where a chosen reaction
+controls a chosen ion: S = ∂ln n/∂ln k on a diverging colour map centred at zero (red: a
+larger k raises the density; blue: lowers it), with contours at |S| = 0.1 and 0.5 so "this
+reaction matters here" reads at a glance. Without sensitivities it shows log10 of the
+species' density. Other swept dimensions are held at their first value (said in the
+title); a diurnal sweep maps against ``local_hour``. Nothing here computes chemistry; the
+figure is rendered to memory and written atomically.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ionochem.errors import InputError
+from ionochem.io.netcdf import atomic_write_bytes
+from ionochem.plot.profiles import _figure_bytes
+
+CMAP = "RdBu_r"
+LEVELS = (0.1, 0.5)
+#: Densities below this are numerical dust of a decaying column (cm-3), left blank.
+FLOOR_CM3 = 1e-3
+PREFERRED_SPECIES = ("N2+", "O2+", "NO+", "O+", "e")
+
+
+def _axes_of(ds):
+    dims = ds.attrs.get("sweep_dimensions", "").split()
+    if "local_hour" in ds.dims and "local_hour" not in dims:
+        dims = [*dims, "local_hour"]
+    return dims
+
+
+def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=None,
+                   title=None):
+    """Map of a sweep dataset: sensitivity of ``species`` to ``reaction`` (or its density)
+    against altitude and the swept ``axis``.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sweep (``density`` and, with ``--sensitivity``, ``sensitivity``).
+    path : str or Path
+        Output figure (PNG, PDF, SVG, from the suffix).
+    species : str, optional
+        Default: the first of N2+, O2+, NO+, O+, e present.
+    reaction : str, optional
+        Default: the reaction with the largest |S| of the species over the map.
+    members : list of str, optional
+        Reaction ids ``reaction`` stands for (a family's members): the map shows the sum of
+        their sensitivities, the exact sensitivity to one factor on all of them.
+    axis : str, optional
+        Swept dimension of the x axis; default the first (``local_hour`` for a diurnal run
+        without other keys).
+    title : str, optional
+
+    Returns
+    -------
+    Path
+    """
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    from matplotlib.colors import TwoSlopeNorm
+    dims = _axes_of(ds)
+    if not dims:
+        raise InputError("the sweep has no swept dimension to map", file="--plot")
+    axis = axis or dims[0]
+    if axis not in dims:
+        raise InputError(f"{axis!r} is not a swept dimension (have {', '.join(dims)})",
+                         file="--map-axis")
+    names = [str(s) for s in ds["species"].values]
+    if species is None:
+        species = next((s for s in PREFERRED_SPECIES if s in names), names[0])
+    if species not in names:
+        raise InputError(f"species {species!r} is not in the sweep", file="--map-species")
+    held = {d: 0 for d in dims if d != axis}
+    sens = "sensitivity" in ds
+    var = ds["sensitivity"] if sens else ds["density"]
+    var = var.sel(species=species).isel(held)
+    if "time" in var.dims:
+        var = var.isel(time=-1)
+    label_held = ", ".join(f"{d} = {_text(ds[d].values[0])}" for d in held)
+    if sens:
+        rids = [str(r) for r in ds["reaction"].values]
+        if reaction is None:
+            big = np.abs(var.transpose("reaction", ...).values).reshape(len(rids), -1)
+            reaction = rids[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
+        members = list(members) if members else [reaction]
+        missing = [m for m in members if m not in rids]
+        if missing:
+            raise InputError(f"reaction {missing[0]!r} is not in the sweep",
+                             file="--map-reaction")
+        z = var.sel(reaction=members).sum("reaction", skipna=False) \
+            .transpose("altitude", axis).values
+        label = f"∂ln n({species}) / ∂ln k({reaction})"
+    else:
+        z = var.transpose("altitude", axis).values
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.log10(np.where(z > FLOOR_CM3, z, np.nan))
+        label = f"log10 n({species}) (n in cm-3; below {FLOOR_CM3:g} not drawn)"
+    x = np.asarray(ds[axis].values)
+    alt = ds["altitude"].values
+    fig, ax = plt.subplots(figsize=(7.0, 5.0))
+    numeric = x.dtype.kind in "fiu"
+    xs = x if numeric else np.arange(x.size)
+    if sens:
+        lim = float(np.nanmax(np.abs(z))) if np.any(np.isfinite(z)) else 1.0
+        lim = lim or 1.0
+        mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP, shading="nearest",
+                             norm=TwoSlopeNorm(0.0, -lim, lim))
+        if z.shape[1] > 1 and z.shape[0] > 1:
+            cs = ax.contour(xs, alt, np.abs(z), levels=[v for v in LEVELS if v < lim],
+                            colors="k", linewidths=[0.6, 1.2][:len(LEVELS)])
+            ax.clabel(cs, fmt=lambda v: f"|S|={v:g}", fontsize=7)
+    else:
+        mesh = ax.pcolormesh(xs, alt, z, cmap="viridis", shading="nearest")
+    cbar = fig.colorbar(mesh, ax=ax)
+    cbar.set_label(label)
+    attrs = ds[axis].attrs
+    unit = attrs.get("units", "")
+    ax.set_xlabel(f"{axis}" + (f" ({unit})" if unit and unit != "1" else "")
+                  + (f" — {attrs['scenario_key']}" if attrs.get("scenario_key") else ""))
+    if not numeric:
+        ax.set_xticks(xs, [str(v) for v in x])
+    ax.set_ylabel("altitude (km)")
+    head = title or ds.attrs.get("title", "")
+    sub = label + (f"; {label_held}" if label_held else "")
+    ax.set_title(f"{head}\n{sub}" if head else sub, fontsize=9)
+    data = _figure_bytes(fig, path)
+    plt.close(fig)
+    return atomic_write_bytes(path, data)
+
+
+def _text(v):
+    v = np.asarray(v).item()
+    return f"{v:g}" if isinstance(v, float) else str(v)
