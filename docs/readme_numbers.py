@@ -191,7 +191,27 @@ def default_list_checks(model, ds):
             "as on the list.")
 
 
-PASSAGES = {"reading": reading, "compare-O2D_N2": compare_o2d,
+def fit_example(model, ds):
+    """The invented Brackenfold fit of the README (a factor-of-two N2+ excess)."""
+    import ionochem
+    from ionochem.analysis.fit import electron_constrained_model, fit
+    scen = ionochem.load_scenario(ROOT / "scenarios" / "tabulated_column.toml")
+    obs = ionochem.load_observations(ROOT / "scenarios" / "observations" /
+                                     "brackenfold_n2plus_ne.csv")
+    base = electron_constrained_model(ionochem.Model(scen), obs)
+    free = ["PI_N2", "N2plus_O_NOplus", "DR_N2plus"]
+    res = fit(base, obs, free)
+    m = {p: float(res["multiplier"].sel(parameter=p)) for p in free}
+    corr = float(res["correlation"].sel(parameter="PI_N2", parameter_b="N2plus_O_NOplus"))
+    return (f"The fit multiplies N2 photoionization by {m['PI_N2']:.2f}, charge transfer of "
+            f"N2+ with O by {m['N2plus_O_NOplus']:.2f} and recombination of N2+ by "
+            f"{m['DR_N2plus']:.2f} (χ² {float(res['chi2_baseline']):.0f} → "
+            f"{float(res['chi2']):.0f} for {int(res['degrees_of_freedom'])} degrees of "
+            f"freedom), but the production of N2+ and its charge transfer with O are "
+            f"correlated ({corr:+.2f}): the data constrain their ratio, not each.")
+
+
+PASSAGES = {"reading": reading, "fit-example": fit_example, "compare-O2D_N2": compare_o2d,
             "levels-experiment": levels_experiment, "e-region": e_region,
             "default-list-checks": default_list_checks}
 
@@ -207,8 +227,21 @@ def generate():
 
 
 def _wrap(text, width=96):
+    """Wrapped lines, none starting with what Markdown reads as a list item or heading."""
     import textwrap
-    return "\n".join(textwrap.wrap(text, width=width, break_on_hyphens=False))
+    lines = textwrap.wrap(text, width=width, break_on_hyphens=False)
+    marker = re.compile(r"^([-+*#>]|\d+[.)])(\s|$)")
+    i = 1
+    while i < len(lines):
+        if marker.match(lines[i]):
+            first, _, rest = lines[i].partition(" ")
+            lines[i - 1] += " " + first
+            lines[i] = rest
+            if not rest:
+                del lines[i]
+                continue
+        i += 1
+    return "\n".join(lines)
 
 
 def render(readme_text, passages):

@@ -16,6 +16,11 @@ from ionochem.errors import InputError, MechanismError, SolverError, TableRangeE
 from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 
 SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
+#: Photo and photoelectron production (cm-3 s-1) below which a channel counts as dark. Near
+#: the terminator attenuation leaves rates of 1e-200 and less, whose products underflow
+#: and leave the steady state undetermined; such a rate makes at most ~1e-7 cm-3 of ions
+#: (sqrt(1e-20/1e-7) with recombination) and is set to zero *(a numerical choice)*.
+PRODUCTION_FLOOR = 1e-20
 
 
 def load_reaction_list(path):
@@ -183,6 +188,11 @@ class Model:
         self._level_fractions = self._vibrational_fractions()
         self._source_reactions = [j for j, e in enumerate(self._k_expr)
                                   if e.variables & {"photo", "photoelectron"}]
+        ones = np.ones(A)
+        self._src_absorber = np.stack(
+            [env.neutrals.get(channel_of(self._rxns[j]).split("->")[0], ones)
+             for j in self._source_reactions], -1) if self._source_reactions \
+            else np.zeros((A, 0))
         self._k_static = self._evaluate_k(time_s=None)
         from ionochem.mechanism.bounds import implausible_rates
         self.warnings += implausible_rates(rxns, self._k_static)
@@ -196,6 +206,7 @@ class Model:
             with np.errstate(all="ignore"):
                 self._src_coef = np.stack([self._evaluate_one(j, ones)
                                            for j in self._source_reactions], -1)
+        self.transport = self._species_transport()
 
     # ---------------------------------------------------------------- public surface
     @property
@@ -408,7 +419,32 @@ class Model:
         with np.errstate(all="ignore"):
             for j in range(len(self._rxns)):
                 cols.append(self._evaluate_one(j, sources, temps))
-        return np.stack(cols, axis=-1)
+        return self._flush_dark(np.stack(cols, axis=-1))
+
+    def _flush_dark(self, k):
+        """Zero the photo and photoelectron rates below :data:`PRODUCTION_FLOOR`."""
+        if not self._source_reactions:
+            return k
+        src = k[..., self._source_reactions]
+        k[..., self._source_reactions] = np.where(src * self._src_absorber < PRODUCTION_FLOOR,
+                                                  0.0, src)
+        return k
+
+    def _species_transport(self):
+        """The O+ transport operator on the column, or None for a photochemical column."""
+        coef = getattr(self.environment, "transport", None)
+        if coef is None:
+            return None
+        from ionochem.solve.transport import SpeciesTransport, transport_operator
+        names = self.scenario.transport.species
+        for name in names:
+            if name not in self.species:
+                raise MechanismError(
+                    f"[transport] moves {name}, but {name} is not a solved species of "
+                    f"{self.reaction_list.path}", file=self.scenario.source)
+        op = transport_operator(coef.altitude_km, coef.D_cm2_s, coef.V_cm_s,
+                                coef.upper_flux_cm2_s)
+        return SpeciesTransport(op, self.species.index(names[0]), len(self.species))
 
     def rate_coefficients(self, time_s=None, *, temperatures=None):
         """Rate coefficients k, shape (altitude, reaction), in cm3 s-1 / s-1 / cm6 s-1.
@@ -435,7 +471,7 @@ class Model:
         sources = self.environment.sources(time_s)
         k[:, self._source_reactions] = self._src_coef * np.stack(
             [sources[key] for key in self._src_keys], -1)
-        return k
+        return self._flush_dark(k)
 
     def uncertainty_factors(self):
         """One-sigma multiplicative factors f of every rate, shape (altitude, reaction).
@@ -480,14 +516,43 @@ class Model:
 
     # ---------------------------------------------------------------- chemistry
     def tendency(self, n, time_s=None):
-        """dn/dt of the solved species, cm-3 s-1; ``n`` shaped (altitude, species)."""
-        return self.mechanism.tendency(np.asarray(n, float), self.rate_coefficients(time_s),
-                                       self.given)
+        """dn/dt of the solved species, cm-3 s-1; ``n`` shaped (altitude, species).
+
+        With transport, the transported species' vertical flux divergence is included.
+        """
+        n = np.asarray(n, float)
+        f = self.mechanism.tendency(n, self.rate_coefficients(time_s), self.given)
+        if self.transport is not None:
+            f = f + self.transport.tendency(n)
+        return f
 
     def jacobian(self, n, time_s=None):
-        """J[a, i, j] = ∂f_i/∂n_j, shape (altitude, species, species), s-1."""
-        return self.mechanism.jacobian(np.asarray(n, float), self.rate_coefficients(time_s),
-                                       self.given)
+        """J[a, i, j] = ∂f_i/∂n_j, shape (altitude, species, species), s-1.
+
+        The level's own blocks. With transport the levels are also coupled to their
+        neighbours: the blocks hold the diagonal of the transport operator, and
+        :meth:`column_jacobian` gives the whole matrix.
+        """
+        J = self.mechanism.jacobian(np.asarray(n, float), self.rate_coefficients(time_s),
+                                    self.given)
+        if self.transport is not None:
+            i = self.transport.index
+            J[:, i, i] += self.transport.diagonal()
+        return J
+
+    def column_jacobian(self, n, time_s=None):
+        """Jacobian of the whole column, scipy.sparse (A·S, A·S), s-1.
+
+        Entry (a·S + i, b·S + j) = ∂f_{a,i}/∂n_{b,j}: block diagonal without transport,
+        block tridiagonal with it.
+        """
+        from ionochem.solve.column import block_diagonal
+        J = block_diagonal(self.mechanism.jacobian(np.asarray(n, float),
+                                                   self.rate_coefficients(time_s),
+                                                   self.given))
+        if self.transport is not None:
+            J = J + self.transport.matrix(1)
+        return J.tocsc()
 
     def steady_densities(self, k=None, given=None, *, rtol=None):
         """Steady solved densities for rate coefficients ``k`` (B, R) without a dataset.
@@ -505,7 +570,8 @@ class Model:
         try:
             with single_thread_blas():  # batches of small matrices (solve/threads.py)
                 return solve_rows(self.mechanism, k, given, rtol=rtol,
-                                  level_names=[f"{a:g} km" for a in names])
+                                  level_names=[f"{a:g} km" for a in names],
+                                  transport=self.transport)
         except SolverError as exc:
             raise self._solver_failure(exc, rtol) from None
 
@@ -523,7 +589,11 @@ class Model:
                            key="solve", levels=exc.levels, species=exc.species)
 
     def solve(self):
-        """Steady state (photochemical equilibrium) at every level → ``xarray.Dataset``."""
+        """Steady state at every level → ``xarray.Dataset``.
+
+        Photochemical equilibrium level by level, or, with a [transport] section, the
+        steady state of the whole column with O+ transport.
+        """
         import xarray as xr
 
         from ionochem.analysis.diagnostics import steady_diagnostic_vars
@@ -575,9 +645,11 @@ class Model:
             atol = 1e-6
 
         def tendency(t, n):
-            return mech.tendency(n, self.rate_coefficients(t), self.given)
+            return self.tendency(n, t)
 
         def jacobian(t, n):
+            if self.transport is not None:
+                return self.column_jacobian(n, t)
             return mech.jacobian(n, self.rate_coefficients(t), self.given)
 
         times = np.asarray(times_s, float)

@@ -24,7 +24,11 @@ SOLMIN = ROOT / "scenarios" / "midlatitude_solar_minimum.toml"
 
 @pytest.fixture(scope="module")
 def mid():
-    model = ionochem.Model(ionochem.load_scenario(MID))
+    """The demo column, photochemical (its [transport] section removed; the grid to 450 km):
+    the reference these checks of the chemistry were written for."""
+    scen = ionochem.load_scenario(MID)
+    grid = type(scen.grid)(tuple(a for a in scen.grid.altitude_km if a <= 450.0))
+    model = ionochem.Model(scen.replace(transport=None, grid=grid))
     return model, model.solve()
 
 
@@ -253,8 +257,9 @@ def test_night_column_is_kept_by_the_scattered_sources(tmp_path, capsys):
 def test_twilight_column_with_dark_lower_levels_solves():
     """Zenith angle near 104°: the Earth's shadow covers the lower levels (no direct sun
     there: only the night-time sources, so night-like densities below 1e4 cm-3, Strobel,
-    Opal & Meier 1980) while the upper levels are sunlit and solve normally."""
-    scen = ionochem.load_scenario(MID)
+    Opal & Meier 1980) while the upper levels are sunlit and solve normally
+    (photochemical column; with transport see test_transport.py)."""
+    scen = ionochem.load_scenario(MID).replace(transport=None)
     when, chi = _time_at_zenith(scen, 104.0)
     assert 102 < chi < 106
     scen = scen.replace(time=type(scen.time)(utc=when))

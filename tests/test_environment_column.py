@@ -38,7 +38,7 @@ def test_msis20_without_no_table_is_refused(tmp_path):
 def test_msis20_with_a_no_table_uses_it(tmp_path):
     """With no_table the NO profile comes from the table (log-linear interpolation, exact
     for an exponential profile)."""
-    alt = np.arange(80.0, 461.0, 10.0)
+    alt = np.arange(80.0, 621.0, 10.0)
     no = 1e8 * np.exp(-(alt - 80.0) / 40.0)
     (tmp_path / "no.csv").write_text("altitude_km,NO\n" + "\n".join(
         f"{a},{v:.17g}" for a, v in zip(alt, no)) + "\n")
@@ -51,8 +51,9 @@ def test_msis20_with_a_no_table_uses_it(tmp_path):
 
 
 def test_drift_heats_modelled_ions_once_and_raises_teff():
-    """A modelled Ti is heated by m_n v²/(3 k_B) (St.-Maurice & Torr 1978; mean neutral
-    mass), and the O+ + N2 rate, through Teff, is faster than without drift."""
+    """Where ions are magnetised (above ~150 km, ν_in ≪ Ω_i), a modelled Ti is heated by
+    m_n v²/(3 k_B) (St.-Maurice & Torr 1978; mean neutral mass), and the O+ + N2 rate,
+    through Teff, is faster than without drift."""
     scen = ionochem.load_scenario(AURORAL)
     drift = ionochem.Model(scen)
     still = ionochem.Model(scen.replace(temperatures=type(scen.temperatures)(
@@ -60,7 +61,9 @@ def test_drift_heats_modelled_ions_once_and_raises_teff():
     from ionochem.environment.temperatures import mean_neutral_mass_amu
     m = mean_neutral_mass_amu(drift.environment.neutrals)
     heat = m * AMU_KG * 1000.0 ** 2 / (3 * K_B)
-    np.testing.assert_allclose(drift.environment.Ti - still.environment.Ti, heat, rtol=1e-9)
+    high = drift.altitude_km >= 200.0
+    np.testing.assert_allclose((drift.environment.Ti - still.environment.Ti)[high],
+                               heat[high], rtol=2e-3)
     j = drift.reactions.index("Oplus_N2")
     a = drift.altitude_km
     k_d, k_s = drift.rate_coefficients()[:, j], still.rate_coefficients()[:, j]

@@ -52,7 +52,7 @@ def _set(data, key, value):
     parts = key.split(".")
     d = data
     for p in parts[:-1]:
-        d = d[p]
+        d = d.setdefault(p, {})        # an optional section ([transport]) made for the key
     d[parts[-1]] = value
     return data
 

@@ -140,7 +140,7 @@ def test_minimal_scenario_fills_every_documented_default(base, tmp_path):
             s.photons.lyman_alpha_photons_cm2_s) == ("euvac", True, None, None)
     t = s.temperatures
     assert (t.vibrational, t.ion_drift_m_s, t.table) == ("neutral", 0.0, None)
-    assert t.profile == TemperatureProfile(2800.0, 300.0, 110.0, 60.0)
+    assert t.profile == TemperatureProfile(2800.0, 300.0, 125.0, 85.0)
     assert s.changes.set == {} and s.changes.scale == {} and s.output.budget == ()
     assert s.location is s.time is s.sun is s.geomagnetic is None
     assert s.production.table is None and s.neutrals.no_table is None
@@ -402,7 +402,7 @@ def test_profile_parameters_are_stored_with_defaults_for_the_rest(base, tmp_path
     data = _with(base, "temperatures", {"electron": "profile", "ion": "neutral",
                                         "profile": {"te_peak_K": 3000, "scale_km": 40.0}})
     p = scenario_from_dict(data, base_dir=tmp_path).temperatures.profile
-    assert p == TemperatureProfile(te_peak_K=3000.0, ti_offset_K=300.0, base_km=110.0,
+    assert p == TemperatureProfile(te_peak_K=3000.0, ti_offset_K=300.0, base_km=125.0,
                                    scale_km=40.0)
     err = _err(_with(data, "temperatures.profile.scale_km", 0), tmp_path)
     assert err.key == "temperatures.profile.scale_km"

@@ -59,10 +59,11 @@ def test_one_ion_te_sensitivity_is_half_the_recombination_exponent(column):
 # ----------------------------------------------------------------------- the demo column
 @pytest.fixture(scope="module")
 def demo():
-    """The demo scenario on a 21-level grid (90-450 km), with its exact sensitivities."""
+    """The demo scenario, photochemical (no [transport]), on a 21-level grid (90-450 km),
+    with its exact sensitivities (test_transport.py checks them with transport)."""
     scen = ionochem.load_scenario(DEMO)
     grid = tuple(float(a) for a in np.linspace(90.0, 450.0, 21))
-    model = ionochem.Model(scen.replace(grid=Grid(altitude_km=grid)))
+    model = ionochem.Model(scen.replace(grid=Grid(altitude_km=grid), transport=None))
     return model, model.sensitivity()
 
 

@@ -1,7 +1,8 @@
 """Diagnostics practitioners read beside the densities of a steady column.
 
 - ``lifetime`` (species, altitude): chemical lifetime n / L, s.
-- ``diffusion_time`` (altitude): plasma diffusion time H_p² / D_a for O+, s, and
+- ``diffusion_time`` (altitude): O+ diffusion time H_n² / (D_a sin²I), s (H_n the
+  atomic-oxygen scale height), and
   ``pce_doubtful`` (species, altitude): lifetime longer than that time, where photochemical
   equilibrium is doubtful and transport would matter.
 - ``volume_emission_rate`` (emission, altitude): photons cm-3 s-1 of O+(2P) 7320 Å,
@@ -19,15 +20,6 @@ import numpy as np
 
 from ionochem.mechanism.mechanism import ELECTRON
 
-K_B = 1.380649e-23          # J K-1 (CODATA 2018, exact)
-AMU = 1.66053906660e-27     # kg (CODATA 2018)
-G0 = 9.80665                # m s-2 standard gravity (CGPM 1901)
-R_EARTH_KM = 6371.0         # mean Earth radius (IUGG, from memory)
-
-# Ion–neutral momentum-transfer collision coefficients for O+, cm3 s-1, non-resonant
-# (Schunk & Nagy 2009, Ionospheres, 2nd ed., table 4.4; from memory).
-_C_OPLUS = {"N2": 6.82e-10, "O2": 6.64e-10, "He": 1.32e-10, "N": 4.62e-10, "H": 6.61e-11}
-
 EMISSIONS = (
     # (name, upper state, lower state, wavelength label)
     ("OII_7320", "O+(2P)", "O+(2D)", "7320 Å (O+ 2P→2D, 7320/7330 doublet)"),
@@ -37,28 +29,19 @@ EMISSIONS = (
 
 
 def oplus_diffusion_time(env):
-    """Ambipolar diffusion time H_p²/D_a of O+ on the grid, s.
+    """Vertical diffusion time of O+ on the grid, H_n² / (D_a sin²I), s.
 
-    D_a = k_B (Te + Ti) / (m_O+ ν), H_p = k_B (Te + Ti) / (m_O+ g) (Schunk & Nagy 2009,
-    ch. 5, from memory). ν sums the non-resonant coefficients above and the resonant O+–O
-    collision frequency 3.67e-11 n(O) Tr^0.5 (1 − 0.064 log10 Tr)², Tr = (Ti + Tn)/2
-    (Schunk & Nagy 2009, table 4.5; from memory).
+    H_n is the scale height of atomic oxygen, the gas through which O+ diffuses and on
+    whose density D_a depends, not the plasma scale height, 2–3 times larger, which put
+    the end of photochemical equilibrium ~50 km too high (Rishbeth & Garriott 1969, ch. 3;
+    Schunk & Nagy 2009, §10.2; *from memory*). I is the dip angle of the transport section,
+    or 90° (vertical field, the shortest time) without one. See
+    :func:`ionochem.environment.diffusion.diffusion_time_s`.
     """
-    m = 16.0 * AMU
-    z = env.altitude_km
-    g = G0 * (R_EARTH_KM / (R_EARTH_KM + z)) ** 2
-    Tr = 0.5 * (env.Ti + env.Tn)
-    nu = np.zeros_like(z, dtype=float)
-    for s, c in _C_OPLUS.items():
-        if s in env.neutrals:
-            nu += c * env.neutrals[s]
-    if "O" in env.neutrals:
-        nu += 3.67e-11 * env.neutrals["O"] * np.sqrt(Tr) * (1 - 0.064 * np.log10(Tr)) ** 2
-    kT = K_B * (env.Te + env.Ti)
-    with np.errstate(divide="ignore"):
-        D = kT / (m * nu)                   # m2 s-1
-        H = kT / (m * g)                    # m
-        return H ** 2 / D
+    from ionochem.environment.diffusion import diffusion_time_s
+    tr = getattr(env, "transport", None)
+    dip = 90.0 if tr is None else tr.dip_deg
+    return diffusion_time_s(env.altitude_km, env.neutrals, env.Te, env.Ti, env.Tn, dip)
 
 
 def add_steady_diagnostics(model, ds):
@@ -102,9 +85,21 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
                        {"units": "s", "long_name": "chemical lifetime n/L"})
     tau_d = oplus_diffusion_time(env)
     out["diffusion_time"] = ("altitude", tau_d,
-                             {"units": "s",
-                              "long_name": "O+ ambipolar diffusion time H_p^2/D_a"})
+                             {"units": "s", "long_name": "O+ vertical diffusion time "
+                              "H_n^2/(D_a sin^2 I), H_n the scale height of atomic oxygen"})
     doubtful = (life > tau_d[None, :]) & np.isfinite(life) & (dens > 0)
+    if getattr(model, "transport", None) is not None:
+        # Transported species are not assumed in equilibrium, nor the electrons and totals
+        # that follow them: the flag concerns the species still solved locally.
+        moved = set(model.scenario.transport.species)
+        names = list(species)
+        for tot in mech.derived:
+            if moved & set(tot.members):
+                moved.add(tot.name)
+        moved.add(ELECTRON)
+        for i, name in enumerate(names):
+            if name in moved:
+                doubtful[i] = False
     out["pce_doubtful"] = (("species", "altitude"), doubtful.astype(np.int8),
                            {"long_name": "photochemical equilibrium doubtful: lifetime longer "
                             "than the diffusion time", "flag_values": np.array([0, 1], np.int8),

@@ -34,10 +34,13 @@ def solve_batch(kernel, z, k_base=None, first=0):
     S = len(kernel.mechanism.solved)
     A = kernel.altitude_km.size
     try:
+        transport = getattr(kernel, "transport", None)
+        # Samples start from the central column (without transport a warm start, no
+        # fixed-point sweeps).
         central = getattr(kernel, "n_central", None)
-        # Samples start from the central column (a warm start, no fixed-point sweeps).
         n0 = None if central is None else np.tile(central, (z.shape[0], 1))
-        res = solve_rows(kernel.mechanism, k, given, rtol=kernel.rtol, n0=n0)
+        res = solve_rows(kernel.mechanism, k, given, rtol=kernel.rtol, n0=n0,
+                         transport=transport)
     except SolverError as exc:
         rows = np.asarray(exc.levels, int)
         where = [f"sample {first + r // A} at {kernel.altitude_km[r % A]:g} km"

@@ -94,6 +94,9 @@ class SampleKernel:
     altitude_km : ndarray (A,)
     factor_names : list of str
         Names of the columns of the draws ``z``: reactions, given species, ``euv``, ``Te``.
+    transport : SpeciesTransport or None
+        The model's O+ transport operator (each sample's column is then solved as one
+        coupled system), at the nominal temperatures.
     """
 
     def __init__(self, model, environment=None):
@@ -142,12 +145,20 @@ class SampleKernel:
         self.species = list(model.species)
         self.factor_names = self.reactions + self.given_names + [ENV_EUV, ENV_TE]
         self.R, self.G = R, len(self.given_names)
-        # The central column, where every sample's Newton starts (None: the solver's own
-        # start, when the central column itself does not solve).
+        # O+ transport couples the levels of each sample's column; its coefficients stay at
+        # the nominal temperatures (a sampled Te changes the rates only).
+        self.transport = getattr(model, "transport", None)
+        # The central (nominal) column, where every sample's Newton starts: a warm start
+        # without fixed-point sweeps, or with transport a few iterations of the coupled
+        # column. None (the solver's own start) when the central column itself does not
+        # solve without transport.
         try:
             self.n_central = model.steady_densities().n
         except SolverError:
+            if self.transport is not None:
+                raise
             self.n_central = None
+        self.n_nominal = self.n_central if self.transport is not None else None
 
     # -------------------------------------------------------------- layout of the draws
     @property
@@ -189,6 +200,10 @@ class SampleKernel:
             a = np.ascontiguousarray(arr)
             h.update(str(a.shape).encode())
             h.update(a.tobytes())
+        if self.transport is not None:
+            op = self.transport.operator
+            for arr in (op.a, op.b, op.source, np.array([self.transport.index])):
+                h.update(np.ascontiguousarray(arr, float).tobytes())
         h.update("\n".join(self.factor_names + self.species).encode())
         return h.hexdigest()
 

@@ -18,6 +18,12 @@ density enters the rates at the level, not the optical depth above it.
 
 Cost: one steady solve (or a given solution), one Jacobian and one batched LU solve with
 R + 1 right-hand sides. Dark levels (no densities) get NaN.
+
+With transport the levels are coupled: the same equations hold for the whole column, with
+the sparse block-tridiagonal Jacobian of ``model.column_jacobian``, factorised once (SuperLU)
+for all R + 1 right-hand sides. The transport coefficients depend on Te and Ti through the
+plasma temperature, so the Te column adds ∂(transport)/∂ln Te, by the same central
+difference of the transport operator alone.
 """
 
 from __future__ import annotations
@@ -81,6 +87,39 @@ def _solved_matrix(model, ds):
     return np.stack([ds["density"].sel(species=s).values for s in model.species], -1)
 
 
+def _transport_te_column(model, n):
+    """∂(transport tendency)/∂ln Te, (A, S), central difference of the operator alone."""
+    from ionochem.environment.diffusion import oplus_face_coefficients
+    from ionochem.solve.transport import transport_operator
+    env = model.environment
+    c = env.transport
+    out = np.zeros_like(n)
+    i = model.transport.index
+    for sign in (1.0, -1.0):
+        Te = env.Te * np.exp(sign * TE_STEP)
+        fc = oplus_face_coefficients(env.altitude_km, env.neutrals, Te, env.Ti, env.Tn,
+                                     dip_deg=c.dip_deg,
+                                     meridional_wind_m_s=c.meridional_wind_m_s,
+                                     upper_flux_cm2_s=c.upper_flux_cm2_s)
+        op = transport_operator(fc.altitude_km, fc.D_cm2_s, fc.V_cm_s, fc.upper_flux_cm2_s)
+        out[:, i] += sign * op.apply(n[:, i]) / (2 * TE_STEP)
+    return out
+
+
+def _column_solve(model, n, B, live):
+    """−J⁻¹ B for the live levels of a transport-coupled column: one sparse LU."""
+    from scipy.sparse.linalg import splu
+
+    from ionochem.solve.column import ORDERING
+    A, S, K = B.shape
+    J = model.column_jacobian(n)
+    keep = np.repeat(live, S)
+    Jl = J[keep][:, keep].tocsc()
+    lu = splu(Jl, permc_spec=ORDERING)
+    x = lu.solve(np.ascontiguousarray(B[live].reshape(-1, K)))
+    return -x.reshape(-1, S, K)
+
+
 def sensitivity(model, result=None):
     """Normalized sensitivities of every species to every reaction and to Te.
 
@@ -119,7 +158,11 @@ def _sensitivity(model, result):
     R = rhs.shape[-1]
     live = np.any(n > 0, axis=1)
     dn = np.full(B.shape, np.nan)
-    if live.any():
+    if model.transport is not None:
+        B[..., -1] += _transport_te_column(model, n)
+        if live.any():
+            dn[live] = _column_solve(model, n, B, live)
+    elif live.any():
         try:
             dn[live] = -np.linalg.solve(J[live], B[live])
         except np.linalg.LinAlgError:

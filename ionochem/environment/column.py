@@ -33,8 +33,10 @@ class Environment:
         Fixed neutral densities, cm-3.
     Tn, Te, Ti, Tv : ndarray
         Neutral, electron, ion and N2 vibrational temperatures, K.
-    ion_drift_m_s : float
-        Ion–neutral drift speed entering the effective temperature, m s-1.
+    ion_drift_m_s : float or ndarray
+        Ion–neutral drift speed entering the effective temperature, m s-1: the scenario's
+        drift where ions are magnetised, fading below (``magnetisation``), shape (altitude,)
+        when a drift is given.
     ti_includes_drift : bool
         Whether Ti already holds the frictional heating of the drift (the drift term is then
         not added again to Teff). The builder sets it True for every column: a tabulated Ti
@@ -47,6 +49,13 @@ class Environment:
         Photo-rate calculator (``ionochem.environment.sun.SunColumn``) when the scenario has
         a sun.
     warnings : list[str]
+    info : dict
+        Scalars worth reporting (``dip_deg``, ``magnetisation_height_km``).
+    transport : FaceCoefficients or None
+        O+ transport coefficients (``diffusion.oplus_face_coefficients``) when the scenario
+        has a [transport] section.
+    field_T : ndarray or None
+        Geomagnetic field strength on the grid, T, when it was needed and known.
     """
 
     altitude_km: np.ndarray
@@ -62,6 +71,8 @@ class Environment:
     sun: object | None = None
     warnings: list = field(default_factory=list)
     info: dict = field(default_factory=dict)
+    transport: object | None = None
+    field_T: np.ndarray | None = None
 
     @property
     def time_dependent(self) -> bool:
@@ -150,6 +161,25 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         ttable = read_profile_table(temps.table, grid, columns=want_cols,
                                     where="temperatures.table", scenario_file=file)
     drift = float(temps.ion_drift_m_s)
+    info = {}
+    field_T = dip_deg = None
+    if drift > 0 or scenario.transport is not None:
+        field_T, dip_deg = _field(scenario, grid)
+    if drift > 0:
+        # Only magnetised ions drift past the neutrals (SCIENCE.md §4a): the drift, and the
+        # frictional heating with it, fade below the height where ν_in = Ω_i.
+        from ionochem.environment.magnetisation import (
+            DEFAULT_FIELD_T,
+            magnetisation_height_km,
+            magnetised_drift,
+        )
+        if field_T is None:
+            field_T = np.full(grid.shape, DEFAULT_FIELD_T)
+            messages.append(f"{file}: temperatures.ion_drift_m_s: no [location] and [time] "
+                            f"for the IGRF; ions are taken as magnetised in a "
+                            f"{DEFAULT_FIELD_T:g} T field")
+        drift, kappa = magnetised_drift(drift, neutrals, field_T)
+        info["magnetisation_height_km"] = magnetisation_height_km(grid, kappa)
     # The Ti the chemistry sees always contains the frictional heating exactly once: a
     # tabulated Ti is taken as the real (measured) ion temperature, a modelled one is heated
     # here; Teff then adds the pair's own reduced-mass drift term (St.-Maurice & Torr 1978).
@@ -172,7 +202,7 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         Te_p, Ti_p = parametric_profile(grid, Tn, daytime=day, **_profile_kwargs(temps))
         Te = Te_p if Te is None else Te
         Ti = Ti_p if Ti is None else Ti
-    if drift > 0:
+    if np.any(drift > 0):
         from ionochem.environment.temperatures import (
             check_tabulated_ti,
             frictional_ion_temperature,
@@ -184,7 +214,8 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
             if len(cold):
                 messages.append(
                     f"{file}: temperatures.table: tabulated Ti is colder than frictional "
-                    f"heating by a {drift:g} m/s drift implies at {len(cold)} level(s) "
+                    f"heating by a {temps.ion_drift_m_s:g} m/s drift implies at {len(cold)} "
+                    "level(s) "
                     f"({_span(cold)} km); the drift term is still applied once in Teff")
         else:
             Ti = frictional_ion_temperature(Ti, drift, m_n)
@@ -218,9 +249,15 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                                nonnegative=True)
         ne = t["Ne"]
 
+    transport = None
+    if scenario.transport is not None:
+        transport = _transport(scenario, grid, neutrals, Te, Ti, Tn, dip_deg, messages)
+        info["dip_deg"] = transport.dip_deg
+
     env = Environment(altitude_km=grid, neutrals=neutrals, Tn=Tn, Te=Te, Ti=Ti, Tv=Tv,
                       ion_drift_m_s=drift, ti_includes_drift=ti_includes_drift,
-                      prescribed=prescribed, electron_density=ne, warnings=messages)
+                      prescribed=prescribed, electron_density=ne, warnings=messages,
+                      info=info, transport=transport, field_T=field_T)
     if any(n.startswith(("photo:", "photoelectron:")) for n in needs):
         from ionochem.environment.sun import SunColumn
         env.sun = SunColumn(scenario, env, needs, profile_source)
@@ -228,6 +265,48 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
     for m in messages:
         warnings.warn(m, stacklevel=2)
     return env
+
+
+def _field(scenario, grid):
+    """IGRF field strength (T) on the grid and dip angle (degrees) at 300 km, or (None, None).
+
+    Without [location] and [time], or for a date the IGRF does not cover, there is no field
+    model: the caller falls back (a given dip angle, a typical field strength).
+    """
+    if scenario.location is None or scenario.time is None:
+        return None, None
+    from ionochem.environment.magnetic import FieldModelRangeError, geomagnetic_field
+    loc = scenario.location
+    try:
+        B, _ = geomagnetic_field(loc.latitude_deg, loc.longitude_deg, grid, scenario.time.utc)
+        _, dip = geomagnetic_field(loc.latitude_deg, loc.longitude_deg, [300.0],
+                                   scenario.time.utc)
+    except FieldModelRangeError:
+        return None, None
+    return B, float(dip[0])
+
+
+def _transport(scenario, grid, neutrals, Te, Ti, Tn, igrf_dip, messages):
+    """Face coefficients of O+ transport for the scenario's [transport] section."""
+    from ionochem.environment.diffusion import oplus_face_coefficients
+    tr = scenario.transport
+    file = scenario.source
+    dip = tr.dip_deg if tr.dip_deg is not None else igrf_dip
+    if dip is None:
+        raise ScenarioError("the scenario's date is outside the IGRF coefficients "
+                            "(1900-2030): give the dip angle", file=file,
+                            key="transport.dip_deg")
+    if abs(dip) < 10.0:
+        messages.append(f"{file}: transport.dip_deg: the dip angle is {dip:.1f}°; near the "
+                        "dip equator field-aligned transport is not vertical and its vertical "
+                        "projection (sin²I) is a poor model")
+    if "O" not in neutrals:
+        raise ScenarioError("O+ transport needs atomic oxygen in the neutral atmosphere "
+                            "(its collisions set the diffusion coefficient)", file=file,
+                            key="transport")
+    return oplus_face_coefficients(grid, neutrals, Te, Ti, Tn, dip_deg=dip,
+                                   meridional_wind_m_s=tr.meridional_wind_m_s,
+                                   upper_flux_cm2_s=tr.upper_boundary_flux_cm2_s)
 
 
 def _span(levels):

@@ -73,7 +73,7 @@ def _friction_K(drift_m_s, mass_amu):
 
 def parametric_profile(altitude_km, Tn, *, daytime, te_peak_K: float = 2800.0,
                        te_night_K: float = 1000.0, ti_offset_K: float = 300.0,
-                       base_km: float = 110.0, scale_km: float = 60.0,
+                       base_km: float = 125.0, scale_km: float = 85.0,
                        ti_base_km: float = 300.0, ti_scale_km: float = 100.0):
     """A smooth Te, Ti shape above the neutral temperature (a convenience, not a model).
 
@@ -87,8 +87,14 @@ def parametric_profile(altitude_km, Tn, *, daytime, te_peak_K: float = 2800.0,
 
     Defaults are typical of the mid-latitude ionosphere *(common practice)*: by day Te
     ≈ 2500–2800 K above 300 km, at night ≈ 1000 K; Ti close to Tn below ~300 km and a few
-    hundred K above it by day. The shape has no empirical basis beyond that: use measured
-    (radar) profiles through a table when the temperatures matter.
+    hundred K above it by day. The rise (``base_km`` 125, ``scale_km`` 85) keeps the
+    daytime Te at 150 km near 1200–1300 K for Tn ≈ 600–700 K, not above what the
+    incoherent-scatter climatologies give there, about 1000–1300 K at midday at mid
+    latitudes (Zhang & Holt 2004, Adv. Space Res. 33, 963, Millstone Hill 1976–2001;
+    Zhang, Holt, Zalucha & Amory-Mazaudier 2004, J. Geophys. Res. 109, Saint Santin
+    1966–1987; values *from memory*); the earlier 110/60 km shape gave ≈ 1700 K. The
+    shape has no empirical basis beyond that: use measured (radar) profiles through a
+    table when the temperatures matter.
 
     Parameters
     ----------

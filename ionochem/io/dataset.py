@@ -106,6 +106,8 @@ def provenance(model):
         env_attrs["f107a"] = scen.sun.f107a
     if scen.geomagnetic is not None:
         env_attrs["ap"] = scen.geomagnetic.ap
+    for key, value in model.environment.info.items():
+        env_attrs[key] = float(value)
     if model.environment.sun is not None:
         env_attrs["photon_source"] = model.environment.sun.spectrum.source
         env_attrs["photoelectron_secondaries"] = int(bool(scen.photons.secondary))
@@ -234,7 +236,11 @@ def steady_variables(model, res, method_names):
     out = level_output_vars(model, k, dens, names, ())
     coords.update({c: out.pop(c) for c in ("family_reaction", "family_species") if c in out})
     data_vars.update(out)
-    return data_vars, coords, provenance(model)
+    attrs = provenance(model)
+    extra, extra_attrs = _transport_vars(model, res.n)
+    data_vars.update(extra)
+    attrs.update(extra_attrs)
+    return data_vars, coords, attrs
 
 
 def _add_level_outputs(model, ds, k, dens, names, lead_dims):
@@ -245,6 +251,54 @@ def _add_level_outputs(model, ds, k, dens, names, lead_dims):
     ds.coords.update(coords)
     for name, var in out.items():
         ds[name] = var
+
+
+TRANSPORT_NOTE = (
+    "Column with O+ transport: O+ diffuses along the geomagnetic field (ambipolar diffusion "
+    "projected on the vertical, with the meridional-wind drift), the lowest level is in "
+    "photochemical equilibrium and the given flux crosses the top; the molecular ions and "
+    "metastables are in photochemical equilibrium at every height. Research output, not a "
+    "forecast: do not use alone for radio, navigation or satellite operations.")
+
+
+TRANSIENT_TRANSPORT_NOTE = (
+    "Time-dependent column with O+ transport: every species is integrated in time from the "
+    "initial state; O+ also diffuses along the geomagnetic field (ambipolar diffusion "
+    "projected on the vertical, with the meridional-wind drift), the lowest level follows "
+    "its chemistry alone and the given flux crosses the top. Research output, not a "
+    "forecast: do not use alone for radio, navigation or satellite operations.")
+
+
+def _transport_attrs(model, transient=False):
+    env = model.environment
+    c = env.transport
+    return {"transport": "O+ field-aligned ambipolar diffusion (Schunk & Nagy 2009)",
+            "transport_dip_deg": float(c.dip_deg),
+            "transport_dip_source": "given" if model.scenario.transport.dip_deg is not None
+            else "IGRF at 300 km (ppigrf)",
+            "transport_upper_boundary_flux_cm2_s": float(c.upper_flux_cm2_s),
+            "transport_meridional_wind_m_s": float(c.meridional_wind_m_s),
+            "comment": TRANSIENT_TRANSPORT_NOTE if transient else TRANSPORT_NOTE}
+
+
+def _transport_vars(model, n):
+    """O+ vertical flux and transport rate of a column with transport (nothing otherwise):
+    (data_vars, attrs) for the dataset."""
+    if model.transport is None:
+        return {}, {}
+    tr = model.transport
+    col = n[:, tr.index]
+    out = {
+        "vertical_flux": ("altitude", tr.operator.flux(col),
+                          {"units": "cm-2 s-1", "long_name": f"upward flux of "
+                           f"{model.species[tr.index]} through the top of each level's cell "
+                           "(the last value is the upper boundary flux)"}),
+        "transport_rate": ("altitude", tr.operator.apply(col),
+                           {"units": "cm-3 s-1", "long_name": f"net gain of "
+                            f"{model.species[tr.index]} by transport, -dPhi/dz (zero at "
+                            "the lowest level, held in photochemical equilibrium)"}),
+    }
+    return out, _transport_attrs(model)
 
 
 def _equation(r):
@@ -339,6 +393,8 @@ def transient_dataset(model, times, n):
                                                       for t in times], float),
                                     {"units": "degree", "long_name": "solar zenith angle"})
     ds.attrs["mode"] = "transient"
+    if model.transport is not None:
+        ds.attrs.update(_transport_attrs(model, transient=True))
     return ds
 
 

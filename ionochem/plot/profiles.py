@@ -148,7 +148,9 @@ def profiles_figure(ds, *, species=None, title=None, observed=None):
     sza = ds.get("solar_zenith_angle")
     subtitle = ""
     if sza is not None and sza.ndim == 0 and np.isfinite(sza.item()):
-        subtitle = f"\nsolar zenith angle {sza.item():.1f}°, photochemical equilibrium"
+        state = ("O+ transport, other ions in photochemical equilibrium"
+                 if ds.attrs.get("transport") else "photochemical equilibrium")
+        subtitle = f"\nsolar zenith angle {sza.item():.1f}°, {state}"
     ax.set_title((title or ds.attrs.get("title", "")) + subtitle, fontsize=10)
     return fig
 

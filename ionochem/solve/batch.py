@@ -3,7 +3,8 @@
 Every steady solve of independent rows — the model's own column (one row per level) and the
 samples of an ensemble (rows sample-major) — goes through :func:`solve_rows`, which binds the
 mechanism's tendency, Jacobian and gross production/loss to the rows' rate coefficients and
-fixed densities and hands them to :func:`ionochem.solve.steady.solve_steady`. It knows
+fixed densities and hands them to :func:`ionochem.solve.steady.solve_steady` (or, when
+transport couples the levels of each column, to :mod:`ionochem.solve.column`). It knows
 nothing of the parser or the atmosphere: only arrays and a mechanism's array methods.
 """
 
@@ -12,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 
-def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None):
+def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transport=None):
     """Steady solved densities of B independent rows.
 
     Parameters
@@ -31,6 +32,10 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None):
     n0 : ndarray (B, S), optional
         Starting densities (default zero: the solver builds its own start). When given,
         they are taken as a warm start near the solution (no fixed-point sweeps).
+    transport : ionochem.solve.transport.SpeciesTransport, optional
+        When given, the rows are whole columns coupled by transport (B a multiple of its
+        levels, level-major within each column) and are solved together by
+        :func:`ionochem.solve.column.steady_with_transport`.
 
     Returns
     -------
@@ -57,6 +62,10 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None):
         P, L = mechanism.production_loss(n, *take(rows))
         return P[:, :S], L[:, :S]
 
+    if transport is not None:
+        from ionochem.solve.column import steady_with_transport
+        return steady_with_transport(tendency, jacobian, gross, transport, B, rtol=rtol,
+                                     level_names=level_names, n0=n0)
     both = None
     if hasattr(mechanism, "tendency_production_loss"):
         def both(n, rows):

@@ -1,9 +1,10 @@
 """Time integration of a chemical column with scipy's stiff solvers.
 
 The state is the solved densities of every level flattened level-major, ``y = n.ravel()``
-with ``n`` shaped (altitude, species). Levels are coupled only through time, never through
-each other, so the Jacobian is block diagonal; it is handed to ``solve_ivp`` as a sparse
-matrix, which keeps the LU factorisation cost linear in the number of levels.
+with ``n`` shaped (altitude, species). Without transport the levels are coupled only through
+time, so the Jacobian is block diagonal; with transport it is block tridiagonal and the
+caller's ``jacobian`` returns it as a scipy.sparse matrix already. Either way ``solve_ivp``
+gets a sparse matrix, which keeps the LU factorisation cost linear in the number of levels.
 
 Like the steady solver this module sees only callables: ``tendency(t, n)`` and
 ``jacobian(t, n)``, so rates may depend on time (a setting sun).
@@ -16,16 +17,9 @@ import scipy.sparse as sp
 from scipy.integrate import solve_ivp
 
 from ionochem.errors import SolverError
+from ionochem.solve.column import block_diagonal
 
-
-def block_diagonal(J):
-    """Sparse CSC block-diagonal matrix from blocks J shaped (B, S, S)."""
-    B, S, _ = J.shape
-    rows = (np.arange(B)[:, None, None] * S + np.arange(S)[None, :, None])
-    cols = (np.arange(B)[:, None, None] * S + np.arange(S)[None, None, :])
-    rows = np.broadcast_to(rows, J.shape).ravel()
-    cols = np.broadcast_to(cols, J.shape).ravel()
-    return sp.csc_matrix((J.ravel(), (rows, cols)), shape=(B * S, B * S))
+__all__ = ["block_diagonal", "integrate"]
 
 
 def integrate(times_s, n0, tendency, jacobian, *, method="BDF", rtol=1e-8, atol=1e-6,
@@ -39,7 +33,7 @@ def integrate(times_s, n0, tendency, jacobian, *, method="BDF", rtol=1e-8, atol=
     n0 : ndarray (B, S)
         Densities at t0, cm-3.
     tendency : callable ``(t, n) -> (B, S)``
-    jacobian : callable ``(t, n) -> (B, S, S)``
+    jacobian : callable ``(t, n) -> (B, S, S)`` or ``-> scipy.sparse (B·S, B·S)``
     method : {"BDF", "Radau"}
     rtol, atol : float
         solve_ivp tolerances (atol in cm-3).
@@ -59,7 +53,8 @@ def integrate(times_s, n0, tendency, jacobian, *, method="BDF", rtol=1e-8, atol=
         return tendency(t, y.reshape(B, S)).ravel()
 
     def jac(t, y):
-        return block_diagonal(jacobian(t, y.reshape(B, S)))
+        J = jacobian(t, y.reshape(B, S))
+        return J if sp.issparse(J) else block_diagonal(J)
 
     t_end = times[-1]
     if t_end == t0:

@@ -42,12 +42,13 @@ from ionochem.io.scenario.sections import (
     TemperatureProfile,
     Temperatures,
     Time,
+    Transport,
     parse_budget,
 )
 
 __all__ = [
     "Changes", "Geomagnetic", "Grid", "Location", "Neutrals", "Output", "Photons",
     "Production", "Scenario", "Solve", "Sun", "TemperatureProfile", "Temperatures", "Time",
-    "GRID_TOLERANCE", "NEUTRAL_MODELS", "MSIS_MODELS", "RANGES", "Range", "load_scenario",
-    "parse_budget", "scenario_from_dict",
+    "Transport", "GRID_TOLERANCE", "NEUTRAL_MODELS", "MSIS_MODELS", "RANGES", "Range",
+    "load_scenario", "parse_budget", "scenario_from_dict",
 ]

@@ -98,6 +98,16 @@ RANGES: dict[str, Range] = {
                         "below 1e-14 the residual is below double-precision rounding of "
                         "the gross rates; above 1e-2 the answer is not a steady state "
                         "*(common practice)*"),
+    "transport.upper_boundary_flux_cm2_s": Range(
+        "cm-2 s-1", (-1e12, 1e12), (-1e9, 1e9),
+        "plasmaspheric fluxes into the night F layer are of order 1e8 cm-2 s-1 "
+        "*(common practice)*; positive upward"),
+    "transport.dip_deg": Range("degrees", (-90.0, 90.0), None,
+                               "magnetic inclination, positive where the field points down"),
+    "transport.meridional_wind_m_s": Range(
+        "m/s", (-1000.0, 1000.0), (-300.0, 300.0),
+        "thermospheric meridional winds are tens to a few hundred m/s *(common practice)*; "
+        "positive northward"),
     "changes.scale": Range("1", (0.0, 1e6), (1e-3, 1e3),
                            "rate coefficients are rarely uncertain by more than a factor "
                            "of 1000 *(common practice)*; 0 switches a reaction off (no "

@@ -19,6 +19,7 @@ from ionochem.io.scenario.sections import (
     MSIS_MODELS,
     NEUTRAL_MODELS,
     TEMPERATURE_SOURCES,
+    TRANSPORTED_SPECIES,
     Changes,
     Geomagnetic,
     Grid,
@@ -33,6 +34,7 @@ from ionochem.io.scenario.sections import (
     TemperatureProfile,
     Temperatures,
     Time,
+    Transport,
     parse_budget,
 )
 from ionochem.io.scenario.values import _MISSING, ValueChecks, _kind
@@ -44,7 +46,8 @@ class SchemaValidator(ValueChecks):
     def scenario(self, data) -> Scenario:
         top = self.table(data, "", ("title", "reactions", "grid", "neutrals", "temperatures",
                                     "production", "solve", "changes", "location", "time",
-                                    "sun", "geomagnetic", "photons", "output"))
+                                    "sun", "geomagnetic", "photons", "output",
+                                    "transport"))
         for name in ("title", "reactions"):
             if name not in top:
                 raise self.fail(name, "is required")
@@ -76,10 +79,16 @@ class SchemaValidator(ValueChecks):
         changes = self.changes(top.get("changes", {}))
         photons = self.photons(top.get("photons", {}))
         output = self.output(top.get("output", {}), grid)
+        transport = None
+        if "transport" in top:
+            transport = self.transport(top["transport"], grid=grid, solve=solve,
+                                       have_place_and_time=location is not None
+                                       and time is not None)
         return Scenario(title=title, reactions=reactions, grid=grid, neutrals=neutrals,
                         temperatures=temperatures, production=production, solve=solve,
                         changes=changes, location=location, time=time, sun=sun,
-                        geomagnetic=geomagnetic, photons=photons, output=output)
+                        geomagnetic=geomagnetic, photons=photons, output=output,
+                        transport=transport)
 
     def grid(self, value) -> Grid:
         sec = self.table(value, "grid", ("altitude_km",))
@@ -351,6 +360,45 @@ class SchemaValidator(ValueChecks):
         return Photons(flux=flux, spectrum=spectrum, secondary=secondary,
                        lyman_alpha_photons_cm2_s=lya, extra_spectrum=extra,
                        soft_xrays=soft_xrays, night_sources=night)
+
+    def transport(self, value, *, grid: Grid, solve: Solve,
+                  have_place_and_time: bool) -> Transport:
+        key = "transport"
+        sec = self.table(value, key, ("species", "upper_boundary_flux_cm2_s", "dip_deg",
+                                      "meridional_wind_m_s"))
+        species = sec.get("species", ["O+"])
+        skey = f"{key}.species"
+        if not isinstance(species, list) or not species:
+            what = "an empty list" if species == [] else _kind(species)
+            raise self.fail(skey, f"must be a non-empty list of species names, e.g. "
+                                  f"[\"O+\"], not {what}")
+        names = []
+        for item in species:
+            name = self.string(item, skey).strip()
+            if name not in TRANSPORTED_SPECIES:
+                raise self.fail(skey, f"{name!r} cannot be transported: this version "
+                                      f"transports {', '.join(TRANSPORTED_SPECIES)} only")
+            if name in names:
+                raise self.fail(skey, f"{name!r} is listed twice")
+            names.append(name)
+        if solve.electrons == "table" and solve.balance_ion in names:
+            raise self.fail(skey, f"{solve.balance_ion} is the balance ion of electrons = "
+                                  "'table' (Ne minus the other ions), so it cannot also be "
+                                  "transported")
+        if len(grid.altitude_km) < 3:
+            raise self.fail(key, "transport needs a grid of at least three levels")
+        flux = self.physical(sec.get("upper_boundary_flux_cm2_s", 0.0),
+                             f"{key}.upper_boundary_flux_cm2_s")
+        dip = None
+        if "dip_deg" in sec:
+            dip = self.physical(sec["dip_deg"], f"{key}.dip_deg")
+        elif not have_place_and_time:
+            raise self.fail(f"{key}.dip_deg", "is required without [location] and [time] "
+                                              "(otherwise it comes from the IGRF there)")
+        wind = self.physical(sec.get("meridional_wind_m_s", 0.0),
+                             f"{key}.meridional_wind_m_s")
+        return Transport(species=tuple(names), upper_boundary_flux_cm2_s=flux, dip_deg=dip,
+                         meridional_wind_m_s=wind)
 
     def output(self, value, grid: Grid) -> Output:
         key = "output"

@@ -78,15 +78,15 @@ class TemperatureProfile:
     ti_offset_K : float
         Topside ion minus neutral temperature by day (K), >= 0, default 300.
     base_km : float
-        Height where Te starts to depart from Tn (km), >= 0, default 110.
+        Height where Te starts to depart from Tn (km), >= 0, default 125.
     scale_km : float
-        e-folding height of the rise of Te (km), > 0, default 60.
+        e-folding height of the rise of Te (km), > 0, default 85.
     """
 
     te_peak_K: float = 2800.0
     ti_offset_K: float = 300.0
-    base_km: float = 110.0
-    scale_km: float = 60.0
+    base_km: float = 125.0
+    scale_km: float = 85.0
 
 
 @dataclass(frozen=True)
@@ -273,6 +273,34 @@ class Photons:
     night_sources: bool = True
 
 
+#: Species the ``[transport]`` section may name (O+ ambipolar diffusion; light ions later).
+TRANSPORTED_SPECIES = ("O+",)
+
+
+@dataclass(frozen=True)
+class Transport:
+    """``[transport]``: vertical transport of O+ along the field (its presence switches it on).
+
+    Attributes
+    ----------
+    species : tuple of str
+        Transported species, ``("O+",)``.
+    upper_boundary_flux_cm2_s : float
+        O+ flux through the top of the grid, cm-2 s-1, positive upward (negative: a
+        downward flux from the plasmasphere into the column), default 0.
+    dip_deg : float or None
+        Magnetic dip angle, degrees, -90..90 (positive where the field points down);
+        None: from the IGRF at the scenario's location and date.
+    meridional_wind_m_s : float
+        Meridional neutral wind, m/s, positive northward, default 0.
+    """
+
+    species: tuple[str, ...] = ("O+",)
+    upper_boundary_flux_cm2_s: float = 0.0
+    dip_deg: float | None = None
+    meridional_wind_m_s: float = 0.0
+
+
 @dataclass(frozen=True)
 class Output:
     """``[output]``: extra outputs.
@@ -314,6 +342,8 @@ class Scenario:
         Section objects (always present, defaults filled in).
     location, time, sun, geomagnetic : section object or None
         None when the scenario leaves the section out.
+    transport : Transport or None
+        None (a photochemical column) unless the scenario has a ``[transport]`` section.
     path : Path or None
         The scenario file as given (used in error messages), None when built from a dict
         without one.
@@ -341,6 +371,7 @@ class Scenario:
     geomagnetic: Geomagnetic | None = None
     photons: Photons = field(default_factory=Photons)
     output: Output = field(default_factory=Output)
+    transport: Transport | None = None
     path: Path | None = None
     base_dir: Path = field(default_factory=Path.cwd)
     sha256: str = ""
