@@ -17,6 +17,7 @@ absolute times.
 from __future__ import annotations
 
 import argparse
+import re
 import statistics
 import tempfile
 import time
@@ -31,10 +32,14 @@ DEMO = Path(__file__).resolve().parents[1] / "scenarios" / "midlatitude_equinox.
 
 
 def scenario(levels, tmp):
-    """The demo scenario with ``levels`` levels from 90 to 450 km (a temporary copy)."""
+    """The demo scenario, photochemistry only (its [transport] section removed: the floor
+    assumes independent levels), with ``levels`` levels from 90 to 450 km (a temporary
+    copy)."""
     text = DEMO.read_text()
+    text = re.sub(r"(?ms)^\[transport\].*?(?=^\[|\Z)", "", text)
     step = (450.0 - 90.0) / (levels - 1)
-    text = text.replace("step = 2.0", f"step = {step!r}")
+    text = re.sub(r"(?m)^altitude_km\s*=.*$",
+                  f"altitude_km = {{ start = 90.0, stop = 450.0, step = {step!r} }}", text)
     text = text.replace('"../reactions/', f'"{DEMO.parents[1] / "reactions"}/')
     path = Path(tmp) / f"demo_{levels}.toml"
     path.write_text(text)
