@@ -13,6 +13,7 @@ from pathlib import Path
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
+    add_rate_change_options,
     check_output,
     check_outputs,
     parse_assignments,
@@ -28,11 +29,7 @@ def register(subparsers):
     c = subparsers.add_parser(
         "compare", help="solve a baseline and changed rates on the same column and compare")
     c.add_argument("scenario")
-    c.add_argument("--set", action="append", metavar="ID=EXPR",
-                   help="replace the rate expression of a reaction (repeatable; table paths "
-                        "resolve against the working directory)")
-    c.add_argument("--scale", action="append", metavar="ID=F",
-                   help="multiply a rate coefficient by F ≥ 0 (repeatable)")
+    add_rate_change_options(c)
     c.add_argument("--reactions", action="append", metavar="FILE",
                    help="replacement entries: each replaces the baseline entry of the same id "
                         "(repeatable)")

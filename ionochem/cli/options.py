@@ -24,6 +24,19 @@ FIGURE_FORMATS = ("png", "pdf", "svg", "eps", "ps", "jpg", "jpeg", "tif", "tiff"
 
 
 # ------------------------------------------------------------------ ID=VALUE options
+def add_rate_change_options(parser, when=""):
+    """Add ``--set ID=EXPR`` and ``--scale ID=F`` (repeatable) to a subcommand's parser;
+    ``when`` completes their help ("before sampling", "at every point")."""
+    tail = f" {when}" if when else ""
+    parser.add_argument("--set", action="append", metavar="ID=EXPR",
+                        help=f"replace the rate expression of a reaction{tail} (repeatable; "
+                             "a family id changes every level; table paths resolve against "
+                             "the working directory)")
+    parser.add_argument("--scale", action="append", metavar="ID=F",
+                        help=f"multiply a rate coefficient by F ≥ 0{tail} (repeatable; 0 "
+                             "switches the reaction off)")
+
+
 def assignment_split(item):
     """Index of the first ``=`` outside parentheses (ids like ``DR(v=2)`` contain one)."""
     depth = 0

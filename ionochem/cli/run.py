@@ -8,6 +8,7 @@ from ionochem.cli.observed import add_observed_option, load_observed, print_misf
 from ionochem.cli.options import (
     DEFAULT_REPORT_KM,
     Table,
+    add_rate_change_options,
     check_output,
     check_outputs,
     fmt_value,
@@ -33,11 +34,7 @@ def register(subparsers):
                    help="write the N2+ vibrational level distribution figure (steady runs; "
                         "PNG, PDF, SVG)")
     r.add_argument("--csv", metavar="FILE", help="write the printed density table as CSV")
-    r.add_argument("--set", action="append", metavar="ID=EXPR",
-                   help="replace the rate expression of a reaction (repeatable; table paths "
-                        "resolve against the working directory)")
-    r.add_argument("--scale", action="append", metavar="ID=FACTOR",
-                   help="multiply a rate coefficient (repeatable; 0 switches it off)")
+    add_rate_change_options(r)
     r.add_argument("--budget", action="append", metavar="SPECIES@KM",
                    help="print the production and loss terms of a species at an altitude "
                         "(transient runs: at the last output time)")

@@ -12,6 +12,7 @@ from pathlib import Path
 
 from ionochem.cli.options import (
     Table,
+    add_rate_change_options,
     check_output,
     fmt_value,
     parse_assignments,
@@ -49,11 +50,7 @@ def register(subparsers):
     s.add_argument("--sensitivity", action="store_true",
                    help="store the exact sensitivities dln n/dln k of every species to every "
                         "reaction at every point (steady points)")
-    s.add_argument("--set", action="append", metavar="ID=EXPR",
-                   help="replace the rate expression of a reaction at every point "
-                        "(repeatable)")
-    s.add_argument("--scale", action="append", metavar="ID=FACTOR",
-                   help="multiply a rate coefficient at every point (repeatable)")
+    add_rate_change_options(s, "at every point")
     par = s.add_mutually_exclusive_group()
     par.add_argument("--workers", type=int, default=1, metavar="K",
                      help="solve on a local dask cluster of K worker processes (default 1: "

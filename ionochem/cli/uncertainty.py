@@ -12,6 +12,7 @@ import sys
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
+    add_rate_change_options,
     check_output,
     check_outputs,
     fmt_value,
@@ -61,10 +62,7 @@ def register(subparsers):
     u.add_argument("--species", action="append", metavar="NAME",
                    help="sobol/morris: species analysed (repeatable; default N2+, O2+, NO+, "
                         "O+(total) or O+, e)")
-    u.add_argument("--set", action="append", metavar="ID=EXPR",
-                   help="replace the rate expression of a reaction first (repeatable)")
-    u.add_argument("--scale", action="append", metavar="ID=FACTOR",
-                   help="multiply a rate coefficient first (repeatable)")
+    add_rate_change_options(u, "before sampling")
     u.add_argument("--reactions", action="append", metavar="FILE",
                    help="replacement entries (by id) applied before sampling (repeatable)")
     u.add_argument("--add", action="append", metavar="FILE",

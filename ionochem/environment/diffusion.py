@@ -31,16 +31,18 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ionochem import constants
+
 #: Boltzmann constant, J K-1 (exact; CODATA 2018).
-K_B = 1.380649e-23
+K_B = constants.K_B
 #: Atomic mass constant, kg (CODATA 2018).
-AMU_KG = 1.66053906660e-27
+AMU_KG = constants.AMU_KG
 #: Mass of O+, amu (atomic weight of O, IUPAC; the electron's mass is negligible here).
 M_OPLUS_AMU = 15.999
 #: Standard gravity, m s-2 (3rd CGPM, 1901).
-G0_M_S2 = 9.80665
+G0_M_S2 = constants.G0_M_S2
 #: Mean Earth radius, km (IUGG mean radius R1, *from memory*).
-R_EARTH_KM = 6371.0
+R_EARTH_KM = constants.EARTH_RADIUS_KM
 
 #: Non-resonant O+–neutral momentum-transfer coefficients C_n, cm3 s-1, ν = C_n n_n
 #: (Schunk & Nagy 2009, table 4.4, *from memory*).

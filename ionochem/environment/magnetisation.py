@@ -23,10 +23,12 @@ from __future__ import annotations
 
 import numpy as np
 
+from ionochem import constants
+
 #: Elementary charge, C (exact; CODATA 2018).
-E_CHARGE = 1.602176634e-19
+E_CHARGE = constants.E_CHARGE_C
 #: Atomic mass constant, kg (CODATA 2018).
-AMU_KG = 1.66053906660e-27
+AMU_KG = constants.AMU_KG
 #: Mass of NO+, amu (N 14.007 + O 15.999, IUPAC standard atomic weights).
 M_NOPLUS_AMU = 30.006
 #: Non-resonant NO+–neutral momentum-transfer coefficients, cm3 s-1 (Schunk & Nagy 2009,

@@ -46,6 +46,7 @@ from types import MappingProxyType
 
 import numpy as np
 
+from ionochem import constants
 from ionochem.environment.euvac import DATA_DIR
 from ionochem.errors import InputError
 from ionochem.io.tables import read_csv_columns
@@ -71,7 +72,7 @@ _H = 6.62607015e-34          # J s (CODATA 2018, exact)
 #: eV per cm-1: h c / e (CODATA 2018, exact constants).
 CM_TO_EV = 1.239841984e-4
 _C_CM = 2.99792458e10        # cm s-1 (exact)
-_AMU = 1.66053906660e-27     # kg (CODATA 2018)
+_AMU = constants.AMU_KG
 _MU_N2 = 0.5 * 14.0030740048 * _AMU  # reduced mass of 14N2 (AME atomic mass of 14N)
 _R_GRID_A = np.linspace(0.75, 2.2, 3000)
 

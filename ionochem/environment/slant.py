@@ -32,11 +32,13 @@ from __future__ import annotations
 
 import numpy as np
 
+from ionochem import constants
+
 __all__ = ["slant_columns", "vertical_columns", "column_nodes", "EARTH_RADIUS_KM"]
 
 #: Mean radius of the Earth, km (IUGG mean radius R1 = 6371.0088 km, Moritz 1980,
 #: Bull. Géodésique 54, 395; rounded as is common practice).
-EARTH_RADIUS_KM = 6371.0
+EARTH_RADIUS_KM = constants.EARTH_RADIUS_KM
 
 _KM_TO_CM = 1e5  # columns are returned in cm-2 for densities in cm-3
 _EXTENSION_SCALE_HEIGHTS = 40  # exp(-40) ~ 4e-18 of the top density is left out

@@ -41,9 +41,9 @@ This module must not know about reactions or species beyond masses.
 
 from __future__ import annotations
 
-import re
-
 import numpy as np
+
+from ionochem import constants
 
 __all__ = ["K_B", "AMU_KG", "parametric_profile", "effective_temperature",
            "frictional_ion_temperature", "check_tabulated_ti", "mean_neutral_mass_amu",
@@ -51,18 +51,12 @@ __all__ = ["K_B", "AMU_KG", "parametric_profile", "effective_temperature",
 
 #: Boltzmann constant, J K-1 (exact; CODATA 2018, Tiesinga et al. 2021, Rev. Mod. Phys.
 #: 93, 025010).
-K_B = 1.380649e-23
+K_B = constants.K_B
 #: Atomic mass constant, kg (CODATA 2018, Tiesinga et al. 2021, Rev. Mod. Phys. 93, 025010).
-AMU_KG = 1.66053906660e-27
+AMU_KG = constants.AMU_KG
 
-#: Standard atomic weights of the elements of the neutral atmosphere, conventional values
-#: (IUPAC/CIAAW, Prohaska et al. 2022, Pure Appl. Chem. 94, 573) *(from memory)*.
-_ATOMIC_WEIGHT = {"H": 1.008, "He": 4.0026, "N": 14.007, "O": 15.999, "Ar": 39.95,
-                  "C": 12.011}
 
 _NOT_SPECIES = {"Tn", "Te", "Ti", "Tv"}
-_FORMULA = re.compile(r"^((?:[A-Z][a-z]?\d*)+)(\([^()]*\))?$")
-_ELEMENT = re.compile(r"([A-Z][a-z]?)(\d*)")
 
 
 def _friction_K(drift_m_s, mass_amu):
@@ -260,18 +254,10 @@ def check_tabulated_ti(Ti, Tn, drift_m_s, m_neutral_amu, *, altitude_km=None,
 def neutral_mass_amu(name: str) -> float:
     """Mass (amu) of a neutral written as a formula (``N2``, ``O``, ``NO``, ``N(2D)``).
 
-    Summed standard atomic weights (see ``_ATOMIC_WEIGHT``); an excitation state in
-    parentheses does not change the mass at this precision.
+    Summed standard atomic weights (:func:`ionochem.constants.formula_mass_amu`); an
+    excitation state in parentheses does not change the mass at this precision.
     """
-    m = _FORMULA.match(name)
-    if m is None:
-        raise ValueError(f"cannot read a neutral formula from {name!r}")
-    total = 0.0
-    for sym, count in _ELEMENT.findall(m.group(1)):
-        if sym not in _ATOMIC_WEIGHT:
-            raise ValueError(f"no atomic weight for element {sym!r} in {name!r}")
-        total += _ATOMIC_WEIGHT[sym] * (int(count) if count else 1)
-    return total
+    return constants.formula_mass_amu(name)
 
 
 def mean_neutral_mass_amu(neutrals: dict) -> np.ndarray:

@@ -18,33 +18,8 @@ from dataclasses import dataclass
 __all__ = ["Species", "parse_species", "ATOMIC_MASS_AMU", "ELECTRON_MASS_AMU",
            "ELECTRON", "THIRD_BODY", "PHOTON", "format_elements"]
 
-#: Standard atomic weights (u), IUPAC/CIAAW standard atomic weights, abridged/conventional
-#: values (CIAAW, "Standard atomic weights", Pure Appl. Chem. 2021 revision) *(from memory)*.
-ATOMIC_MASS_AMU: dict[str, float] = {
-    "H": 1.008,
-    "He": 4.0026,
-    "C": 12.011,
-    "N": 14.007,
-    "O": 15.999,
-    "Ne": 20.180,
-    "Na": 22.990,
-    "Mg": 24.305,
-    "Al": 26.982,
-    "Si": 28.085,
-    "P": 30.974,
-    "S": 32.06,
-    "Cl": 35.45,
-    "Ar": 39.95,
-    "K": 39.098,
-    "Ca": 40.078,
-    "Fe": 55.845,
-    "Kr": 83.798,
-    "Xe": 131.29,
-}
-
-#: Electron mass in u, CODATA 2018 recommended value (Tiesinga et al. 2021, Rev. Mod. Phys.
-#: 93, 025010) *(from memory)*.
-ELECTRON_MASS_AMU = 5.48579909065e-4
+# One table of atomic weights and the electron mass for the whole package (re-exported).
+from ionochem.constants import ATOMIC_MASS_AMU, ELECTRON_MASS_AMU  # noqa: E402
 
 # Ground terms written bare in canonical names: O+(4S) -> O+, O(3P) -> O, N(4S) -> N,
 # N+(3P) -> N+ (NIST Atomic Spectra Database ground levels *(from memory)*).
