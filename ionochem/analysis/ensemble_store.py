@@ -236,6 +236,26 @@ class EnsembleStore:
                              "again with --resume to recompute it", file=str(self.folder)
                              ) from None
 
+    def complete_ranges(self, total: int, what: str = "samples"):
+        """The stored batch ranges ``[(start, stop), ...]``, checked to cover 0..total once.
+
+        Raises
+        ------
+        InputError
+            When some of the ``total`` items (``what``: samples, points) are missing or
+            stored twice.
+        """
+        ranges = self.finished()
+        pos = 0
+        for a, b in ranges:
+            if a != pos:
+                raise InputError(f"{what} {pos}..{a - 1} are missing or stored twice",
+                                 file=str(self.folder))
+            pos = b
+        if pos != total:
+            raise InputError(f"{pos} of {total} {what} are stored", file=str(self.folder))
+        return ranges
+
     def load(self, total: int):
         """All stored samples in index order: ``z`` (total, F) and ``n`` (total, A, S).
 
@@ -244,16 +264,7 @@ class EnsembleStore:
         InputError
             When samples are missing or stored twice.
         """
-        ranges = self.finished()
-        pos = 0
-        for a, b in ranges:
-            if a != pos:
-                raise InputError(f"samples {pos}..{a - 1} are missing or stored twice",
-                                 file=str(self.folder))
-            pos = b
-        if pos != total:
-            raise InputError(f"{pos} of {total} samples are stored", file=str(self.folder))
-        parts = [self.read(a, b) for a, b in ranges]
+        parts = [self.read(a, b) for a, b in self.complete_ranges(total)]
         return (np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts]))
 
     # ------------------------------------------------------------------ writing

@@ -596,16 +596,7 @@ def _assemble(spec, template, layout, output, store, results, extra):
     if store is None:
         batches = ((a, a + r.shape[0], r) for a, r in sorted(results.items()))
         return assemble_sweep(skel, layout, batches, var_attrs=var_attrs)
-    total = spec.total
-    ranges = store.finished()
-    pos = 0
-    for a, b in ranges:
-        if a != pos:
-            raise InputError(f"points {pos}..{a - 1} are missing from the store",
-                             file=str(store.folder))
-        pos = b
-    if pos != total:
-        raise InputError(f"{pos} of {total} points are stored", file=str(store.folder))
+    ranges = store.complete_ranges(spec.total, what="points")
     batches = ((a, b, store.read(a, b)[1]) for a, b in ranges)
     write_sweep(output, skel, layout, batches, var_attrs=var_attrs)
     import xarray as xr

@@ -21,6 +21,7 @@ from ionochem.cli.options import (
     print_warnings,
     scenario_inputs,
     stamp_history,
+    write_outputs,
 )
 from ionochem.errors import InputError
 
@@ -122,13 +123,7 @@ def cmd_compare(args):
         print_misfit(observed, {
             "baseline": misfit_of_dataset(observed, ds, density=ds["density_baseline"]),
             "changed": misfit_of_dataset(observed, ds, density=ds["density_changed"])})
-    if args.csv:
-        table.write_csv(args.csv)
-        print(f"wrote {args.csv}")
-    if args.output:
-        from ionochem.io.netcdf import write_netcdf
-        write_netcdf(ds, args.output)
-        print(f"wrote {args.output}")
+    write_outputs(args, ds, table)
     if args.plot:
         from ionochem.plot.compare import plot_compare
         plot_compare(ds, args.plot, species=species, observed=observed)

@@ -209,6 +209,18 @@ def stamp_history(ds, args):
     return ds
 
 
+def write_outputs(args, ds=None, table=None):
+    """Write the printed ``table`` to ``--csv`` and ``ds`` to ``-o`` (each atomically, when
+    given) and say so; the targets were checked before any work by :func:`check_outputs`."""
+    if table is not None and getattr(args, "csv", None):
+        table.write_csv(args.csv)
+        print(f"wrote {args.csv}")
+    if ds is not None and getattr(args, "output", None):
+        from ionochem.io.netcdf import write_netcdf
+        write_netcdf(ds, args.output)
+        print(f"wrote {args.output}")
+
+
 def print_warnings(warnings, prefix="warning"):
     for w in warnings:
         print(f"{prefix}: {w}", file=sys.stderr)

@@ -7,7 +7,13 @@ The analysis is :mod:`ionochem.analysis.rank` on the exact sensitivities of
 from __future__ import annotations
 
 from ionochem.cli.compare import baseline_model
-from ionochem.cli.options import check_output, check_outputs, scenario_inputs, stamp_history
+from ionochem.cli.options import (
+    check_output,
+    check_outputs,
+    scenario_inputs,
+    stamp_history,
+    write_outputs,
+)
 from ionochem.errors import InputError
 
 
@@ -72,14 +78,9 @@ def cmd_rank(args):
             if by == "max":
                 csv_table = _extend(csv_table, s, table)
     _print_effective(model, sens, species, rng, min(args.top, 3))
-    if args.csv and csv_table is not None:
-        csv_table.write_csv(args.csv)
-        print(f"wrote {args.csv}")
-    if args.output:
-        from ionochem.io.netcdf import write_netcdf
-        out = stamp_history(ranking_dataset(sens, rng, min_share=share), args)
-        write_netcdf(out, args.output)
-        print(f"wrote {args.output}")
+    out = (stamp_history(ranking_dataset(sens, rng, min_share=share), args)
+           if args.output else None)
+    write_outputs(args, out, csv_table)
     if args.plot:
         from ionochem.plot.sensitivity import plot_sensitivity
         plot_sensitivity(sens, args.plot, species=species, altitude_range=rng, top=args.top,

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ionochem.cli.options import Table, check_output, print_warnings
+from ionochem.cli.options import Table, check_output, print_warnings, write_outputs
 from ionochem.errors import InputError
 
 SOURCES = ("photo", "photoelectron", "prescribed")
@@ -77,9 +77,7 @@ def cmd_reactions(args):
         shown.add(*row[:-1], ref)
     print(title)
     print(shown.text())
-    if args.csv:
-        table.write_csv(args.csv)
-        print(f"wrote {args.csv}")
+    write_outputs(args, table=table)
     return 0
 
 

@@ -18,6 +18,7 @@ from ionochem.cli.options import (
     report_levels,
     scenario_inputs,
     stamp_history,
+    write_outputs,
 )
 from ionochem.errors import InputError
 
@@ -72,7 +73,6 @@ def parse_km_list(text, flag="--altitudes"):
 def cmd_run(args):
     import numpy as np
 
-    from ionochem.io.netcdf import write_netcdf
     check_outputs(args, inputs=[args.scenario])
     check_output(args.csv, "--csv")
     check_output(getattr(args, "plot_levels", None), "--plot-levels", figure=True,
@@ -127,12 +127,7 @@ def cmd_run(args):
             print(f"budgets at the last output time, t = {float(at['time_s']):g} s")
         for name, km in budgets:
             print(format_budget(budget_table(at, name, km)))
-    if args.csv:
-        table.write_csv(args.csv)
-        print(f"wrote {args.csv}")
-    if args.output:
-        write_netcdf(ds, args.output)
-        print(f"wrote {args.output}")
+    write_outputs(args, ds, table)
     if args.plot:
         if transient and heights:
             from ionochem.plot.profiles import plot_time_series

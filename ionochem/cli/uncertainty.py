@@ -20,6 +20,7 @@ from ionochem.cli.options import (
     print_warnings,
     scenario_inputs,
     stamp_history,
+    write_outputs,
 )
 from ionochem.errors import InputError
 
@@ -116,7 +117,6 @@ def _check_args(args):
 def cmd_uncertainty(args):
     """``ionochem uncertainty``: returns 0."""
     from ionochem.analysis.uncertainty import parse_spreads, remove_store
-    from ionochem.io.netcdf import write_netcdf
     _check_args(args)
     files = [*(args.reactions or []), *(args.add or [])]
     check_output(args.csv, "--csv", inputs=[args.scenario, *files])
@@ -163,12 +163,8 @@ def cmd_uncertainty(args):
     if observed is not None:
         _print_observed_misfit(observed, ds)
     stamp_history(ds, args)
-    if args.csv:
-        table.write_csv(args.csv)
-        print(f"wrote {args.csv}")
+    write_outputs(args, ds, table)
     if args.output:
-        write_netcdf(ds, args.output)
-        print(f"wrote {args.output}")
         if args.keep_samples:
             print(f"samples kept in {args.output}.samples")
         else:
