@@ -8,6 +8,7 @@ stage to the environment stage; the solvers below it see arrays and callables.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
@@ -77,6 +78,21 @@ def _level_channel(reaction, kind):
     if absorbers != ["N2"]:
         return None
     return f"{kind}:N2->N2+(v={ions[0].vib})"
+
+
+class _LevelLabels(Sequence):
+    """Labels "<altitude> km" of solver rows, formatted only when an error needs them."""
+
+    def __init__(self, altitude_km):
+        self.altitude_km = altitude_km
+
+    def __len__(self):
+        return self.altitude_km.size
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return [self[j] for j in range(*i.indices(len(self)))]
+        return f"{self.altitude_km[i]:g} km"
 
 
 class Model:
@@ -575,11 +591,10 @@ class Model:
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
         from ionochem.solve.threads import single_thread_blas
-        names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
+        names = _LevelLabels(np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size))
         try:
             with single_thread_blas():  # batches of small matrices (solve/threads.py)
-                return solve_rows(self.mechanism, k, given, rtol=rtol,
-                                  level_names=[f"{a:g} km" for a in names],
+                return solve_rows(self.mechanism, k, given, rtol=rtol, level_names=names,
                                   transport=self.transport)
         except SolverError as exc:
             raise self._solver_failure(exc, rtol) from None

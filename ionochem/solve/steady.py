@@ -20,7 +20,12 @@ Method
    max_i |f_i| / (P_i + L_i + floor_r) ≤ rtol before a Newton step, that step's relative
    size max_i |Δn_i| / (n_i + floor_n) ≤ 1e-3 (floor_n = 1e-12 × the largest density of the
    level), and the relative residual ≤ rtol again at the point the step reached. P_i and L_i
-   are the gross production and loss; floor_r is the larger of atol / max(rtol, 1e-10) and
+   are the gross production and loss. Or, one iteration sooner: the residual ≤ rtol at the
+   point a step reached, that step ≤ sqrt(rtol) and at most a tenth of the one before it —
+   Newton in its quadratic regime, where the error left is about the square of the last
+   step (Deuflhard, *Newton Methods for Nonlinear Problems*, 2004, ch. 2: the a-posteriori
+   error estimate from the contraction of successive steps; *from memory*), so below rtol.
+   floor_r is the larger of atol / max(rtol, 1e-10) and
    1e-20 × the level's fastest gross rate. ``atol`` is an absolute floor (cm-3 s-1): a level
    whose every residual |f_i| is below it is converged whatever its step (a dark level with
    production of 1e-160 cm-3 s-1 cannot be resolved further and holds nothing physical).
@@ -166,12 +171,14 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
         def both(x, rows):
             return (tendency(x, rows), *gross(x, rows))
     floor = _rate_floor(atol, rtol)
+    quadratic_step = np.sqrt(rtol)
     converged = np.zeros(n.shape[0], bool)
     res = np.full(n.shape[0], np.inf)
     active = np.arange(n.shape[0])
     if not active.size:
         return n, converged, res
     f, P, L = both(n, active)
+    last_step = np.zeros(active.size)     # no step yet: only a zero step shows contraction
     for _ in range(max_iter):
         if active.size == 0:
             break
@@ -211,13 +218,19 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
         # converged whatever the step: its densities are known to within floor / loss
         # frequency, physically nothing.
         rt = _relative_residual(ft, Pt, Lt, floor)
-        res[active] = np.where((r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny), rt, r0)
-        done = ((r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny)
-                & ((rt <= rtol) | _negligible(ft, atol)))
+        met = (rt <= rtol) | _negligible(ft, atol)
+        # Or: the step that reached the point was below sqrt(rtol) and at most a tenth of
+        # the one before (Newton in its quadratic regime: the error left is about the
+        # square of the step, below rtol), with the residual met there.
+        candidate = (((r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny))
+                     | ((rel_step <= quadratic_step) & (rel_step <= 0.1 * last_step)))
+        res[active] = np.where(candidate, rt, r0)
+        done = candidate & met
         converged[active[done]] = True
         keep = ~done
         active = active[keep]
         f, P, L = ft[keep], Pt[keep], Lt[keep]
+        last_step = rel_step[keep]
     return n, converged, res
 
 
