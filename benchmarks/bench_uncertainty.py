@@ -67,6 +67,20 @@ def timed(fn, repeat):
     return best, out
 
 
+def break_even(model, kernel, batch, sizes, workers):
+    """Serial and cluster wall times per sample count, each cluster started anew."""
+    A = kernel.altitude_km.size
+    for samples in sizes:
+        def ensemble(w, samples=samples):
+            return U.run_ensemble(model, kernel,
+                                  lambda a, b: U.draw_normals(0, a, b, kernel.width),
+                                  samples, batch=batch, workers=w)
+        t_ser, _ = timed(lambda: ensemble(1), 1)
+        t_par, _ = timed(lambda: ensemble(workers), 1)
+        print(f"{samples:7d} samples ({samples * A:9d} level solves): serial {t_ser:7.2f} s, "
+              f"{workers} workers {t_par:7.2f} s, speed-up {t_ser / t_par:.2f}x")
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--samples", type=int, default=1000)
@@ -79,6 +93,9 @@ def main():
     ap.add_argument("--transport", action="store_true",
                     help="keep the demo's [transport] section (coupled levels)")
     ap.add_argument("--serial-only", action="store_true", help="skip the cluster run")
+    ap.add_argument("--break-even", type=int, nargs="+", metavar="N",
+                    help="only time serial against --workers for these sample counts "
+                         "(cluster start included), to place ensemble.AUTO_LEVEL_SOLVES")
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
@@ -94,6 +111,9 @@ def main():
               f"({kernel.varied_reactions().size} uncertain); model built in {t_build:.2f} s")
         print(f"{args.samples} samples in batches of {batch} ({batch * A} Newton rows)")
         U.monte_carlo(model, 20, seed=0, batch=batch)                 # warm-up (imports)
+        if args.break_even:
+            break_even(model, kernel, batch, args.break_even, args.workers)
+            return
 
         # The ensemble alone (draws + solves), then the whole analysis with its summary.
         def ensemble(workers):
