@@ -1,0 +1,147 @@
+"""Steady column with O+ transport: Newton against chord and Newton–Krylov, and the floor.
+
+The demo scenario (an invented site: scenarios/midlatitude_equinox.toml, with its
+[transport] section) resampled to N levels from 90 to 600 km. For each size, from the same
+photochemical start (computed once, as :func:`ionochem.solve.column.steady_with_transport`
+does), the column solve (``solve_column``: start sweeps, Newton, convergence rule) is timed
+with each linear solver of :mod:`ionochem.solve.column`:
+
+(a) ``newton``: a fresh sparse LU (SuperLU) of the Jacobian every iteration (today's path);
+(b) ``chord``: the LU reused while each step cuts the scaled residual at least in half;
+(c) ``krylov``: GMRES on the scaled rows, preconditioned by an incomplete LU (spilu),
+    Jacobian–vector products with the sparse Jacobian;
+(d) the floor: as many sparse LU factorisations + solves of the converged Jacobian as
+    Newton does.
+
+Also printed: the whole ``Model.steady_densities`` (photochemical start included) with the
+default, iteration and factorisation counts, the largest relative difference of each
+variant from Newton (densities above 1e-12 of their level's largest), and at the largest
+size the peak of Python/numpy memory (tracemalloc) of each solve and the size of the LU
+factors (SuperLU allocates them outside tracemalloc's view). One BLAS thread, medians of
+``--repeats`` runs, all in one process: the ratios matter, not the absolute times.
+
+    python benchmarks/bench_column_solver.py [--levels 200 1000 5000] [--repeats 5]
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import time
+import tracemalloc
+from pathlib import Path
+
+import numpy as np
+
+import ionochem
+from ionochem.io.scenario import Grid
+from ionochem.solve import column as C
+from ionochem.solve.steady import solve_steady
+from ionochem.solve.threads import single_thread_blas
+
+DEMO = Path(__file__).resolve().parents[1] / "scenarios" / "midlatitude_equinox.toml"
+VARIANTS = ("newton", "chord", "krylov")
+
+
+def model_at(levels):
+    """The demo column (with transport) on ``levels`` levels from 90 to 600 km."""
+    base = ionochem.load_scenario(DEMO)
+    return ionochem.Model(base.replace(grid=Grid(tuple(np.linspace(90.0, 600.0, levels)))))
+
+
+def bound(model):
+    """The mechanism's (tendency, jacobian, gross) on the model's rows, as solve_rows binds
+    them (ionochem/solve/batch.py)."""
+    mech, k, g = model.mechanism, model._k_static, model.given
+
+    def take(rows):
+        return (k, g) if rows.size == k.shape[0] else (k[rows], g[rows])
+
+    return (lambda n, rows: mech.tendency(n, *take(rows)),
+            lambda n, rows: mech.jacobian(n, *take(rows)),
+            lambda n, rows: mech.solved_production_loss(n, *take(rows)))
+
+
+def median_time(fn, repeats):
+    times, out = [], None
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        out = fn()
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times), min(times), max(times), out
+
+
+def column(levels, repeats, memory):
+    model = model_at(levels)
+    tend, jac, gross = bound(model)
+    B, S = model.altitude_km.size, len(model.species)
+    start = solve_steady(np.zeros((B, S)), tend, jac, gross, rtol=1e-6).n
+
+    def run(name, stats=None):
+        return C.steady_with_transport(tend, jac, gross, model.transport, B, n0=start,
+                                       linear=name, stats=stats)
+
+    print(f"{levels} levels x {S} species ({B * S} unknowns), default "
+          f"{C.default_linear(B * S)!r}:")
+    t_model = median_time(model.steady_densities, repeats)[0]
+    stats = {name: {} for name in VARIANTS}
+    results = {name: run(name, stats[name]) for name in VARIANTS}
+    # Interleaved repeats (newton, chord, krylov, newton, ...): a shared machine's drift
+    # falls on every variant alike.
+    times = {name: [] for name in VARIANTS}
+    for _ in range(repeats):
+        for name in VARIANTS:
+            t0 = time.perf_counter()
+            run(name)
+            times[name].append(time.perf_counter() - t0)
+    out = {name: (statistics.median(t), min(t), max(t), results[name], stats[name])
+           for name, t in times.items()}
+    ref = out["newton"][3]
+    big = ref.n > 1e-12 * ref.n.max(axis=1, keepdims=True)
+    J = C._regularise(model.column_jacobian(ref.n), None)
+    f = model.tendency(ref.n).ravel()
+    k = out["newton"][4]["factorisations"]
+
+    def floor():
+        for _ in range(k):
+            C.factorise(J)(-f)
+
+    t_floor = median_time(floor, repeats)[0]
+    tn = out["newton"][0]
+    print(f"  Model.steady_densities (start + column): {t_model * 1e3:8.1f} ms")
+    for name, (med, lo, hi, res, stats) in out.items():
+        diff = np.max(np.abs(res.n[big] - ref.n[big]) / ref.n[big])
+        extra = (f", {stats['krylov_iterations']} GMRES iterations"
+                 if name == "krylov" else "")
+        print(f"  {name:7s} {med * 1e3:8.1f} ms [{lo * 1e3:.1f}-{hi * 1e3:.1f}] "
+              f"({tn / med:4.2f}x faster than newton, {med / t_floor:4.2f}x floor); "
+              f"{int(res.iterations.max())} iterations, {stats['factorisations']} "
+              f"factorisations{extra}; max rel. diff. from newton {diff:.1e}; largest "
+              f"residual {res.residual.max():.1e}")
+    print(f"  floor   {t_floor * 1e3:8.1f} ms ({k} sparse LU + solve of the converged "
+          f"Jacobian)")
+    if memory:
+        from scipy.sparse.linalg import splu
+        lu = splu(J.tocsc(), permc_spec=C.ORDERING)
+        print(f"  Jacobian nnz {J.nnz}, LU factors nnz {lu.L.nnz + lu.U.nnz} "
+              f"(~{(lu.L.nnz + lu.U.nnz) * 12 / 2**20:.1f} MiB outside tracemalloc)")
+        for name in VARIANTS:
+            tracemalloc.start()
+            run(name)
+            peak = tracemalloc.get_traced_memory()[1]
+            tracemalloc.stop()
+            print(f"  peak traced memory, {name:7s}: {peak / 2**20:6.1f} MiB")
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--levels", type=int, nargs="+", default=[200, 1000, 5000])
+    ap.add_argument("--repeats", type=int, default=5)
+    args = ap.parse_args(argv)
+    with single_thread_blas():
+        for levels in args.levels:
+            column(levels, args.repeats, memory=levels == max(args.levels))
+
+
+if __name__ == "__main__":
+    main()
