@@ -6,7 +6,10 @@ photochemical start (computed once, as :func:`ionochem.solve.column.steady_with_
 does), the column solve (``solve_column``: start sweeps, Newton, convergence rule) is timed
 with each linear solver of :mod:`ionochem.solve.column`:
 
-(a) ``newton``: a fresh sparse LU (SuperLU) of the Jacobian every iteration (today's path);
+(a) ``newton``: a fresh sparse LU (SuperLU) of the Jacobian every iteration (today's path),
+    and ``before``, the same with the Jacobian assembled as it was before
+    :class:`~ionochem.solve.column.ColumnJacobian` (a sparse sum and two conversions per
+    iteration);
 (b) ``chord``: the LU reused while each step cuts the scaled residual at least in half;
 (c) ``krylov``: GMRES on the scaled rows, preconditioned by an incomplete LU (spilu),
     Jacobian–vector products with the sparse Jacobian;
@@ -32,6 +35,7 @@ import tracemalloc
 from pathlib import Path
 
 import numpy as np
+import scipy.sparse as sp
 
 import ionochem
 from ionochem.io.scenario import Grid
@@ -40,7 +44,8 @@ from ionochem.solve.steady import solve_steady
 from ionochem.solve.threads import single_thread_blas
 
 DEMO = Path(__file__).resolve().parents[1] / "scenarios" / "midlatitude_equinox.toml"
-VARIANTS = ("newton", "chord", "krylov")
+BEFORE = "before"
+VARIANTS = (BEFORE, "newton", "chord", "krylov")
 
 
 def model_at(levels):
@@ -63,12 +68,39 @@ def bound(model):
 
 
 def median_time(fn, repeats):
-    times, out = [], None
+    times = []
     for _ in range(repeats):
         t0 = time.perf_counter()
-        out = fn()
+        fn()
         times.append(time.perf_counter() - t0)
-    return statistics.median(times), min(times), max(times), out
+    return statistics.median(times)
+
+
+def column_callables(model, before=False):
+    """(tendency, jacobian, gross) of the whole column, as steady_with_transport binds them;
+    ``before``: the Jacobian assembled as before the prebuilt structure
+    (block_diagonal + transport, then the CSR and CSC conversions of the old
+    ``_regularise`` and ``sparse_solve``)."""
+    tend, jac, gross = bound(model)
+    B = model.altitude_km.size
+    rows = np.arange(B)
+    tr = model.transport
+    if before:
+        def jacobian(n):
+            return sp.csc_matrix(sp.csr_matrix(C.block_diagonal(jac(n, rows))
+                                               + tr.matrix(1)))
+    else:
+        assemble = C.ColumnJacobian(B, len(model.species), tr.matrix(1))
+
+        def jacobian(n):
+            return assemble(jac(n, rows))
+
+    def col_gross(n):
+        P, L = gross(n, rows)
+        Pt, Lt = tr.gross(n)
+        return P + Pt, L + Lt
+
+    return (lambda n: tend(n, rows) + tr.tendency(n)), jacobian, col_gross
 
 
 def column(levels, repeats, memory):
@@ -77,16 +109,19 @@ def column(levels, repeats, memory):
     B, S = model.altitude_km.size, len(model.species)
     start = solve_steady(np.zeros((B, S)), tend, jac, gross, rtol=1e-6).n
 
+    fast = column_callables(model)
+    slow = column_callables(model, before=True)
+
     def run(name, stats=None):
-        return C.steady_with_transport(tend, jac, gross, model.transport, B, n0=start,
-                                       linear=name, stats=stats)
+        linear, fns = (name, fast) if name != BEFORE else ("newton", slow)
+        return C.solve_column(start, *fns, linear=linear, stats=stats)
 
     print(f"{levels} levels x {S} species ({B * S} unknowns), default "
           f"{C.default_linear(B * S)!r}:")
-    t_model = median_time(model.steady_densities, repeats)[0]
+    t_model = median_time(model.steady_densities, repeats)
     stats = {name: {} for name in VARIANTS}
     results = {name: run(name, stats[name]) for name in VARIANTS}
-    # Interleaved repeats (newton, chord, krylov, newton, ...): a shared machine's drift
+    # Interleaved repeats (before, newton, chord, krylov, before, ...): a shared machine's drift
     # falls on every variant alike.
     times = {name: [] for name in VARIANTS}
     for _ in range(repeats):
@@ -98,7 +133,7 @@ def column(levels, repeats, memory):
            for name, t in times.items()}
     ref = out["newton"][3]
     big = ref.n > 1e-12 * ref.n.max(axis=1, keepdims=True)
-    J = C._regularise(model.column_jacobian(ref.n), None)
+    J = C._regularise(fast[1](ref.n), None)
     f = model.tendency(ref.n).ravel()
     k = out["newton"][4]["factorisations"]
 
@@ -106,20 +141,25 @@ def column(levels, repeats, memory):
         for _ in range(k):
             C.factorise(J)(-f)
 
-    t_floor = median_time(floor, repeats)[0]
-    tn = out["newton"][0]
+    t_floor = median_time(floor, repeats)
+    tn, tb = out["newton"][0], out[BEFORE][0]
     print(f"  Model.steady_densities (start + column): {t_model * 1e3:8.1f} ms")
     for name, (med, lo, hi, res, stats) in out.items():
         diff = np.max(np.abs(res.n[big] - ref.n[big]) / ref.n[big])
         extra = (f", {stats['krylov_iterations']} GMRES iterations"
                  if name == "krylov" else "")
         print(f"  {name:7s} {med * 1e3:8.1f} ms [{lo * 1e3:.1f}-{hi * 1e3:.1f}] "
-              f"({tn / med:4.2f}x faster than newton, {med / t_floor:4.2f}x floor); "
+              f"(speed-up {tb / med:4.2f}x on before, {tn / med:4.2f}x on newton; "
+              f"{med / t_floor:4.2f}x floor); "
               f"{int(res.iterations.max())} iterations, {stats['factorisations']} "
               f"factorisations{extra}; max rel. diff. from newton {diff:.1e}; largest "
               f"residual {res.residual.max():.1e}")
     print(f"  floor   {t_floor * 1e3:8.1f} ms ({k} sparse LU + solve of the converged "
           f"Jacobian)")
+    for name in ("chord", "krylov"):
+        r = np.array(times["newton"]) / np.array(times[name])
+        print(f"  newton / {name} per repeat: {r.min():.2f}-{r.max():.2f} "
+              f"(>= 1.3 in {int(np.sum(r >= 1.3))} of {r.size})")
     if memory:
         from scipy.sparse.linalg import splu
         lu = splu(J.tocsc(), permc_spec=C.ORDERING)

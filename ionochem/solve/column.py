@@ -421,8 +421,9 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
         :func:`default_linear` of the column's size. A variant that does not converge is
         followed by the plain Newton from the same start.
     stats : dict, optional
-        Filled with ``factorisations`` (sparse LU or ILU of the Jacobian) and, for Krylov,
-        ``krylov_iterations`` (benchmarks).
+        Filled with ``factorisations`` (sparse LU or ILU of the Jacobian),
+        ``krylov_iterations`` and ``solvers``, the names of the linear solvers run (the
+        variant, then ``"newton"`` if it fell back).
 
     Returns
     -------
@@ -457,6 +458,7 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
     if stats is not None:
         stats["factorisations"] = sum(s.factorisations for s in solvers)
         stats["krylov_iterations"] = sum(getattr(s, "krylov_iterations", 0) for s in solvers)
+        stats["solvers"] = [s.name for s in solvers]
     valid = (res <= rtol) & np.all(np.isfinite(n) & (n >= 0), axis=1)
     if not ok or not valid.all():
         labels = np.asarray(level_names if level_names is not None else np.arange(B))
