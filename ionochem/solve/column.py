@@ -394,9 +394,14 @@ def _continuation(n, tendency, jacobian, gross, *, atol, max_iter, iterations):
     return n
 
 
+#: From this many unknowns (B·S) the column Newton reuses its LU (:class:`Chord`); below
+#: it, a fresh LU per iteration (see the module docstring for the figures).
+CHORD_FROM = 10_000
+
+
 def default_linear(n_unknowns):
     """Name of the default linear solver of the column Newton for B·S unknowns."""
-    return "newton"
+    return Chord.name if n_unknowns >= CHORD_FROM else DirectLU.name
 
 
 def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_newton=60,
