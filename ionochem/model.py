@@ -554,6 +554,15 @@ class Model:
             J = J + self.transport.matrix(1)
         return J.tocsc()
 
+    def structural(self, name, build):
+        """``build()``, computed once per model and kept: tables that depend only on the
+        reaction list and the grid (reaction orders, equations, emission reactions, the
+        result's coordinates), so repeated solves do not rebuild them."""
+        store = self.__dict__.setdefault("_structural", {})
+        if name not in store:
+            store[name] = build()
+        return store[name]
+
     def steady_densities(self, k=None, given=None, *, rtol=None):
         """Steady solved densities for rate coefficients ``k`` (B, R) without a dataset.
 
@@ -611,7 +620,26 @@ class Model:
         data_vars.update(extra)
         coords.update(extra_coords)
         attrs.update(extra_attrs)
-        return xr.Dataset(data_vars, coords=coords, attrs=attrs)
+        return xr.Dataset(data_vars, coords=self._result_coordinates(coords), attrs=attrs)
+
+    def _result_coordinates(self, coords):
+        """``xarray.Coordinates`` of ``coords`` (name -> (dims, values[, attrs])), reused
+        from the last solve when equal: building their indexes costs more than the rest of
+        the dataset (pandas indexes of the species and reaction names). Each result gets
+        its own shallow copy (its own attribute dicts)."""
+        import xarray as xr
+
+        def token(value):
+            dims, values, *rest = value
+            values = np.asarray(values)
+            data = tuple(values.tolist()) if values.dtype == object else values.tobytes()
+            return dims, values.dtype.str, values.shape, data, repr(rest)
+
+        key = tuple((name, token(value)) for name, value in coords.items())
+        cached = self.__dict__.get("_coords_cache")
+        if cached is None or cached[0] != key:
+            cached = self._coords_cache = (key, xr.Coordinates(coords))
+        return cached[1].copy(deep=False)
 
     def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
         """Integrate in time from ``initial`` (default: zero ion densities).

@@ -156,6 +156,11 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
     ``atol`` is the absolute residual floor (cm-3 s-1): residuals below it are noise.
     ``both(n, rows) -> (f, P, L)``, optional, gives the tendency and the gross production
     and loss from one evaluation of the rates (the same numbers as the two callables).
+
+    One evaluation of the rates per iteration (plus one per halving of a step): the
+    tendency and gross rates at the point a step reaches serve both the backtracking test
+    and, unchanged, the next iteration's residual and right-hand side — and, for a level
+    whose step was small, the confirming residual of step 3 in the module docstring.
     """
     if both is None:
         def both(x, rows):
@@ -164,57 +169,55 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
     converged = np.zeros(n.shape[0], bool)
     res = np.full(n.shape[0], np.inf)
     active = np.arange(n.shape[0])
+    if not active.size:
+        return n, converged, res
+    f, P, L = both(n, active)
     for _ in range(max_iter):
         if active.size == 0:
             break
         na = n[active]
-        f, P, L = both(na, active)
-        r0 = _relative_residual(f, P, L, floor)
+        scale = _scale(P, L, floor)
+        scaled = f / scale
+        r0 = np.max(np.abs(scaled), axis=1, initial=0.0)
         tiny = _negligible(f, atol)
         J = jacobian(na, active)
         dn = _solve(J, -f)
         dn, lam = _positive_step(na, dn)
         lam = np.where(np.isfinite(lam), lam, 0.0)
-        # Backtracking: halve the step on levels whose scaled residual grew.
-        trial = na + lam[:, None] * dn
-        scale = _scale(P, L, floor)
-        norm0 = np.linalg.norm(f / scale, axis=1)
-        # Only the rows that got worse are halved and evaluated again.
+        # Backtracking: halve the step on levels whose scaled residual grew; only those
+        # rows are evaluated again.
+        trial = np.maximum(na + lam[:, None] * dn, 0.0)
+        norm0 = np.linalg.norm(scaled, axis=1)
+        ft, Pt, Lt = both(trial, active)
         check = np.arange(active.size)
         for _ in range(8):
-            ft = tendency(trial[check], active[check])
-            normt = np.linalg.norm(ft / scale[check], axis=1)
+            normt = np.linalg.norm(ft[check] / scale[check], axis=1)
             worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
             if not worse.any():
                 break
             check = check[worse]
             lam[check] /= 2
-            trial[check] = na[check] + lam[check][:, None] * dn[check]
-        trial = np.maximum(trial, 0.0)
+            trial[check] = np.maximum(na[check] + lam[check][:, None] * dn[check], 0.0)
+            ft[check], Pt[check], Lt[check] = both(trial[check], active[check])
         step = np.abs(trial - na)
         small = NEGLIGIBLE * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
         rel_step = np.max(step / (trial + small[:, None]), axis=1, initial=0.0)
         n[active] = trial
         iterations[active] += 1
-        res[active] = r0
         # Residual met before the step and the step itself small: Newton converges
-        # quadratically, so the point after it is far inside the tolerance. Confirmed below.
-        # A level whose every residual is already below the absolute floor (a dark level
-        # with production of 1e-160 cm-3 s-1, say) is converged whatever the step: its
-        # densities are known to within floor / loss frequency, physically nothing.
-        done = (r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny)
-        # Final residual at the accepted point for the rows marked done.
-        if done.any():
-            idx = active[done]
-            fd, Pd, Ld = both(n[idx], idx)
-            rd = _relative_residual(fd, Pd, Ld, floor)
-            res[idx] = rd
-            ok = (rd <= rtol) | _negligible(fd, atol)
-            converged[idx[ok]] = True
-            done_ok = np.zeros_like(done)
-            done_ok[np.nonzero(done)[0][ok]] = True
-            done = done_ok
-        active = active[~done]
+        # quadratically, so the point after it is far inside the tolerance; confirmed by
+        # the residual at that point. A level whose every residual is already below the
+        # absolute floor (a dark level with production of 1e-160 cm-3 s-1, say) is
+        # converged whatever the step: its densities are known to within floor / loss
+        # frequency, physically nothing.
+        rt = _relative_residual(ft, Pt, Lt, floor)
+        res[active] = np.where((r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny), rt, r0)
+        done = ((r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny)
+                & ((rt <= rtol) | _negligible(ft, atol)))
+        converged[active[done]] = True
+        keep = ~done
+        active = active[keep]
+        f, P, L = ft[keep], Pt[keep], Lt[keep]
     return n, converged, res
 
 
