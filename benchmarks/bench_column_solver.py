@@ -73,14 +73,9 @@ def model_at(levels):
 def bound(model):
     """The mechanism's (tendency, jacobian, gross) on the model's rows, as solve_rows binds
     them (ionochem/solve/batch.py)."""
-    mech, k, g = model.mechanism, model._k_static, model.given
-
-    def take(rows):
-        return (k, g) if rows.size == k.shape[0] else (k[rows], g[rows])
-
-    return (lambda n, rows: mech.tendency(n, *take(rows)),
-            lambda n, rows: mech.jacobian(n, *take(rows)),
-            lambda n, rows: mech.solved_production_loss(n, *take(rows)))
+    from ionochem.mechanism.rows import BoundRows
+    rows = BoundRows(model.mechanism, model._k_static, model.given)
+    return rows.tendency, rows.jacobian, rows.gross
 
 
 def median_time(fn, repeats):

@@ -23,21 +23,22 @@ MID = ROOT / "scenarios" / "midlatitude_equinox.toml"
 VARIANTS = ["newton", "chord", "krylov"]
 
 
+def _bound(model):
+    """The mechanism's tendency, Jacobian and gross rates on the model's rows, bound as
+    solve_rows binds them (ionochem/mechanism/rows.py)."""
+    from ionochem.mechanism.rows import BoundRows
+    rows = BoundRows(model.mechanism, model._k_static, model.given)
+    return rows.tendency, rows.jacobian, rows.gross
+
+
 @pytest.fixture(scope="module")
 def demo():
     """The demo column with O+ transport on 60 levels, 90–600 km, and its chemistry bound
-    to the rows as solve_rows binds it."""
+    to the rows (:func:`_bound`)."""
     base = ionochem.load_scenario(MID)
     model = ionochem.Model(base.replace(grid=Grid(tuple(np.linspace(90.0, 600.0, 60)))))
     assert model.transport is not None
-    mech, k, g = model.mechanism, model._k_static, model.given
-
-    def take(rows):
-        return (k, g) if rows.size == k.shape[0] else (k[rows], g[rows])
-
-    fns = (lambda n, rows: mech.tendency(n, *take(rows)),
-           lambda n, rows: mech.jacobian(n, *take(rows)),
-           lambda n, rows: mech.solved_production_loss(n, *take(rows)))
+    fns = _bound(model)
     return model, fns
 
 
@@ -195,14 +196,7 @@ def test_large_twilight_column_uses_the_chord_and_matches_newton():
     utc = t[i].astype(dt.datetime).replace(tzinfo=dt.UTC)
     model = ionochem.Model(base.replace(time=type(base.time)(utc=utc),
                                         grid=Grid(tuple(np.linspace(90.0, 600.0, 900)))))
-    mech, k, g = model.mechanism, model._k_static, model.given
-
-    def take(rows):
-        return (k, g) if rows.size == k.shape[0] else (k[rows], g[rows])
-
-    fns = (lambda n, rows: mech.tendency(n, *take(rows)),
-           lambda n, rows: mech.jacobian(n, *take(rows)),
-           lambda n, rows: mech.solved_production_loss(n, *take(rows)))
+    fns = _bound(model)
     B, S = model.altitude_km.size, len(model.species)
     assert C.default_linear(B * S) == "chord"
     stats = {}
