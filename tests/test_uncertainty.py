@@ -224,13 +224,15 @@ def test_solved_sample_does_not_depend_on_its_batch(column):
 
 def test_kernel_pickles_and_central_sample_is_the_model_solution(column):
     """The worker kernel survives pickling (dask ships it) and the sample with every ε = 0
-    reproduces Model.steady_densities to round-off (same solver, same inputs; samples start
-    from the central solution, so one more Newton step may move the last bit)."""
+    reproduces Model.steady_densities within the solver's tolerance (same solver, same
+    inputs; samples start from the central solution, and one more Newton step from it may
+    move the densities by about the error the convergence rule allows, ~1e-10 relative;
+    measured 4e-11)."""
     model = _chain(column)
     kernel = pickle.loads(pickle.dumps(U.SampleKernel(model)))
     n = U.solve_batch(kernel, np.zeros((1, kernel.width)))[0]
     np.testing.assert_array_equal(kernel.n_central, model.steady_densities().n)
-    np.testing.assert_allclose(n, model.steady_densities().n, rtol=1e-14, atol=0)
+    np.testing.assert_allclose(n, model.steady_densities().n, rtol=1e-9, atol=0)
 
 
 def test_same_seed_gives_same_quantiles_in_any_batch_size(column):
