@@ -44,32 +44,51 @@ class BoundRows:
         self.out = np.ascontiguousarray(np.concatenate([m.nu.T, pos, neg], axis=1))
         self.nu_t = np.ascontiguousarray(m.nu.T)                     # (R, S)
         self.gross_out = np.ascontiguousarray(np.concatenate([pos, neg], axis=1))
-        self.GT = m.jacobian_kernel()
+        # Rates: the last reactant slot holds a density only for three-body reactions; the
+        # others multiply by the constant 1 (exact), so that slot is applied to those alone.
+        one = m._one
+        self.slots_main = np.ascontiguousarray(m.slots[:, :-1].T).ravel()   # (2R,)
+        self.third = np.nonzero(m.slots[:, -1] != one)[0]
+        self.third_slot = m.slots[self.third, -1]
+        # Jacobian: ∂r/∂n_slot(m) = k × the other two slots, needed only for the columns
+        # (m, r) of the kernel with a nonzero (a reactant that is a solved or algebraic
+        # species; about a third of them for the default list).
+        GT = m.jacobian_kernel()
+        used = np.unique(GT.indices)
+        mslot, self.jac_r = np.divmod(used, self.R)
+        others = np.array([[1, 2], [0, 2], [0, 1]])[mslot]
+        self.jac_o1 = m.slots[self.jac_r, others[:, 0]]
+        self.jac_o2 = m.slots[self.jac_r, others[:, 1]]
+        self.jac_GT = GT[:, used]
+        assert MAX_REACTANT_SLOTS == 3
 
     def _inputs(self, rows):
         if rows.size == self.B:
             return self.k_t, self.given_t
         return np.take(self.k_t, rows, axis=1), np.take(self.given_t, rows, axis=1)
 
-    def _gathered(self, n, rows):
-        """Rate coefficients (R, b) and reactant densities by slot (3, R, b)."""
-        k_t, given_t = self._inputs(rows)
+    def _densities(self, n, given_t):
+        """All densities with rows last, (N_all + 1, b), the last row the constant 1."""
         S, A = self.S, self.A
-        dens = self.E @ n.T                                  # (N_all + 1, b)
+        dens = self.E @ n.T
         if self.electron_row is not None:
             e, qb = self.electron_row
             dens[S] += given_t[e] / qb
         dens[S + A:S + A + self.n_given] = given_t
         dens[-1] = 1.0
-        vals = np.take(dens, self.slots, axis=0).reshape(MAX_REACTANT_SLOTS, self.R, -1)
-        return k_t, vals
+        return dens
 
     def _rates(self, n, rows):
-        k_t, vals = self._gathered(n, rows)
+        """Reaction rates (R, b), cm-3 s-1: k times the densities of the reactant slots,
+        multiplied in slot order (the numbers of :meth:`Mechanism.rates`)."""
+        k_t, given_t = self._inputs(rows)
+        dens = self._densities(n, given_t)
+        vals = np.take(dens, self.slots_main, axis=0).reshape(2, self.R, -1)
         r = k_t * vals[0]
-        for m in range(1, MAX_REACTANT_SLOTS):
-            r *= vals[m]
-        return r                                             # (R, b)
+        r *= vals[1]
+        if self.third.size:
+            r[self.third] *= dens[self.third_slot]
+        return r
 
     def both(self, n, rows):
         """Tendency and gross production and loss of the solved species, each (b, S)."""
@@ -86,17 +105,14 @@ class BoundRows:
 
     def jacobian(self, n, rows):
         """J[b, i, j] = ∂f_i/∂n_j, (b, S, S) (as :meth:`Mechanism.jacobian`)."""
-        k_t, vals = self._gathered(n, rows)
-        b = k_t.shape[1]
-        partial = np.empty((MAX_REACTANT_SLOTS, self.R, b))
-        np.multiply(k_t, vals[1], out=partial[0])
-        partial[0] *= vals[2]
-        np.multiply(k_t, vals[0], out=partial[1])
-        partial[1] *= vals[2]
-        np.multiply(k_t, vals[0], out=partial[2])
-        partial[2] *= vals[1]
+        k_t, given_t = self._inputs(rows)
+        dens = self._densities(n, given_t)
+        b = dens.shape[1]
+        partial = np.take(k_t, self.jac_r, axis=0)
+        partial *= np.take(dens, self.jac_o1, axis=0)
+        partial *= np.take(dens, self.jac_o2, axis=0)
         # (S², b) from the sparse product, returned as a (b, S, S) view without a copy: the
         # batched LU copies each block into its own work array anyway (measured 0.12 ms
         # saved per call at 1,000 rows).
-        out = self.GT @ partial.reshape(-1, b)
+        out = self.jac_GT @ partial
         return out.T.reshape(b, self.S, self.S)
