@@ -9,6 +9,7 @@ Nothing below the command layer imports it.
 from __future__ import annotations
 
 import argparse
+import gc
 import importlib
 import sys
 
@@ -69,6 +70,34 @@ class _WithoutDask:
         return False
 
 
+#: Commands that do one column's worth of work and end: they run with the cyclic garbage
+#: collector paused (see _CollectorPaused). Long analyses (uncertainty, fit, sweep) keep it.
+PAUSE_GC = ("run", "check", "reactions", "compare", "rank", "rates")
+
+
+class _CollectorPaused:
+    """While active, Python's cyclic garbage collector does not run (``gc.disable``).
+
+    Start-up imports about a thousand modules, and the collector keeps walking the ever
+    larger heap they leave: 230 young, 21 middle and 2 full collections, 0.1-0.25 s of an
+    ``ionochem run`` of the demo (measured with ``gc.callbacks``), for no memory back (the
+    peak resident size is the same within 1 MB). Reference counting still frees every
+    acyclic object at once; cycles wait for the next collection after the command, or the
+    end of the process. The collector's previous state is restored on exit, so a caller
+    of :func:`main` inside a longer process keeps its own.
+    """
+
+    def __enter__(self):
+        self.was_enabled = gc.isenabled()
+        gc.disable()
+        return self
+
+    def __exit__(self, *exc):
+        if self.was_enabled:
+            gc.enable()
+        return False
+
+
 def main(argv=None):
     """Run the command line; returns the exit status (0, 1 for a bug, 2 for bad input)."""
     parser = build_parser()
@@ -86,7 +115,8 @@ def main(argv=None):
         # SIGTERM removes the temporary files being written and ends with status 143.
         import contextlib
         nodask = _WithoutDask() if args.command in WITHOUT_DASK else contextlib.nullcontext()
-        with terminate_cleanly(), nodask:
+        nogc = _CollectorPaused() if args.command in PAUSE_GC else contextlib.nullcontext()
+        with terminate_cleanly(), nodask, nogc:
             return args.func(args)
     except Error as exc:
         print(str(exc), file=sys.stderr)
