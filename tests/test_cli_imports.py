@@ -1,4 +1,4 @@
-"""Which libraries each command loads: start-up time is mostly imports (issue 13).
+"""Which libraries each command loads, and with how many BLAS threads (issue 13).
 
 Each command runs as its own process (``python -m ionochem``) that prints, at its end,
 the modules it imported; a command must not load a heavy library it never uses. Reference:
@@ -15,6 +15,8 @@ from pathlib import Path
 
 import pytest
 
+from ionochem.cli import BLAS_THREAD_VARIABLES
+
 ROOT = Path(__file__).resolve().parents[1]
 
 #: Runs the command line as ``python -m ionochem`` does, then prints sys.modules as JSON.
@@ -25,17 +27,31 @@ try:
     main()
 except SystemExit:
     pass
-print(json.dumps(sorted(m for m, v in sys.modules.items() if v is not None)))
+mods = sorted(m for m, v in sys.modules.items() if v is not None)
+threads = []
+if "numpy" in sys.modules:
+    from threadpoolctl import threadpool_info
+    threads = [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+print(json.dumps([mods, threads]))
 """
+
+
+def run_child(*args, cwd=ROOT, **env_vars):
+    """Modules loaded by ``ionochem ARGS`` run as its own process, and the thread counts of
+    its BLAS libraries (empty without numpy). The BLAS thread variables are unset unless
+    given."""
+    env = {k: v for k, v in os.environ.items() if k not in BLAS_THREAD_VARIABLES}
+    env.update(PYTHONPATH=str(ROOT), **env_vars)
+    done = subprocess.run([sys.executable, "-c", CHILD, *map(str, args)], cwd=cwd, env=env,
+                          capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr
+    mods, threads = json.loads(done.stdout.strip().splitlines()[-1])
+    return set(mods), threads
 
 
 def imported_by(*args, cwd=ROOT):
     """Names of the modules loaded by ``ionochem ARGS`` run as its own process."""
-    env = dict(os.environ, PYTHONPATH=str(ROOT), OPENBLAS_NUM_THREADS="1")
-    done = subprocess.run([sys.executable, "-c", CHILD, *map(str, args)], cwd=cwd, env=env,
-                          capture_output=True, text=True, timeout=300)
-    assert done.returncode == 0, done.stderr
-    return set(json.loads(done.stdout.strip().splitlines()[-1]))
+    return run_child(*args, cwd=cwd)[0]
 
 
 def loaded(modules, names):
@@ -70,3 +86,14 @@ def test_run_loads_no_unused_scipy_dask_or_plotting(tmp_path):
     assert "xarray" in mods and "scipy.sparse" in mods     # the check is not vacuous
     assert loaded(mods, ["scipy.stats", "scipy.integrate", "scipy.optimize", "dask", "pint",
                          "matplotlib", "distributed"]) == []
+
+
+def test_one_column_command_runs_with_one_blas_thread_unless_the_user_says():
+    """``check`` as a process asks OpenBLAS for one thread before numpy is loaded
+    (cli._one_blas_thread); a user's OMP_NUM_THREADS=2 is left alone."""
+    reactions = ROOT / "reactions" / "ionosphere.reactions"
+    _, threads = run_child("check", reactions)
+    assert threads and set(threads) == {1}
+    if (os.cpu_count() or 1) >= 2:
+        _, threads = run_child("check", reactions, OMP_NUM_THREADS="2")
+        assert threads and set(threads) == {2}
