@@ -66,13 +66,25 @@ def column(levels, repeats, tmp):
             np.linalg.solve(J, -f[..., None])
 
     # solve() and steady_densities() pin one BLAS thread themselves (solve/threads.py);
-    # the floor is measured the same way.
+    # the floor is measured the same way. The three are timed in turn within each repeat
+    # (interleaved), so a change of load on a shared machine moves all three alike; the
+    # ratios are the medians of the per-repeat ratios.
+    times = {"floor": [], "newton": [], "solve": []}
     with single_thread_blas():
-        fl, nt, sv = (median_time(g, repeats) for g in
-                      (floor, model.steady_densities, model.solve))
+        for fn in (floor, model.steady_densities, model.solve):   # warm-up
+            fn()
+        for _ in range(repeats):
+            for name, fn in (("floor", floor), ("newton", model.steady_densities),
+                             ("solve", model.solve)):
+                t0 = time.perf_counter()
+                fn()
+                times[name].append(time.perf_counter() - t0)
+    fl, nt, sv = (statistics.median(times[k]) for k in ("floor", "newton", "solve"))
+    rn = statistics.median(a / b for a, b in zip(times["newton"], times["floor"]))
+    rs = statistics.median(a / b for a, b in zip(times["solve"], times["floor"]))
     print(f"{levels} levels, {len(model.species)} solved species: floor {fl * 1e3:7.2f} ms, "
-          f"Newton {nt * 1e3:7.2f} ms ({nt / fl:5.1f}x), solve() {sv * 1e3:7.2f} ms "
-          f"({sv / fl:5.1f}x)")
+          f"Newton {nt * 1e3:7.2f} ms ({rn:5.1f}x), solve() {sv * 1e3:7.2f} ms "
+          f"({rs:5.1f}x)")
 
 
 def model_scaling(repeats, tmp):

@@ -1,11 +1,19 @@
-"""Monte Carlo throughput: 1000 samples of a 100-level column, serially and on a two-worker
-dask LocalCluster.
+"""Monte Carlo throughput: 1000 samples of a 100-level column against the linear-algebra
+floor, serially and on a two-worker dask LocalCluster.
 
 The column is the mid-latitude demo scenario (``scenarios/midlatitude_equinox.toml``, an
 invented site and date) with its grid replaced by 100 levels from 90 to 450 km; the default
-reaction list with its uncertainty factors. ``--synthetic`` uses the invented benchmark
-column of ``bench_solve.py`` instead (no neutral model needed). Prints wall times (best of
-``--repeat``), samples per second, the batch size, and the agreement of the two runs.
+reaction list with its uncertainty factors. By default its [transport] section is removed
+(independent levels, as the floor assumes); ``--transport`` keeps it (coupled columns).
+``--synthetic`` uses the invented benchmark column of ``bench_solve.py`` instead (no
+neutral model needed).
+
+The floor is four batched LU solves (``numpy.linalg.solve``) of the Jacobian blocks of
+every sample and level, in the batches the ensemble uses — what a four-iteration Newton
+cannot avoid. The floor and the serial ensemble are timed in turn within each repeat, and
+their ratio is the median of the per-repeat ratios (issue 13 target: within 4x). Prints
+wall times, samples per second, the batch size, the agreement of the serial and cluster
+runs, and the cluster's speed-up (target: >= 1.6x on an idle machine for long runs).
 
     python benchmarks/bench_uncertainty.py [--samples 1000] [--levels 100] [--workers 2]
 """
@@ -14,6 +22,7 @@ from __future__ import annotations
 
 import argparse
 import re
+import statistics
 import sys
 import tempfile
 import time
@@ -27,9 +36,12 @@ from ionochem.analysis import uncertainty as U
 ROOT = Path(__file__).resolve().parents[1]
 
 
-def demo_column(folder: Path, levels: int) -> Path:
-    """The demo scenario on ``levels`` levels from 90 to 450 km, written to ``folder``."""
+def demo_column(folder: Path, levels: int, transport: bool = False) -> Path:
+    """The demo scenario on ``levels`` levels from 90 to 450 km, written to ``folder``
+    (without its [transport] section unless ``transport``)."""
     text = (ROOT / "scenarios" / "midlatitude_equinox.toml").read_text()
+    if not transport:
+        text = re.sub(r"(?ms)^\[transport\].*?(?=^\[|\Z)", "", text)
     alt = np.linspace(90.0, 450.0, levels)
     grid = "altitude_km = [" + ", ".join(f"{a:.6f}" for a in alt) + "]"
     text = re.sub(r"(?m)^altitude_km\s*=.*$", grid, text)
@@ -40,7 +52,7 @@ def demo_column(folder: Path, levels: int) -> Path:
     return path
 
 
-def synthetic_column(folder: Path, levels: int) -> Path:
+def synthetic_column(folder: Path, levels: int, transport: bool = False) -> Path:
     sys.path.insert(0, str(ROOT / "benchmarks"))
     from bench_solve import write_column
     return write_column(folder, levels)
@@ -55,6 +67,20 @@ def timed(fn, repeat):
     return best, out
 
 
+def break_even(model, kernel, batch, sizes, workers):
+    """Serial and cluster wall times per sample count, each cluster started anew."""
+    A = kernel.altitude_km.size
+    for samples in sizes:
+        def ensemble(w, samples=samples):
+            return U.run_ensemble(model, kernel,
+                                  lambda a, b: U.draw_normals(0, a, b, kernel.width),
+                                  samples, batch=batch, workers=w)
+        t_ser, _ = timed(lambda: ensemble(1), 1)
+        t_par, _ = timed(lambda: ensemble(workers), 1)
+        print(f"{samples:7d} samples ({samples * A:9d} level solves): serial {t_ser:7.2f} s, "
+              f"{workers} workers {t_par:7.2f} s, speed-up {t_ser / t_par:.2f}x")
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--samples", type=int, default=1000)
@@ -64,10 +90,17 @@ def main():
     ap.add_argument("--repeat", type=int, default=2)
     ap.add_argument("--synthetic", action="store_true",
                     help="the invented column of bench_solve.py instead of the demo scenario")
+    ap.add_argument("--transport", action="store_true",
+                    help="keep the demo's [transport] section (coupled levels)")
+    ap.add_argument("--serial-only", action="store_true", help="skip the cluster run")
+    ap.add_argument("--break-even", type=int, nargs="+", metavar="N",
+                    help="only time serial against --workers for these sample counts "
+                         "(cluster start included), to place ensemble.AUTO_LEVEL_SOLVES")
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
-        path = (synthetic_column if args.synthetic else demo_column)(folder, args.levels)
+        path = (synthetic_column if args.synthetic else demo_column)(folder, args.levels,
+                                                                     args.transport)
         t0 = time.perf_counter()
         model = ionochem.Model(ionochem.load_scenario(path))
         t_build = time.perf_counter() - t0
@@ -78,6 +111,9 @@ def main():
               f"({kernel.varied_reactions().size} uncertain); model built in {t_build:.2f} s")
         print(f"{args.samples} samples in batches of {batch} ({batch * A} Newton rows)")
         U.monte_carlo(model, 20, seed=0, batch=batch)                 # warm-up (imports)
+        if args.break_even:
+            break_even(model, kernel, batch, args.break_even, args.workers)
+            return
 
         # The ensemble alone (draws + solves), then the whole analysis with its summary.
         def ensemble(workers):
@@ -86,11 +122,36 @@ def main():
             return U.run_ensemble(model, kernel, rows, args.samples, batch=batch,
                                   workers=workers)
 
-        t_ser, (_, n_ser) = timed(lambda: ensemble(1), args.repeat)
+        # The floor: four batched LU solves of every sample's Jacobian blocks, per batch.
+        with U.single_thread_blas():
+            n_c = model.steady_densities().n
+            J = np.tile(model.jacobian(n_c), (batch, 1, 1))
+            f = np.tile(model.tendency(n_c), (batch, 1))[..., None]
+        batches = -(-args.samples // batch)
+
+        def floor():
+            with U.single_thread_blas():
+                for _ in range(batches * 4):
+                    np.linalg.solve(J, f)
+
+        t_floor, t_ens = [], []
+        n_ser = None
+        for _ in range(args.repeat):
+            t, _ = timed(floor, 1)
+            t_floor.append(t)
+            t, (_, n_ser) = timed(lambda: ensemble(1), 1)
+            t_ens.append(t)
+        t_ser = min(t_ens)
+        ratio = statistics.median(a / b for a, b in zip(t_ens, t_floor))
         t_mc, ds = timed(lambda: U.monte_carlo(model, args.samples, seed=0, batch=batch),
                          args.repeat)
-        print(f"serial   : ensemble {t_ser:6.2f} s = {args.samples / t_ser:7.1f} samples/s; "
-              f"monte_carlo() with summary {t_mc:6.2f} s")
+        print(f"floor    : {min(t_floor):6.2f} s (4 batched LU solves of {batches} batches "
+              f"of {batch * A} blocks)")
+        print(f"serial   : ensemble {t_ser:6.2f} s = {args.samples / t_ser:7.1f} samples/s "
+              f"= {ratio:.1f}x the floor (median of {args.repeat}); monte_carlo() with "
+              f"summary {t_mc:6.2f} s")
+        if args.serial_only:
+            return
         t_par, (_, n_par) = timed(lambda: ensemble(args.workers), args.repeat)
         print(f"{args.workers} workers: ensemble {t_par:6.2f} s = {args.samples / t_par:7.1f} "
               "samples/s (includes starting the LocalCluster)")

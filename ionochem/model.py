@@ -8,6 +8,7 @@ stage to the environment stage; the solvers below it see arrays and callables.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
@@ -77,6 +78,21 @@ def _level_channel(reaction, kind):
     if absorbers != ["N2"]:
         return None
     return f"{kind}:N2->N2+(v={ions[0].vib})"
+
+
+class _LevelLabels(Sequence):
+    """Labels "<altitude> km" of solver rows, formatted only when an error needs them."""
+
+    def __init__(self, altitude_km):
+        self.altitude_km = altitude_km
+
+    def __len__(self):
+        return self.altitude_km.size
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return [self[j] for j in range(*i.indices(len(self)))]
+        return f"{self.altitude_km[i]:g} km"
 
 
 class Model:
@@ -554,6 +570,15 @@ class Model:
             J = J + self.transport.matrix(1)
         return J.tocsc()
 
+    def structural(self, name, build):
+        """``build()``, computed once per model and kept: tables that depend only on the
+        reaction list and the grid (reaction orders, equations, emission reactions, the
+        result's coordinates), so repeated solves do not rebuild them."""
+        store = self.__dict__.setdefault("_structural", {})
+        if name not in store:
+            store[name] = build()
+        return store[name]
+
     def steady_densities(self, k=None, given=None, *, rtol=None):
         """Steady solved densities for rate coefficients ``k`` (B, R) without a dataset.
 
@@ -566,11 +591,10 @@ class Model:
         if rtol is None:
             rtol = getattr(self.scenario.solve, "rtol", 1e-10)
         from ionochem.solve.threads import single_thread_blas
-        names = np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size)
+        names = _LevelLabels(np.tile(self.altitude_km, k.shape[0] // self.altitude_km.size))
         try:
             with single_thread_blas():  # batches of small matrices (solve/threads.py)
-                return solve_rows(self.mechanism, k, given, rtol=rtol,
-                                  level_names=[f"{a:g} km" for a in names],
+                return solve_rows(self.mechanism, k, given, rtol=rtol, level_names=names,
                                   transport=self.transport)
         except SolverError as exc:
             raise self._solver_failure(exc, rtol) from None
@@ -611,7 +635,26 @@ class Model:
         data_vars.update(extra)
         coords.update(extra_coords)
         attrs.update(extra_attrs)
-        return xr.Dataset(data_vars, coords=coords, attrs=attrs)
+        return xr.Dataset(data_vars, coords=self._result_coordinates(coords), attrs=attrs)
+
+    def _result_coordinates(self, coords):
+        """``xarray.Coordinates`` of ``coords`` (name -> (dims, values[, attrs])), reused
+        from the last solve when equal: building their indexes costs more than the rest of
+        the dataset (pandas indexes of the species and reaction names). Each result gets
+        its own shallow copy (its own attribute dicts)."""
+        import xarray as xr
+
+        def token(value):
+            dims, values, *rest = value
+            values = np.asarray(values)
+            data = tuple(values.tolist()) if values.dtype == object else values.tobytes()
+            return dims, values.dtype.str, values.shape, data, repr(rest)
+
+        key = tuple((name, token(value)) for name, value in coords.items())
+        cached = self.__dict__.get("_coords_cache")
+        if cached is None or cached[0] != key:
+            cached = self._coords_cache = (key, xr.Coordinates(coords))
+        return cached[1].copy(deep=False)
 
     def integrate(self, times_s, initial=None, *, method="BDF", rtol=1e-8, atol=None):
         """Integrate in time from ``initial`` (default: zero ion densities).

@@ -115,6 +115,60 @@ def test_chain_newton_equals_scipy_root_and_long_integration(column):
         np.testing.assert_allclose(sol.y[:, -1], n[a], rtol=1e-7)
 
 
+# Fast charge exchange back and forth (invented rates): the gross rates of O+ and O2+ are
+# ~1e3 times their net loss, so a residual below rtol alone allows errors of ~1e-7; the step
+# tests must do the rest.
+CYCLE = """\
+P1: O -> O+ + e | k = prescribed | ref = invented test
+C1: O+ + O2 -> O2+ + O | k = 1e-8 | ref = invented test
+C2: O2+ + O -> O+ + O2 | k = 1e-9 | ref = invented test
+D1: O2+ + e -> O + O | k = 2e-7*(300/Te)^0.7 | ref = invented test
+R1: O+ + e -> O | k = 3.7e-12*(250/Te)^0.7 | ref = invented test
+"""
+
+
+def _cycle_root(q, te):
+    """Steady O+ (x) and O2+ (y) of CYCLE at one level: for a given Ne the balance is
+    linear, x = q / (a + βNe − ab/(b + αNe)), y = a x/(b + αNe); Ne = x + y is then found
+    by scipy.optimize.brentq (xtol 1e-30, rtol 1e-15)."""
+    a, b = 1e-8 * 1e11, 1e-9 * 1e11
+    alpha, beta = 2e-7 * (300 / te) ** 0.7, 3.7e-12 * (250 / te) ** 0.7
+
+    def xy(e):
+        x = q / (a + beta * e - a * b / (b + alpha * e))
+        return x, a * x / (b + alpha * e)
+
+    e = scipy.optimize.brentq(lambda e: sum(xy(e)) - e, 1.0, 1e9, xtol=1e-30, rtol=1e-15)
+    return xy(e)
+
+
+def test_newton_stops_a_step_early_only_inside_its_quadratic_regime(column):
+    """The early stop of solve/steady.py (last step ≤ sqrt(rtol) and a tenth of the one
+    before, residual met) leaves densities within 1e-9 of the root — the error a step below
+    sqrt(1e-10) = 1e-5 leaves in Newton's quadratic regime is about its square (Deuflhard
+    2004, ch. 2): on the six-ion chain against scipy.optimize.root (hybr, xtol 1e-13,
+    started 0.1 % away), on an ill-conditioned fast exchange cycle against its closed form
+    with brentq; and saves an iteration: most levels of the chain stop after three."""
+    chain = _chain_model(column)
+    res = chain.steady_densities()
+    assert np.mean(res.iterations <= 3) > 0.5
+    for a in range(ALT.size):
+        def f(x, a=a):
+            return chain.tendency(_row(res.n, a, x))[a]
+
+        root = scipy.optimize.root(f, res.n[a] * 1.001, method="hybr",
+                                   options={"xtol": 1e-13})
+        assert root.success
+        np.testing.assert_allclose(res.n[a], root.x, rtol=1e-9)
+    cycle = ionochem.Model(ionochem.load_scenario(column(
+        CYCLE, ALT, neutrals={"O": 1e11 * np.ones_like(ALT), "O2": 1e11 * np.ones_like(ALT)},
+        Tn=600.0, Te=TE, production={"P1": Q}, name="cycle")))
+    n = cycle.steady_densities().n
+    ref = np.array([_cycle_root(q, te) for q, te in zip(Q, TE)])
+    order = [cycle.species.index(s) for s in ("O+", "O2+")]
+    np.testing.assert_allclose(n[:, order], ref, rtol=1e-9)
+
+
 def _row(n, a, x):
     full = n.copy()
     full[a] = x
@@ -367,6 +421,34 @@ def test_tendency_and_jacobian_equal_the_hand_written_chain(column):
         Jr = _hand_jacobian(x, y, z)
         js = np.abs(Jr).max(axis=(1, 2), keepdims=True)
         np.testing.assert_allclose(J / js, Jr / js, rtol=0, atol=1e-12)
+
+
+def test_bound_rows_equal_the_hand_written_chain(column):
+    """The steady solvers' rows-last evaluation (mechanism/rows.py: BoundRows) gives the
+    hand-written continuity equations and Jacobian of this test, on all rows and on a
+    subset (to 1e-12 of the largest term), and its gross production minus loss is the
+    tendency."""
+    from ionochem.mechanism.rows import BoundRows
+    model = _hand_model(column)
+    order = [model.species.index(s) for s in ("O+", "NO+", "O2+")]
+    bound = BoundRows(model.mechanism, model.rate_coefficients(), model.given)
+    rng = np.random.default_rng(11)
+    x, y, z = 10 ** rng.uniform(1, 6, size=(3, ALT.size))
+    n = np.zeros((ALT.size, 3))
+    n[:, order] = np.stack([x, y, z], -1)
+    ref = np.stack(_hand_tendency(x, y, z), -1)
+    Jr = _hand_jacobian(x, y, z)
+    for rows in (np.arange(ALT.size), np.array([0, 3, 4, 17])):
+        f, P, L = bound.both(n[rows], rows)
+        scale = np.abs(ref[rows]).max(axis=1, keepdims=True) + Q[rows, None]
+        np.testing.assert_allclose(f[:, order] / scale, ref[rows] / scale, rtol=0,
+                                   atol=1e-12)
+        np.testing.assert_allclose((P - L) / scale, f / scale, rtol=0, atol=1e-12)
+        np.testing.assert_array_equal(bound.tendency(n[rows], rows), f)
+        np.testing.assert_array_equal(np.stack(bound.gross(n[rows], rows)), np.stack([P, L]))
+        J = bound.jacobian(n[rows], rows)[:, order][:, :, order]
+        js = np.abs(Jr[rows]).max(axis=(1, 2), keepdims=True)
+        np.testing.assert_allclose(J / js, Jr[rows] / js, rtol=0, atol=1e-12)
 
 
 def test_steady_state_solves_the_hand_written_chain(column):

@@ -355,3 +355,37 @@ def test_command_bad_option_is_one_line_and_exit_2(column, monkeypatch, capsys):
     rc = _cli(monkeypatch, ["uncertainty", str(path), "--samples", "10", "--resume"])
     err = capsys.readouterr().err.strip().splitlines()
     assert rc == 2 and len(err) == 1 and "-o" in err[0]
+
+
+def test_auto_workers_stay_serial_for_small_runs_or_a_busy_machine(monkeypatch):
+    """``--workers auto`` (analysis/ensemble.py): one process below AUTO_LEVEL_SOLVES level
+    solves or with fewer than two free CPUs; otherwise the free CPUs, which are the CPUs of
+    the affinity mask less the load average of other work (os.getloadavg, one process of
+    load being this one)."""
+    from ionochem.analysis import ensemble as E
+    monkeypatch.setattr(E.os, "sched_getaffinity", lambda pid: {0, 1, 2, 3}, raising=False)
+    monkeypatch.setattr(E.os, "getloadavg", lambda: (1.0, 0.0, 0.0))   # only this process
+    assert E.free_cpus() == 4
+    assert E.auto_workers(E.AUTO_LEVEL_SOLVES - 1) == 1
+    assert E.auto_workers(E.AUTO_LEVEL_SOLVES) == 4
+    monkeypatch.setattr(E.os, "getloadavg", lambda: (3.4, 0.0, 0.0))   # 2.4 others busy
+    assert E.free_cpus() == 2
+    assert E.auto_workers(10 * E.AUTO_LEVEL_SOLVES) == 2
+    monkeypatch.setattr(E.os, "getloadavg", lambda: (4.2, 0.0, 0.0))
+    assert E.free_cpus() == 1
+    assert E.auto_workers(10 * E.AUTO_LEVEL_SOLVES) == 1
+
+
+def test_auto_workers_default_solves_a_small_run_in_this_process(column, monkeypatch):
+    """A small ensemble with workers="auto" never starts a cluster (dask_client is not
+    called) and equals the serial run exactly."""
+    from ionochem.analysis import ensemble as E
+    model = _one_ion(column)
+
+    def no_cluster(*a, **k):
+        raise AssertionError("a cluster was started for a small run")
+    monkeypatch.setattr(E, "dask_client", no_cluster)
+    a = U.monte_carlo(model, 16, seed=3, workers="auto")
+    b = U.monte_carlo(model, 16, seed=3, workers=1)
+    np.testing.assert_array_equal(a["density_quantiles"].values,
+                                  b["density_quantiles"].values)

@@ -54,6 +54,22 @@ def add_steady_diagnostics(model, ds):
     ds.attrs.update(attrs)
 
 
+def emission_reactions(model):
+    """Per line of :data:`EMISSIONS` with at least one radiative reaction in the list:
+    (name, label, indices of the reactions upper -> lower)."""
+    out = []
+    for name, upper, lower, label in EMISSIONS:
+        found = []
+        for j, r in enumerate(model.reaction_objects):
+            reac = [sp.name for sp, c in r.reactants for _ in range(c)]
+            prod = [sp.name for sp, c in r.products for _ in range(c)]
+            if reac == [upper] and prod == [lower]:
+                found.append(j)
+        if found:
+            out.append((name, label, found))
+    return out
+
+
 def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
     """The diagnostics of the module docstring as plain dicts, for one Dataset build.
 
@@ -107,18 +123,13 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
 
     ver = []
     labels = []
-    for name, upper, lower, label in EMISSIONS:
+    for name, label, found in model.structural("emission_reactions",
+                                               lambda: emission_reactions(model)):
         total = np.zeros(rates.shape[1])
-        found = False
-        for j, r in enumerate(model.reaction_objects):
-            reac = [sp.name for sp, c in r.reactants for _ in range(c)]
-            prod = [sp.name for sp, c in r.products for _ in range(c)]
-            if reac == [upper] and prod == [lower]:
-                total += rates[j]
-                found = True
-        if found:
-            ver.append(total)
-            labels.append((name, label))
+        for j in found:
+            total += rates[j]
+        ver.append(total)
+        labels.append((name, label))
     if ver:
         out["volume_emission_rate"] = (("emission", "altitude"), np.array(ver),
                                        {"units": "cm-3 s-1", "long_name": "volume emission "

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import contextlib
 import logging
+import os
 
 import numpy as np
 
@@ -50,6 +51,44 @@ def solve_batch(kernel, z, k_base=None, first=0):
                           "(rate factors far in the tails can make a column unsolvable)",
                           levels=[first + int(r) // A for r in rows]) from None
     return res.n.reshape(z.shape[0], A, S)
+
+
+#: Level solves (samples × levels) from which ``workers="auto"`` starts a local cluster:
+#: below it the cluster's start (about 3 s) and its transfers cost more than two processes
+#: save. Measured with benchmarks/bench_uncertainty.py --break-even on this project's 2-core
+#: development machine, idle (see the benchmark's docstring for the figures).
+AUTO_LEVEL_SOLVES = 500_000
+
+
+def free_cpus() -> int:
+    """CPUs this process may use that no other work keeps busy: the CPUs of its affinity
+    mask less the 1-minute load average beyond this process's own (rounded) — a rule of
+    thumb *(common practice)*, at least 1."""
+    try:
+        cpus = len(os.sched_getaffinity(0))
+    except AttributeError:                       # not on Linux
+        cpus = os.cpu_count() or 1
+    try:
+        load = os.getloadavg()[0]
+    except (AttributeError, OSError):
+        load = 0.0
+    return max(1, min(cpus, int(cpus - max(0.0, load - 1.0) + 0.5)))
+
+
+def auto_workers(level_solves: int) -> int:
+    """Worker processes for ``workers="auto"``: 1 (this process) for runs under
+    :data:`AUTO_LEVEL_SOLVES` level solves or when fewer than two CPUs are free, else the
+    free CPUs (a serial run is never the slower choice for small runs)."""
+    if level_solves < AUTO_LEVEL_SOLVES:
+        return 1
+    free = free_cpus()
+    if free < 2:
+        return 1
+    try:
+        import distributed  # noqa: F401
+    except ImportError:
+        return 1
+    return free
 
 
 def default_batch(levels: int) -> int:
@@ -112,8 +151,9 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
         Number of samples.
     batch : int, optional
         Samples per batch (default :func:`default_batch`).
-    workers : int
-        Worker processes of a local dask cluster; 1 (or less) solves in this process.
+    workers : int or "auto"
+        Worker processes of a local dask cluster; 1 (or less) solves in this process;
+        "auto" chooses (:func:`auto_workers`) from the size of the run and the free CPUs.
     scheduler : str, optional
         Address of an existing dask scheduler (overrides ``workers``).
     store : EnsembleStore, optional
@@ -156,6 +196,14 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
         if on_batch is not None:
             on_batch(a, b, done, total)
 
+    if workers == "auto":
+        workers = 1 if scheduler else auto_workers(
+            sum(b - a for a, b in todo) * kernel.altitude_km.size)
+        if workers > 1:
+            logging.getLogger("ionochem").info(
+                "solving on %d local worker processes (--workers auto: %d level solves, "
+                "%d free CPUs)", workers, sum(b - a for a, b in todo) * kernel.altitude_km.size,
+                workers)
     try:
         if scheduler or (workers and int(workers) > 1):
             _run_dask(model, kernel, rows, todo, workers, scheduler, finish)

@@ -153,6 +153,14 @@ def main(argv=None):
         print(f"warning: {message}", file=sys.stderr)
 
     warnings.showwarning = one_line
+    # Notes of the library (such as the workers --workers auto chose) as one line each.
+    import logging
+    note = logging.StreamHandler(sys.stderr)
+    note.setFormatter(logging.Formatter("note: %(message)s"))
+    log = logging.getLogger("ionochem")
+    if not log.handlers:
+        log.addHandler(note)
+        log.setLevel(logging.INFO)
     from ionochem.io.netcdf import terminate_cleanly
     try:
         # SIGTERM removes the temporary files being written and ends with status 143.

@@ -81,6 +81,21 @@ def parse_scales(items):
     return out
 
 
+def workers_option(text):
+    """``--workers``: a whole number of processes (at least 1) or ``auto``."""
+    import argparse
+    if text.strip().lower() == "auto":
+        return "auto"
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a number of processes (a whole "
+                                         "number of at least 1, or auto)")
+    return value
+
+
 def parse_budget(item):
     """``"N2+@200"`` → ``("N2+", 200.0)``."""
     import numpy as np

@@ -20,6 +20,7 @@ from ionochem.cli.options import (
     print_warnings,
     scenario_inputs,
     stamp_history,
+    workers_option,
     write_outputs,
 )
 from ionochem.errors import InputError
@@ -40,9 +41,10 @@ def register(subparsers):
                    help="seed of the random streams (default 0)")
     u.add_argument("--method", choices=("montecarlo", "sobol", "morris"), default="montecarlo")
     par = u.add_mutually_exclusive_group()
-    par.add_argument("--workers", type=int, default=1, metavar="K",
-                     help="solve on a local dask cluster of K worker processes (default 1: "
-                          "in this process)")
+    par.add_argument("--workers", type=workers_option, default="auto", metavar="K",
+                     help="solve on a local dask cluster of K worker processes; 1: in this "
+                          "process; auto (default): in this process unless the run is large "
+                          "and two or more CPUs are free")
     par.add_argument("--scheduler", metavar="ADDRESS",
                      help="solve on an existing dask scheduler (tcp://host:port)")
     u.add_argument("--batch", type=int, metavar="B",
@@ -102,8 +104,7 @@ def _check_args(args):
     check_outputs(args, inputs=[args.scenario])
     if args.samples < 1:
         raise InputError("--samples must be at least 1", file="--samples")
-    if args.workers is not None and args.workers < 1:
-        raise InputError("--workers must be at least 1", file="--workers")
+
     if args.batch is not None and args.batch < 1:
         raise InputError("--batch must be at least 1", file="--batch")
     if args.resume and not args.output:

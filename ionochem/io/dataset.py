@@ -75,7 +75,8 @@ def rate_coefficient_vars(model, k, dims):
     """``rate_coefficient`` (two-body), ``rate_coefficient_first_order`` and
     ``rate_coefficient_third_order``, each NaN for reactions of another order, and
     ``reaction_order``; ``k`` has the reaction axis at ``dims.index("reaction")``."""
-    order = np.array([reaction_order(r) for r in model.reaction_objects], np.int8)
+    order = model.structural("reaction_order", lambda: np.array(
+        [reaction_order(r) for r in model.reaction_objects], np.int8))
     axis = dims.index("reaction")
     shape = [1] * len(dims)
     shape[axis] = order.size
@@ -228,8 +229,8 @@ def steady_variables(model, res, method_names):
         "role": ("species", np.array(roles, dtype=object),
                  {"long_name": "solved, fixed, electron, balance or derived"}),
         "reaction": ("reaction", np.array(model.reactions, dtype=object)),
-        "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
-                                          dtype=object)),
+        "equation": ("reaction", model.structural("equations", lambda: np.array(
+            [_equation(r) for r in model.reaction_objects], dtype=object))),
     }
     data_vars.update(_environment_vars(model))
     from ionochem.io.level_outputs import level_output_vars

@@ -101,7 +101,7 @@ def level_output_vars(model, k, dens, names, lead_dims=()):
             (*lead_dims, "species", "altitude"), np.swapaxes(frac, -1, -2),
             {"units": "1", "long_name": "fraction of the family total in this level "
              "(NaN for species that are not family members)"})
-    fams = family_reactants(model)
+    fams = model.structural("family_reactants", lambda: family_reactants(model))
     if fams:
         vals = []
         for _, total, pairs, _ in fams:

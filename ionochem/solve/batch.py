@@ -45,32 +45,33 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transpor
     from ionochem.solve.steady import solve_steady
     S = len(mechanism.solved)
     B = k.shape[0]
+    if hasattr(mechanism, "jacobian_kernel"):
+        # A Mechanism: its array methods bound to these rows, rows last (mechanism/rows.py).
+        from ionochem.mechanism.rows import BoundRows
+        bound = BoundRows(mechanism, k, given)
+        tendency, jacobian, gross, both = (bound.tendency, bound.jacobian, bound.gross,
+                                           bound.both)
+    else:
+        def take(rows):
+            # Newton passes the active rows, sorted and unique: all rows need no copy.
+            return (k, given) if rows.size == B else (k[rows], given[rows])
 
-    def take(rows):
-        # Newton passes the active rows, sorted and unique: all rows need no copy.
-        return (k, given) if rows.size == B else (k[rows], given[rows])
+        def tendency(n, rows):
+            return mechanism.tendency(n, *take(rows))
 
-    def tendency(n, rows):
-        return mechanism.tendency(n, *take(rows))
+        def jacobian(n, rows):
+            return mechanism.jacobian(n, *take(rows))
 
-    def jacobian(n, rows):
-        return mechanism.jacobian(n, *take(rows))
+        def gross(n, rows):
+            P, L = mechanism.production_loss(n, *take(rows))
+            return P[:, :S], L[:, :S]
 
-    def gross(n, rows):
-        if hasattr(mechanism, "solved_production_loss"):
-            return mechanism.solved_production_loss(n, *take(rows))
-        P, L = mechanism.production_loss(n, *take(rows))
-        return P[:, :S], L[:, :S]
+        both = None
 
     if transport is not None:
         from ionochem.solve.column import steady_with_transport
         return steady_with_transport(tendency, jacobian, gross, transport, B, rtol=rtol,
                                      level_names=level_names, n0=n0)
-    both = None
-    if hasattr(mechanism, "tendency_production_loss"):
-        def both(n, rows):
-            return mechanism.tendency_production_loss(n, *take(rows))
-
     start = np.zeros((B, S)) if n0 is None else n0
     return solve_steady(start, tendency, jacobian, gross, rtol=rtol, level_names=level_names,
                         species_names=list(mechanism.solved), both=both,

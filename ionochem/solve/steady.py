@@ -20,7 +20,12 @@ Method
    max_i |f_i| / (P_i + L_i + floor_r) ≤ rtol before a Newton step, that step's relative
    size max_i |Δn_i| / (n_i + floor_n) ≤ 1e-3 (floor_n = 1e-12 × the largest density of the
    level), and the relative residual ≤ rtol again at the point the step reached. P_i and L_i
-   are the gross production and loss; floor_r is the larger of atol / max(rtol, 1e-10) and
+   are the gross production and loss. Or, one iteration sooner: the residual ≤ rtol at the
+   point a step reached, that step ≤ sqrt(rtol) and at most a tenth of the one before it —
+   Newton in its quadratic regime, where the error left is about the square of the last
+   step (Deuflhard, *Newton Methods for Nonlinear Problems*, 2004, ch. 2: the a-posteriori
+   error estimate from the contraction of successive steps; *from memory*), so below rtol.
+   floor_r is the larger of atol / max(rtol, 1e-10) and
    1e-20 × the level's fastest gross rate. ``atol`` is an absolute floor (cm-3 s-1): a level
    whose every residual |f_i| is below it is converged whatever its step (a dark level with
    production of 1e-160 cm-3 s-1 cannot be resolved further and holds nothing physical).
@@ -156,65 +161,76 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
     ``atol`` is the absolute residual floor (cm-3 s-1): residuals below it are noise.
     ``both(n, rows) -> (f, P, L)``, optional, gives the tendency and the gross production
     and loss from one evaluation of the rates (the same numbers as the two callables).
+
+    One evaluation of the rates per iteration (plus one per halving of a step): the
+    tendency and gross rates at the point a step reaches serve both the backtracking test
+    and, unchanged, the next iteration's residual and right-hand side — and, for a level
+    whose step was small, the confirming residual of step 3 in the module docstring.
     """
     if both is None:
         def both(x, rows):
             return (tendency(x, rows), *gross(x, rows))
     floor = _rate_floor(atol, rtol)
+    quadratic_step = np.sqrt(rtol)
     converged = np.zeros(n.shape[0], bool)
     res = np.full(n.shape[0], np.inf)
     active = np.arange(n.shape[0])
+    if not active.size:
+        return n, converged, res
+    f, P, L = both(n, active)
+    last_step = np.zeros(active.size)     # no step yet: only a zero step shows contraction
     for _ in range(max_iter):
         if active.size == 0:
             break
         na = n[active]
-        f, P, L = both(na, active)
-        r0 = _relative_residual(f, P, L, floor)
+        scale = _scale(P, L, floor)
+        scaled = f / scale
+        r0 = np.max(np.abs(scaled), axis=1, initial=0.0)
         tiny = _negligible(f, atol)
         J = jacobian(na, active)
         dn = _solve(J, -f)
         dn, lam = _positive_step(na, dn)
         lam = np.where(np.isfinite(lam), lam, 0.0)
-        # Backtracking: halve the step on levels whose scaled residual grew.
-        trial = na + lam[:, None] * dn
-        scale = _scale(P, L, floor)
-        norm0 = np.linalg.norm(f / scale, axis=1)
-        # Only the rows that got worse are halved and evaluated again.
+        # Backtracking: halve the step on levels whose scaled residual grew; only those
+        # rows are evaluated again.
+        trial = np.maximum(na + lam[:, None] * dn, 0.0)
+        norm0 = np.linalg.norm(scaled, axis=1)
+        ft, Pt, Lt = both(trial, active)
         check = np.arange(active.size)
         for _ in range(8):
-            ft = tendency(trial[check], active[check])
-            normt = np.linalg.norm(ft / scale[check], axis=1)
+            normt = np.linalg.norm(ft[check] / scale[check], axis=1)
             worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
             if not worse.any():
                 break
             check = check[worse]
             lam[check] /= 2
-            trial[check] = na[check] + lam[check][:, None] * dn[check]
-        trial = np.maximum(trial, 0.0)
+            trial[check] = np.maximum(na[check] + lam[check][:, None] * dn[check], 0.0)
+            ft[check], Pt[check], Lt[check] = both(trial[check], active[check])
         step = np.abs(trial - na)
         small = NEGLIGIBLE * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
         rel_step = np.max(step / (trial + small[:, None]), axis=1, initial=0.0)
         n[active] = trial
         iterations[active] += 1
-        res[active] = r0
         # Residual met before the step and the step itself small: Newton converges
-        # quadratically, so the point after it is far inside the tolerance. Confirmed below.
-        # A level whose every residual is already below the absolute floor (a dark level
-        # with production of 1e-160 cm-3 s-1, say) is converged whatever the step: its
-        # densities are known to within floor / loss frequency, physically nothing.
-        done = (r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny)
-        # Final residual at the accepted point for the rows marked done.
-        if done.any():
-            idx = active[done]
-            fd, Pd, Ld = both(n[idx], idx)
-            rd = _relative_residual(fd, Pd, Ld, floor)
-            res[idx] = rd
-            ok = (rd <= rtol) | _negligible(fd, atol)
-            converged[idx[ok]] = True
-            done_ok = np.zeros_like(done)
-            done_ok[np.nonzero(done)[0][ok]] = True
-            done = done_ok
-        active = active[~done]
+        # quadratically, so the point after it is far inside the tolerance; confirmed by
+        # the residual at that point. A level whose every residual is already below the
+        # absolute floor (a dark level with production of 1e-160 cm-3 s-1, say) is
+        # converged whatever the step: its densities are known to within floor / loss
+        # frequency, physically nothing.
+        rt = _relative_residual(ft, Pt, Lt, floor)
+        met = (rt <= rtol) | _negligible(ft, atol)
+        # Or: the step that reached the point was below sqrt(rtol) and at most a tenth of
+        # the one before (Newton in its quadratic regime: the error left is about the
+        # square of the step, below rtol), with the residual met there.
+        candidate = (((r0 <= rtol) & ((rel_step <= STEP_TOL) | tiny))
+                     | ((rel_step <= quadratic_step) & (rel_step <= 0.1 * last_step)))
+        res[active] = np.where(candidate, rt, r0)
+        done = candidate & met
+        converged[active[done]] = True
+        keep = ~done
+        active = active[keep]
+        f, P, L = ft[keep], Pt[keep], Lt[keep]
+        last_step = rel_step[keep]
     return n, converged, res
 
 
