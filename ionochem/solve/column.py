@@ -20,7 +20,11 @@ Method
    so species with no production go to zero and levels with none become positive.
 2. Damped Newton on the whole column: J Δn = −f solved by one sparse LU factorisation of
    the (B·S)² Jacobian per iteration (SuperLU through ``scipy.sparse.linalg.splu``; the
-   matrix has bandwidth ≈ 2S, so the cost is linear in the number of levels). Positivity,
+   matrix has bandwidth ≈ 2S, so the cost is linear in the number of levels) — or, from
+   :data:`CHORD_FROM` = 10,000 unknowns, a chord Newton that keeps the LU while every step
+   cuts the scaled residual norm tenfold and refactorises otherwise (see "Linear solver"
+   below). The Jacobian's CSC structure is built once per column
+   (:class:`ColumnJacobian`); each iteration only fills its values. Positivity,
    per level as in the independent solver: the step of a level is cut so no density falls
    below a tenth of its value — nor, here, rises above ten times it, which stops Newton's
    overshoot from far below a recombination-limited density (levels in the Earth's shadow
@@ -46,6 +50,32 @@ Method
    evolution relaxation); Newton then polishes.
 5. A column still unconverged, negative or not finite raises :class:`SolverError` naming
    the levels that fail the rule.
+
+Linear solver (issue 13)
+------------------------
+Measured with benchmarks/bench_column_solver.py (the demo column with O+ transport, 12
+solved species, resampled over 90–600 km; one BLAS thread, interleaved repeats, medians of
+15, a shared 2-core machine), the column solve from the photochemical start:
+
+=========  ================  ================  ================
+levels     200 (2,400 unk.)  1,000 (12,000)    5,000 (60,000)
+=========  ================  ================  ================
+newton     9.5 ms, 6 LU      54 ms, 7 LU       350 ms, 7 LU
+chord      7.7 ms, 3 LU      40 ms, 4 LU       258 ms, 4 LU
+ratio      1.24× (1.20–1.28  1.35× (≥ 1.3 in   1.36× (≥ 1.3 in
+           every repeat)     12 of 15)         10 of 15)
+=========  ================  ================  ================
+
+The chord takes one iteration more (8 against 7; its densities differ from Newton's by
+≤ 2e-11 relative, both within the same convergence rule), so the default is the chord from
+10,000 unknowns and plain Newton below, where its gain stays under 1.3×. Newton–Krylov
+(GMRES on the scaled rows, incomplete-LU preconditioner) is 0.5–0.9× Newton at every size:
+the exact LU of this banded matrix fills only 30 % beyond the Jacobian (900,083 against
+689,997 entries at 5,000 levels), so ``spilu`` costs as much as ``splu`` and GMRES adds 4–5
+products per iteration; a block-diagonal preconditioner (chemistry blocks alone) does not
+converge in 1,000 GMRES iterations, because transport couples the O+ of neighbouring levels
+more strongly than chemistry at fine grids. Both variants stay selectable (``linear=``) and
+a variant that does not converge is followed by plain Newton from the same start.
 """
 
 from __future__ import annotations
@@ -92,8 +122,56 @@ def block_diagonal(J):
     return sp.csc_matrix((J.ravel(), (rows, cols)), shape=(B * S, B * S))
 
 
-def sparse_solve(J, rhs):
-    """Solve J x = rhs with one sparse LU (rhs (N,) or (N, K)); None if that fails.
+class ColumnJacobian:
+    """The column's sparse Jacobian from its blocks, with the CSC structure built once.
+
+    The matrix is block diagonal (dense (S, S) chemistry blocks of B levels) plus a
+    constant sparse coupling (transport); only the values change between Newton
+    iterations. The index arrays (rows of every column, column starts) and the place of
+    every block entry and coupling entry in them are computed here once; each call fills
+    the values: the same matrix as ``block_diagonal(blocks) + coupling`` (entries that are
+    zero kept as explicit zeros), without a COO→CSC sort and a sparse sum per iteration
+    (measured with benchmarks/bench_column_solver.py).
+
+    Parameters
+    ----------
+    n_levels, n_species : int
+        B and S.
+    coupling : scipy.sparse matrix (B·S, B·S)
+        Constant part, e.g. :meth:`SpeciesTransport.matrix`.
+    """
+
+    def __init__(self, n_levels, n_species, coupling):
+        B, S = int(n_levels), int(n_species)
+        N = B * S
+        T = sp.coo_matrix(coupling)
+        T.sum_duplicates()
+        base = np.arange(B)[:, None, None] * S
+        rows = np.broadcast_to(base + np.arange(S)[None, :, None], (B, S, S)).ravel()
+        cols = np.broadcast_to(base + np.arange(S)[None, None, :], (B, S, S)).ravel()
+        # CSC order: by column, then row.
+        key = np.concatenate([cols.astype(np.int64) * N + rows,
+                              T.col.astype(np.int64) * N + T.row])
+        unique, where = np.unique(key, return_inverse=True)
+        self.shape = (N, N)
+        self._blocks = where[:rows.size]
+        self._coupling = where[rows.size:]
+        self._values = T.data.astype(float)
+        self._indices = (unique % N).astype(np.int32)
+        self._indptr = np.searchsorted(unique // N, np.arange(N + 1)).astype(np.int32)
+
+    def __call__(self, blocks):
+        """CSC (B·S, B·S) matrix for chemistry blocks shaped (B, S, S)."""
+        data = np.zeros(self._indices.size)
+        data[self._blocks] = np.asarray(blocks, float).ravel()
+        data[self._coupling] += self._values
+        J = sp.csc_matrix((data, self._indices, self._indptr), shape=self.shape)
+        J.has_sorted_indices = True
+        return J
+
+
+def factorise(J):
+    """Sparse LU of J (SuperLU, :data:`ORDERING`): a function x = solve(rhs), or None.
 
     An exactly singular J (species with no loss at all where the densities are zero, as in
     a dark column) is shifted to J − ε I, ε = 1e-12 × its largest diagonal entry — a
@@ -112,8 +190,18 @@ def sparse_solve(J, rhs):
             lu = splu(sp.csc_matrix(J - eps * sp.identity(J.shape[0])), permc_spec=ORDERING)
         except RuntimeError:
             return None
-    x = lu.solve(np.asarray(rhs, float))
-    return x if np.all(np.isfinite(x)) else None
+    return lu.solve
+
+
+def _finite(x):
+    return x if x is not None and np.all(np.isfinite(x)) else None
+
+
+def sparse_solve(J, rhs):
+    """Solve J x = rhs with one sparse LU (rhs (N,) or (N, K)); None if that fails
+    (see :func:`factorise`)."""
+    solve = factorise(J)
+    return None if solve is None else _finite(solve(np.asarray(rhs, float)))
 
 
 def _regularise(J, f):
@@ -126,7 +214,7 @@ def _regularise(J, f):
     needs a descent direction to reach f = 0. (A global shift would swamp levels whose own
     rates are tiny.)
     """
-    J = sp.csr_matrix(J)
+    J = sp.csc_matrix(J)
     diag = J.diagonal()
     zero = diag == 0
     if zero.any():
@@ -151,31 +239,146 @@ def _bounded_step(n, dn):
     return dn, np.minimum(lam, up.min(axis=1, initial=np.inf))
 
 
-def _newton(n, tendency, jacobian, gross, *, rtol, atol, floor, max_iter, iterations):
+class DirectLU:
+    """Newton's linear solve: the Jacobian at every iterate, one sparse LU each (today's
+    default and the fallback of the other variants)."""
+
+    name = "newton"
+
+    def __init__(self, jacobian):
+        self.jacobian = jacobian
+        self.factorisations = 0
+
+    def _fresh(self, n, f):
+        self.factorisations += 1
+        return factorise(_regularise(self.jacobian(n), f))
+
+    def direction(self, n, f, scale):
+        """Δn solving J Δn = −f, flat (B·S,); None if the solve fails."""
+        solve = self._fresh(n, f)
+        return None if solve is None else _finite(solve(-f.ravel()))
+
+    def observe(self, ratio, damped):
+        """The step's fall of the scaled residual norm (new / old) and whether it was cut."""
+
+
+class Chord(DirectLU):
+    """Chord Newton: the LU of the last Jacobian is reused while every step cuts the scaled
+    residual norm of the column at least by :data:`CHORD_RATE` without being damped, and
+    refactorised at the current point otherwise (or when the old factors give no finite
+    step)."""
+
+    name = "chord"
+
+    def __init__(self, jacobian):
+        super().__init__(jacobian)
+        self._solve = None
+        self._stale = True
+
+    def direction(self, n, f, scale):
+        fresh = self._solve is None or self._stale
+        if fresh:
+            self._solve = self._fresh(n, f)
+            self._stale = False
+        dn = None if self._solve is None else _finite(self._solve(-f.ravel()))
+        if dn is None and not fresh:
+            self._solve = self._fresh(n, f)
+            dn = None if self._solve is None else _finite(self._solve(-f.ravel()))
+        return dn
+
+    def observe(self, ratio, damped):
+        self._stale = damped or not ratio <= CHORD_RATE
+
+
+class NewtonKrylov(DirectLU):
+    """Inexact Newton: J Δn = −f by GMRES on the rows scaled by P + L (the norm of the
+    convergence rule), preconditioned by an incomplete LU of the Jacobian at the iterate
+    (``spilu``, drop tolerance :data:`ILU_DROP`), Jacobian–vector products with the sparse
+    matrix; relative tolerance :data:`KRYLOV_RTOL`. A failed ILU or GMRES falls back to
+    the complete LU for that iteration."""
+
+    name = "krylov"
+
+    def __init__(self, jacobian):
+        super().__init__(jacobian)
+        self.krylov_iterations = 0
+
+    def direction(self, n, f, scale):
+        from scipy.sparse.linalg import LinearOperator, gmres, spilu
+        J = sp.csc_matrix(_regularise(self.jacobian(n), f))
+        self.factorisations += 1
+        try:
+            ilu = spilu(J, drop_tol=ILU_DROP, fill_factor=10, permc_spec=ORDERING)
+        except RuntimeError:
+            solve = factorise(J)
+            self.factorisations += 1
+            return None if solve is None else _finite(solve(-f.ravel()))
+        w = 1.0 / scale.ravel()
+        rows = LinearOperator(J.shape, lambda v: w * (J @ v.ravel()))
+        M = LinearOperator(J.shape, lambda v: ilu.solve(v.ravel() / w))
+        count = [0]
+
+        def tick(_):
+            count[0] += 1
+
+        with np.errstate(all="ignore"):
+            dn, info = gmres(rows, -f.ravel() * w, M=M, rtol=KRYLOV_RTOL, atol=0.0,
+                             restart=30, maxiter=10, callback=tick, callback_type="pr_norm")
+        self.krylov_iterations += count[0]
+        if info != 0 or not np.all(np.isfinite(dn)):
+            self.factorisations += 1
+            solve = factorise(J)
+            return None if solve is None else _finite(solve(-f.ravel()))
+        return dn
+
+
+#: Linear solvers of the Newton iteration, by name (see the module docstring).
+LINEAR_SOLVERS = {cls.name: cls for cls in (DirectLU, Chord, NewtonKrylov)}
+
+#: Chord: the factors are kept while each step leaves at most this fraction of the scaled
+#: residual norm (the chord method: Kelley 2003, *Solving Nonlinear Equations with Newton's
+#: Method*, SIAM, ch. 2 (from memory)). Measured on the demo column (bench_column_solver):
+#: with 0.5 or 0.3 the factors of the third iterate are kept at a contraction of 0.2 per
+#: step and the chord needs 15–16 iterations; with 0.1 it refactorises there and then
+#: contracts by 0.005 per step, 8 iterations with 4 factorisations (200 to 5,000 levels).
+CHORD_RATE = 0.1
+
+#: Newton–Krylov: drop tolerance of the incomplete LU and relative tolerance of GMRES on
+#: the scaled rows (tight, so the outer iteration stays Newton's).
+ILU_DROP = 1e-4
+KRYLOV_RTOL = 1e-8
+
+
+def _newton(n, tendency, jacobian, gross, *, rtol, atol, floor, max_iter, iterations,
+            linear=None):
     """Damped Newton on the column; ``floor`` the rate-scale floor, ``atol`` the absolute
-    residual floor (cm-3 s-1) below which a level is converged whatever its step."""
+    residual floor (cm-3 s-1) below which a level is converged whatever its step;
+    ``linear`` the solver of J Δn = −f (default :class:`DirectLU`, a fresh LU per
+    iteration)."""
     B, S = n.shape
+    linear = DirectLU(jacobian) if linear is None else linear
     res = np.full(B, np.inf)
     f = tendency(n)
     P, L = gross(n)
     for _ in range(max_iter):
         r0 = _relative_residual(f, P, L, floor)
         tiny = _negligible(f, atol)
-        J = _regularise(jacobian(n), f)
-        dn = sparse_solve(J, -f.ravel())
+        scale = _scale(P, L, floor)
+        dn = linear.direction(n, f, scale)
         if dn is None:
             return n, False, r0
         dn, lam = _bounded_step(n, dn.reshape(B, S))
         lam = np.where(np.isfinite(lam), lam, 0.0)
-        scale = _scale(P, L, floor)
         norm0 = np.linalg.norm(f / scale)
         mu = 1.0
         for _ in range(8):
             trial = np.maximum(n + mu * lam[:, None] * dn, 0.0)
             ft = tendency(trial)
-            if np.linalg.norm(ft / scale) <= GROWTH_LIMIT * norm0 or mu < 1e-3:
+            norm = np.linalg.norm(ft / scale)
+            if norm <= GROWTH_LIMIT * norm0 or mu < 1e-3:
                 break
             mu /= 2
+        linear.observe(norm / norm0 if norm0 > 0 else 0.0, mu < 1.0 or np.any(lam < 1.0))
         step = np.abs(trial - n)
         small = 1e-12 * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
         rel_step = np.max(step / (trial + small[:, None]), axis=1, initial=0.0)
@@ -222,8 +425,18 @@ def _continuation(n, tendency, jacobian, gross, *, atol, max_iter, iterations):
     return n
 
 
+#: From this many unknowns (B·S) the column Newton reuses its LU (:class:`Chord`); below
+#: it, a fresh LU per iteration (see the module docstring for the figures).
+CHORD_FROM = 10_000
+
+
+def default_linear(n_unknowns):
+    """Name of the default linear solver of the column Newton for B·S unknowns."""
+    return Chord.name if n_unknowns >= CHORD_FROM else DirectLU.name
+
+
 def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_newton=60,
-                 max_continuation=600, level_names=None):
+                 max_continuation=600, level_names=None, linear=None, stats=None):
     """Steady state of transport-coupled levels (see the module docstring).
 
     Parameters
@@ -239,6 +452,14 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
         Absolute floor on rates, cm-3 s-1.
     level_names : sequence, optional
         Label of each level for error messages.
+    linear : {"newton", "chord", "krylov"}, optional
+        Linear solver of the Newton iteration (:data:`LINEAR_SOLVERS`); by default
+        :func:`default_linear` of the column's size. A variant that does not converge is
+        followed by the plain Newton from the same start.
+    stats : dict, optional
+        Filled with ``factorisations`` (sparse LU or ILU of the Jacobian),
+        ``krylov_iterations`` and ``solvers``, the names of the linear solvers run (the
+        variant, then ``"newton"`` if it fell back).
 
     Returns
     -------
@@ -252,8 +473,16 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
     n = np.where(np.isfinite(n), n, 0.0)
     P, L = gross(n)
     floor = max(_rate_floor(atol, rtol), COLUMN_FLOOR * float(np.max(P + L, initial=0.0)))
-    n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol, floor=floor,
-                         max_iter=max_newton, iterations=iterations)
+    name = default_linear(B * S) if linear is None else linear
+    solvers = [LINEAR_SOLVERS[name](jacobian)]
+    start = n
+    n, ok, res = _newton(start, tendency, jacobian, gross, rtol=rtol, atol=atol, floor=floor,
+                         max_iter=max_newton, iterations=iterations, linear=solvers[-1])
+    if not ok and name != DirectLU.name:
+        solvers.append(DirectLU(jacobian))
+        n, ok, res = _newton(start, tendency, jacobian, gross, rtol=rtol, atol=atol,
+                             floor=floor, max_iter=max_newton, iterations=iterations,
+                             linear=solvers[-1])
     if ok:
         method[:] = METHOD_NEWTON
     else:
@@ -262,6 +491,10 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
         n, ok, res = _newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol, floor=floor,
                              max_iter=max_newton, iterations=iterations)
         method[:] = METHOD_CONTINUATION
+    if stats is not None:
+        stats["factorisations"] = sum(s.factorisations for s in solvers)
+        stats["krylov_iterations"] = sum(getattr(s, "krylov_iterations", 0) for s in solvers)
+        stats["solvers"] = [s.name for s in solvers]
     valid = (res <= rtol) & np.all(np.isfinite(n) & (n >= 0), axis=1)
     if not ok or not valid.all():
         labels = np.asarray(level_names if level_names is not None else np.arange(B))
@@ -278,7 +511,7 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
 
 
 def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=1e-10,
-                          atol=1e-30, level_names=None, n0=None):
+                          atol=1e-30, level_names=None, n0=None, linear=None, stats=None):
     """Steady state of stacked columns: local chemistry plus one species' transport.
 
     Parameters
@@ -291,7 +524,7 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
     transport : ionochem.solve.transport.SpeciesTransport
     n_rows : int
         B, a whole number of columns of ``transport.A`` levels.
-    rtol, atol, level_names
+    rtol, atol, level_names, linear, stats
         As in :func:`solve_column`.
     n0 : ndarray (B, S), optional
         Start (e.g. the nominal column for the samples of an ensemble). By default the
@@ -312,8 +545,10 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
     def col_tendency(n):
         return tendency(n, rows) + transport.tendency(n)
 
+    assemble = ColumnJacobian(n_rows, S, transport.matrix(C))
+
     def col_jacobian(n):
-        return block_diagonal(jacobian(n, rows)) + transport.matrix(C)
+        return assemble(jacobian(n, rows))
 
     def col_gross(n):
         P, L = gross(n, rows)
@@ -329,4 +564,4 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
         except SolverError:
             start = np.zeros((n_rows, S))
     return solve_column(start, col_tendency, col_jacobian, col_gross, rtol=rtol, atol=atol,
-                        level_names=level_names)
+                        level_names=level_names, linear=linear, stats=stats)

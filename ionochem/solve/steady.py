@@ -148,10 +148,17 @@ def initial_guess(n0, gross, sweeps=12):
     for _ in range(sweeps):
         P, L = gross(n)
         with np.errstate(divide="ignore", invalid="ignore"):
+            # Where n > 0 and L > 0 (nearly everywhere after the first sweep):
+            # sqrt(n · P/(L/n)) = n · sqrt(P/L).
+            fast = n * np.sqrt(P / L)
+            usual = (n > 0) & (L > 0)
+            if usual.all():
+                n = fast
+                continue
             freq = np.where(n > 0, L / n, 0.0)
             target = np.where(freq > 0, P / freq, n + P)   # no loss yet: grow by P·1 s
         target = np.where(P > 0, target, 0.0)
-        n = np.where(n > 0, np.sqrt(n * target), target)
+        n = np.where(usual, fast, np.where(n > 0, np.sqrt(n * target), target))
     return n
 
 
