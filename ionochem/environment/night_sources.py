@@ -51,7 +51,6 @@ from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
-from scipy.special import expn
 
 from ionochem.environment.crosssections import (
     LYMAN_ALPHA_A,
@@ -151,6 +150,10 @@ def night_frequencies(vertical_columns: Mapping[str, np.ndarray], *,
         Channel key -> frequency per absorber molecule (s-1), shape (altitude,):
         sum over lines of sigma_c 2 pi I E_2(tau).
     """
+    # Deferred: scipy.special costs 30-150 ms to import (its array-API layer); numpy and
+    # the standard library have no exponential integral.
+    from scipy.special import expn
+
     spectrum = night_spectrum() if spectrum is None else spectrum
     tau = optical_depth(spectrum, vertical_columns)
     flux = spectrum.photons_cm2_s * expn(2, tau)

@@ -82,7 +82,6 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.sparse.linalg import splu
 
 from ionochem.errors import SolverError
 from ionochem.solve.steady import (
@@ -179,6 +178,8 @@ def factorise(J):
     pseudo-time step of 1e12 relaxation times, harmless to Newton, which only needs a
     descent direction to reach f = 0.
     """
+    from scipy.sparse.linalg import splu  # deferred: scipy.linalg and more, ~50 ms
+
     J = sp.csc_matrix(J)
     try:
         lu = splu(J, permc_spec=ORDERING)
