@@ -1,5 +1,5 @@
 """Monte Carlo throughput: 1000 samples of a 100-level column against the linear-algebra
-floor, serially and on a two-worker dask LocalCluster.
+floor, serially and on two local worker processes.
 
 The column is the mid-latitude demo scenario (``scenarios/midlatitude_equinox.toml``, an
 invented site and date) with its grid replaced by 100 levels from 90 to 450 km; the default
@@ -67,18 +67,23 @@ def timed(fn, repeat):
     return best, out
 
 
-def break_even(model, kernel, batch, sizes, workers):
-    """Serial and cluster wall times per sample count, each cluster started anew."""
+def break_even(model, kernel, batch, sizes, workers, repeat):
+    """Serial and worker-pool wall times per sample count (each pool started anew; the two
+    timed in turn, ``repeat`` times; medians and the median of the per-pair ratios)."""
     A = kernel.altitude_km.size
     for samples in sizes:
         def ensemble(w, samples=samples):
             return U.run_ensemble(model, kernel,
-                                  lambda a, b: U.draw_normals(0, a, b, kernel.width),
+                                  lambda lo, hi: U.draw_normals(0, lo, hi, kernel.width),
                                   samples, batch=batch, workers=w)
-        t_ser, _ = timed(lambda: ensemble(1), 1)
-        t_par, _ = timed(lambda: ensemble(workers), 1)
-        print(f"{samples:7d} samples ({samples * A:9d} level solves): serial {t_ser:7.2f} s, "
-              f"{workers} workers {t_par:7.2f} s, speed-up {t_ser / t_par:.2f}x")
+        ser, par = [], []
+        for _ in range(repeat):
+            ser.append(timed(lambda: ensemble(1), 1)[0])
+            par.append(timed(lambda: ensemble(workers), 1)[0])
+        ratio = statistics.median(a / b for a, b in zip(ser, par))
+        print(f"{samples:7d} samples ({samples * A:9d} level solves): serial "
+              f"{statistics.median(ser):7.2f} s, {workers} workers {statistics.median(par):7.2f}"
+              f" s, speed-up {ratio:.2f}x (median of {repeat})")
 
 
 def main():
@@ -112,7 +117,7 @@ def main():
         print(f"{args.samples} samples in batches of {batch} ({batch * A} Newton rows)")
         U.monte_carlo(model, 20, seed=0, batch=batch)                 # warm-up (imports)
         if args.break_even:
-            break_even(model, kernel, batch, args.break_even, args.workers)
+            break_even(model, kernel, batch, args.break_even, args.workers, args.repeat)
             return
 
         # The ensemble alone (draws + solves), then the whole analysis with its summary.
@@ -154,7 +159,7 @@ def main():
             return
         t_par, (_, n_par) = timed(lambda: ensemble(args.workers), args.repeat)
         print(f"{args.workers} workers: ensemble {t_par:6.2f} s = {args.samples / t_par:7.1f} "
-              "samples/s (includes starting the LocalCluster)")
+              "samples/s (includes starting the worker processes)")
         big = n_ser > 0
         diff = np.max(np.abs(n_par[big] - n_ser[big]) / n_ser[big])
         print(f"speed-up {t_ser / t_par:.2f}x; largest relative difference serial vs "

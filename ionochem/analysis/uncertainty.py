@@ -51,8 +51,9 @@ sample's densities do not depend on the batch either (checked in the tests).
 Scale
 -----
 A batch of B samples is solved as B × A rows of one batched Newton (rows sample-major).
-Beyond one process the batches go to dask.distributed: a ``LocalCluster`` with
-``workers`` single-threaded worker processes, or an existing scheduler. The model itself
+Beyond one process the batches go to ``workers`` local single-threaded processes (a
+``multiprocessing`` pool started from a fork server: analysis/ensemble.py) or to an existing
+dask.distributed scheduler. The model itself
 does not pickle (it holds the scenario's read-only mappings and the built environment, far
 more than a worker needs), so the workers receive a
 :class:`SampleKernel`: the mechanism's arrays (stoichiometry, reactant slots, Jacobian

@@ -4,4 +4,5 @@ import sys
 
 from ionochem.cli import main
 
-sys.exit(main())
+if __name__ == "__main__":       # worker processes import this module again: do nothing there
+    sys.exit(main())
