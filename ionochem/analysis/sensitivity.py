@@ -35,7 +35,17 @@ TE_STEP = 1e-5
 
 
 def _dlnk(model, name):
-    """∂ln k/∂ln T for temperature ``name`` by a central difference, shape (A, R)."""
+    """∂ln k/∂ln T for temperature ``name`` by a central difference, shape (A, R); computed
+    once per model (it depends only on the rate laws and the column's temperatures) and
+    read-only."""
+    def build():
+        out = _dlnk_difference(model, name)
+        out.flags.writeable = False
+        return out
+    return model.structural(("dlnk", name), build)
+
+
+def _dlnk_difference(model, name):
     env = model.environment
     base = getattr(env, name)
     k_up = model.rate_coefficients(temperatures={name: base * np.exp(TE_STEP)})

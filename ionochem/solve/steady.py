@@ -184,35 +184,42 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
     active = np.arange(n.shape[0])
     if not active.size:
         return n, converged, res
+    def measured(f, P, L):
+        """Rate scale, scaled residual, largest relative residual and the absolute-floor
+        test of the rows at one point (reused by the next iteration from that point)."""
+        scale = _scale(P, L, floor)
+        scaled = f / scale
+        return (scale, scaled, np.max(np.abs(scaled), axis=1, initial=0.0),
+                _negligible(f, atol))
+
     f, P, L = both(n, active)
+    scale, scaled, r0, tiny = measured(f, P, L)
     last_step = np.zeros(active.size)     # no step yet: only a zero step shows contraction
     for _ in range(max_iter):
         if active.size == 0:
             break
         na = n[active]
-        scale = _scale(P, L, floor)
-        scaled = f / scale
-        r0 = np.max(np.abs(scaled), axis=1, initial=0.0)
-        tiny = _negligible(f, atol)
         J = jacobian(na, active)
         dn = _solve(J, -f)
         dn, lam = _positive_step(na, dn)
         lam = np.where(np.isfinite(lam), lam, 0.0)
-        # Backtracking: halve the step on levels whose scaled residual grew; only those
-        # rows are evaluated again.
+        # Backtracking: halve the step on levels whose scaled residual grew (the scale of
+        # the point the step starts from); only those rows are evaluated again.
         trial = np.maximum(na + lam[:, None] * dn, 0.0)
         norm0 = np.linalg.norm(scaled, axis=1)
         ft, Pt, Lt = both(trial, active)
-        check = np.arange(active.size)
+        normt = np.linalg.norm(ft / scale, axis=1)
+        worse = ~(normt <= norm0 * (1 - 1e-4 * lam)) & (lam > 1e-3)
+        check = np.nonzero(worse)[0]
         for _ in range(8):
-            normt = np.linalg.norm(ft[check] / scale[check], axis=1)
-            worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
-            if not worse.any():
+            if not check.size:
                 break
-            check = check[worse]
             lam[check] /= 2
             trial[check] = np.maximum(na[check] + lam[check][:, None] * dn[check], 0.0)
             ft[check], Pt[check], Lt[check] = both(trial[check], active[check])
+            normt = np.linalg.norm(ft[check] / scale[check], axis=1)
+            worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
+            check = check[worse]
         step = np.abs(trial - na)
         small = NEGLIGIBLE * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
         rel_step = np.max(step / (trial + small[:, None]), axis=1, initial=0.0)
@@ -224,8 +231,8 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
         # absolute floor (a dark level with production of 1e-160 cm-3 s-1, say) is
         # converged whatever the step: its densities are known to within floor / loss
         # frequency, physically nothing.
-        rt = _relative_residual(ft, Pt, Lt, floor)
-        met = (rt <= rtol) | _negligible(ft, atol)
+        scale_t, scaled_t, rt, tiny_t = measured(ft, Pt, Lt)
+        met = (rt <= rtol) | tiny_t
         # Or: the step that reached the point was below sqrt(rtol) and at most a tenth of
         # the one before (Newton in its quadratic regime: the error left is about the
         # square of the step, below rtol), with the residual met there.
@@ -233,11 +240,15 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
                      | ((rel_step <= quadratic_step) & (rel_step <= 0.1 * last_step)))
         res[active] = np.where(candidate, rt, r0)
         done = candidate & met
-        converged[active[done]] = True
-        keep = ~done
-        active = active[keep]
-        f, P, L = ft[keep], Pt[keep], Lt[keep]
-        last_step = rel_step[keep]
+        if done.any():
+            converged[active[done]] = True
+            keep = ~done
+            active = active[keep]
+            f, P, L, scale, scaled = ft[keep], Pt[keep], Lt[keep], scale_t[keep], scaled_t[keep]
+            r0, tiny, last_step = rt[keep], tiny_t[keep], rel_step[keep]
+        else:
+            f, P, L, scale, scaled = ft, Pt, Lt, scale_t, scaled_t
+            r0, tiny, last_step = rt, tiny_t, rel_step
     return n, converged, res
 
 
