@@ -17,6 +17,37 @@ import numpy as np
 from ionochem.mechanism.mechanism import ELECTRON, MAX_REACTANT_SLOTS
 
 
+def _tables(m, R):
+    """The mechanism's arrays as :class:`BoundRows` uses them (they do not depend on the
+    rows)."""
+    t = {"R": R, "S": len(m.solved), "A": len(m.algebraic), "E": m.E,
+         "n_given": m._n_given, "electron_row": None}
+    if m.electrons == "table" and t["A"]:
+        t["electron_row"] = (m.given.index(ELECTRON), m.species_info[m.balance_ion].charge)
+    pos, neg = m._solved_gross_matrices()                           # (R, S) each
+    # One product gives the tendency, the production and the loss: (R, 3S).
+    t["out"] = np.ascontiguousarray(np.concatenate([m.nu.T, pos, neg], axis=1))
+    t["nu_t"] = np.ascontiguousarray(m.nu.T)                         # (R, S)
+    t["gross_out"] = np.ascontiguousarray(np.concatenate([pos, neg], axis=1))
+    # Rates: the last reactant slot holds a density only for three-body reactions; the
+    # others multiply by the constant 1 (exact), so that slot is applied to those alone.
+    t["slots_main"] = np.ascontiguousarray(m.slots[:, :-1].T).ravel()   # (2R,)
+    t["third"] = np.nonzero(m.slots[:, -1] != m._one)[0]
+    t["third_slot"] = m.slots[t["third"], -1]
+    # Jacobian: ∂r/∂n_slot(m) = k × the other two slots, needed only for the columns
+    # (m, r) of the kernel with a nonzero (a reactant that is a solved or algebraic
+    # species; about a third of them for the default list).
+    assert MAX_REACTANT_SLOTS == 3
+    GT = m.jacobian_kernel()
+    used = np.unique(GT.indices)
+    mslot, t["jac_r"] = np.divmod(used, R)
+    others = np.array([[1, 2], [0, 2], [0, 1]])[mslot]
+    t["jac_o1"] = m.slots[t["jac_r"], others[:, 0]]
+    t["jac_o2"] = m.slots[t["jac_r"], others[:, 1]]
+    t["jac_GT"] = GT[:, used]
+    return t
+
+
 class BoundRows:
     """Tendency, gross rates and Jacobian of ``mechanism`` on the rows of ``k``/``given``.
 
@@ -27,40 +58,13 @@ class BoundRows:
     def __init__(self, mechanism, k, given):
         m = mechanism
         self.B = k.shape[0]
-        self.S = len(m.solved)
-        self.A = len(m.algebraic)
-        self.R = k.shape[1]
         self.k_t = np.ascontiguousarray(k.T, dtype=float)            # (R, B)
         self.given_t = np.ascontiguousarray(given.T, dtype=float)    # (G, B)
-        self.E = m.E                                                 # (N_all + 1, S)
-        self.slots = np.ascontiguousarray(m.slots.T).ravel()        # slot-major (3R,)
-        self.n_given = m._n_given
-        self.electron_row = None
-        if m.electrons == "table" and self.A:
-            self.electron_row = (m.given.index(ELECTRON),
-                                 m.species_info[m.balance_ion].charge)
-        pos, neg = m._solved_gross_matrices()                       # (R, S) each
-        # One product gives the tendency, the production and the loss: (R, 3S).
-        self.out = np.ascontiguousarray(np.concatenate([m.nu.T, pos, neg], axis=1))
-        self.nu_t = np.ascontiguousarray(m.nu.T)                     # (R, S)
-        self.gross_out = np.ascontiguousarray(np.concatenate([pos, neg], axis=1))
-        # Rates: the last reactant slot holds a density only for three-body reactions; the
-        # others multiply by the constant 1 (exact), so that slot is applied to those alone.
-        one = m._one
-        self.slots_main = np.ascontiguousarray(m.slots[:, :-1].T).ravel()   # (2R,)
-        self.third = np.nonzero(m.slots[:, -1] != one)[0]
-        self.third_slot = m.slots[self.third, -1]
-        # Jacobian: ∂r/∂n_slot(m) = k × the other two slots, needed only for the columns
-        # (m, r) of the kernel with a nonzero (a reactant that is a solved or algebraic
-        # species; about a third of them for the default list).
-        GT = m.jacobian_kernel()
-        used = np.unique(GT.indices)
-        mslot, self.jac_r = np.divmod(used, self.R)
-        others = np.array([[1, 2], [0, 2], [0, 1]])[mslot]
-        self.jac_o1 = m.slots[self.jac_r, others[:, 0]]
-        self.jac_o2 = m.slots[self.jac_r, others[:, 1]]
-        self.jac_GT = GT[:, used]
-        assert MAX_REACTANT_SLOTS == 3
+        # The tables that depend only on the mechanism are built once and kept on it.
+        tables = m.__dict__.get("_bound_rows_tables")
+        if tables is None or tables["R"] != k.shape[1]:
+            tables = m._bound_rows_tables = _tables(m, k.shape[1])
+        self.__dict__.update(tables)
 
     def _inputs(self, rows):
         if rows.size == self.B:
