@@ -391,3 +391,24 @@ def test_auto_workers_default_solves_a_small_run_in_this_process(column, monkeyp
     b = U.monte_carlo(model, 16, seed=3, workers=1)
     np.testing.assert_array_equal(a["density_quantiles"].values,
                                   b["density_quantiles"].values)
+
+
+class _DyingKernel(U.SampleKernel):
+    """A sample kernel whose worker process ends abruptly (as if killed) on its first batch."""
+
+    def perturbed(self, z, k_base=None):
+        import os
+        os._exit(3)
+
+
+@pytest.mark.slow
+def test_a_worker_process_that_dies_ends_the_run_with_an_error(column):
+    """A local worker that dies mid-run (out of memory, killed) ends the ensemble with one
+    SolverError naming the cause, instead of waiting for its result forever."""
+    from ionochem.analysis import ensemble as E
+    from ionochem.errors import SolverError
+    model = _one_ion(column)
+    kernel = _DyingKernel(model)
+    with pytest.raises(SolverError, match="worker process of the ensemble ended"):
+        E.run_ensemble(model, kernel, lambda a, b: U.draw_normals(0, a, b, kernel.width), 40,
+                       batch=5, workers=2)
