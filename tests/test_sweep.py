@@ -328,7 +328,7 @@ def test_cli_sweep_interrupted_by_signal_resumes_to_the_same_file(tmp_path, sig)
 
 @pytest.mark.slow
 def test_two_workers_equal_serial(tmp_path):
-    """The same sweep on a two-worker dask LocalCluster and in this process: equal to
+    """The same sweep on two local worker processes and in this process: equal to
     1e-13 (every point computed by the same code; another process may round the last bit
     differently — OpenBLAS picks its kernels by thread count and size, and a full-suite run
     once differed by 2e-16 — while any mix-up of points or inputs differs by far more)."""

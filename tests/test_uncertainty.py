@@ -250,8 +250,8 @@ def test_same_seed_gives_same_quantiles_in_any_batch_size(column):
 
 @pytest.mark.slow
 def test_two_worker_local_cluster_reproduces_serial_run(column):
-    """A two-process dask LocalCluster gives the serial quantiles to 1e-12 relative
-    (README.md: work beyond one process through dask.distributed)."""
+    """Two local worker processes give the serial quantiles to 1e-12 relative (README.md:
+    work beyond one process on local worker processes or a dask cluster)."""
     model = _chain(column)
     serial = U.monte_carlo(model, 40, seed=21, batch=6)
     dist = U.monte_carlo(model, 40, seed=21, batch=6, workers=2)
@@ -409,6 +409,6 @@ def test_a_worker_process_that_dies_ends_the_run_with_an_error(column):
     from ionochem.errors import SolverError
     model = _one_ion(column)
     kernel = _DyingKernel(model)
-    with pytest.raises(SolverError, match="worker process of the ensemble ended"):
+    with pytest.raises(SolverError, match="worker process ended unexpectedly"):
         E.run_ensemble(model, kernel, lambda a, b: U.draw_normals(0, a, b, kernel.width), 40,
                        batch=5, workers=2)

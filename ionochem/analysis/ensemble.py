@@ -238,7 +238,7 @@ def _group_size(batches, nthreads):
     return max(1, min(TASK_BATCHES_MAX, -(-batches // (TASKS_PER_WORKER * nthreads))))
 
 
-_POOL_KERNEL = []
+_POOL_STATE = []
 
 
 def _keep_freed_memory():
@@ -286,41 +286,43 @@ def _end_with_driver(driver):
     threading.Thread(target=watch, daemon=True, name="ionochem-driver-watch").start()
 
 
-def _pool_start(kernel, driver):
-    """Initialiser of a local worker process: keep the kernel, one BLAS thread, glibc's
-    freed memory kept (:func:`_keep_freed_memory`), ended with the driver, and quiet (a
-    task's errors go back to the driver with its result; nothing else is worth printing
-    from a worker that outlives an interrupted driver by a moment)."""
+def _pool_start(state, driver):
+    """Initialiser of a local worker process: keep ``state`` (what every task needs: a
+    sample kernel, a sweep's specification), one BLAS thread, glibc's freed memory kept
+    (:func:`_keep_freed_memory`), ended with the driver, and quiet (a task's errors go back
+    to the driver with its result; nothing else is worth printing from a worker that
+    outlives an interrupted driver by a moment)."""
     import sys
     _end_with_driver(driver)
     _keep_freed_memory()
     sys.stderr = open(os.devnull, "w")       # noqa: SIM115 (open for the process's life)
-    _POOL_KERNEL[:] = [kernel]
+    _POOL_STATE[:] = [state]
     single_thread_blas().__enter__()
 
 
-def _pool_task(zs, kbs, firsts):
-    return solve_batches(_POOL_KERNEL[0], zs, kbs, firsts)
+def pool_state():
+    """What :func:`worker_pool` gave this worker process (``state``)."""
+    return _POOL_STATE[0]
 
 
-def _run_pool(model, kernel, rows, todo, workers, finish):
-    """Batches on ``workers`` local processes (``concurrent.futures`` with processes
-    started from a fork server that has imported the solver once). Draws and central rates
-    are made here, as on dask, and the batches are stored as they finish, in order.
+@contextlib.contextmanager
+def worker_pool(workers, state):
+    """``workers`` local processes (``concurrent.futures``), started from a fork server
+    that has imported the solver once, each holding ``state`` (:func:`pool_state`).
 
     A pool of plain processes rather than a dask LocalCluster for local work: on the 2-core
     development machine, idle, two processes solved 10,000 samples of a 100-level column
     1.62x faster than one, and started in 0.6 s (benchmarks/bench_uncertainty.py
     --break-even); a LocalCluster took about 3 s to start and reached 1.34x at 20,000
     samples (its scheduler, nannies and transfers share the two CPUs). A worker that dies
-    (killed, out of memory) ends the run with an error instead of a wait. As with any
-    ``multiprocessing`` code, a script that calls this must guard its top level with
-    ``if __name__ == "__main__":`` (the workers import the main module again).
+    (killed, out of memory) raises :class:`SolverError` in :func:`ordered_results` instead
+    of a wait. As with any ``multiprocessing`` code, a script that uses it must guard its
+    top level with ``if __name__ == "__main__":`` (the workers import the main module
+    again).
     """
-    import collections
     import multiprocessing as mp
+    import sys
     from concurrent.futures import ProcessPoolExecutor
-    from concurrent.futures.process import BrokenProcessPool
     method = "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
     ctx = mp.get_context(method)
     if method == "forkserver":
@@ -329,39 +331,66 @@ def _run_pool(model, kernel, rows, todo, workers, finish):
     # The resource tracker (a helper process multiprocessing starts once, with this
     # interpreter's -W options) would print two lines about "leaked semaphores" after a
     # driver stopped by a signal; it cleans them up all the same.
-    import sys
     quiet = "ignore::UserWarning:multiprocessing.resource_tracker"
     if quiet not in sys.warnoptions:
         sys.warnoptions.append(quiet)
-    group = _group_size(len(todo), workers)
-    tasks = iter([todo[i:i + group] for i in range(0, len(todo), group)])
-    pending = collections.deque()
     with ProcessPoolExecutor(workers, mp_context=ctx, initializer=_pool_start,
-                             initargs=(kernel, os.getpid())) as pool:
-        def submit():
-            ranges = next(tasks, None)
-            if ranges is None:
-                return
+                             initargs=(state, os.getpid())) as pool:
+        yield pool
+
+
+def ordered_results(pool, jobs, inflight, finish):
+    """Submit ``jobs`` — an iterator of ``(key, function, args)`` — keeping ``inflight`` of
+    them in flight, and call ``finish(key, result)`` in the order submitted."""
+    import collections
+    from concurrent.futures.process import BrokenProcessPool
+    pending = collections.deque()
+
+    def submit():
+        job = next(jobs, None)
+        if job is not None:
+            key, fn, args = job
+            pending.append((key, pool.submit(fn, *args)))
+
+    try:
+        for _ in range(inflight):
+            submit()
+        while pending:
+            key, future = pending.popleft()
+            finish(key, future.result())
+            submit()
+    except BrokenProcessPool:
+        raise SolverError("a worker process ended unexpectedly (killed, or out of memory); "
+                          "finished batches are kept with -o; try fewer --workers or a "
+                          "smaller --batch") from None
+    finally:
+        for _, future in pending:
+            future.cancel()
+
+
+def _pool_task(zs, kbs, firsts):
+    return solve_batches(pool_state(), zs, kbs, firsts)
+
+
+def _run_pool(model, kernel, rows, todo, workers, finish):
+    """Batches on ``workers`` local processes (:func:`worker_pool`). Draws and central
+    rates are made here, as on dask, and the batches are stored in order."""
+    group = _group_size(len(todo), workers)
+
+    def jobs():
+        for i in range(0, len(todo), group):
+            ranges = todo[i:i + group]
             zs = [rows(a, b) for a, b in ranges]
             kbs = [base_rates(model, kernel, z) for z in zs]
-            pending.append((ranges, zs, pool.submit(_pool_task, zs, kbs,
-                                                    [a for a, _ in ranges])))
+            yield (ranges, zs), _pool_task, (zs, kbs, [a for a, _ in ranges])
 
-        try:
-            for _ in range(INFLIGHT_PER_WORKER * workers):  # keep workers busy, bound memory
-                submit()
-            while pending:
-                ranges, zs, future = pending.popleft()
-                for (a, b), z, n in zip(ranges, zs, future.result()):
-                    finish(a, b, z, n)
-                submit()
-        except BrokenProcessPool:
-            raise SolverError("a worker process of the ensemble ended unexpectedly (killed, "
-                              "or out of memory); finished batches are kept with -o; try "
-                              "fewer --workers or a smaller --batch") from None
-        finally:
-            for _, _, future in pending:
-                future.cancel()
+    def store(key, ns):
+        ranges, zs = key
+        for (a, b), z, n in zip(ranges, zs, ns):
+            finish(a, b, z, n)
+
+    with worker_pool(workers, kernel) as pool:
+        ordered_results(pool, jobs(), INFLIGHT_PER_WORKER * workers, store)
 
 
 def _run_dask(model, kernel, rows, todo, workers, scheduler, finish):

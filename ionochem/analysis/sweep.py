@@ -32,8 +32,8 @@ the point's scenario becomes transient, starting at local apparent midnight.
 
 Execution
 ---------
-Points are independent tasks: solved in this process, or on dask.distributed (a
-``LocalCluster`` of single-threaded workers, or an existing scheduler; the helpers of
+Points are independent tasks: solved in this process, on local single-threaded worker
+processes, or on an existing dask.distributed scheduler (the helpers of
 :mod:`ionochem.analysis.ensemble`). The workers receive a :class:`SweepSpec` (the parsed
 scenario, the parsed reaction list, the changes): picklable, a few hundred kB, and they need
 the scenario's table files at the same paths. At most two tasks per worker thread are in
@@ -482,8 +482,10 @@ def run_sweep(spec: SweepSpec, *, output=None, resume=False, workers=1, schedule
                 on_batch(a, b, done, total)
 
         try:
-            if scheduler or (workers and int(workers) > 1):
+            if scheduler:
                 _run_dask(spec, layout, todo, workers, scheduler, finish)
+            elif workers and int(workers) > 1:
+                _run_pool(spec, layout, todo, int(workers), finish)
             else:
                 for a, b in todo:
                     finish(a, b, solve_points(spec, layout, a, b))
@@ -513,6 +515,21 @@ def _check_format(output):
     elif suffix not in (".nc", ".nc4", ".netcdf"):
         raise InputError(f"a sweep is written as netCDF (.nc) or zarr (.zarr), not "
                          f"{suffix or 'a file without extension'}", file=str(output), key="-o")
+
+
+def _pool_points(layout, start, stop):
+    from ionochem.analysis.ensemble import pool_state
+    return solve_points(pool_state(), layout, start, stop)
+
+
+def _run_pool(spec, layout, todo, workers, finish):
+    """Batches of points on ``workers`` local processes (ensemble.worker_pool), stored in
+    order, INFLIGHT_PER_WORKER per worker in flight."""
+    from ionochem.analysis.ensemble import ordered_results, worker_pool
+    jobs = (((a, b), _pool_points, (layout, a, b)) for a, b in todo)
+    with worker_pool(workers, spec) as pool:
+        ordered_results(pool, jobs, INFLIGHT_PER_WORKER * workers,
+                        lambda key, result: finish(*key, result))
 
 
 def _run_dask(spec, layout, todo, workers, scheduler, finish):
