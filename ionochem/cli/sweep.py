@@ -53,7 +53,7 @@ def register(subparsers):
     add_rate_change_options(s, "at every point")
     par = s.add_mutually_exclusive_group()
     par.add_argument("--workers", type=int, default=1, metavar="K",
-                     help="solve on a local dask cluster of K worker processes (default 1: "
+                     help="solve on K local worker processes (default 1: "
                           "in this process)")
     par.add_argument("--scheduler", metavar="ADDRESS",
                      help="solve on an existing dask scheduler (tcp://host:port)")
