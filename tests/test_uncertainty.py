@@ -379,14 +379,15 @@ def test_auto_workers_stay_serial_for_small_runs_or_a_busy_machine(monkeypatch):
 
 
 def test_auto_workers_default_solves_a_small_run_in_this_process(column, monkeypatch):
-    """A small ensemble with workers="auto" never starts a cluster (dask_client is not
-    called) and equals the serial run exactly."""
+    """A small ensemble with workers="auto" never starts worker processes (neither the
+    pool nor a dask client is made) and equals the serial run exactly."""
     from ionochem.analysis import ensemble as E
     model = _one_ion(column)
 
     def no_cluster(*a, **k):
         raise AssertionError("a cluster was started for a small run")
     monkeypatch.setattr(E, "dask_client", no_cluster)
+    monkeypatch.setattr(E, "worker_pool", no_cluster)
     a = U.monte_carlo(model, 16, seed=3, workers="auto")
     b = U.monte_carlo(model, 16, seed=3, workers=1)
     np.testing.assert_array_equal(a["density_quantiles"].values,

@@ -1,5 +1,6 @@
-"""Execution of an ensemble: batches of samples solved in this process or on
-dask.distributed, with single-threaded BLAS, progress, and a store for resuming.
+"""Execution of an ensemble: batches of samples solved in this process, on a pool of local
+worker processes (:func:`worker_pool`, also used by sweeps) or on a dask.distributed
+scheduler, with single-threaded BLAS, progress, and a store for resuming.
 
 Every batch goes through one solve path, :func:`ionochem.solve.batch.solve_rows` (the same
 the model's own steady solve uses). This module works on arrays and a
@@ -100,7 +101,9 @@ def default_batch(levels: int) -> int:
 @contextlib.contextmanager
 def dask_client(workers=None, scheduler=None):
     """A dask.distributed client: on ``scheduler`` (an address) or a new local cluster of
-    ``workers`` single-threaded processes; closed (with its cluster) on exit."""
+    ``workers`` single-threaded processes; closed (with its cluster) on exit. The commands
+    use it for ``--scheduler`` only (local workers are :func:`worker_pool`); a local
+    cluster serves the API and benchmarks/bench_sweep.py."""
     from dask.distributed import Client, LocalCluster
     cluster = None
     if scheduler:
@@ -152,7 +155,7 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
     batch : int, optional
         Samples per batch (default :func:`default_batch`).
     workers : int or "auto"
-        Worker processes of a local dask cluster; 1 (or less) solves in this process;
+        Local worker processes (:func:`worker_pool`); 1 (or less) solves in this process;
         "auto" chooses (:func:`auto_workers`) from the size of the run and the free CPUs.
     scheduler : str, optional
         Address of an existing dask scheduler (overrides ``workers``).
@@ -197,13 +200,12 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
             on_batch(a, b, done, total)
 
     if workers == "auto":
-        workers = 1 if scheduler else auto_workers(
-            sum(b - a for a, b in todo) * kernel.altitude_km.size)
+        level_solves = sum(b - a for a, b in todo) * kernel.altitude_km.size
+        workers = 1 if scheduler else auto_workers(level_solves)
         if workers > 1:
             logging.getLogger("ionochem").info(
                 "solving on %d local worker processes (--workers auto: %d level solves, "
-                "%d free CPUs)", workers, sum(b - a for a, b in todo) * kernel.altitude_km.size,
-                workers)
+                "%d free CPUs)", workers, level_solves, workers)
     try:
         if scheduler:
             _run_dask(model, kernel, rows, todo, workers, scheduler, finish)
