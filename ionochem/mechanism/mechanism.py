@@ -272,22 +272,12 @@ class Mechanism:
         The algebraic species (electrons by neutrality, or the balance ion) are carried
         through their affine dependence on the solved densities.
         """
-        # Built with rows last, (slot, reaction, row): gathers by reactant become row
-        # gathers and the sparse product needs no transposed copy (2.5x faster).
-        n_all_t = np.ascontiguousarray(self.full_densities(n, given).T)
-        k_t = np.ascontiguousarray(k.T)
-        vals = [n_all_t[self.slots[:, m]] for m in range(MAX_REACTANT_SLOTS)]
-        R, B = k_t.shape
-        partial = np.empty((MAX_REACTANT_SLOTS, R, B))
-        np.multiply(k_t, vals[1], out=partial[0])
-        partial[0] *= vals[2]
-        np.multiply(k_t, vals[0], out=partial[1])
-        partial[1] *= vals[2]
-        np.multiply(k_t, vals[0], out=partial[2])
-        partial[2] *= vals[1]
-        S = len(self.solved)
-        out = (self.jacobian_kernel() @ partial.reshape(-1, B)).T
-        return np.ascontiguousarray(out).reshape(-1, S, S)
+        # Built with rows last by the steady solvers' evaluation (mechanism/rows.py).
+        from ionochem.mechanism.rows import BoundRows
+        n = np.asarray(n, float)
+        J = BoundRows(self, np.asarray(k, float), np.asarray(given, float)).jacobian(
+            n, np.arange(n.shape[0]))
+        return np.ascontiguousarray(J)
 
     def jacobian_kernel(self):
         """The Jacobian kernel G transposed, (S², 3R), as a sparse matrix; cached."""
