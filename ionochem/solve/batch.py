@@ -51,6 +51,7 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transpor
         bound = BoundRows(mechanism, k, given)
         tendency, jacobian, gross, both = (bound.tendency, bound.jacobian, bound.gross,
                                            bound.both)
+        kernel = bound
     else:
         def take(rows):
             # Newton passes the active rows, sorted and unique: all rows need no copy.
@@ -66,7 +67,7 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transpor
             P, L = mechanism.production_loss(n, *take(rows))
             return P[:, :S], L[:, :S]
 
-        both = None
+        both = kernel = None
 
     if transport is not None:
         from ionochem.solve.column import steady_with_transport
@@ -74,5 +75,5 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transpor
                                      level_names=level_names, n0=n0)
     start = np.zeros((B, S)) if n0 is None else n0
     return solve_steady(start, tendency, jacobian, gross, rtol=rtol, level_names=level_names,
-                        species_names=list(mechanism.solved), both=both,
+                        species_names=list(mechanism.solved), both=both, kernel=kernel,
                         warm=n0 is not None)

@@ -77,8 +77,9 @@ class SteadyResult:
     method: np.ndarray       # (B,) METHOD_* code of the method that converged
 
 
-def _scale(P, L, atol):
-    """Rate scale (B, S) of each species' residual, cm-3 s-1.
+def _scale(P, L, atol, axis=1):
+    """Rate scale of each species' residual, cm-3 s-1 (the shape of P; ``axis`` is the
+    species axis: 1 for (rows, species), 0 for the rows-last (species, rows)).
 
     Its gross rate P + L plus a floor: ``atol`` (the absolute residual floor divided by
     rtol, see :func:`solve_steady`) or, when larger, the :data:`LEVEL_FLOOR` fraction of the
@@ -86,8 +87,10 @@ def _scale(P, L, atol):
     level's main one cannot change anything that matters, and its residual is rounding noise
     of the others.
     """
-    turnover = np.max(P + L, axis=1, keepdims=True, initial=0.0)
-    return P + L + np.maximum(atol, LEVEL_FLOOR * turnover)
+    gross = P + L
+    turnover = np.max(gross, axis=axis, keepdims=True, initial=0.0)
+    gross += np.maximum(atol, LEVEL_FLOOR * turnover)
+    return gross
 
 
 def _relative_residual(f, P, L, atol):
@@ -103,17 +106,23 @@ def _rate_floor(atol, rtol):
     return atol / max(rtol, 1e-10)
 
 
-def _negligible(f, floor):
-    """Levels (B,) whose every residual is below the absolute floor (cm-3 s-1)."""
-    return np.max(np.abs(f), axis=1, initial=0.0) <= floor
+def _negligible(f, floor, axis=1):
+    """Levels whose every residual is below the absolute floor (cm-3 s-1)."""
+    return np.max(np.abs(f), axis=axis, initial=0.0) <= floor
+
+
+def _norms(x):
+    """Euclidean norm of each column of x (species, levels)."""
+    return np.sqrt(np.einsum("ij,ij->j", x, x))
 
 
 def _solve(J, rhs):
-    """Batched linear solve with a least-squares retry for singular blocks."""
+    """Batched linear solve of J (B, S, S) with rhs (B, S), and a least-squares retry for
+    singular blocks."""
     try:
         return np.linalg.solve(J, rhs[..., None])[..., 0]
     except np.linalg.LinAlgError:
-        out = np.empty_like(rhs)
+        out = np.empty(rhs.shape)
         for b in range(J.shape[0]):   # rare: only when some block is exactly singular
             try:
                 out[b] = np.linalg.solve(J[b], rhs[b])
@@ -122,39 +131,49 @@ def _solve(J, rhs):
         return out
 
 
-def _positive_step(n, dn):
+def _positive_step(n, dn, axis=1):
     """Per-level fraction of the step that keeps every density at least n/10.
 
-    Only densities above :data:`NEGLIGIBLE` times the level's largest set the fraction; a
-    negligible density (one that cannot change any other species' rates measurably) is
-    clipped on its own, so that a species at 1e-200 cm-3 falling towards 1e-260 does not
-    shrink the step of the whole level to a crawl.
+    ``axis`` is the species axis (1 for (rows, species), 0 for rows last). Only densities
+    above :data:`NEGLIGIBLE` times the level's largest set the fraction; a negligible
+    density (one that cannot change any other species' rates measurably) is clipped on its
+    own, so that a species at 1e-200 cm-3 falling towards 1e-260 does not shrink the step
+    of the whole level to a crawl. Returns the step and the fraction (one per level).
     """
     dn = np.where((n <= 0) & (dn < 0), 0.0, dn)
-    big = n.max(axis=1, keepdims=True, initial=0.0)
+    if not n.shape[axis]:
+        return dn, np.ones(n.shape[1 - axis])
+    big = n.max(axis=axis, keepdims=True)
     significant = n > NEGLIGIBLE * big
     with np.errstate(divide="ignore", invalid="ignore"):
         limit = np.where((dn < 0) & significant, -0.9 * n / dn, np.inf)
-    lam = np.minimum(1.0, limit.min(axis=1)) if n.shape[1] else np.ones(n.shape[0])
-    with np.errstate(divide="ignore", invalid="ignore"):
-        floor = np.where(lam[:, None] > 0, -0.9 * n / lam[:, None], 0.0)
+        lam = np.minimum(1.0, limit.min(axis=axis, keepdims=True))
+        floor = np.where(lam > 0, -0.9 * n / lam, 0.0)
     dn = np.where(~significant & (dn < floor), floor, dn)
-    return dn, lam
+    return dn, lam.reshape(-1)
 
 
 def initial_guess(n0, gross, sweeps=12):
-    """Geometric-mean fixed-point sweeps n ← sqrt(n P / λ) (see the module docstring)."""
+    """Geometric-mean fixed-point sweeps n ← sqrt(n P / λ) (see the module docstring).
+
+    Element by element, so ``n0`` may be (rows, species) or rows last (species, rows):
+    ``gross(n) -> (P, L)`` gives them in the layout of ``n``.
+    """
     n = n0.copy()
+    if not n.size:
+        return n
     for _ in range(sweeps):
         P, L = gross(n)
         with np.errstate(divide="ignore", invalid="ignore"):
             # Where n > 0 and L > 0 (nearly everywhere after the first sweep):
             # sqrt(n · P/(L/n)) = n · sqrt(P/L).
-            fast = n * np.sqrt(P / L)
-            usual = (n > 0) & (L > 0)
-            if usual.all():
+            fast = P / L
+            np.sqrt(fast, out=fast)
+            fast *= n
+            if n.min() > 0 and L.min() > 0:
                 n = fast
                 continue
+            usual = (n > 0) & (L > 0)
             freq = np.where(n > 0, L / n, 0.0)
             target = np.where(freq > 0, P / freq, n + P)   # no loss yet: grow by P·1 s
         target = np.where(P > 0, target, 0.0)
@@ -162,68 +181,131 @@ def initial_guess(n0, gross, sweeps=12):
     return n
 
 
-def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, both=None):
-    """Damped Newton on the rows of ``n``; returns (n, converged mask, residual).
+class RowsCallables:
+    """The solver's rows-last interface (species, rows) over callables on (rows, species).
 
-    ``atol`` is the absolute residual floor (cm-3 s-1): residuals below it are noise.
-    ``both(n, rows) -> (f, P, L)``, optional, gives the tendency and the gross production
-    and loss from one evaluation of the rates (the same numbers as the two callables).
+    :func:`newton` works rows last: every per-level reduction (largest residual, step
+    size) then runs along the first axis, where numpy vectorises it, instead of along a
+    short last axis (measured 4× faster for 12 species). A kernel that works rows last
+    natively (:class:`ionochem.mechanism.rows.BoundRows`) has the same three methods.
+    """
+
+    def __init__(self, tendency, jacobian, gross, both=None):
+        self._tendency, self._jacobian, self._gross, self._both = (tendency, jacobian,
+                                                                   gross, both)
+
+    def both_t(self, n_t, rows):
+        n = np.ascontiguousarray(n_t.T)
+        if self._both is not None:
+            f, P, L = self._both(n, rows)
+        else:
+            f = self._tendency(n, rows)
+            P, L = self._gross(n, rows)
+        return f.T, P.T, L.T
+
+    def gross_t(self, n_t, rows):
+        P, L = self._gross(np.ascontiguousarray(n_t.T), rows)
+        return P.T, L.T
+
+    def jacobian_t(self, n_t, rows):
+        return self._jacobian(np.ascontiguousarray(n_t.T), rows)
+
+
+class _SubsetRows:
+    """A rows-last kernel restricted to some of its rows (``rows`` index into ``subset``)."""
+
+    def __init__(self, kernel, subset):
+        self._kernel, self._subset = kernel, subset
+
+    def both_t(self, n_t, rows):
+        return self._kernel.both_t(n_t, self._subset[rows])
+
+    def gross_t(self, n_t, rows):
+        return self._kernel.gross_t(n_t, self._subset[rows])
+
+    def jacobian_t(self, n_t, rows):
+        return self._kernel.jacobian_t(n_t, self._subset[rows])
+
+
+def newton(n, kernel, *, rtol, atol, max_iter, iterations):
+    """Damped Newton on the levels of ``n`` (species, levels: rows last); returns
+    (n, converged mask, residual).
+
+    ``kernel`` has ``both_t(n, rows) -> (f, P, L)`` (the tendency and the gross production
+    and loss from one evaluation of the rates) and ``jacobian_t(n, rows) -> (b, S, S)``,
+    on the levels ``rows`` with ``n`` rows last (:class:`RowsCallables`). ``atol`` is the
+    absolute residual floor (cm-3 s-1): residuals below it are noise.
 
     One evaluation of the rates per iteration (plus one per halving of a step): the
     tendency and gross rates at the point a step reaches serve both the backtracking test
     and, unchanged, the next iteration's residual and right-hand side — and, for a level
     whose step was small, the confirming residual of step 3 in the module docstring.
     """
-    if both is None:
-        def both(x, rows):
-            return (tendency(x, rows), *gross(x, rows))
+    S, B = n.shape
     floor = _rate_floor(atol, rtol)
     quadratic_step = np.sqrt(rtol)
-    converged = np.zeros(n.shape[0], bool)
-    res = np.full(n.shape[0], np.inf)
-    active = np.arange(n.shape[0])
-    if not active.size:
+    converged = np.zeros(B, bool)
+    res = np.full(B, np.inf)
+    if not B:
         return n, converged, res
-    def measured(f, P, L):
-        """Rate scale, scaled residual, largest relative residual and the absolute-floor
-        test of the rows at one point (reused by the next iteration from that point)."""
-        scale = _scale(P, L, floor)
-        scaled = f / scale
-        return (scale, scaled, np.max(np.abs(scaled), axis=1, initial=0.0),
-                _negligible(f, atol))
+    if not S:                       # nothing to solve: every level is converged as it is
+        iterations += 1
+        converged[:] = True
+        res[:] = 0.0
+        return n, converged, res
 
-    f, P, L = both(n, active)
-    scale, scaled, r0, tiny = measured(f, P, L)
-    last_step = np.zeros(active.size)     # no step yet: only a zero step shows contraction
+    def measured(f, P, L):
+        """Rate scale, norm of the scaled residual, largest relative residual and the
+        absolute-floor test of the levels at one point (reused by the next iteration from
+        that point)."""
+        scale = _scale(P, L, floor, axis=0)
+        scaled = f / scale
+        return (scale, _norms(scaled), np.abs(scaled).max(axis=0),
+                np.abs(f).max(axis=0) <= atol)
+
+    active = np.arange(B)
+    f, P, L = kernel.both_t(n, active)
+    scale, norm0, r0, tiny = measured(f, P, L)
+    last_step = np.zeros(B)     # no step yet: only a zero step shows contraction
     for _ in range(max_iter):
         if active.size == 0:
             break
-        na = n[active]
-        J = jacobian(na, active)
-        dn = _solve(J, -f)
-        dn, lam = _positive_step(na, dn)
-        lam = np.where(np.isfinite(lam), lam, 0.0)
+        na = n if active.size == B else n[:, active]
+        dn = np.ascontiguousarray(_solve(kernel.jacobian_t(na, active), -f.T).T)
+        if (dn >= -0.9 * na).all():
+            # The usual case near the solution: no density falls below a tenth of its
+            # value, so the whole step is taken everywhere (what _positive_step gives then).
+            lam = np.ones(active.size)
+            trial = na + dn
+        else:
+            dn, lam = _positive_step(na, dn, axis=0)
+            lam = np.where(np.isfinite(lam), lam, 0.0)
+            trial = lam * dn
+            trial += na
+            np.maximum(trial, 0.0, out=trial)
         # Backtracking: halve the step on levels whose scaled residual grew (the scale of
-        # the point the step starts from); only those rows are evaluated again.
-        trial = np.maximum(na + lam[:, None] * dn, 0.0)
-        norm0 = np.linalg.norm(scaled, axis=1)
-        ft, Pt, Lt = both(trial, active)
-        normt = np.linalg.norm(ft / scale, axis=1)
+        # the point the step starts from); only those levels are evaluated again.
+        ft, Pt, Lt = kernel.both_t(trial, active)
+        normt = _norms(ft / scale)
         worse = ~(normt <= norm0 * (1 - 1e-4 * lam)) & (lam > 1e-3)
         check = np.nonzero(worse)[0]
         for _ in range(8):
             if not check.size:
                 break
             lam[check] /= 2
-            trial[check] = np.maximum(na[check] + lam[check][:, None] * dn[check], 0.0)
-            ft[check], Pt[check], Lt[check] = both(trial[check], active[check])
-            normt = np.linalg.norm(ft[check] / scale[check], axis=1)
+            trial[:, check] = np.maximum(na[:, check] + lam[check] * dn[:, check], 0.0)
+            ft[:, check], Pt[:, check], Lt[:, check] = kernel.both_t(trial[:, check],
+                                                                     active[check])
+            normt = _norms(ft[:, check] / scale[:, check])
             worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
             check = check[worse]
         step = np.abs(trial - na)
-        small = NEGLIGIBLE * np.maximum(trial.max(axis=1, initial=0.0), 1e-300)
-        rel_step = np.max(step / (trial + small[:, None]), axis=1, initial=0.0)
-        n[active] = trial
+        small = NEGLIGIBLE * np.maximum(trial.max(axis=0), 1e-300)
+        rel_step = (step / (trial + small)).max(axis=0)
+        if active.size == B:
+            n = trial
+        else:
+            n[:, active] = trial
         iterations[active] += 1
         # Residual met before the step and the step itself small: Newton converges
         # quadratically, so the point after it is far inside the tolerance; confirmed by
@@ -231,7 +313,7 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
         # absolute floor (a dark level with production of 1e-160 cm-3 s-1, say) is
         # converged whatever the step: its densities are known to within floor / loss
         # frequency, physically nothing.
-        scale_t, scaled_t, rt, tiny_t = measured(ft, Pt, Lt)
+        scale_t, norm_t, rt, tiny_t = measured(ft, Pt, Lt)
         met = (rt <= rtol) | tiny_t
         # Or: the step that reached the point was below sqrt(rtol) and at most a tenth of
         # the one before (Newton in its quadratic regime: the error left is about the
@@ -244,11 +326,10 @@ def newton(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iterations, bo
             converged[active[done]] = True
             keep = ~done
             active = active[keep]
-            f, P, L, scale, scaled = ft[keep], Pt[keep], Lt[keep], scale_t[keep], scaled_t[keep]
+            f, scale, norm0 = ft[:, keep], scale_t[:, keep], norm_t[keep]
             r0, tiny, last_step = rt[keep], tiny_t[keep], rel_step[keep]
         else:
-            f, P, L, scale, scaled = ft, Pt, Lt, scale_t, scaled_t
-            r0, tiny, last_step = rt, tiny_t, rel_step
+            f, scale, norm0, r0, tiny, last_step = ft, scale_t, norm_t, rt, tiny_t, rel_step
     return n, converged, res
 
 
@@ -286,7 +367,7 @@ def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iteratio
 
 def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
                  max_newton=60, max_continuation=400, level_names=None, species_names=None,
-                 both=None, warm=False):
+                 both=None, kernel=None, warm=False):
     """Steady state of B independent chemical systems.
 
     Parameters
@@ -307,6 +388,10 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
     both : callable, optional
         ``both(n, rows) -> (f, P, L)``: tendency and gross production and loss from one
         evaluation of the rates (a speed-up; the same numbers as the separate callables).
+    kernel : optional
+        The same rows last, for Newton: ``both_t``, ``gross_t`` and ``jacobian_t`` on
+        densities shaped (S, b) (:class:`ionochem.mechanism.rows.BoundRows`); by default
+        :class:`RowsCallables` over the callables.
     warm : bool
         ``n0`` is already close to the solution (a Monte Carlo sample started from the
         central column): the fixed-point sweeps of step 1 are skipped.
@@ -320,13 +405,18 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
     method = np.zeros(B, int)
     all_rows = np.arange(B)
 
-    def g_all(n):
-        return gross(n, all_rows)
+    if kernel is None:
+        kernel = RowsCallables(tendency, jacobian, gross, both)
 
-    n = initial_guess(np.maximum(n0, 0.0), g_all, sweeps=0 if warm else 12)
-    n = np.where(np.isfinite(n), n, 0.0)
-    n, conv, res = newton(n, tendency, jacobian, gross, rtol=rtol, atol=atol,
-                          max_iter=max_newton, iterations=iterations, both=both)
+    def g_all(n_t):
+        return kernel.gross_t(n_t, all_rows)
+
+    # Newton and its start work rows last (see RowsCallables); the result is (B, S).
+    n_t = initial_guess(np.maximum(n0, 0.0).T, g_all, sweeps=0 if warm else 12)
+    n_t = np.where(np.isfinite(n_t), n_t, 0.0)
+    n_t, conv, res = newton(n_t, kernel, rtol=rtol, atol=atol, max_iter=max_newton,
+                            iterations=iterations)
+    n = np.ascontiguousarray(n_t.T)
     method[conv] = METHOD_NEWTON
     if not conv.all():
         bad = np.nonzero(~conv)[0]
@@ -343,13 +433,10 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
 
         nb = continuation(n[bad], t_sub, j_sub, g_sub, rtol=rtol, atol=atol,
                           max_iter=max_continuation, iterations=sub_iter)
-        def b_sub(x, rows):
-            return both(x, bad[rows]) if both is not None else (t_sub(x, rows),
-                                                                 *g_sub(x, rows))
-
-        nb, conv_b, res_b = newton(nb, t_sub, j_sub, g_sub, rtol=rtol, atol=atol,
-                                   max_iter=max_newton, iterations=sub_iter, both=b_sub)
-        n[bad] = nb
+        nb_t, conv_b, res_b = newton(np.ascontiguousarray(nb.T), _SubsetRows(kernel, bad),
+                                     rtol=rtol, atol=atol, max_iter=max_newton,
+                                     iterations=sub_iter)
+        n[bad] = nb_t.T
         res[bad] = res_b
         iterations[bad] += sub_iter
         method[bad[conv_b]] = METHOD_CONTINUATION
