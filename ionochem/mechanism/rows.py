@@ -40,7 +40,8 @@ def _tables(m, R):
     order = np.argsort(-nvar, kind="stable")
     t["order"] = order
     t["var_counts"] = [int((nvar >= c).sum()) for c in range(1, MAX_REACTANT_SLOTS + 1)]
-    var_sorted = np.sort(np.where(is_var, slots, variable), axis=1)[order]  # variable first
+    # Each reaction's variable reactants first (the padding, never read, past them).
+    var_sorted = np.sort(np.where(is_var, slots, variable), axis=1)[order]
     t["var_slots"] = [var_sorted[:t["var_counts"][c], c] for c in range(MAX_REACTANT_SLOTS)]
     # Fixed reactants (given species; the constant 1 is left out): per slot, the position
     # of the reaction in that order and the given row to multiply by.
@@ -109,26 +110,29 @@ class BoundRows:
 
     def _variable(self, n_t, rows):
         """The folded coefficients of ``rows`` and the densities that depend on n:
-        solved, algebraic, then a row of ones, (S + A + 1, b)."""
+        solved, then algebraic, (S + A, b)."""
         folded = self.folded if rows.size == self.B else np.take(self.folded, rows, axis=1)
         S, A = self.S, self.A
-        dens = np.empty((S + A + 1, n_t.shape[1]))
+        if not A:
+            return folded, n_t
+        dens = np.empty((S + A, n_t.shape[1]))
         dens[:S] = n_t
-        if A:
-            np.matmul(self.E_alg, n_t, out=dens[S:S + A])
-            if self.alg_given is not None:
-                dens[S:S + A] += (self.alg_given if rows.size == self.B
-                                  else self.alg_given[:, rows])
-        dens[-1] = 1.0
+        np.matmul(self.E_alg, n_t, out=dens[S:])
+        if self.alg_given is not None:
+            dens[S:] += self.alg_given if rows.size == self.B else self.alg_given[:, rows]
         return folded, dens
 
     def _rates(self, n_t, rows):
         """Reaction rates (R, b) in the reactions' order of the tables, cm-3 s-1."""
         folded, dens = self._variable(n_t, rows)
-        r = folded.copy()
-        for count, slot in zip(self.var_counts, self.var_slots):
-            if count:
-                r[:count] *= np.take(dens, slot, axis=0)
+        (c1, c2, c3), (s1, s2, s3) = self.var_counts, self.var_slots
+        r = np.empty(folded.shape)
+        np.multiply(folded[:c1], np.take(dens, s1, axis=0), out=r[:c1])
+        r[c1:] = folded[c1:]                      # no variable reactant (photo-ionisation)
+        if c2:
+            r[:c2] *= np.take(dens, s2, axis=0)
+        if c3:
+            r[:c3] *= np.take(dens, s3, axis=0)
         return r
 
     # Rows last: densities ``n_t`` (S, b), results (S, b) — the steady Newton's layout.

@@ -412,7 +412,7 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
         return kernel.gross_t(n_t, all_rows)
 
     # Newton and its start work rows last (see RowsCallables); the result is (B, S).
-    n_t = initial_guess(np.maximum(n0, 0.0).T, g_all, sweeps=0 if warm else 12)
+    n_t = initial_guess(np.maximum(n0, 0.0).T, g_all, sweeps=0 if warm else 16)
     n_t = np.where(np.isfinite(n_t), n_t, 0.0)
     n_t, conv, res = newton(n_t, kernel, rtol=rtol, atol=atol, max_iter=max_newton,
                             iterations=iterations)
