@@ -572,8 +572,10 @@ class Model:
 
     def structural(self, name, build):
         """``build()``, computed once per model and kept: tables that depend only on the
-        reaction list and the grid (reaction orders, equations, emission reactions, the
-        result's coordinates), so repeated solves do not rebuild them."""
+        reaction list, the grid and the model's environment (reaction orders, equations,
+        emission reactions, the O+ diffusion time, the solar zenith angle), so repeated
+        solves do not rebuild them. A kept array that becomes a data variable of a result
+        is copied into it (a result is the user's to change)."""
         store = self.__dict__.setdefault("_structural", {})
         if name not in store:
             store[name] = build()

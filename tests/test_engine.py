@@ -544,3 +544,19 @@ def test_continuation_converges_within_the_solvers_default_limit():
     continuation(0.3 * exact, tendency, jacobian, gross, rtol=1e-10, atol=1e-30,
                  max_iter=400, iterations=it)
     assert np.all(it < 400)
+
+
+def test_repeated_solves_share_no_data(column):
+    """What a model keeps between solves (``Model.structural``: the O+ diffusion time,
+    reaction tables, coordinates) reaches each result as a copy: overwriting every value of
+    one result leaves the next solve's result identical to the one before (a shared array
+    would carry the edit into every later result)."""
+    import xarray as xr
+    model = ionochem.Model(ionochem.load_scenario(_one_ion(column)))
+    first = model.solve()
+    reference = model.solve()
+    assert "diffusion_time" in first
+    for var in first.data_vars.values():
+        if var.dtype.kind == "f" and var.ndim:
+            var.values[...] = -1.0
+    xr.testing.assert_identical(model.solve(), reference)

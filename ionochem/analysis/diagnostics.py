@@ -99,7 +99,9 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
     life[np.asarray(roles) == "fixed"] = np.nan
     out["lifetime"] = (("species", "altitude"), life,
                        {"units": "s", "long_name": "chemical lifetime n/L"})
-    tau_d = oplus_diffusion_time(env)
+    # Fixed by the model's environment: computed once per model (a copy per result).
+    tau_d = model.structural("oplus_diffusion_time",
+                             lambda: oplus_diffusion_time(env)).copy()
     out["diffusion_time"] = ("altitude", tau_d,
                              {"units": "s", "long_name": "O+ vertical diffusion time "
                               "H_n^2/(D_a sin^2 I), H_n the scale height of atomic oxygen"})
@@ -168,7 +170,9 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
     out["dark"] = ("altitude", dark.astype(np.int8),
                    {"long_name": "no direct sunlight reaches the level",
                     "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})
-    out["solar_zenith_angle"] = ((), float(env.solar_zenith_angle(None)),
+    sza = model.structural("solar_zenith_angle",
+                           lambda: float(env.solar_zenith_angle(None)))
+    out["solar_zenith_angle"] = ((), sza,
                                  {"units": "degree", "long_name": "solar zenith angle"})
     if env.electron_density is not None and mech.balance_ion is not None:
         b = list(species).index(mech.balance_ion)

@@ -183,7 +183,7 @@ def steady_variables(model, res, method_names):
     given = model.given
     n_all = mech.full_densities(res.n, given)
     rates = mech.rates(k, n_all)
-    P, L = mech.production_loss(res.n, k, given)
+    P, L = mech.gross_rates(rates)
     keep = [mech.index(s) for s in names if s in mech.all_species]
     prod = np.zeros_like(dens)
     loss = np.zeros_like(dens)

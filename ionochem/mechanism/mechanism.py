@@ -239,10 +239,17 @@ class Mechanism:
 
     def production_loss(self, n, k, given):
         """Gross production and loss of every species, each (B, N_all), cm-3 s-1."""
-        r = self.rates(k, self.full_densities(n, given))
-        pos = np.clip(self.nu_all, 0, None)
-        neg = np.clip(-self.nu_all, 0, None)
-        return r @ pos.T, r @ neg.T
+        return self.gross_rates(self.rates(k, self.full_densities(n, given)))
+
+    def gross_rates(self, r):
+        """Gross production and loss of every species from the reaction rates ``r``
+        (B, R), each (B, N_all), cm-3 s-1 (:meth:`production_loss` when the rates are at
+        hand)."""
+        cached = self.__dict__.get("_gross_all")
+        if cached is None:
+            cached = self._gross_all = (np.clip(self.nu_all, 0, None).T.copy(),
+                                        np.clip(-self.nu_all, 0, None).T.copy())
+        return r @ cached[0], r @ cached[1]
 
     def tendency_production_loss(self, n, k, given):
         """:meth:`tendency` and the solved species' columns of :meth:`production_loss` from
