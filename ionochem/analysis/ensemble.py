@@ -54,10 +54,11 @@ def solve_batch(kernel, z, k_base=None, first=0):
     return res.n.reshape(z.shape[0], A, S)
 
 
-#: Level solves (samples × levels) from which ``workers="auto"`` starts a local cluster:
-#: below it the cluster's start (about 3 s) and its transfers cost more than two processes
+#: Level solves (samples × levels) from which ``workers="auto"`` starts worker processes:
+#: below it the pool's start (about 0.6 s) and its transfers cost more than two processes
 #: save. Measured with benchmarks/bench_uncertainty.py --break-even on this project's 2-core
-#: development machine, idle (see the benchmark's docstring for the figures).
+#: development machine, idle: two workers 0.77x serial at 100,000 level solves, 1.15x at
+#: 200,000, 1.51x at 500,000, 1.67x at 1,000,000 (medians of 3).
 AUTO_LEVEL_SOLVES = 500_000
 
 
@@ -83,13 +84,7 @@ def auto_workers(level_solves: int) -> int:
     if level_solves < AUTO_LEVEL_SOLVES:
         return 1
     free = free_cpus()
-    if free < 2:
-        return 1
-    try:
-        import distributed  # noqa: F401
-    except ImportError:
-        return 1
-    return free
+    return 1 if free < 2 else free
 
 
 def default_batch(levels: int) -> int:

@@ -9,8 +9,8 @@ sample × level), S solved species — and never imports the parser or the envir
 Method
 ------
 1. Start from a geometric-mean fixed point, n ← sqrt(n · P(n) / λ(n)) with λ = L/n the loss
-   frequency, a few sweeps. For one ion with q and α n_e this lands on sqrt(q/α) at once; a
-   species with no production goes to zero exactly. A warm start (``warm=True``: the
+   frequency, :data:`START_SWEEPS` sweeps. For one ion with q and α n_e this lands on
+   sqrt(q/α) at once; a species with no production goes to zero exactly. A warm start (``warm=True``: the
    samples of an ensemble start from the central column) skips these sweeps.
 2. Damped Newton on all levels together: J Δn = −f solved by batched LU (numpy.linalg.solve).
    Positivity: per level, the step is cut so no density falls below a tenth of its value
@@ -61,6 +61,12 @@ NEGLIGIBLE = 1e-12
 #: (see :func:`_scale`); 1e-20 lies four orders below double-precision rounding of the main
 #: species' balance *(common practice)*.
 LEVEL_FLOOR = 1e-20
+
+#: Fixed-point sweeps of the start (step 1 of the module docstring). Each costs about a
+#: tenth of a Newton iteration; measured on the demo column at 200 and 1,000 levels
+#: (benchmarks/bench_perf.py), 16 sweeps gave the fastest solve (12: 7 % slower, 8: 15 %;
+#: 2–3 leave levels Newton cannot bring in).
+START_SWEEPS = 16
 
 METHOD_NEWTON = 1
 METHOD_CONTINUATION = 2
@@ -153,7 +159,7 @@ def _positive_step(n, dn, axis=1):
     return dn, lam.reshape(-1)
 
 
-def initial_guess(n0, gross, sweeps=12):
+def initial_guess(n0, gross, sweeps=None):
     """Geometric-mean fixed-point sweeps n ← sqrt(n P / λ) (see the module docstring).
 
     Element by element, so ``n0`` may be (rows, species) or rows last (species, rows):
@@ -162,7 +168,7 @@ def initial_guess(n0, gross, sweeps=12):
     n = n0.copy()
     if not n.size:
         return n
-    for _ in range(sweeps):
+    for _ in range(START_SWEEPS if sweeps is None else sweeps):
         P, L = gross(n)
         with np.errstate(divide="ignore", invalid="ignore"):
             # Where n > 0 and L > 0 (nearly everywhere after the first sweep):
@@ -412,7 +418,7 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
         return kernel.gross_t(n_t, all_rows)
 
     # Newton and its start work rows last (see RowsCallables); the result is (B, S).
-    n_t = initial_guess(np.maximum(n0, 0.0).T, g_all, sweeps=0 if warm else 16)
+    n_t = initial_guess(np.maximum(n0, 0.0).T, g_all, sweeps=0 if warm else START_SWEEPS)
     n_t = np.where(np.isfinite(n_t), n_t, 0.0)
     n_t, conv, res = newton(n_t, kernel, rtol=rtol, atol=atol, max_iter=max_newton,
                             iterations=iterations)
