@@ -10,8 +10,9 @@ Method
 ------
 1. Start from a geometric-mean fixed point, n ← sqrt(n · P(n) / λ(n)) with λ = L/n the loss
    frequency, :data:`START_SWEEPS` sweeps. For one ion with q and α n_e this lands on
-   sqrt(q/α) at once; a species with no production goes to zero exactly. A warm start (``warm=True``: the
-   samples of an ensemble start from the central column) skips these sweeps.
+   sqrt(q/α) at once; a species with no production goes to zero exactly. A warm start
+   (``warm=True``: the samples of an ensemble start from the central column) skips these
+   sweeps.
 2. Damped Newton on all levels together: J Δn = −f solved by batched LU (numpy.linalg.solve).
    Positivity: per level, the step is cut so no density falls below a tenth of its value
    (a species at exactly zero with a negative step stays at zero). The step is then halved
