@@ -261,7 +261,9 @@ def test_produced_but_never_lost_species_is_refused(column):
 
 def test_electron_table_mode_balances_ion(column, tmp_path):
     """With Ne given, O+ = Ne − other ions and the others are in equilibrium at that Ne
-    (checked against the closed-form N2+ balance q = (k_C[O] + α Ne) n)."""
+    (checked against the closed-form N2+ balance q = (k_C[O] + α Ne) n, and the NO+
+    balance k_C[O] N2+ + k_9[N2] (Ne − N2+ − NO+) = α_2 Ne NO+, through which the balance
+    ion's dependence on the given Ne enters the solve)."""
     ne = 1e5 * np.ones_like(ALT)
     (tmp_path / "ne.csv").write_text("altitude_km,Ne\n" + "\n".join(
         f"{a},{v}" for a, v in zip(ALT, ne)) + "\n")
@@ -278,9 +280,37 @@ def test_electron_table_mode_balances_ion(column, tmp_path):
     alpha = 2.2e-7 * (300 / TE) ** 0.39
     np.testing.assert_allclose(d.sel(species="N2+").values,
                                Q / (kc * neutrals["O"] + alpha * ne), rtol=1e-9)
+    n2p = d.sel(species="N2+").values
+    k9 = 1e-12
+    alpha2 = 4.0e-7 * (300 / TE) ** 0.5
+    nop = (kc * neutrals["O"] * n2p + k9 * neutrals["N2"] * (ne - n2p)) / (
+        alpha2 * ne + k9 * neutrals["N2"])
+    np.testing.assert_allclose(d.sel(species="NO+").values, nop, rtol=1e-9)
     others = d.sel(species="N2+").values + d.sel(species="NO+").values
     np.testing.assert_allclose(d.sel(species="O+").values, ne - others, rtol=1e-12)
     assert ds["role"].sel(species="O+").item() == "balance"
+
+
+def test_three_body_association_against_its_closed_form(column):
+    """A three-body reaction in the steady solve: O+ made at q and lost only by
+    O+ + O + M (k3 [O][M], M the total neutral density), O2+ made by it and lost by
+    recombination with Ne = O+ + O2+. Closed forms: O+ = q / (k3 [O][M]) and
+    α x (O+ + x) = q for x = O2+ (all rates invented)."""
+    text = ("P1: O -> O+ + e | k = prescribed | ref = invented test\n"
+            "T1: O+ + O + M -> O2+ + M | k = 3.0e-29*(300/Tn)^2 | ref = invented test\n"
+            "R2: O2+ + e -> O + O | k = 2.0e-7*(300/Te)^0.7 | ref = invented test\n")
+    o = 1e11 * np.exp(-(ALT - 100) / 60)
+    o2 = 1e12 * np.exp(-(ALT - 100) / 30)
+    tn = np.linspace(200.0, 900.0, ALT.size)
+    model = ionochem.Model(ionochem.load_scenario(column(
+        text, ALT, neutrals={"O": o, "O2": o2}, Tn=tn, Te=TE, production={"P1": Q})))
+    d = model.solve()["density"]
+    oplus = Q / (3.0e-29 * (300 / tn) ** 2 * o * (o + o2))
+    alpha = 2.0e-7 * (300 / TE) ** 0.7
+    # The root of x² + a x − q/α in the form without cancellation (a ≫ x up high).
+    o2plus = 2 * (Q / alpha) / (oplus + np.sqrt(oplus ** 2 + 4 * Q / alpha))
+    np.testing.assert_allclose(d.sel(species="O+").values, oplus, rtol=1e-9)
+    np.testing.assert_allclose(d.sel(species="O2+").values, o2plus, rtol=1e-9)
 
 
 def test_with_changes_scales_and_replaces_rates(column):
