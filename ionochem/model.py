@@ -484,10 +484,25 @@ class Model:
         if not self.environment.time_dependent or not self._source_reactions:
             return self._k_static
         k = self._k_static.copy()
-        sources = self.environment.sources(time_s)
-        k[:, self._source_reactions] = self._src_coef * np.stack(
-            [sources[key] for key in self._src_keys], -1)
+        # The sun's sources are linear between lattice nodes: mix the source reactions'
+        # rate coefficients of the nodes (kept per node) instead of every channel of the sun.
+        columns = None
+        for node, weight in self.environment.source_nodes(time_s):
+            part = weight * self._source_columns(node)
+            columns = part if columns is None else columns + part
+        k[:, self._source_reactions] = columns
         return self._flush_dark(k)
+
+    def _source_columns(self, node):
+        """Rate coefficients of the source reactions, (altitude, source reaction), at one
+        lattice node of the sun (before the flush of dark levels), kept per node."""
+        kept = self.__dict__.setdefault("_source_node_columns", {})
+        columns = kept.get(node)
+        if columns is None:
+            sources = self.environment.sources(node)
+            columns = kept[node] = self._src_coef * np.stack(
+                [sources[key] for key in self._src_keys], -1)
+        return columns
 
     def uncertainty_factors(self):
         """One-sigma multiplicative factors f of every rate, shape (altitude, reaction).

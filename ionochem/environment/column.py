@@ -84,6 +84,14 @@ class Environment:
             return {}
         return self.sun.sources(time_s)
 
+    def source_nodes(self, time_s=None):
+        """Times and weights of the sun's lattice nodes whose weighted sum of
+        :meth:`sources` gives the sources at ``time_s`` (``((0.0, 1.0),)`` without a moving
+        sun)."""
+        if self.sun is None:
+            return ((0.0, 1.0),)
+        return self.sun.nodes(time_s)
+
     def solar_zenith_angle(self, time_s=None):
         """Solar zenith angle, degrees (NaN when the scenario has no sun)."""
         if self.sun is None:

@@ -253,17 +253,27 @@ class SunColumn:
         from ionochem.environment.secondary import secondary_frequencies
         return secondary_frequencies(spectrum, cols, self.local, enabled=self.secondary)
 
-    def _at(self, time_s):
+    def nodes(self, time_s=None):
+        """The lattice times and weights whose weighted sum gives the sources at
+        ``time_s``: one node on the lattice (or without a moving sun), else the two around
+        it, linearly."""
         if time_s is None or not self.time_dependent:
-            return self._node(0.0)
+            return ((0.0, 1.0),)
         t = float(time_s)
         lo = np.floor(t / LATTICE_S) * LATTICE_S
         if abs(t - lo) < 1e-9:
-            return self._node(lo)
-        a, da = self._node(lo)
-        b, db = self._node(lo + LATTICE_S)
+            return ((lo, 1.0),)
         w = (t - lo) / LATTICE_S
-        return {k: (1 - w) * a[k] + w * b[k] for k in a}, da & db
+        return ((lo, 1 - w), (lo + LATTICE_S, w))
+
+    def _at(self, time_s):
+        nodes = self.nodes(time_s)
+        if len(nodes) == 1:
+            return self._node(nodes[0][0])
+        (ta, wa), (tb, wb) = nodes
+        a, da = self._node(ta)
+        b, db = self._node(tb)
+        return {k: wa * a[k] + wb * b[k] for k in a}, da & db
 
     def sources(self, time_s=None):
         """Channel key → rate per absorber molecule (s-1) on the grid."""
