@@ -92,24 +92,28 @@ def level_output_vars(model, k, dens, names, lead_dims=()):
     members = {m: tot.name for tot in mech.derived for m in tot.members if "v=" in m}
     if members:
         frac = np.full(dens.shape, np.nan)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            for m, tot in members.items():
-                if m in col and tot in col:
-                    t = dens[..., col[tot]]
-                    frac[..., col[m]] = np.where(t > 0, dens[..., col[m]] / t, np.nan)
+        pairs = [(col[m], col[tot]) for m, tot in members.items() if m in col and tot in col]
+        if pairs:
+            level, total = (list(x) for x in zip(*pairs))
+            t = dens[..., total]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                frac[..., level] = np.where(t > 0, dens[..., level] / t, np.nan)
         out["level_fraction"] = (
             (*lead_dims, "species", "altitude"), np.swapaxes(frac, -1, -2),
             {"units": "1", "long_name": "fraction of the family total in this level "
              "(NaN for species that are not family members)"})
     fams = model.structural("family_reactants", lambda: family_reactants(model))
     if fams:
-        vals = []
-        for _, total, pairs, _ in fams:
-            num = sum(k[..., j] * dens[..., col[s]] for j, s in pairs)
-            t = dens[..., col[total]]
-            with np.errstate(invalid="ignore", divide="ignore"):
-                vals.append(np.where(t > 0, num / t, np.nan))
-        stacked = np.stack(vals, axis=-2)                  # (..., family, altitude)
+        # All families at once: k_m n(level of m) for every member m, summed family by
+        # family (one family at a time gave the same to 5e-16).
+        reaction = [j for _, _, pairs, _ in fams for j, _ in pairs]
+        level = [col[s] for _, _, pairs, _ in fams for _, s in pairs]
+        starts = np.cumsum([0] + [len(f[2]) for f in fams[:-1]])
+        num = np.add.reduceat(k[..., reaction] * dens[..., level], starts, axis=-1)
+        t = dens[..., [col[f[1]] for f in fams]]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            stacked = np.swapaxes(np.where(t > 0, num / t, np.nan), -1, -2)
+        # stacked: (..., family, altitude)
         orders = np.array([f[3] for f in fams])
         shape = [1] * stacked.ndim
         shape[-2] = orders.size
