@@ -52,6 +52,7 @@ from pathlib import Path
 
 import numpy as np
 import scipy.sparse as sp
+from bench_perf import median_time
 
 import ionochem
 from ionochem.io.scenario import Grid
@@ -78,15 +79,6 @@ def bound(model):
     return rows.tendency, rows.jacobian, rows.gross
 
 
-def median_time(fn, repeats):
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
-
-
 def column_callables(model, before=False):
     """(tendency, jacobian, gross) of the whole column, as steady_with_transport binds them;
     ``before``: the Jacobian assembled as before the prebuilt structure
@@ -94,24 +86,15 @@ def column_callables(model, before=False):
     ``_regularise`` and ``sparse_solve``)."""
     tend, jac, gross = bound(model)
     B = model.altitude_km.size
-    rows = np.arange(B)
     tr = model.transport
+    col_tendency, jacobian, col_gross = C.column_callables(tend, jac, gross, tr, B)
     if before:
+        rows = np.arange(B)
+
         def jacobian(n):
             return sp.csc_matrix(sp.csr_matrix(C.block_diagonal(jac(n, rows))
                                                + tr.matrix(1)))
-    else:
-        assemble = C.ColumnJacobian(B, len(model.species), tr.matrix(1))
-
-        def jacobian(n):
-            return assemble(jac(n, rows))
-
-    def col_gross(n):
-        P, L = gross(n, rows)
-        Pt, Lt = tr.gross(n)
-        return P + Pt, L + Lt
-
-    return (lambda n: tend(n, rows) + tr.tendency(n)), jacobian, col_gross
+    return col_tendency, jacobian, col_gross
 
 
 def column(levels, repeats, memory, variants=VARIANTS):

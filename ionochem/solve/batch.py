@@ -72,7 +72,7 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transpor
     if transport is not None:
         from ionochem.solve.column import steady_with_transport
         return steady_with_transport(tendency, jacobian, gross, transport, B, rtol=rtol,
-                                     level_names=level_names, n0=n0)
+                                     level_names=level_names, n0=n0, kernel=kernel)
     start = np.zeros((B, S)) if n0 is None else n0
     return solve_steady(start, tendency, jacobian, gross, rtol=rtol, level_names=level_names,
                         species_names=list(mechanism.solved), both=both, kernel=kernel,

@@ -509,9 +509,9 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
     return SteadyResult(n=n, residual=res, iterations=iterations, method=method)
 
 
-
 def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=1e-10,
-                          atol=1e-30, level_names=None, n0=None, linear=None, stats=None):
+                          atol=1e-30, level_names=None, n0=None, linear=None, stats=None,
+                          kernel=None):
     """Steady state of stacked columns: local chemistry plus one species' transport.
 
     Parameters
@@ -530,22 +530,42 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
         Start (e.g. the nominal column for the samples of an ensemble). By default the
         photochemical steady state of every level (:mod:`steady`, to a relative residual
         of 1e-6) when it exists, zero otherwise.
+    kernel : optional
+        The chemistry rows last, for that photochemical start (``kernel`` of
+        :func:`ionochem.solve.steady.solve_steady`).
 
     Returns
     -------
     SteadyResult
     """
     from ionochem.solve.steady import solve_steady
+    col_tendency, col_jacobian, col_gross = column_callables(tendency, jacobian, gross,
+                                                             transport, n_rows)
+    if n0 is not None:
+        start = np.asarray(n0, float)
+    else:
+        try:
+            start = solve_steady(np.zeros((n_rows, transport.S)), tendency, jacobian, gross,
+                                 rtol=max(rtol, 1e-6), kernel=kernel).n
+        except SolverError:
+            start = np.zeros((n_rows, transport.S))
+    return solve_column(start, col_tendency, col_jacobian, col_gross, rtol=rtol, atol=atol,
+                        level_names=level_names, linear=linear, stats=stats)
+
+
+def column_callables(tendency, jacobian, gross, transport, n_rows):
+    """The whole columns' ``(tendency(n), jacobian(n), gross(n))`` for :func:`solve_column`:
+    the chemistry of all ``n_rows`` levels plus the transport, the Jacobian assembled as one
+    sparse matrix (:class:`ColumnJacobian`)."""
     C = n_rows // transport.A
     if C * transport.A != n_rows:
         raise ValueError("the rows are not a whole number of columns")
-    S = transport.S
     rows = np.arange(n_rows)
 
     def col_tendency(n):
         return tendency(n, rows) + transport.tendency(n)
 
-    assemble = ColumnJacobian(n_rows, S, transport.matrix(C))
+    assemble = ColumnJacobian(n_rows, transport.S, transport.matrix(C))
 
     def col_jacobian(n):
         return assemble(jacobian(n, rows))
@@ -555,13 +575,4 @@ def steady_with_transport(tendency, jacobian, gross, transport, n_rows, *, rtol=
         Pt, Lt = transport.gross(n)
         return P + Pt, L + Lt
 
-    if n0 is not None:
-        start = np.asarray(n0, float)
-    else:
-        try:
-            start = solve_steady(np.zeros((n_rows, S)), tendency, jacobian, gross,
-                                 rtol=max(rtol, 1e-6)).n
-        except SolverError:
-            start = np.zeros((n_rows, S))
-    return solve_column(start, col_tendency, col_jacobian, col_gross, rtol=rtol, atol=atol,
-                        level_names=level_names, linear=linear, stats=stats)
+    return col_tendency, col_jacobian, col_gross
