@@ -149,6 +149,23 @@ def _environment_vars(model, dims=("altitude",)):
     return out
 
 
+def _stoichiometry_and_totals(mech, names, keep, rates, prod, loss):
+    """Net stoichiometry (species, reaction) of the dataset's species, and the gross
+    production and loss of each derived total filled into ``prod``/``loss`` (..., species)
+    from the reaction rates (..., reaction). ``keep``: the mechanism index of each leading
+    species of ``names``. A total's production and loss exclude the exchanges among its
+    members (its members' net stoichiometry summed)."""
+    stoich = np.zeros((len(names), rates.shape[-1]))
+    stoich[:len(keep)] = mech.nu_all[keep]
+    for tot in mech.derived:
+        nu = mech.nu_all[[mech.index(m) for m in tot.members]].sum(axis=0)
+        col = names.index(tot.name)
+        stoich[col] = nu
+        prod[..., col] = rates @ np.clip(nu, 0, None)
+        loss[..., col] = rates @ np.clip(-nu, 0, None)
+    return stoich
+
+
 def steady_dataset(model, res, method_names):
     """Dataset of a steady solution (``SteadyResult`` from the steady solver).
 
@@ -189,16 +206,7 @@ def steady_variables(model, res, method_names):
     loss = np.zeros_like(dens)
     prod[:, :len(keep)] = P[:, keep]
     loss[:, :len(keep)] = L[:, keep]
-    stoich = np.zeros((len(names), len(model.reactions)))
-    stoich[:len(keep)] = mech.nu_all[keep]
-    for tot in mech.derived:
-        # A total's production and loss exclude the exchanges among its members.
-        members = [mech.index(m) for m in tot.members]
-        nu = mech.nu_all[members].sum(axis=0)
-        col = names.index(tot.name)
-        stoich[col] = nu
-        prod[:, col] = rates @ np.clip(nu, 0, None)
-        loss[:, col] = rates @ np.clip(-nu, 0, None)
+    stoich = _stoichiometry_and_totals(mech, names, keep, rates, prod, loss)
     data_vars = {
         "density": (("species", "altitude"), dens.T,
                     {"units": "cm-3", "long_name": "number density"}),
@@ -337,19 +345,10 @@ def transient_dataset(model, times, n):
         k = model.rate_coefficients(float(t))
         ks[i] = k
         rates[i] = mech.rates(k, mech.full_densities(n[i], model.given))
-        P, L = mech.production_loss(n[i], k, model.given)
+        P, L = mech.gross_rates(rates[i])
         prod[i, :, :len(keep)] = P[:, keep]
         loss[i, :, :len(keep)] = L[:, keep]
-    for tot in mech.derived:
-        nu = mech.nu_all[[mech.index(m) for m in tot.members]].sum(axis=0)
-        col = names.index(tot.name)
-        prod[..., col] = rates @ np.clip(nu, 0, None)
-        loss[..., col] = rates @ np.clip(-nu, 0, None)
-    stoich = np.zeros((len(names), R))
-    stoich[:len(keep)] = mech.nu_all[keep]
-    for tot in mech.derived:
-        stoich[names.index(tot.name)] = mech.nu_all[[mech.index(m)
-                                                     for m in tot.members]].sum(axis=0)
+    stoich = _stoichiometry_and_totals(mech, names, keep, rates, prod, loss)
     dims3 = ("time", "species", "altitude")
     ds = xr.Dataset(
         {

@@ -268,7 +268,7 @@ def newton(n, kernel, *, rtol, atol, max_iter, iterations):
         scale = _scale(P, L, floor, axis=0)
         scaled = f / scale
         return (scale, _norms(scaled), np.abs(scaled).max(axis=0),
-                np.abs(f).max(axis=0) <= atol)
+                _negligible(f, atol, axis=0))
 
     active = np.arange(B)
     f, P, L = kernel.both_t(n, active)
