@@ -231,6 +231,14 @@ class Model:
         return tuple(self._rxns)
 
     @property
+    def units(self):
+        """The units of analysis of the reactions as used: a plain reaction, a whole family,
+        or a tie of the list (:mod:`ionochem.mechanism.units`), tuple of ``Unit``."""
+        from ionochem.mechanism.units import analysis_units
+        return self.structural("units", lambda: analysis_units(
+            self._rxns, getattr(self.reaction_list, "ties", ())))
+
+    @property
     def rate_expressions(self):
         """The compiled rate law of each reaction as used (after ``--set`` changes)."""
         return tuple(self._k_expr)
@@ -258,6 +266,9 @@ class Model:
         for fam, members in families.items():
             if key in (fam, fam.split("(")[0]):
                 return [self._id_index[m] for m in members]
+        for unit in self.units:
+            if unit.name == key:
+                return [self._id_index[m] for m in unit.members]
         raise InputError(f"no reaction with id {key!r} in {self.reaction_list.path}",
                          file=where)
 

@@ -22,6 +22,7 @@ import numpy as np
 import xarray as xr
 
 from ionochem.analysis.compare import main_species
+from ionochem.analysis.units import sum_over_units, unit_map_from_dataset
 from ionochem.errors import InputError
 
 TE_NAME = "Te"
@@ -83,15 +84,29 @@ def _levels(sens_ds, altitude_range):
     return inside
 
 
-def sensitivity_matrix(sens_ds, species, altitude_range=None):
-    """S of one species to every reaction and Te over the range.
+def unit_sensitivity(sens_ds):
+    """``sensitivity_unit`` (species, unit, altitude) of a sensitivity dataset, with the unit
+    names and equations; computed from the per-reaction values for files written before units
+    existed (:func:`ionochem.analysis.units.unit_map_from_dataset`)."""
+    umap = unit_map_from_dataset(sens_ds)
+    if "sensitivity_unit" in sens_ds:
+        S = sens_ds["sensitivity_unit"].transpose("species", "unit", "altitude").values
+    else:
+        S = sum_over_units(sens_ds["sensitivity"].transpose("species", "reaction",
+                                                             "altitude").values, umap, 1)
+    return list(umap.names), list(umap.labels), S
+
+
+def sensitivity_matrix(sens_ds, species, altitude_range=None, *, members=False):
+    """S of one species to every unit (or, with ``members``, every reaction) and the
+    environment factors over the range.
 
     Returns
     -------
     names : list of str
-        Reaction ids, then ``"Te"``.
+        Unit names (reaction ids with ``members``), then the factors (``"Te"``, …).
     equations : list of str
-    S : ndarray (reaction + 1, level)
+    S : ndarray (unit + factor, level)
         Dimensionless; NaN at dark levels.
     altitude_km : ndarray (level,)
     """
@@ -100,10 +115,14 @@ def sensitivity_matrix(sens_ds, species, altitude_range=None):
         raise InputError(f"no species {species!r} in the result (species: "
                          f"{', '.join(names)})", file="--species")
     inside = _levels(sens_ds, altitude_range)
-    S = sens_ds["sensitivity"].sel(species=species).values[:, inside]      # (R, level)
-    ids = [str(r) for r in sens_ds["reaction"].values]
-    eqs = ([str(e) for e in sens_ds["equation"].values] if "equation" in sens_ds.coords
-           else [""] * len(ids))
+    if members:
+        S = sens_ds["sensitivity"].sel(species=species).values[:, inside]  # (R, level)
+        ids = [str(r) for r in sens_ds["reaction"].values]
+        eqs = ([str(e) for e in sens_ds["equation"].values] if "equation" in sens_ds.coords
+               else [""] * len(ids))
+    else:
+        ids, eqs, S_all = unit_sensitivity(sens_ds)
+        S = S_all[names.index(species)][:, inside]                       # (U, level)
     names, descr, S_env = environment_rows(sens_ds, species)
     return (ids + names, eqs + descr, np.vstack([S, S_env[:, inside]]),
             sens_ds["altitude"].values[inside])
@@ -137,8 +156,12 @@ def where_it_matters(sens_ds, species, altitude_range=None, min_share=DEFAULT_MI
 
 
 def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max",
-                   min_share=DEFAULT_MIN_SHARE):
-    """The reactions (and ``Te``) with the largest |S| for each species.
+                   min_share=DEFAULT_MIN_SHARE, members=False):
+    """The units of analysis (and ``Te``…) with the largest |S| for each species.
+
+    A unit is a plain reaction, a whole family of vibrational levels or a tie of the list
+    (:mod:`ionochem.analysis.units`); its S is that of one multiplier of all its members.
+    With ``members`` the reactions are ranked one by one (a family level by level).
 
     Parameters
     ----------
@@ -169,7 +192,7 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max",
     species = [species] if isinstance(species, str) else list(species)
     rows = []
     for s in species:
-        ids, eqs, S, alt = sensitivity_matrix(sens_ds, s, altitude_range)
+        ids, eqs, S, alt = sensitivity_matrix(sens_ds, s, altitude_range, members=members)
         absS = np.abs(S)
         live = np.isfinite(absS).any(axis=0) & where_it_matters(sens_ds, s, altitude_range,
                                                                  min_share)
@@ -197,7 +220,7 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max",
 
 
 def format_ranking(sens_ds, species, altitude_range=None, top=10,
-                   min_share=DEFAULT_MIN_SHARE):
+                   min_share=DEFAULT_MIN_SHARE, members=False):
     """Two tables per species: by the largest |S| and by the altitude-mean |S|."""
     alt = sens_ds["altitude"].values
     lo, hi = altitude_range if altitude_range is not None else (alt.min(), alt.max())
@@ -206,7 +229,8 @@ def format_ranking(sens_ds, species, altitude_range=None, top=10,
     species = [species] if isinstance(species, str) else list(species)
     for s in species:
         for by, what in (("max", "largest |S|"), ("mean", "altitude-mean |S|")):
-            rows = rank_reactions(sens_ds, s, altitude_range, top, by=by, min_share=min_share)
+            rows = rank_reactions(sens_ds, s, altitude_range, top, by=by, min_share=min_share,
+                                  members=members)
             lines.append(f"{s}: top {len(rows)} by {what}")
             lines.append(f"  {'#':>3} {'reaction':<24}{'S at max':>10}{'at km':>8}"
                          f"{'mean |S|':>10}  equation")
@@ -258,7 +282,38 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
                  .replace("k|", "factor|")})
     alt = sens_ds["altitude"].values
     lo, hi = altitude_range if altitude_range is not None else (alt.min(), alt.max())
+    out = _unit_measures(out, sens_ds, names, altitude_range, min_share, specs)
     out.attrs["ranking_altitude_range_km"] = np.array([lo, hi], float)
     out.attrs["ranking_min_share"] = float(min_share)
     out.attrs["analysis"] = "rank: normalized local sensitivities at steady state"
+    return out
+
+
+def _unit_measures(out, sens_ds, names, altitude_range, min_share, specs):
+    """The four measures over (species, unit), suffix ``_unit``, and the unit coordinates
+    (plus ``sensitivity_unit`` for files written before units existed)."""
+    from ionochem.analysis.units import unit_coords
+    umap = unit_map_from_dataset(sens_ds)
+    if "sensitivity_unit" not in out:
+        out = out.assign_coords({k: v for k, v in unit_coords(umap).items()})
+        _, _, S = unit_sensitivity(sens_ds)
+        out["sensitivity_unit"] = xr.Variable(("species", "unit", "altitude"), S,
+                                              {"units": "1", "long_name": "normalized "
+                                               "sensitivity to one multiplier of every "
+                                               "member of a unit"})
+    U = len(umap.names)
+    arrs = [np.full((len(names), U), np.nan) for _ in range(4)]
+    column = {u: j for j, u in enumerate(umap.names)}
+    for i, s in enumerate(names):
+        for r in rank_reactions(sens_ds, s, altitude_range, top=None, min_share=min_share):
+            j = column.get(r.reaction)
+            if j is not None:
+                for arr, val in zip(arrs, (r.max_abs, r.signed_at_max, r.altitude_km,
+                                           r.mean_abs)):
+                    arr[i, j] = val
+    for (name, _, units, long), arr in zip(specs, arrs):
+        out[f"{name}_unit"] = xr.Variable(("species", "unit"), arr,
+                                          {"units": units, "long_name": long.replace(
+                                              "d ln k", "d ln lambda") + " (per unit of "
+                                              "analysis: one multiplier of all members)"})
     return out

@@ -31,6 +31,8 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from ionochem.analysis.units import sum_over_units, unit_coords, unit_map
+
 TE_STEP = 1e-5
 
 
@@ -145,7 +147,9 @@ def sensitivity(model, result=None):
         ``sensitivity`` (species, reaction, altitude) = ∂ln n/∂ln k and
         ``sensitivity_Te`` (species, altitude) = ∂ln n/∂ln Te, and
         ``sensitivity_environment`` (species, factor, altitude) for Te, Ti, Tn, the EUV flux
-        and the fixed neutrals (see the module docstring), dimensionless, with the densities
+        and the fixed neutrals (see the module docstring), and ``sensitivity_unit``
+        (species, unit, altitude), the sensitivity to one multiplier of all members of each
+        unit of analysis (:mod:`ionochem.analysis.units`), dimensionless, with the densities
         they refer to.
     """
     from ionochem.solve.threads import single_thread_blas
@@ -194,6 +198,8 @@ def _sensitivity(model, result):
     with np.errstate(divide="ignore", invalid="ignore"):
         norm = np.where(dens[:, :, None] > 0, out / dens[:, :, None], 0.0)
     norm[:, ~live, :] = np.nan
+    umap = unit_map(model)
+    by_unit = sum_over_units(norm[:, :, :R], umap, axis=2)     # (species, A, U)
     res = xr.Dataset(
         {
             "sensitivity": (("species", "reaction", "altitude"),
@@ -207,10 +213,15 @@ def _sensitivity(model, result):
                                         np.transpose(norm[:, :, R:], (0, 2, 1)),
                                         {"units": "1", "long_name": "normalized local "
                                          "sensitivity d ln n / d ln (environment factor)"}),
+            "sensitivity_unit": (("species", "unit", "altitude"),
+                                 np.transpose(by_unit, (0, 2, 1)),
+                                 {"units": "1", "long_name": "normalized sensitivity to one "
+                                  "common multiplier of every member of a unit, "
+                                  "d ln n / d ln lambda = sum of the members' d ln n / d ln k"}),
             "density": ds["density"],
         },
         coords={"species": ds["species"], "role": ds["role"], "reaction": ds["reaction"],
-                "equation": ds["equation"], "altitude": ds["altitude"],
+                "equation": ds["equation"], "altitude": ds["altitude"], **unit_coords(umap),
                 "factor": ("factor", np.array([f for f, _ in factors], dtype=object)),
                 "factor_description": ("factor", np.array([d for _, d in factors],
                                                           dtype=object))},

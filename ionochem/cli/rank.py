@@ -6,6 +6,7 @@ The analysis is :mod:`ionochem.analysis.rank` on the exact sensitivities of
 
 from __future__ import annotations
 
+from ionochem.analysis.units import MEMBERS_HELP
 from ionochem.cli.compare import baseline_model
 from ionochem.cli.options import (
     check_output,
@@ -31,6 +32,7 @@ def register(subparsers):
                         "peak density in the range (default 0.01; 0: every level)")
     r.add_argument("--top", type=int, default=10, metavar="N",
                    help="reactions listed per species (default 10)")
+    r.add_argument("--members", action="store_true", help=MEMBERS_HELP)
     r.add_argument("-o", "--output", help="write sensitivities and rankings (netCDF)")
     r.add_argument("--plot", help="write the heat map and bar chart (PNG, PDF, SVG)")
     r.add_argument("--csv", metavar="FILE", help="write the printed ranking as CSV")
@@ -68,11 +70,16 @@ def cmd_rank(args):
     print(f"normalized sensitivities S = d ln n / d ln k over {lo:g}-{hi:g} km, at the levels "
           f"where each species is at least {share:g} of its peak (factors other than "
           "reactions: d ln n / d ln factor)")
+    print("rows are reactions one by one (family levels apart)" if args.members else
+          "rows are units of analysis: a reaction, a whole family of levels (ID(v)) or a "
+          "tie of the list, S = d ln n / d ln (one multiplier of all members); --members "
+          "ranks the members apart")
     csv_table = None
     for s in species:
         for by, what in (("max", "largest |S|"), ("mean", "altitude-mean |S|")):
-            rows = rank_reactions(sens, s, rng, args.top, by=by, min_share=share)
-            table = ranking_table(rows, by)
+            rows = rank_reactions(sens, s, rng, args.top, by=by, min_share=share,
+                                  members=args.members)
+            table = ranking_table(rows, by, args.members)
             print(f"{s}: top {len(rows)} by {what}")
             print(table.text())
             if by == "max":
@@ -84,14 +91,15 @@ def cmd_rank(args):
     if args.plot:
         from ionochem.plot.sensitivity import plot_sensitivity
         plot_sensitivity(sens, args.plot, species=species, altitude_range=rng, top=args.top,
-                         min_share=share)
+                         min_share=share, members=args.members)
         print(f"wrote {args.plot}")
     return 0
 
 
-def ranking_table(rows, by):
+def ranking_table(rows, by, by_members=False):
     from ionochem.cli.options import Table
-    table = Table(["#", "reaction", "S at max", "at km", "mean |S|", "equation"],
+    table = Table(["#", "reaction" if by_members else "unit", "S at max", "at km",
+                   "mean |S|", "equation"],
                   align=[">", "<", ">", ">", ">", "<"])
     for r in rows:
         place = r.rank_max if by == "max" else r.rank_mean
@@ -110,12 +118,18 @@ def _extend(acc, species, table):
     return acc
 
 
+#: |S_eff| below this is round-off of a family whose levels react alike: not listed.
+SHOWN = 1e-6
+
+
 def _print_effective(model, sens, species, rng, top):
-    """For the level species asked for (or their family totals): which rates move the
-    effective rate coefficient of each family that consumes the levels."""
+    """For the level species asked for (or their family totals): how each family's own
+    levels, and the other units of analysis, move the effective rate coefficient of each
+    family that consumes the levels."""
     import numpy as np
 
     from ionochem.analysis.levels import effective_rate_sensitivity
+    from ionochem.analysis.units import sum_over_units, unit_map
     from ionochem.cli.options import Table
     totals = {s.split("(v=")[0] if "(v=" in s else s for s in species}
     eff = effective_rate_sensitivity(model, sens)
@@ -129,18 +143,41 @@ def _print_effective(model, sens, species, rng, top):
     if rng is not None:
         var = var.sel(altitude=slice(*rng))
     alt = var["altitude"].values
-    table = Table(["family reaction", "reaction", "S_eff at max", "at km"],
+    umap = unit_map(model)
+    ids = [str(r) for r in var["reaction"].values]
+    own_of = model.reaction_list.families
+    table = Table(["family", "rate changed", "S_eff at max", "at km"],
                   align=["<", "<", ">", ">"])
+
+    def at_max(vals):
+        mx = np.nanmax(np.where(np.isfinite(vals), np.abs(vals), -1.0), axis=-1)
+        i = np.nanargmax(np.where(np.isfinite(vals), np.abs(vals), -1.0), axis=-1)
+        return mx, i
+
+    k = model.rate_coefficients()
+    shown = []
     for fam in fams:
         vals = var.sel(family_reaction=fam).values                 # (R, A)
-        mx = np.nanmax(np.where(np.isfinite(vals), np.abs(vals), -1.0), axis=1)
-        for j in np.argsort(-mx, kind="stable")[:top]:
-            if mx[j] <= 0:
-                continue
-            i = int(np.nanargmax(np.where(np.isfinite(vals[j]), np.abs(vals[j]), -1.0)))
-            table.add(fam, str(var["reaction"].values[j]), f"{vals[j, i]:+.4f}", f"{alt[i]:g}")
+        own = [ids.index(m) for m in own_of.get(fam, ())]
+        if own and np.allclose(k[:, own], k[:, own[:1]], rtol=1e-12, atol=0.0):
+            continue            # every level at one rate: k_eff is that rate
+        shown.append(fam)
+        for j in own:
+            mx, i = at_max(vals[j])
+            if mx > SHOWN:
+                table.add(fam, ids[j], f"{vals[j, i]:+.4f}", f"{alt[i]:g}")
+        others = sum_over_units(np.where(np.isin(np.arange(len(ids)), own)[:, None], 0.0,
+                                         vals), umap, 0)           # (U, A)
+        mx, at = at_max(others)
+        for u in np.argsort(-mx, kind="stable")[:top]:
+            if mx[u] > SHOWN:
+                table.add(fam, f"{umap.names[u]} (unit)", f"{others[u, at[u]]:+.4f}",
+                          f"{alt[at[u]]:g}")
+    if not shown:
+        return
     print("effective (population-weighted) rate coefficients of the families consuming "
-          f"{', '.join(sorted(totals & set(eff['family_species'].values)))}: "
-          "S_eff = d ln k_eff / d ln k, largest first")
+          f"{', '.join(sorted(totals & set(eff['family_species'].values)))} whose levels "
+          "react at different rates: "
+          "S_eff = d ln k_eff / d ln k of each family's own levels, then the other units "
+          "with the largest |S_eff| (the family's own levels left out of its unit)")
     print(table.text())
-

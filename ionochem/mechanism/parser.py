@@ -27,6 +27,7 @@ from ionochem.mechanism.species import (
     format_elements,
     parse_species,
 )
+from ionochem.mechanism.units import Tie, analysis_units, check_ties, parse_tie
 
 __all__ = ["Reaction", "ReactionList", "ReactionWarning", "parse_reaction_list",
            "parse_reaction_text", "MAX_LEVELS"]
@@ -154,6 +155,8 @@ class ReactionList:
         The ``@default f = ...`` expression.
     warnings : list of ReactionWarning
         Things that parse but look wrong (a species produced and never lost).
+    ties : tuple of Tie
+        The ``@unit NAME = ...`` lines (:mod:`ionochem.mechanism.units`), checked.
     """
 
     path: str
@@ -162,6 +165,12 @@ class ReactionList:
     families: dict[str, tuple[str, ...]]
     default_f: CompiledExpr | None
     warnings: list[ReactionWarning] = field(default_factory=list)
+    ties: tuple[Tie, ...] = ()
+
+    @property
+    def units(self):
+        """The units of analysis (plain reactions, families, ties), in list order."""
+        return analysis_units(self.reactions, self.ties)
 
     @property
     def ids(self) -> tuple[str, ...]:
@@ -463,15 +472,23 @@ class _Reader:
         self.family_lines: dict[str, int] = {}
         self.default_f: CompiledExpr | None = None
         self.default_line: int | None = None
+        self.ties: list[Tie] = []
 
     def directive(self, text: str):
         ctx = self.ctx
+        unit = re.fullmatch(r"@unit(?:\s+(.*))?", text.strip(), flags=re.DOTALL)
+        if unit is not None:
+            try:
+                self.ties.append(parse_tie(unit.group(1) or "", ctx.line))
+            except ValueError as exc:
+                ctx.fail(str(exc))
+            return
         m = re.fullmatch(r"@default\s+([A-Za-z_]\w*)\s*=(.*)", text.strip())
         if not m:
             word = text.strip().split()[0] if text.strip() else "@"
             if word != "@default":
-                ctx.fail(f"unknown directive '{word[:30]}' (the only directive is "
-                         "'@default f = EXPR')")
+                ctx.fail(f"unknown directive '{word[:30]}' (the directives are "
+                         "'@default f = EXPR' and '@unit NAME = ID, ID, ...')")
             ctx.fail("write the default as '@default f = EXPR'")
         if m.group(1) != "f":
             ctx.fail(f"only f can have a default ('@default f = EXPR'), not "
@@ -597,8 +614,11 @@ def _parse(text: str, path: str, base_dir: Path, digest: str) -> ReactionList:
         else:
             reader.entry(entry)
     reactions = tuple(reader.reactions)
+    problem = check_ties(reader.ties, {r.id for r in reactions}, reader.families)
+    if problem is not None:
+        raise ReactionListError(problem[1], file=path, line=problem[0])
     return ReactionList(path, digest, reactions, dict(reader.families), reader.default_f,
-                        _warnings(reactions, path))
+                        _warnings(reactions, path), tuple(reader.ties))
 
 
 def parse_reaction_text(text: str, path: str = "<text>", base_dir=".") -> ReactionList:

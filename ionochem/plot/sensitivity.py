@@ -31,7 +31,7 @@ NEGATIVE = "#2166ac"
 
 
 def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
-                       title=None, by="max", min_share=DEFAULT_MIN_SHARE):
+                       title=None, by="max", min_share=DEFAULT_MIN_SHARE, members=False):
     """Heat map and bar chart of the top ``top`` reactions (and environment factors) of each
     species, ranked as :func:`ionochem.analysis.rank.rank_reactions` ranks them.
 
@@ -51,6 +51,8 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
     min_share : float
         Rank over the levels where the species is at least this share of its peak density;
         the other levels are hatched on the heat map.
+    members : bool
+        Rows are reactions one by one (family levels apart) instead of units of analysis.
 
     Returns
     -------
@@ -64,7 +66,8 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
     species = list(species) if species else default_species(sens_ds["species"].values)
     panels = []
     for s in species:
-        rows = rank_reactions(sens_ds, s, altitude_range, top, by=by, min_share=min_share)
+        rows = rank_reactions(sens_ds, s, altitude_range, top, by=by, min_share=min_share,
+                              members=members)
         if rows:
             panels.append((s, rows))
     if not panels:
@@ -76,7 +79,7 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
                              layout="constrained")
     hatched = False
     for (s, rows), (ax_h, ax_b) in zip(panels, axes, strict=True):
-        ids, _, S, alt = sensitivity_matrix(sens_ds, s, altitude_range)
+        ids, _, S, alt = sensitivity_matrix(sens_ds, s, altitude_range, members=members)
         matters = where_it_matters(sens_ds, s, altitude_range, min_share)
         pick = [ids.index(r.reaction) for r in rows]
         M = S[pick]                                        # (top, level)
@@ -139,7 +142,7 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
 
 
 def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10,
-                     title=None, by="max", min_share=DEFAULT_MIN_SHARE):
+                     title=None, by="max", min_share=DEFAULT_MIN_SHARE, members=False):
     """Write :func:`sensitivity_figure` to ``path`` (PNG, PDF or SVG, from the suffix).
 
     Returns
@@ -147,7 +150,7 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
     Path
     """
     fig = sensitivity_figure(sens_ds, species=species, altitude_range=altitude_range, top=top,
-                             title=title, by=by, min_share=min_share)
+                             title=title, by=by, min_share=min_share, members=members)
     return save_figure(fig, path)
 
 
