@@ -107,17 +107,26 @@ def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=N
     return [int(j) for j in order[:int(top)]]
 
 
-def _problem(names, method):
+def _problem(names, method, groups=None):
     M = len(names)
     if method == "sobol":
-        return {"num_vars": M, "names": list(names), "bounds": [[0.0, 1.0]] * M,
-                "dists": ["norm"] * M}
-    return {"num_vars": M, "names": list(names), "bounds": [list(MORRIS_RANGE)] * M}
+        out = {"num_vars": M, "names": list(names), "bounds": [[0.0, 1.0]] * M,
+               "dists": ["norm"] * M}
+    else:
+        out = {"num_vars": M, "names": list(names), "bounds": [list(MORRIS_RANGE)] * M}
+    if groups is not None and len(set(groups)) < M:
+        out["groups"] = list(groups)
+    return out
 
 
-def design(names, samples, method, seed):
-    """The SALib sample matrix of ε (runs, M) for ``method``."""
-    problem = _problem(names, method)
+def design(names, samples, method, seed, groups=None):
+    """The SALib sample matrix of ε (runs, M) for ``method``.
+
+    ``groups`` (one name per factor) makes SALib treat the factors of one name as one group
+    (Sobol: the group's indices; Morris: the group moved as one); the indices then come per
+    group, in order of first appearance.
+    """
+    problem = _problem(names, method, groups)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         if method == "sobol":
@@ -134,8 +143,14 @@ def design(names, samples, method, seed):
 def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitudes_km=None,
                        species=None, environment=None, batch=None, workers=1,
                        scheduler=None, output=None, resume=False, progress=False,
-                       on_batch=None, num_resamples=100):
-    """Sobol indices or Morris screening of ln n for the most uncertain reactions.
+                       on_batch=None, num_resamples=100, member_correlation=1.0,
+                       members=False):
+    """Sobol indices or Morris screening of ln n for the most uncertain units of analysis.
+
+    A factor is a unit (a reaction, a whole family, a tie): with ``member_correlation`` 1
+    one normal moves all its members; below 1 the unit's shared normal and its members' own
+    normals form one SALib group (Sobol and Morris indices per group). With ``members`` the
+    reactions are the factors, drawn independently (needs ``member_correlation`` 0).
 
     Parameters
     ----------
@@ -145,7 +160,7 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         sequence balanced). Morris: number of trajectories (N (M + 1) solves).
     method : {"sobol", "morris"}
     top : int
-        Number M of reactions taken as factors (default 10).
+        Number M of units (reactions with ``members``) taken as factors (default 10).
     seed : int
         Seed of the SALib design and of its bootstrap.
     altitudes_km : sequence of float, optional
@@ -174,7 +189,10 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         raise InputError("--samples must be at least 2", file="--samples")
     if int(top) < 1:
         raise InputError("--top must be at least 1", file="--top")
-    kernel = SampleKernel(model, environment)
+    if members and member_correlation != 0:
+        raise InputError("ranking the members of a unit apart needs independent members: "
+                         "give --member-correlation 0", file="--members")
+    kernel = SampleKernel(model, environment, member_correlation)
     central = model.solve()
     names = list(central["species"].values)
     species = list(species) if species else default_species(names)
@@ -184,9 +202,10 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
                          f"{', '.join(names)}", file="--species")
     sp_idx = [names.index(s) for s in species]
     lv_idx = nearest_levels(model.altitude_km, altitudes_km)
-    chosen, factor_names, columns, lin_sel = _choose_factors(
-        model, kernel, central, names, sp_idx, lv_idx, top)
-    problem, X = design(factor_names, samples, method, seed)
+    factor_names, columns, groups, lin_sel = _choose_factors(
+        model, kernel, central, names, sp_idx, lv_idx, top, members)
+    column_names = [kernel.factor_names[c] for c in columns]
+    problem, X = design(column_names, samples, method, seed, groups)
     runs = X.shape[0]
     Z = np.zeros((runs, kernel.width))
     Z[:, columns] = X
@@ -208,11 +227,15 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     sub = dens[:, lv_idx][:, :, sp_idx]                               # (runs, L, Ns)
     with np.errstate(divide="ignore", invalid="ignore"):
         Y = np.where(sub > 0, np.log(np.where(sub > 0, sub, 1.0)), np.nan)
-    indices = _indices(problem, X, Y, method, seed, num_resamples, len(columns))
+    indices = _indices(problem, X, Y, method, seed, num_resamples, len(factor_names))
     ds = _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, lv_idx,
                          factor_names)
     ds.attrs.update({"method": method, "samples": samples, "model_runs": int(runs),
-                     "seed": int(seed), "top": int(top)})
+                     "seed": int(seed), "top": int(top),
+                     "member_correlation": float(kernel.member_correlation),
+                     "factor_kind": "reaction" if members else "unit of analysis",
+                     "factor_columns": ", ".join(f"{n} ({g})" for n, g in
+                                                 zip(column_names, groups))})
     if method == "morris":
         ds.attrs["morris_design"] = (f"{MORRIS_LEVELS} levels of eps on the uniform grid "
                                      f"{MORRIS_RANGE[0]:g}..{MORRIS_RANGE[1]:g}; effects "
@@ -220,27 +243,45 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     return ds
 
 
-def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top):
-    """The ``top`` reactions by first-order variance share, plus the varied environment.
+def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=False):
+    """The ``top`` units (reactions with ``members``) by first-order variance share, plus
+    the varied environment.
 
-    Returns the chosen reaction indices, the factor names, their columns in the draws, and
-    the first-order shares (species, factor, level) of the factors at the chosen levels.
+    Returns the factor names, the columns of the draws that SALib varies with the group
+    (factor) of each, and the first-order shares (species, factor, level) of the factors at
+    the chosen levels.
     """
     from ionochem.analysis.sensitivity import sensitivity
     sens = sensitivity(model, central)
-    lin_r, lin_e = linear_variance_shares(model, kernel, sens)
+    lin_r, lin_e = linear_variance_shares(model, kernel, sens, units=not members)
     sens_names = list(sens["species"].values)
     order = [sens_names.index(s) for s in names]
     lin_r, lin_e = lin_r[order], lin_e[order]
-    chosen = select_top_reactions(lin_r, sp_idx, lv_idx, top, kernel.varied_reactions())
     env_cols = kernel.environment_columns()
-    factor_names = [kernel.reactions[j] for j in chosen] + list(env_cols)
-    columns = chosen + list(env_cols.values())
+    sampled = kernel.sampled_columns()
+    if members:
+        chosen = select_top_reactions(lin_r, sp_idx, lv_idx, top, kernel.varied_reactions())
+        factor_names = [kernel.reactions[j] for j in chosen]
+        columns = list(chosen)
+        groups = list(factor_names)
+    else:
+        live_units = sorted({u for _, u in sampled})
+        chosen = select_top_reactions(lin_r, sp_idx, lv_idx, top, live_units)
+        factor_names = [kernel.unit_names[u] for u in chosen]
+        columns, groups = [], []
+        for u in chosen:
+            for c, owner in sampled:
+                if owner == u:
+                    columns.append(c)
+                    groups.append(kernel.unit_names[u])
+    factor_names += list(env_cols)
+    columns += list(env_cols.values())
+    groups += list(env_cols)
     if not columns:
         raise InputError("no uncertain reaction or environment factor to analyse (every f "
                          "is 1)", file="--method")
     lin_all = np.concatenate([lin_r[:, chosen], lin_e], axis=1)       # (Nsp, F, A)
-    return chosen, factor_names, columns, lin_all[sp_idx][:, :, lv_idx]
+    return factor_names, columns, groups, lin_all[sp_idx][:, :, lv_idx]
 
 
 def _indices(problem, X, Y, method, seed, num_resamples, n_factors):
@@ -299,8 +340,11 @@ def _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, l
         attrs=provenance(model))
     ds.attrs.update({
         "factors": ", ".join(factor_names),
-        "factor_definition": "eps_j standard normal, ln k_j = ln k_j + eps_j ln f_j(level), "
-                             "shared by every level; other rates at their central values",
+        "factor_definition": "a unit of analysis (or a reaction with --members): its "
+                             "members' ln k_j = ln k_j + eps_j ln f_j(altitude) with eps_j = "
+                             "sqrt(rho) z_unit + sqrt(1 - rho) z_j, z standard normals shared "
+                             "by every altitude; the z of one factor form one SALib group; "
+                             "other rates at their central values",
         "environment_spreads": ", ".join(f"{k}={v:g}" for k, v in kernel.environment.items()),
     })
     return ds

@@ -99,8 +99,9 @@ class SampleKernel:
         coupled system), at the nominal temperatures.
     """
 
-    def __init__(self, model, environment=None):
+    def __init__(self, model, environment=None, member_correlation=1.0):
         environment = dict(environment or {})
+        self._set_units(model, member_correlation)
         mech = model.mechanism
         self.mechanism = _light_mechanism(mech)
         k0 = np.asarray(model.rate_coefficients(), float)
@@ -143,7 +144,8 @@ class SampleKernel:
         self.altitude_km = np.asarray(model.altitude_km, float)
         self.reactions = list(model.reactions)
         self.species = list(model.species)
-        self.factor_names = self.reactions + self.given_names + [ENV_EUV, ENV_TE]
+        self.factor_names = (self.reactions + self.given_names + [ENV_EUV, ENV_TE]
+                             + [self.unit_names[u] for u in self.shared_units])
         self.R, self.G = R, len(self.given_names)
         # O+ transport couples the levels of each sample's column; its coefficients stay at
         # the nominal temperatures (a sampled Te changes the rates only).
@@ -160,11 +162,70 @@ class SampleKernel:
             self.n_central = None
         self.n_nominal = self.n_central if self.transport is not None else None
 
+    def _set_units(self, model, rho):
+        """The units of analysis and the correlation of their members' draws."""
+        from ionochem.analysis.units import unit_map
+        rho = float(rho)
+        if not 0.0 <= rho <= 1.0:
+            raise InputError(f"member correlation {rho:g} must be between 0 and 1",
+                             file="--member-correlation")
+        umap = unit_map(model)
+        self.member_correlation = rho
+        self.unit_names = list(umap.names)
+        self.unit_kinds = list(umap.kinds)
+        self.unit_index = umap.index
+        sizes = np.bincount(umap.index, minlength=len(umap.names))
+        #: Units of two or more members, each with one shared normal (after Te) unless the
+        #: members are drawn independently.
+        self.shared_units = [int(u) for u in np.nonzero(sizes > 1)[0]] if rho > 0 else []
+
     # -------------------------------------------------------------- layout of the draws
     @property
     def width(self) -> int:
-        """Number of standard normals per sample (columns of ``z``)."""
-        return self.R + self.G + 2
+        """Number of standard normals per sample (columns of ``z``): one per reaction, per
+        given species, ``euv``, ``Te``, then one per shared unit."""
+        return self.R + self.G + 2 + len(self.shared_units)
+
+    def unit_column(self, u) -> int | None:
+        """Column of z of the shared normal of unit ``u`` (None: a plain reaction, or
+        members drawn independently)."""
+        try:
+            return self.R + self.G + 2 + self.shared_units.index(int(u))
+        except ValueError:
+            return None
+
+    def member_draws(self, z):
+        """ε (B, R): each reaction's standard normal. A member of a unit of several
+        reactions draws √ρ z_unit + √(1 − ρ) z_own, ρ the member correlation (1: the whole
+        unit one draw; 0: independent); a plain reaction draws z_own."""
+        z = np.asarray(z, float)
+        eps = z[:, :self.R].copy()
+        if not self.shared_units:
+            return eps
+        a = np.sqrt(self.member_correlation)
+        b = np.sqrt(max(0.0, 1.0 - self.member_correlation))
+        cols = np.array([self.unit_column(u) if self.unit_column(u) is not None else -1
+                         for u in self.unit_index])
+        shared = cols >= 0
+        eps[:, shared] = a * z[:, cols[shared]] + b * eps[:, shared]
+        return eps
+
+    def sampled_columns(self):
+        """The columns of z that move some rate, with the unit each belongs to:
+        ``[(column, unit index)]`` — a plain reaction's own, a shared unit's normal, and the
+        members' own normals when ρ < 1. Only reactions with an uncertainty count."""
+        varied = set(int(j) for j in self.varied_reactions())
+        out = []
+        for u in range(len(self.unit_names)):
+            members = [j for j in np.nonzero(self.unit_index == u)[0] if j in varied]
+            if not members:
+                continue
+            col = self.unit_column(u)
+            if col is not None:
+                out.append((col, u))
+            if col is None or self.member_correlation < 1.0:
+                out += [(int(j), u) for j in members]
+        return out
 
     @property
     def te_column(self) -> int:
@@ -195,7 +256,8 @@ class SampleKernel:
         h = hashlib.sha256()
         for arr in (self.k0, self.sigma_low, self.sigma_high, self.given0,
                     self.photo_mask.astype(np.int8), self.ln_given,
-                    np.array([self.ln_euv, self.ln_te, self.rtol]), self.altitude_km,
+                    np.array([self.ln_euv, self.ln_te, self.rtol, self.member_correlation]),
+                    self.unit_index, self.altitude_km,
                     self.mechanism.nu_all, self.mechanism.slots):
             a = np.ascontiguousarray(arr)
             h.update(str(a.shape).encode())
@@ -220,7 +282,7 @@ class SampleKernel:
         """
         z = np.asarray(z, float)
         B, R, G = z.shape[0], self.R, self.G
-        eps = z[:, None, :R]
+        eps = self.member_draws(z)[:, None, :]
         d = np.where(eps > 0, eps * self.sigma_high[None], eps * self.sigma_low[None])
         if self.ln_euv:
             d = d + (z[:, R + G] * self.ln_euv)[:, None, None] * self.photo_mask

@@ -163,7 +163,8 @@ def species_samples(model, kernel, z, n):
 
 
 def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers=1,
-                scheduler=None, output=None, resume=False, progress=False, on_batch=None):
+                scheduler=None, output=None, resume=False, progress=False, on_batch=None,
+                member_correlation=1.0):
     """Monte Carlo over log-normal rate (and environment) factors.
 
     Parameters
@@ -183,6 +184,9 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
         is written, or keeps it).
     resume : bool
         Continue the store of ``output``.
+    member_correlation : float
+        Correlation ρ of the draws of two members of one unit of analysis (levels of a
+        family, branches of a tie): 1 (default) one draw per unit, 0 independent members.
 
     Returns
     -------
@@ -200,7 +204,7 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
     seed = int(seed)
     if seed < 0:
         raise InputError("--seed must be a non-negative integer", file="--seed")
-    kernel = SampleKernel(model, environment)
+    kernel = SampleKernel(model, environment, member_correlation)
     store = open_store(output, manifest_for(model, kernel, "montecarlo", samples, seed),
                        resume=resume)
 
@@ -222,7 +226,7 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
 def summarise(model, kernel, z, n, *, seed):
     """The Monte Carlo dataset from the draws ``z`` (N, width) and densities ``n``."""
     from ionochem.analysis.sensitivity import sensitivity
-    from ionochem.io.dataset import ALTITUDE_ATTRS, provenance
+    from ionochem.io.dataset import ALTITUDE_ATTRS, provenance, unit_coordinates
     N, A = n.shape[0], kernel.altitude_km.size
     dens, names, roles = species_samples(model, kernel, z, n)      # (N, A, Nsp)
     q = np.quantile(dens, QUANTILES, axis=0)                       # (Q, A, Nsp)
@@ -232,20 +236,21 @@ def summarise(model, kernel, z, n, *, seed):
         logd = np.where(dens > 0, np.log(np.where(dens > 0, dens, 1.0)), np.nan)
     log_std = np.std(logd, axis=0, ddof=1)                         # (A, Nsp)
     env_cols = kernel.environment_columns()
-    react = kernel.varied_reactions()
-    cols = list(react) + list(env_cols.values())
+    sampled = kernel.sampled_columns()                             # [(column, unit)]
+    cols = [c for c, _ in sampled] + list(env_cols.values())
     share, explained, how = sample_variance_shares(z[:, cols], logd.reshape(N, -1))
-    Nsp, R = len(names), kernel.R
+    Nsp, R, U = len(names), kernel.R, len(kernel.unit_names)
     share = share.reshape(len(cols), A, Nsp)
-    vs = np.zeros((Nsp, R, A))
-    vs[:, react, :] = np.transpose(share[:len(react)], (2, 0, 1))
     nan_out = np.isnan(share).all(axis=0).T                        # (Nsp, A)
+    vs, us = _reaction_and_unit_shares(kernel, sampled, share, (Nsp, R, U, A))
     vs = np.where(nan_out[:, None, :], np.nan, vs)
+    us = np.where(nan_out[:, None, :], np.nan, us)
     lin_r, lin_e = linear_variance_shares(model, kernel, sens)
+    lin_u, _ = linear_variance_shares(model, kernel, sens, units=True)
     # The sensitivity dataset lists the same species in the same order as Model.species_table.
     sens_names = list(sens["species"].values)
     order = [sens_names.index(s) for s in names]
-    lin_r, lin_e = lin_r[order], lin_e[order]
+    lin_r, lin_e, lin_u = lin_r[order], lin_e[order], lin_u[order]
     dens0 = central["density"].values
     data = {
         "density_quantiles": (("quantile", "species", "altitude"),
@@ -261,7 +266,16 @@ def summarise(model, kernel, z, n, *, seed):
                              "over the samples"}),
         "variance_share": (("species", "reaction", "altitude"), vs,
                            {"units": "1", "long_name": "share of var(ln density) carried "
-                            f"by each reaction's uncertainty, from the samples ({how})"}),
+                            f"by each reaction's own draw, from the samples ({how}); NaN "
+                            "for a member of a unit drawn as one (member_correlation 1)"}),
+        "variance_share_unit": (("species", "unit", "altitude"), us,
+                                {"units": "1", "long_name": "share of var(ln density) carried "
+                                 "by each unit of analysis (a reaction, a family, a tie), "
+                                 f"from the samples ({how})"}),
+        "variance_share_linear_unit": (("species", "unit", "altitude"), lin_u,
+                                       {"units": "1", "long_name": "first-order share of each "
+                                        "unit, rho (sum S_j ln f_j)^2 + (1 - rho) sum "
+                                        "(S_j ln f_j)^2 over its members, over the total"}),
         "variance_share_linear": (("species", "reaction", "altitude"), lin_r,
                                   {"units": "1", "long_name": "first-order share "
                                    "S_ij^2 ln^2 f_j / sum, from the exact local "
@@ -281,9 +295,10 @@ def summarise(model, kernel, z, n, *, seed):
                  {"long_name": "solved, fixed, electron, balance or derived"}),
         "altitude": ("altitude", kernel.altitude_km, ALTITUDE_ATTRS),
         "reaction": ("reaction", np.array(kernel.reactions, dtype=object)),
+        **unit_coordinates(model),
     }
     if env_cols:
-        es = np.transpose(share[len(react):], (2, 0, 1))
+        es = np.transpose(share[len(sampled):], (2, 0, 1))
         es = np.where(nan_out[:, None, :], np.nan, es)
         data["variance_share_environment"] = (
             ("species", "environment_factor", "altitude"), es,
@@ -307,9 +322,8 @@ def summarise(model, kernel, z, n, *, seed):
         "samples": int(N),
         "seed": int(seed),
         "quantiles": ", ".join(f"{x:g}" for x in QUANTILES),
-        "sampling": "ln k_j = ln k_j + eps_j ln f_j(level), one standard normal per reaction "
-                    "per sample shared by every level (rate errors are systematic); sample i "
-                    "draws from SeedSequence(seed, spawn_key=(i,))",
+        "sampling": SAMPLING_NOTE,
+        "member_correlation": float(kernel.member_correlation),
         "band_interpretation": "a table's _low/_high band is read as the one-sigma (68 %) "
                                "range: two-piece log-normal with median at the tabulated value",
         "banded_reactions": ", ".join(kernel.reactions[j] for j in kernel.banded),
@@ -317,6 +331,32 @@ def summarise(model, kernel, z, n, *, seed):
         "variance_share_method": how,
     })
     return ds
+
+
+SAMPLING_NOTE = (
+    "ln k_j = ln k_j + eps_j ln f_j(altitude), one draw per reaction per sample shared by "
+    "every altitude (rate errors are systematic); the members of a unit of analysis (levels "
+    "of a family, branches of a tie) draw eps_j = sqrt(rho) z_unit + sqrt(1 - rho) z_j with "
+    "rho = member_correlation (1: one draw per unit); sample i draws from "
+    "SeedSequence(seed, spawn_key=(i,))")
+
+
+def _reaction_and_unit_shares(kernel, sampled, share, shape):
+    """Per-reaction shares (own column; 0 if not varied, NaN if only a shared draw moves it)
+    and per-unit shares (the sum over the unit's columns) from the regression shares."""
+    Nsp, R, U, A = shape
+    vs = np.zeros((Nsp, R, A))
+    us = np.zeros((Nsp, U, A))
+    own = {c for c, _ in sampled if c < R}
+    for j in kernel.varied_reactions():
+        if int(j) not in own:
+            vs[:, j, :] = np.nan
+    for i, (c, u) in enumerate(sampled):
+        part = share[i].T                                            # (Nsp, A)
+        if c < R:
+            vs[:, c, :] = part
+        us[:, u, :] += part
+    return vs, us
 
 
 def remove_store(output):

@@ -66,37 +66,14 @@ class UnitMap:
         return len(self.names) < len(self.reactions)
 
 
-def _family_label(reaction) -> str:
-    eq = reaction.equation
-    if reaction.level is not None:
-        eq = eq.replace(f"(v={reaction.level})", "(v)")
-    return eq
-
-
 def unit_map(model) -> UnitMap:
-    """The unit map of a model's reactions (its ``units``)."""
-    rx = {r.id: r for r in model.reaction_objects}
-    ids = tuple(model.reactions)
-    pos = {rid: j for j, rid in enumerate(ids)}
-    index = np.zeros(len(ids), int)
-    names, kinds, labels = [], [], []
-    for u, unit in enumerate(model.units):
-        names.append(unit.name)
-        kinds.append(unit.kind)
-        seen = []
-        for m in unit.members:
-            index[pos[m]] = u
-            label = _family_label(rx[m])
-            if label not in seen:
-                seen.append(label)
-        text = "; ".join(seen)
-        if unit.kind == "family" or (unit.kind == "tied" and any("(v)" in p
-                                                                  for p in unit.parts)):
-            levels = sorted({rx[m].level for m in unit.members if rx[m].level is not None})
-            if levels:
-                text += f"  [v = {levels[0]}..{levels[-1]}]"
-        labels.append(text)
-    return UnitMap(tuple(names), tuple(kinds), tuple(labels), index, ids)
+    """The unit map of a model's reactions (``model.units``)."""
+    import xarray as xr
+
+    from ionochem.io.dataset import unit_coordinates
+    coords = dict(unit_coordinates(model))
+    coords["reaction"] = ("reaction", np.array(model.reactions, dtype=object))
+    return unit_map_from_dataset(xr.Dataset(coords=coords))
 
 
 def unit_map_from_dataset(ds) -> UnitMap:
@@ -130,21 +107,22 @@ def unit_map_from_dataset(ds) -> UnitMap:
 
 
 def unit_coords(umap: UnitMap) -> dict:
-    """Coordinates that record the units in a dataset: ``reaction_unit`` (reaction) and
-    ``unit`` with ``unit_kind`` and ``unit_equation`` (unit)."""
+    """The coordinates of :func:`ionochem.io.dataset.unit_coordinates` from a unit map."""
     return {
         "reaction_unit": ("reaction", np.array([umap.names[i] for i in umap.index],
-                                               dtype=object),
-                          {"long_name": "unit of analysis the reaction belongs to (itself, "
-                           "its vibrational family, or a tie of the reaction list)"}),
-        "unit": ("unit", np.array(umap.names, dtype=object),
-                 {"long_name": "unit of analysis: a reaction, a family of vibrational "
-                  "levels, or reactions tied in the reaction list"}),
+                                               dtype=object), {"long_name": UNIT_OF}),
+        "unit": ("unit", np.array(umap.names, dtype=object), {"long_name": UNIT}),
         "unit_kind": ("unit", np.array(umap.kinds, dtype=object),
                       {"long_name": "reaction, family or tied"}),
         "unit_equation": ("unit", np.array(umap.labels, dtype=object),
                           {"long_name": "equations of the unit's members"}),
     }
+
+
+UNIT_OF = ("unit of analysis the reaction belongs to (itself, its vibrational family, or a "
+           "tie of the reaction list)")
+UNIT = ("unit of analysis: a reaction, a family of vibrational levels, or reactions tied in "
+        "the reaction list")
 
 
 def sum_over_units(values, umap: UnitMap, axis: int):

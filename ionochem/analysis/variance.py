@@ -67,8 +67,14 @@ def sample_variance_shares(z_factors, log_dens):
     return share, explained, method
 
 
-def linear_variance_shares(model, kernel, sens):
+def linear_variance_shares(model, kernel, sens, *, units=False):
     """First-order shares S_ij² σ_j² / Σ from the exact local sensitivities.
+
+    The total Σ is that of the sampling: the members of a unit of analysis (a family, a
+    tie) are correlated with coefficient ρ = ``kernel.member_correlation``, so a unit
+    carries var_u = ρ (Σ_{j∈u} S_ij σ_j)² + (1 − ρ) Σ_{j∈u} (S_ij σ_j)² and Σ = Σ_u var_u +
+    the environment's. A reaction's own share S_ij² σ_j² / Σ is what it would carry alone;
+    with ρ > 0 the members' shares do not add up to their unit's.
 
     Parameters
     ----------
@@ -80,6 +86,7 @@ def linear_variance_shares(model, kernel, sens):
     Returns
     -------
     reactions : ndarray (species, R, A)
+        (``units=True``: the unit shares, (species, U, A), in ``kernel.unit_names`` order.)
     environment : ndarray (species, E, A)
         For the varied environment factors, in ``kernel.environment_columns()`` order:
         ∂ln n/∂ln X is Σ_j S_ij (photo reactions) for ``euv``, Σ_j c_gj S_ij (c_gj the
@@ -89,6 +96,12 @@ def linear_variance_shares(model, kernel, sens):
     S = np.nan_to_num(sens["sensitivity"].values)             # (species, R, A)
     sig = kernel.log_sigma().T                                 # (R, A)
     var_r = S ** 2 * sig[None] ** 2
+    rho = kernel.member_correlation
+    U = len(kernel.unit_names)
+    onehot = np.zeros((U, S.shape[1]))
+    onehot[kernel.unit_index, np.arange(S.shape[1])] = 1.0
+    var_u = (rho * np.einsum("ur,srA->suA", onehot, S * sig[None]) ** 2
+             + (1.0 - rho) * np.einsum("ur,srA->suA", onehot, var_r))
     env_cols = kernel.environment_columns()
     mech = model.mechanism
     env = []
@@ -105,7 +118,9 @@ def linear_variance_shares(model, kernel, sens):
             ln = kernel.ln_given[kernel.given_names.index(name)]
         env.append(s ** 2 * ln ** 2)
     var_e = np.stack(env, axis=1) if env else np.zeros((S.shape[0], 0, S.shape[2]))
-    tot = var_r.sum(axis=1) + var_e.sum(axis=1)                # (species, A)
+    tot = var_u.sum(axis=1) + var_e.sum(axis=1)                # (species, A)
+    if units:
+        var_r = var_u
     with np.errstate(divide="ignore", invalid="ignore"):
         rs = np.where(tot[:, None] > 0, var_r / tot[:, None], np.nan)
         es = np.where(tot[:, None] > 0, var_e / tot[:, None], np.nan)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.analysis.units import MEMBERS_HELP
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     DEFAULT_REPORT_KM,
@@ -38,7 +39,9 @@ def register(subparsers):
     add_rate_change_options(r)
     r.add_argument("--budget", action="append", metavar="SPECIES@KM",
                    help="print the production and loss terms of a species at an altitude "
-                        "(transient runs: at the last output time)")
+                        "(transient runs: at the last output time); one line per unit of "
+                        "analysis (a whole family, a tie), see --members")
+    r.add_argument("--members", action="store_true", help=MEMBERS_HELP + " in budgets")
     r.add_argument("--altitudes", metavar="KM,KM,...",
                    help="heights of the printed table and of the transient figure "
                         f"(default {','.join(str(a) for a in DEFAULT_REPORT_KM)}; transient: "
@@ -126,7 +129,7 @@ def cmd_run(args):
             at = ds.isel(time=-1)
             print(f"budgets at the last output time, t = {float(at['time_s']):g} s")
         for name, km in budgets:
-            print(format_budget(budget_table(at, name, km)))
+            print(format_budget(budget_table(at, name, km, members=args.members)))
     write_outputs(args, ds, table)
     if args.plot:
         if transient and heights:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.analysis.units import MEMBERS_HELP
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
@@ -65,6 +66,12 @@ def register(subparsers):
     u.add_argument("--species", action="append", metavar="NAME",
                    help="sobol/morris: species analysed (repeatable; default N2+, O2+, NO+, "
                         "O+(total) or O+, e)")
+    u.add_argument("--member-correlation", type=float, default=None, metavar="RHO",
+                   help="correlation, 0 to 1, of the draws of two members of one unit of "
+                        "analysis (levels of a family, branches of a tie): 1 one draw per "
+                        "unit, 0 independent members (default: the scenario's "
+                        "uncertainty.member_correlation, else 1)")
+    u.add_argument("--members", action="store_true", help=MEMBERS_HELP)
     add_rate_change_options(u, "before sampling")
     u.add_argument("--reactions", action="append", metavar="FILE",
                    help="replacement entries (by id) applied before sampling (repeatable)")
@@ -110,6 +117,10 @@ def _check_args(args):
     if args.resume and not args.output:
         raise InputError("--resume needs -o OUT.nc (the samples are kept next to it)",
                          file="--resume")
+    rho = args.member_correlation
+    if rho is not None and not (0.0 <= rho <= 1.0):
+        raise InputError(f"{rho:g} must be between 0 and 1 (1: one draw per unit; 0: "
+                         "independent members)", file="--member-correlation")
     if args.method == "sobol" and args.samples & (args.samples - 1):
         print(f"note: --samples {args.samples} is not a power of 2; the Sobol' sequence is "
               "balanced only for powers of 2", file=sys.stderr)
@@ -143,7 +154,10 @@ def cmd_uncertainty(args):
     common = dict(seed=args.seed, environment=spreads, batch=args.batch,
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
                   resume=args.resume,
-                  progress=not args.no_progress and sys.stderr.isatty())
+                  progress=not args.no_progress and sys.stderr.isatty(),
+                  member_correlation=(scen.uncertainty.member_correlation
+                                      if args.member_correlation is None
+                                      else args.member_correlation))
     try:
         if args.method == "montecarlo":
             from ionochem.analysis.uncertainty import monte_carlo
@@ -151,14 +165,15 @@ def cmd_uncertainty(args):
         else:
             from ionochem.analysis.globalsens import global_sensitivity
             ds = global_sensitivity(model, args.samples, method=args.method, top=args.top,
-                                    altitudes_km=altitudes, species=args.species, **common)
+                                    altitudes_km=altitudes, species=args.species,
+                                    members=args.members, **common)
     except KeyboardInterrupt:
         if args.output:
             print(f"finished batches are kept in {args.output}.samples: run the same command "
                   "with --resume to continue", file=sys.stderr)
         raise
     if args.method == "montecarlo":
-        table = _print_montecarlo(ds)
+        table = _print_montecarlo(ds, members=args.members)
     else:
         table = _print_global(ds)
     if observed is not None:
@@ -196,7 +211,7 @@ def _main_species(names):
     return default_species(list(names))
 
 
-def _print_montecarlo(ds, out=None):
+def _print_montecarlo(ds, out=None, members=False):
     import numpy as np
     out = sys.stdout if out is None else out
     alt = ds["altitude"].values
@@ -221,19 +236,25 @@ def _print_montecarlo(ds, out=None):
             cells += [fmt_value(med).strip(), f"{fac:.2f}"]
         table.add(f"{a:.1f}", *cells)
     print(table.text(), file=out)
-    share = ds["variance_share"]
-    print("largest shares of var(ln n) (from the samples; first-order in brackets)", file=out)
-    shares = Table(["species", "altitude", "reaction", "share", "first-order"],
+    by_unit = not members and "variance_share_unit" in ds
+    suffix, dim = ("_unit", "unit") if by_unit else ("", "reaction")
+    share = ds["variance_share" + suffix]
+    rho = ds.attrs.get("member_correlation", 1.0)
+    print(f"largest shares of var(ln n) by {'unit of analysis' if by_unit else 'reaction'} "
+          f"(from the samples; first-order in brackets; members of a unit drawn with "
+          f"correlation {rho:g})", file=out)
+    shares = Table(["species", "altitude", dim, "share", "first-order"],
                    align=[">", ">", "<", ">", ">"])
     for s in species:
         for a in rows:
             v = share.sel(species=s, altitude=a).values
-            if not np.any(np.isfinite(v)):
+            lin = ds["variance_share_linear" + suffix].sel(species=s, altitude=a).values
+            pick = v if np.any(np.isfinite(v)) else lin
+            if not np.any(np.isfinite(pick)):
                 continue
-            j = int(np.nanargmax(v))
-            lin = float(ds["variance_share_linear"].sel(species=s, altitude=a).values[j])
-            shares.add(s, f"{a:g} km", ds["reaction"].values[j], f"{v[j]:.1%}",
-                       f"[{lin:.1%}]")
+            j = int(np.nanargmax(pick))
+            shares.add(s, f"{a:g} km", ds[dim].values[j],
+                       f"{v[j]:.1%}" if np.isfinite(v[j]) else "-", f"[{lin[j]:.1%}]")
     print(shares.text(), file=out)
     return table
 

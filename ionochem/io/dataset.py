@@ -239,6 +239,7 @@ def steady_variables(model, res, method_names):
         "reaction": ("reaction", np.array(model.reactions, dtype=object)),
         "equation": ("reaction", model.structural("equations", lambda: np.array(
             [_equation(r) for r in model.reaction_objects], dtype=object))),
+        **unit_coordinates(model),
     }
     data_vars.update(_environment_vars(model))
     from ionochem.io.level_outputs import level_output_vars
@@ -308,6 +309,45 @@ def _transport_vars(model, n):
                             "the lowest level, held in photochemical equilibrium)"}),
     }
     return out, _transport_attrs(model)
+
+
+def unit_coordinates(model):
+    """Coordinates naming the unit of analysis of each reaction (``model.units``: itself, its
+    vibrational family, or a tie of the list): ``reaction_unit`` (reaction), and ``unit``
+    with ``unit_kind`` and ``unit_equation`` (unit). Kept per model."""
+    return model.structural("unit_coordinates", lambda: _unit_coordinates(model))
+
+
+def _unit_coordinates(model):
+    rx = {r.id: r for r in model.reaction_objects}
+    of = {}
+    names, kinds, labels = [], [], []
+    for unit in model.units:
+        names.append(unit.name)
+        kinds.append(unit.kind)
+        seen = []
+        for m in unit.members:
+            of[m] = unit.name
+            r = rx[m]
+            eq = _equation(r)
+            eq = eq.replace(f"(v={r.level})", "(v)") if r.level is not None else eq
+            if eq not in seen:
+                seen.append(eq)
+        levels = sorted({rx[m].level for m in unit.members if rx[m].level is not None})
+        text = "; ".join(seen)
+        labels.append(text + (f"  [v = {levels[0]}..{levels[-1]}]" if levels else ""))
+    return {
+        "reaction_unit": ("reaction", np.array([of[r] for r in model.reactions], dtype=object),
+                          {"long_name": "unit of analysis the reaction belongs to (itself, "
+                           "its vibrational family, or a tie of the reaction list)"}),
+        "unit": ("unit", np.array(names, dtype=object),
+                 {"long_name": "unit of analysis: a reaction, a family of vibrational "
+                  "levels, or reactions tied in the reaction list"}),
+        "unit_kind": ("unit", np.array(kinds, dtype=object),
+                      {"long_name": "reaction, family or tied"}),
+        "unit_equation": ("unit", np.array(labels, dtype=object),
+                          {"long_name": "equations of the unit's members"}),
+    }
 
 
 def _equation(r):
@@ -380,6 +420,7 @@ def transient_dataset(model, times, n):
             "reaction": ("reaction", np.array(model.reactions, dtype=object)),
             "equation": ("reaction", np.array([_equation(r) for r in model.reaction_objects],
                                               dtype=object)),
+            **unit_coordinates(model),
         },
         attrs=provenance(model),
     )

@@ -35,6 +35,7 @@ from ionochem.io.scenario.sections import (
     Temperatures,
     Time,
     Transport,
+    Uncertainty,
     parse_budget,
 )
 from ionochem.io.scenario.values import _MISSING, ValueChecks, _kind
@@ -47,7 +48,7 @@ class SchemaValidator(ValueChecks):
         top = self.table(data, "", ("title", "reactions", "grid", "neutrals", "temperatures",
                                     "production", "solve", "changes", "location", "time",
                                     "sun", "geomagnetic", "photons", "output",
-                                    "transport"))
+                                    "transport", "uncertainty"))
         for name in ("title", "reactions"):
             if name not in top:
                 raise self.fail(name, "is required")
@@ -88,7 +89,16 @@ class SchemaValidator(ValueChecks):
                         temperatures=temperatures, production=production, solve=solve,
                         changes=changes, location=location, time=time, sun=sun,
                         geomagnetic=geomagnetic, photons=photons, output=output,
-                        transport=transport)
+                        transport=transport,
+                        uncertainty=self.uncertainty(top.get("uncertainty", {})))
+
+    def uncertainty(self, value) -> Uncertainty:
+        sec = self.table(value, "uncertainty", ("member_correlation",))
+        rho = 1.0
+        if "member_correlation" in sec:
+            rho = self.number(sec["member_correlation"], "uncertainty.member_correlation",
+                              low=0.0, high=1.0)
+        return Uncertainty(member_correlation=float(rho))
 
     def grid(self, value) -> Grid:
         sec = self.table(value, "grid", ("altitude_km",))

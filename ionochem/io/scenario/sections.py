@@ -315,6 +315,21 @@ class Output:
     budget: tuple[str, ...] = ()
 
 
+@dataclass(frozen=True)
+class Uncertainty:
+    """``[uncertainty]``: how the Monte Carlo and global sensitivity draw the rates.
+
+    Attributes
+    ----------
+    member_correlation : float
+        Correlation ρ, 0 to 1, of the draws of two members of one unit of analysis (the
+        levels of a family, the branches of a tie): 1 (default) draws one factor per unit,
+        0 draws every member independently (docs/scenario.md).
+    """
+
+    member_correlation: float = 1.0
+
+
 #: Profile tables a scenario can name: scenario key -> (section attribute, field).
 _TABLE_KEYS = {
     "neutrals.table": ("neutrals", "table"),
@@ -372,6 +387,7 @@ class Scenario:
     photons: Photons = field(default_factory=Photons)
     output: Output = field(default_factory=Output)
     transport: Transport | None = None
+    uncertainty: Uncertainty = field(default_factory=Uncertainty)
     path: Path | None = None
     base_dir: Path = field(default_factory=Path.cwd)
     sha256: str = ""
