@@ -14,12 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["UnitMap", "unit_map", "unit_map_from_dataset", "unit_coords", "sum_over_units",
-           "MEMBERS_HELP"]
-
-#: The help text of the one option every command uses to analyse members separately.
-MEMBERS_HELP = ("analyse the members of each unit (family levels, tied branches) "
-                "separately instead of the units (default: units first)")
+__all__ = ["UnitMap", "unit_map", "unit_map_from_dataset", "unit_coords", "sum_over_units"]
 
 _LEVEL = re.compile(r"\(v=-?[0-9]+\)$")
 

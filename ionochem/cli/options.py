@@ -37,6 +37,11 @@ def add_rate_change_options(parser, when=""):
                              "switches the reaction off)")
 
 
+#: Help of ``--members``, the one option every analysis command uses to show the members of
+#: a unit of analysis (family levels, tied branches) apart (ionochem.analysis.units).
+MEMBERS_HELP = ("analyse the members of each unit (family levels, tied branches) one by one "
+                "instead of the units (default: units first)")
+
 def assignment_split(item):
     """Index of the first ``=`` outside parentheses (ids like ``DR(v=2)`` contain one)."""
     depth = 0

@@ -6,9 +6,9 @@ The analysis is :mod:`ionochem.analysis.rank` on the exact sensitivities of
 
 from __future__ import annotations
 
-from ionochem.analysis.units import MEMBERS_HELP
 from ionochem.cli.compare import baseline_model
 from ionochem.cli.options import (
+    MEMBERS_HELP,
     check_output,
     check_outputs,
     scenario_inputs,

@@ -9,9 +9,9 @@ from __future__ import annotations
 
 import sys
 
-from ionochem.analysis.units import MEMBERS_HELP
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
+    MEMBERS_HELP,
     Table,
     add_rate_change_options,
     check_output,
