@@ -158,7 +158,7 @@ def test_rank_lists_every_levels_recombination(demo):
     reactions has a row for the recombination of every level."""
     from ionochem.analysis.rank import rank_reactions
     _, sens = demo
-    rows = rank_reactions(sens, "N2+(v=1)", top=None, min_share=0)
+    rows = rank_reactions(sens, "N2+(v=1)", top=None, min_share=0, members=True)
     by_id = {r.reaction: r for r in rows}
     for v in range(5):
         assert f"DR_N2plus(v={v})" in by_id

@@ -99,8 +99,13 @@ def resolve_parameters(model, free):
         else:
             idx = tuple(j for j, r in enumerate(model.reaction_objects)
                         if r.family is not None and key in (r.family, r.family.split("(")[0]))
+            tied = [u for u in model.units if u.kind == "tied" and u.name == key]
+            if not idx and tied:
+                idx = tuple(ids.index(m) for m in tied[0].members)
             if not idx:
-                near = [i for i in ids if key.lower() in i.lower()][:6]
+                near = [u.name for u in model.units if key.lower() in u.name.lower()]
+                near += [i for i in ids if key.lower() in i.lower() and i not in near]
+                near = near[:6]
                 hint = f" (did you mean {', '.join(near)}?)" if near else ""
                 raise InputError(f"no reaction or family with id {key!r}{hint}; Te is the "
                                  "electron temperature", file="--free")
@@ -136,9 +141,18 @@ def parse_priors(items, params):
     return out
 
 
-def default_priors(model, params, altitude_km=None):
-    """ln f of each parameter from the reaction list (median over the observed levels and a
-    family's members); ``None`` (flat) for Te and for reactions without an uncertainty."""
+def default_priors(model, params, altitude_km=None, rates=None):
+    """ln f of each parameter from the reaction list; ``None`` (flat) for Te and for
+    reactions without an uncertainty.
+
+    A reaction's prior is its ln f, median over the observed levels. A unit of several
+    members (a family, a tie) takes its own f: the mean of its members' ln f weighted by
+    their rates r_j over the observed levels (``rates`` (altitude, reaction), cm-3 s-1;
+    default from a steady solve), so the prior is that of the process as it acts — a family
+    whose v = 0 carries most of the rate takes v = 0's f, not the median over its levels.
+    """
+    if rates is None and any(len(p.indices) > 1 for p in params):
+        rates = model.solve()["reaction_rate"].transpose("altitude", "reaction").values
     f = np.log(model.uncertainty_factors())                 # (altitude, reaction)
     alt = np.asarray(model.altitude_km, float)
     rows = np.ones(alt.size, bool)
@@ -151,9 +165,26 @@ def default_priors(model, params, altitude_km=None):
         if p.is_te:
             out[p.name] = None
             continue
-        val = float(np.median(f[np.ix_(rows, list(p.indices))]))
+        cols = list(p.indices)
+        val = float(np.median(f[np.ix_(rows, cols)]))
+        if len(cols) > 1:
+            w = np.nan_to_num(np.abs(np.asarray(rates, float)[np.ix_(rows, cols)]))
+            if w.sum() > 0:
+                val = float(np.sum(w * f[np.ix_(rows, cols)]) / w.sum())
         out[p.name] = val if val > 1e-12 else None
     return out
+
+
+def _prior_source(param, prior, given):
+    """Words for ``prior_source``: what a parameter's prior is."""
+    if param.name in given:
+        return "given (--prior)" if given[param.name] is not None else "flat (--prior none)"
+    if prior.get(param.name) is None:
+        return "flat (no uncertainty factor)"
+    if len(param.indices) > 1:
+        return (f"the unit's own f: rate-weighted mean ln f of its {len(param.indices)} "
+                "members over the observed altitudes")
+    return "the reaction's f, median over the observed altitudes"
 
 
 # ------------------------------------------------------------------ models
@@ -340,7 +371,8 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
     observations : xarray.Dataset
         From :func:`ionochem.load_observations`.
     free : sequence of str
-        Reaction ids, family ids (``DR_N2plus(v)`` or ``DR_N2plus``) or ``Te``.
+        Reaction ids, family ids (``DR_N2plus(v)`` or ``DR_N2plus``), tie names (a unit of
+        the list's ``@unit`` lines: one multiplier for all its members) or ``Te``.
     priors : dict, optional
         Parameter → one-sigma factor f > 1 (float or text) or ``"none"`` (flat); the
         others take :func:`default_priors`.
@@ -465,6 +497,9 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
                                                        else prior[n] for n in names]), {
                 "units": "1", "long_name": "one-sigma width of the log-normal prior, ln f "
                 "(NaN: flat)"}),
+            "prior_source": ("parameter", np.array([_prior_source(p, prior, given)
+                                                    for p in params], dtype=object), {
+                "long_name": "where the prior comes from"}),
             "singular_value": ("direction", sd_full, {
                 "units": "1", "long_name": "singular values of the data-only whitened "
                 "Jacobian d residual / d ln multiplier"}),

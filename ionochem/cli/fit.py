@@ -96,6 +96,9 @@ def cmd_fit(args):
         table.add(p, f"{m:.4g}", rng, f"{np.exp(pr):.3g}" if np.isfinite(pr) else "flat",
                   str(ds["parameter_equation"].sel(parameter=p).values))
     print(table.text())
+    if "prior_source" in ds:
+        for p in ds["parameter"].values:
+            print(f"prior of {p}: {ds['prior_source'].sel(parameter=p).values}")
     print(f"chi2 {float(ds['chi2_baseline']):.2f} (baseline) -> {float(ds['chi2']):.2f} "
           f"(fit) for {int(ds['degrees_of_freedom'])} degrees of freedom; prior chi2 "
           f"{float(ds['chi2_prior']):.2f}")

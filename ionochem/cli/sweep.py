@@ -72,8 +72,9 @@ def register(subparsers):
     s.add_argument("--map-species", metavar="NAME",
                    help="species of the map (default N2+ when present)")
     s.add_argument("--map-reaction", metavar="ID",
-                   help="with --sensitivity: the reaction whose control of the species is "
-                        "mapped (default: the largest |sensitivity| over the map)")
+                   help="with --sensitivity: the reaction, family or tie whose control of "
+                        "the species is mapped (default: the unit of analysis with the "
+                        "largest |sensitivity| over the map)")
     s.add_argument("--map-axis", metavar="NAME",
                    help="the swept dimension along the map's x axis (default the first; "
                         "other dimensions at their first value)")
@@ -222,7 +223,11 @@ def _map_members(reaction_list, name):
     for fam, members in getattr(reaction_list, "families", {}).items():
         if name in (fam, fam.split("(")[0]):
             return list(members)
-    raise InputError(f"reaction {name!r} is not in the reaction list", file="--map-reaction")
+    for unit in getattr(reaction_list, "units", ()):
+        if unit.name == name:
+            return list(unit.members)
+    raise InputError(f"reaction or unit {name!r} is not in the reaction list",
+                     file="--map-reaction")
 
 
 class _Attrs:

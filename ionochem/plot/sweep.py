@@ -83,7 +83,15 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
     label_held = ", ".join(f"{d} = {_text(ds[d].values[0])}" for d in held)
     if sens:
         rids = [str(r) for r in ds["reaction"].values]
-        if reaction is None:
+        if reaction is None and "sensitivity_unit" in ds and "reaction_unit" in ds.coords:
+            # The unit of analysis (a whole family, a tie) with the largest |S| on the map.
+            uvar = ds["sensitivity_unit"].sel(species=species).isel(held)
+            uvar = uvar.isel(time=-1) if "time" in uvar.dims else uvar
+            units = [str(u) for u in ds["unit"].values]
+            big = np.abs(uvar.transpose("unit", ...).values).reshape(len(units), -1)
+            reaction = units[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
+            members = [r for r, u in zip(rids, ds["reaction_unit"].values) if u == reaction]
+        elif reaction is None:
             big = np.abs(var.transpose("reaction", ...).values).reshape(len(rids), -1)
             reaction = rids[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
         members = list(members) if members else [reaction]
