@@ -20,6 +20,7 @@ import numpy as np
 import xarray as xr
 
 from ionochem.errors import InputError
+from ionochem.mechanism.units import check_ties
 
 #: Altitude bands of the summary, km: the E region (90-150 km), F1 (150-200 km) and the
 #: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*.
@@ -119,8 +120,20 @@ def merge_additions(baseline_list, additions):
                          file=str(additions.path))
     families = dict(baseline_list.families)
     families.update(additions.families)
-    return _merged(baseline_list, additions, tuple(baseline_list.reactions)
-                   + tuple(additions.reactions), families)
+    merged = _merged(baseline_list, additions, tuple(baseline_list.reactions)
+                     + tuple(additions.reactions), families)
+    ties = tuple(getattr(baseline_list, "ties", ())) + tuple(getattr(additions, "ties", ()))
+    if ties != merged.ties:
+        problem = check_ties(ties, {r.id for r in merged.reactions}, families)
+        if problem is not None:
+            raise InputError(f"line {problem[0]}: {problem[1]}", file=str(additions.path))
+        merged = dataclasses.replace(merged, ties=ties)
+        merged.replacements_from = _merged_from(baseline_list, additions)
+    return merged
+
+
+def _merged_from(baseline_list, other):
+    return tuple(getattr(baseline_list, "replacements_from", ())) + (str(other.path),)
 
 
 def _merged(baseline_list, other, reactions, families):
@@ -130,8 +143,7 @@ def _merged(baseline_list, other, reactions, families):
                                  warnings=list(baseline_list.warnings))
     # The merged list keeps the baseline's path (expressions given later with --set resolve
     # table paths against it); where the entries came from is recorded beside it.
-    merged.replacements_from = tuple(getattr(baseline_list, "replacements_from", ())) + (
-        str(other.path),)
+    merged.replacements_from = _merged_from(baseline_list, other)
     return merged
 
 

@@ -60,6 +60,9 @@ def cmd_check(args):
         print(f"  derived   : {tot.name} = {' + '.join(tot.members)}")
     for fam, members in rl.families.items():
         print(f"  family    : {fam} -> {', '.join(members)}")
+    for tie in getattr(rl, "ties", ()):
+        print(f"  unit      : {tie.name} = {', '.join(tie.members)}  (analysed as one "
+              "process)")
     for w in rl.warnings:
         print(f"warning: {w}", file=sys.stderr)
     if problems:
