@@ -259,7 +259,8 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
     column.update({f: R + i for i, f in enumerate(factors)})
     te = column.get(TE_NAME, R)
     for i, s in enumerate(names):
-        for r in rank_reactions(sens_ds, s, altitude_range, top=None, min_share=min_share):
+        for r in rank_reactions(sens_ds, s, altitude_range, top=None, min_share=min_share,
+                                members=True):
             j = column[r.reaction]
             mx[i, j], sg[i, j], at[i, j], mean[i, j] = (r.max_abs, r.signed_at_max,
                                                         r.altitude_km, r.mean_abs)
