@@ -168,7 +168,8 @@ def _base_title(ds, axis, x):
     span = (f"{_text(xs.min())}–{_text(xs.max())}" if xs.dtype.kind in "fiu" and xs.size > 1
             else ", ".join(_text(v) for v in xs))
     unit = _axis_label(ds, axis)
-    swept = f"swept: {unit.replace(' (', ' ' + span + ' (', 1) if '(' in unit else unit + ' ' + span}"
+    name, paren, rest = unit.partition(" (")
+    swept = f"swept: {name} {span}" + (f" ({rest}" if paren else "")
     return f"base scenario: {head}; {swept}" if head else swept
 
 
