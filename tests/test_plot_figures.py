@@ -239,6 +239,51 @@ def test_uncertainty_90_percent_band_is_visible(model):
     assert "90 % band (5-95 %)" in labels
 
 
+def test_uncertainty_bands_each_species_in_a_panel_of_its_own(model):
+    """The Monte Carlo bands of different species never share a panel (they overlapped
+    unreadably on one axis, issue 24): one titled panel per species, two bands in each."""
+    mc = monte_carlo(model, 12, seed=3)
+    names = ["e", "O2+", "NO+", "N2+"]
+    fig = bands_figure(mc, species=names)
+    panels = [ax for ax in fig.axes if ax.get_visible()]
+    assert [ax.get_title() for ax in panels] == names
+    for ax in panels:
+        assert len(ax.collections) == 2        # the 90 % and the 68 % band of one species
+    assert_legends_clear_of_data(fig)
+
+
+def test_sweep_map_of_one_signed_sensitivity_titles_and_scale(tmp_path, monkeypatch):
+    """A sweep over local time of a scenario titled "noon": the title names it the base
+    scenario and says what is swept; the x axis reads "local solar time (h)"; an all-positive
+    sensitivity gets a sequential scale from zero, not a symmetric diverging one (issue 24);
+    the colour bar carries the reaction's equation."""
+    import ionochem.plot.sweep as sweep_plot
+    hours = np.array([7.0, 12.0, 17.0])
+    alt = np.array([100.0, 200.0, 300.0, 400.0])
+    S = np.linspace(0.05, 0.6, hours.size * alt.size).reshape(hours.size, 1, 1, alt.size)
+    ds = xr.Dataset(
+        {"sensitivity": (("local_hour", "species", "reaction", "altitude"), S),
+         "density": (("local_hour", "species", "altitude"), np.ones((3, 1, 4)))},
+        coords={"local_hour": ("local_hour", hours, {"units": "h"}), "altitude": alt,
+                "species": ["N2+"], "reaction": ["R1"],
+                "equation": ("reaction", ["O+(2D) + N2 -> N2+ + O"])},
+        attrs={"title": "invented site, equinox noon", "sweep_dimensions": "local_hour"})
+    figs = []
+    real = sweep_plot._figure_bytes
+    monkeypatch.setattr(sweep_plot, "_figure_bytes",
+                        lambda fig, path: figs.append(fig) or real(fig, path))
+    sweep_plot.plot_sweep_map(ds, tmp_path / "m.png", species="N2+", reaction="R1")
+    ax, cax = figs[0].axes[:2]
+    title = ax.get_title()
+    assert title.startswith("base scenario: invented site, equinox noon")
+    assert "swept: local solar time 7–17 (h)" in title
+    assert ax.get_xlabel() == "local solar time (h)"
+    mesh = ax.collections[0]
+    assert mesh.norm.vmin == 0.0 and mesh.norm.vmax == pytest.approx(0.6)
+    assert mesh.cmap.name == sweep_plot.CMAP_POSITIVE
+    assert "O+(2D) + N2 → N2+ + O" in cax.get_ylabel()
+
+
 def _transient(alt=(100.0, 200.0, 300.0)):
     """An invented transient dataset: 3 levels, 2 species, zenith angle 70° + 10°/h."""
     t = np.arange(0.0, 5.01, 0.25) * 3600.0
