@@ -1,15 +1,24 @@
-"""Regenerate the numbers the README quotes, from the current code.
+"""Regenerate every number and figure the documentation shows, from the current code.
 
-README.md (and reactions/README.md) mark each generated passage with
-``<!-- generated: NAME -->`` … ``<!-- /generated: NAME -->``; this script recomputes every
-passage from the demo scenarios (invented sites and dates) and rewrites them in place:
+This is the one script for README.md, docs/, reactions/README.md and examples/:
 
-    python docs/readme_numbers.py            # rewrite README.md
-    python docs/readme_numbers.py --check    # exit 1 if README.md is stale
+- prose passages marked ``<!-- generated: NAME -->`` … ``<!-- /generated: NAME -->`` are
+  recomputed from the demo scenarios (invented sites and dates), rounded as the prose needs
+  them (:data:`PASSAGES`, file of each in :data:`FILES`);
+- printed command output, marked ``<!-- generated-output: NAME -->`` …
+  ``<!-- /generated-output: NAME -->`` around a code block, is the standard output of the
+  command shown beside it, run anew (:data:`OUTPUTS`);
+- with ``--figures``, every figure the docs show is redrawn by the command the docs give
+  for it: docs/figures/ by ``docs/figures/make_figures.py`` (its ``COMMANDS``), the rates
+  demo's figures by its README's commands in a scratch copy (:data:`EXAMPLE_FIGURES`).
 
-``tests/test_readme_numbers.py`` runs the check, so a change of the chemistry, the
-environment or the solver that moves a quoted number fails the suite until the README is
-regenerated. Numbers are rounded as the prose needs them.
+    python docs/readme_numbers.py               # rewrite the numbers in place
+    python docs/readme_numbers.py --figures     # ... and redraw every figure
+    python docs/readme_numbers.py --check       # exit 1 if a number is stale
+
+``tests/test_readme_numbers.py`` runs the check (a change of the chemistry, the environment
+or the solver that moves a quoted number fails the suite until the docs are regenerated)
+and checks that every figure a Markdown file shows is one this script draws.
 """
 
 from __future__ import annotations
@@ -211,6 +220,103 @@ def fit_example(model, ds):
             f"correlated ({corr:+.2f}): the data constrain their ratio, not each.")
 
 
+#: Printed command output in the docs: name → (file, argument list after ``ionochem``).
+OUTPUTS = {
+    "fit-output": (ROOT / "docs" / "observations.md",
+                   ["fit", "scenarios/tabulated_column.toml", "--observed",
+                    "scenarios/observations/brackenfold_n2plus_ne.csv", "--free", "PI_N2",
+                    "--free", "N2plus_O_NOplus", "--free", "DR_N2plus",
+                    "--constrain-electrons", "--profile", "N2plus_O_NOplus",
+                    "--profile-points", "9"]),
+}
+
+#: Figures of examples/rates_demo/ (folder, figure, commands run there in order after
+#: ``python make_inputs.py``), as its README gives them.
+EXAMPLE_FIGURES = (
+    ("examples/rates_demo", [
+        ["rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:50", "-o",
+         "out/rates.csv", "--fit", "broken", "--table", "out/dr_n2plus_levels.csv",
+         "--write-entry", "out/dr_n2plus.reactions", "--entry", "DR_N2plus", "--reaction",
+         "N2+(v) + e -> N(2D) + N", "--fraction", "0.54", "--entry", "DR_N2plus_2D2D",
+         "--reaction", "N2+(v) + e -> 2 N(2D)", "--fraction", "0.46", "--plot",
+         "figures/maxwellian_fits.png"],
+        ["compare", "{root}/scenarios/midlatitude_equinox.toml", "--reactions",
+         "out/dr_n2plus.reactions", "--species", "N2+", "--species", "N2+(v=0)", "--species",
+         "N2+(v=1)", "--species", "NO+", "--plot", "figures/compare.png"],
+        ["rates", "beam", "sigma_n2plus.csv", "--kt-perp", "2e-3", "--kt-par", "5e-5",
+         "--detuning", "1e-4:1:2000", "--log", "--measured", "measured_curve.csv", "-o",
+         "out/beam.csv", "--plot", "figures/beam_curve.png"],
+    ]),
+)
+
+
+def figure_paths():
+    """Every figure this script draws (paths relative to the repository root)."""
+    sys.path.insert(0, str(ROOT / "docs" / "figures"))
+    try:
+        import make_figures
+    finally:
+        sys.path.pop(0)
+    out = [f"docs/figures/{name}" for name, _, _ in make_figures.COMMANDS]
+    for folder, commands in EXAMPLE_FIGURES:
+        for argv in commands:
+            out.append(f"{folder}/{argv[argv.index('--plot') + 1]}")
+    return out
+
+
+def draw_figures():
+    """Redraw every figure: docs/figures/ and the examples' (in a scratch copy, whose
+    figures are copied back)."""
+    import contextlib
+    import io
+    import os
+    import runpy
+    import shutil
+    import tempfile
+
+    from ionochem.cli import main as ionochem
+    runpy.run_path(str(ROOT / "docs" / "figures" / "make_figures.py"), run_name="__main__")
+    here = os.getcwd()
+    for folder, commands in EXAMPLE_FIGURES:
+        with tempfile.TemporaryDirectory() as tmp:
+            work = Path(tmp) / "demo"
+            shutil.copytree(ROOT / folder, work)
+            (work / "out").mkdir(exist_ok=True)
+            os.chdir(work)
+            try:
+                runpy.run_path("make_inputs.py", run_name="__main__")
+                for argv in commands:
+                    argv = [a.format(root=ROOT) for a in argv]
+                    print("ionochem", " ".join(argv), flush=True)
+                    with contextlib.redirect_stdout(io.StringIO()):
+                        if ionochem(argv) != 0:
+                            raise SystemExit(f"failed: {folder}: {' '.join(argv)}")
+                    fig = argv[argv.index("--plot") + 1]
+                    shutil.copy(work / fig, ROOT / folder / fig)
+            finally:
+                os.chdir(here)
+
+
+def command_output(argv):
+    """Standard output of ``ionochem ARGV`` run from the repository root."""
+    import contextlib
+    import io
+    import os
+
+    from ionochem.cli import main as ionochem
+    here = os.getcwd()
+    buf = io.StringIO()
+    os.chdir(ROOT)
+    try:
+        with contextlib.redirect_stdout(buf), contextlib.redirect_stderr(io.StringIO()):
+            code = ionochem(list(argv))
+    finally:
+        os.chdir(here)
+    if code != 0:
+        raise SystemExit(f"failed: ionochem {' '.join(argv)}")
+    return buf.getvalue().rstrip("\n")
+
+
 PASSAGES = {"reading": reading, "fit-example": fit_example, "compare-O2D_N2": compare_o2d,
             "levels-experiment": levels_experiment, "e-region": e_region,
             "default-list-checks": default_list_checks}
@@ -244,32 +350,49 @@ def _wrap(text, width=96):
     return "\n".join(lines)
 
 
-def render(readme_text, passages):
-    """The README with each marked passage replaced (markers kept)."""
+def _fenced(text):
+    """Printed output as a Markdown code block."""
+    return f"```\n{text}\n```"
+
+
+def render(readme_text, passages, outputs=None):
+    """The text with each marked passage (wrapped prose) and each marked command output
+    (verbatim) replaced, markers kept."""
     out = readme_text
-    for name, text in passages.items():
-        pat = re.compile(rf"(<!-- generated: {re.escape(name)} -->\n).*?"
-                         rf"(\n<!-- /generated: {re.escape(name)} -->)", re.S)
-        if not pat.search(out):
-            raise SystemExit(f"README.md has no generated passage {name!r}")
-        out = pat.sub(lambda m, t=text: m.group(1) + _wrap(t) + m.group(2), out)
+    for kind, items, fmt in (("generated", passages, _wrap),
+                             ("generated-output", outputs or {}, _fenced)):
+        for name, text in items.items():
+            pat = re.compile(rf"(<!-- {kind}: {re.escape(name)} -->\n).*?"
+                             rf"(\n<!-- /{kind}: {re.escape(name)} -->)", re.S)
+            if not pat.search(out):
+                raise SystemExit(f"no {kind} passage {name!r}")
+            out = pat.sub(lambda m, t=text, f=fmt: m.group(1) + f(t) + m.group(2), out)
     return out
 
 
-def render_all(passages):
-    """{path: (old text, new text)} of every file with generated passages."""
+def render_all(passages, outputs=None):
+    """{path: (old text, new text)} of every file with generated passages or outputs."""
+    outputs = outputs or {}
     out = {}
-    for path in {README, *FILES.values()}:
+    for path in {README, *FILES.values(), *(f for f, _ in OUTPUTS.values())}:
         mine = {n: t for n, t in passages.items() if FILES.get(n, README) == path}
+        printed = {n: t for n, t in outputs.items() if OUTPUTS[n][0] == path}
         old = path.read_text(encoding="utf-8")
-        out[path] = (old, render(old, mine))
+        out[path] = (old, render(old, mine, printed))
     return out
+
+
+def generate_outputs():
+    """{name: printed output} of every command in :data:`OUTPUTS`."""
+    return {name: command_output(argv) for name, (_, argv) in OUTPUTS.items()}
 
 
 def main(argv=None):
     argv = sys.argv[1:] if argv is None else argv
     stale = []
-    for path, (old, new) in render_all(generate()).items():
+    if "--figures" in argv and "--check" not in argv:
+        draw_figures()
+    for path, (old, new) in render_all(generate(), generate_outputs()).items():
         if new != old:
             stale.append(path)
             if "--check" not in argv:
