@@ -30,6 +30,8 @@ from pathlib import Path
 import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
+if str(ROOT) not in sys.path:
+    sys.path.insert(0, str(ROOT))        # the checkout's own code, installed or not
 README = ROOT / "README.md"
 DEMO = ROOT / "scenarios" / "midlatitude_equinox.toml"
 EXPERIMENT = ROOT / "docs" / "experiments" / "n2plus_dr_new.reactions"
@@ -250,14 +252,19 @@ EXAMPLE_FIGURES = (
 )
 
 
+def _make_figures():
+    """docs/figures/make_figures.py as a module."""
+    import importlib.util
+    spec = importlib.util.spec_from_file_location("make_figures",
+                                                  ROOT / "docs" / "figures" / "make_figures.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    return mod
+
+
 def figure_paths():
     """Every figure this script draws (paths relative to the repository root)."""
-    sys.path.insert(0, str(ROOT / "docs" / "figures"))
-    try:
-        import make_figures
-    finally:
-        sys.path.pop(0)
-    out = [f"docs/figures/{name}" for name, _, _ in make_figures.COMMANDS]
+    out = [f"docs/figures/{name}" for name, _, _ in _make_figures().COMMANDS]
     for folder, commands in EXAMPLE_FIGURES:
         for argv in commands:
             out.append(f"{folder}/{argv[argv.index('--plot') + 1]}")
@@ -275,8 +282,11 @@ def draw_figures():
     import tempfile
 
     from ionochem.cli import main as ionochem
-    runpy.run_path(str(ROOT / "docs" / "figures" / "make_figures.py"), run_name="__main__")
     here = os.getcwd()
+    try:
+        _make_figures().main()
+    finally:
+        os.chdir(here)
     for folder, commands in EXAMPLE_FIGURES:
         with tempfile.TemporaryDirectory() as tmp:
             work = Path(tmp) / "demo"
