@@ -72,18 +72,19 @@ def level_colour(v, top=LEVEL_SPAN):
 
 def label_levels(ax, lines, *, vertical=True):
     """Write ``v=K`` beside each level curve among ``lines``, in its colour, near the top
-    of the altitude axis (direct labels: the reader need not match shades in a legend)."""
-    for line in lines:
-        m = re.fullmatch(r".+\(v=(\d+)\)", str(line.get_label()))
-        if not m:
-            continue
+    of the altitude axis, each level a little lower than the one before so that labels of
+    neighbouring curves do not overlap (direct labels: the reader need not match shades in a
+    legend)."""
+    levels = [(ln, m) for ln in lines
+              if (m := re.fullmatch(r".+\(v=(\d+)\)", str(ln.get_label())))]
+    for j, (line, m) in enumerate(levels):
         x, y = (np.asarray(a, float) for a in line.get_data())
         alt, val = (y, x) if vertical else (x, y)
         ok = np.isfinite(val) & np.isfinite(alt)
         if not ok.any():
             continue
         lo, hi = ax.get_ylim() if vertical else ax.get_xlim()
-        target = lo + 0.93 * (hi - lo)
+        target = lo + (0.93 - 0.06 * j) * (hi - lo)
         i = np.flatnonzero(ok)[np.argmin(np.abs(alt[ok] - target))]
         xy = (val[i], alt[i]) if vertical else (alt[i], val[i])
         ax.annotate(f"v={m.group(1)}", xy, xytext=(3, 0), textcoords="offset points",
