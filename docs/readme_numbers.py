@@ -10,7 +10,8 @@ This is the one script for README.md, docs/, reactions/README.md and examples/:
   command shown beside it, run anew (:data:`OUTPUTS`);
 - with ``--figures``, every figure the docs show is redrawn by the command the docs give
   for it: docs/figures/ by ``docs/figures/make_figures.py`` (its ``COMMANDS``), the rates
-  demo's figures by its README's commands in a scratch copy (:data:`EXAMPLE_FIGURES`).
+  demo's figures by its README's commands in a scratch copy (:data:`EXAMPLE_RUNS`, whose
+  printed outputs fill that README's blocks).
 
     python docs/readme_numbers.py               # rewrite the numbers in place
     python docs/readme_numbers.py --figures     # ... and redraw every figure
@@ -232,22 +233,29 @@ OUTPUTS = {
                     "--profile-points", "9"]),
 }
 
-#: Figures of examples/rates_demo/ (folder, figure, commands run there in order after
-#: ``python make_inputs.py``), as its README gives them.
-EXAMPLE_FIGURES = (
+#: Runs of examples/rates_demo/ as its README gives them, in order, in a scratch copy after
+#: ``python make_inputs.py``: (printed-output name or None, argument list). Each ``--plot``
+#: figure is copied back with ``--figures``; each named output fills the README's
+#: ``generated-output`` block of that name.
+EXAMPLE_RUNS = (
     ("examples/rates_demo", [
-        ["rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:50", "-o",
-         "out/rates.csv", "--fit", "broken", "--table", "out/dr_n2plus_levels.csv",
-         "--write-entry", "out/dr_n2plus.reactions", "--entry", "DR_N2plus", "--reaction",
-         "N2+(v) + e -> N(2D) + N", "--fraction", "0.54", "--entry", "DR_N2plus_2D2D",
-         "--reaction", "N2+(v) + e -> 2 N(2D)", "--fraction", "0.46", "--plot",
-         "figures/maxwellian_fits.png"],
-        ["compare", "{root}/scenarios/midlatitude_equinox.toml", "--reactions",
-         "out/dr_n2plus.reactions", "--species", "N2+", "--species", "N2+(v=0)", "--species",
-         "N2+(v=1)", "--species", "NO+", "--plot", "figures/compare.png"],
-        ["rates", "beam", "sigma_n2plus.csv", "--kt-perp", "2e-3", "--kt-par", "5e-5",
-         "--detuning", "1e-4:1:2000", "--log", "--measured", "measured_curve.csv", "-o",
-         "out/beam.csv", "--plot", "figures/beam_curve.png"],
+        (None, ["rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:50",
+                "-o", "out/rates.csv", "--fit", "broken", "--table",
+                "out/dr_n2plus_levels.csv", "--write-entry", "out/dr_n2plus.reactions",
+                "--entry", "DR_N2plus", "--reaction", "N2+(v) + e -> N(2D) + N",
+                "--fraction", "0.54", "--entry", "DR_N2plus_2D2D", "--reaction",
+                "N2+(v) + e -> 2 N(2D)", "--fraction", "0.46", "--plot",
+                "figures/maxwellian_fits.png"]),
+        ("demo-compare", ["compare", "{root}/scenarios/midlatitude_equinox.toml",
+                          "--reactions", "out/dr_n2plus.reactions", "--species", "N2+",
+                          "--species", "N2+(v=0)", "--species", "N2+(v=1)", "--species",
+                          "NO+", "--plot", "figures/compare.png"]),
+        ("demo-beam", ["rates", "beam", "sigma_n2plus.csv", "--kt-perp", "2e-3", "--kt-par",
+                       "5e-5", "--detuning", "1e-4:1:2000", "--log", "--measured",
+                       "measured_curve.csv", "-o", "out/beam.csv", "--plot",
+                       "figures/beam_curve.png"]),
+        ("demo-populations", ["rates", "populations", "signals.csv", "--design",
+                              "design.csv", "-o", "out/populations.csv"]),
     ]),
 )
 
@@ -265,15 +273,26 @@ def _make_figures():
 def figure_paths():
     """Every figure this script draws (paths relative to the repository root)."""
     out = [f"docs/figures/{name}" for name, _, _ in _make_figures().COMMANDS]
-    for folder, commands in EXAMPLE_FIGURES:
-        for argv in commands:
-            out.append(f"{folder}/{argv[argv.index('--plot') + 1]}")
+    for folder, runs in EXAMPLE_RUNS:
+        out += [f"{folder}/{argv[argv.index('--plot') + 1]}" for _, argv in runs
+                if "--plot" in argv]
     return out
 
 
 def draw_figures():
-    """Redraw every figure: docs/figures/ and the examples' (in a scratch copy, whose
-    figures are copied back)."""
+    """Redraw every figure: docs/figures/ and the examples' (:func:`run_examples`)."""
+    import os
+    here = os.getcwd()
+    try:
+        _make_figures().main()
+    finally:
+        os.chdir(here)
+    run_examples(draw=True)
+
+
+def run_examples(draw=False):
+    """Run :data:`EXAMPLE_RUNS` in scratch copies; returns {output name: printed output}.
+    With ``draw`` the figures are copied back into the repository."""
     import contextlib
     import io
     import os
@@ -283,28 +302,33 @@ def draw_figures():
 
     from ionochem.cli import main as ionochem
     here = os.getcwd()
-    try:
-        _make_figures().main()
-    finally:
-        os.chdir(here)
-    for folder, commands in EXAMPLE_FIGURES:
+    printed = {}
+    for folder, runs in EXAMPLE_RUNS:
         with tempfile.TemporaryDirectory() as tmp:
             work = Path(tmp) / "demo"
             shutil.copytree(ROOT / folder, work)
             (work / "out").mkdir(exist_ok=True)
             os.chdir(work)
             try:
-                runpy.run_path("make_inputs.py", run_name="__main__")
-                for argv in commands:
+                with contextlib.redirect_stdout(io.StringIO()):
+                    runpy.run_path("make_inputs.py", run_name="__main__")
+                for name, argv in runs:
                     argv = [a.format(root=ROOT) for a in argv]
-                    print("ionochem", " ".join(argv), flush=True)
-                    with contextlib.redirect_stdout(io.StringIO()):
-                        if ionochem(argv) != 0:
-                            raise SystemExit(f"failed: {folder}: {' '.join(argv)}")
-                    fig = argv[argv.index("--plot") + 1]
-                    shutil.copy(work / fig, ROOT / folder / fig)
+                    buf = io.StringIO()
+                    with contextlib.redirect_stdout(buf), \
+                            contextlib.redirect_stderr(io.StringIO()):
+                        code = ionochem(argv)
+                    if code != 0:
+                        raise SystemExit(f"failed: {folder}: ionochem {' '.join(argv)}")
+                    if name:
+                        printed[name] = buf.getvalue().rstrip("\n")
+                    if draw and "--plot" in argv:
+                        fig = argv[argv.index("--plot") + 1]
+                        print(f"{folder}/{fig}", flush=True)
+                        shutil.copy(work / fig, ROOT / folder / fig)
             finally:
                 os.chdir(here)
+    return printed
 
 
 def command_output(argv):
@@ -363,7 +387,8 @@ def fit_reading(model, ds):
             f"{'below' if dr < 0 else 'above'} its prior.")
 
 
-PASSAGES = {"reading": reading, "fit-reading": fit_reading, "fit-example": fit_example, "compare-O2D_N2": compare_o2d,
+PASSAGES = {"reading": reading, "fit-reading": fit_reading, "fit-example": fit_example,
+            "compare-O2D_N2": compare_o2d,
             "levels-experiment": levels_experiment, "e-region": e_region,
             "default-list-checks": default_list_checks}
 
@@ -421,25 +446,44 @@ def render_all(passages, outputs=None):
     """{path: (old text, new text)} of every file with generated passages or outputs."""
     outputs = outputs or {}
     out = {}
-    for path in {README, *FILES.values(), *(f for f, _ in OUTPUTS.values())}:
+    for path in {README, *FILES.values(), *(_output_file(n) for n in outputs)}:
         mine = {n: t for n, t in passages.items() if FILES.get(n, README) == path}
-        printed = {n: t for n, t in outputs.items() if OUTPUTS[n][0] == path}
+        printed = {n: t for n, t in outputs.items() if _output_file(n) == path}
         old = path.read_text(encoding="utf-8")
         out[path] = (old, render(old, mine, printed))
     return out
 
 
-def generate_outputs():
-    """{name: printed output} of every command in :data:`OUTPUTS`."""
-    return {name: command_output(argv) for name, (_, argv) in OUTPUTS.items()}
+def _output_file(name):
+    """The Markdown file holding printed output ``name``."""
+    if name in OUTPUTS:
+        return OUTPUTS[name][0]
+    for folder, runs in EXAMPLE_RUNS:
+        if name in {n for n, _ in runs}:
+            return ROOT / folder / "README.md"
+    raise KeyError(name)
+
+
+def generate_outputs(examples=True):
+    """{name: printed output} of every command in :data:`OUTPUTS` and, with ``examples``,
+    of the named runs of :data:`EXAMPLE_RUNS`."""
+    out = {name: command_output(argv) for name, (_, argv) in OUTPUTS.items()}
+    return {**out, **run_examples()} if examples else out
 
 
 def main(argv=None):
     argv = sys.argv[1:] if argv is None else argv
     stale = []
-    if "--figures" in argv and "--check" not in argv:
-        draw_figures()
-    for path, (old, new) in render_all(generate(), generate_outputs()).items():
+    figures = "--figures" in argv and "--check" not in argv
+    if figures:
+        import os
+        here = os.getcwd()
+        try:
+            _make_figures().main()
+        finally:
+            os.chdir(here)
+    outputs = {**generate_outputs(examples=False), **run_examples(draw=figures)}
+    for path, (old, new) in render_all(generate(), outputs).items():
         if new != old:
             stale.append(path)
             if "--check" not in argv:
