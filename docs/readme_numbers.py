@@ -239,7 +239,8 @@ OUTPUTS = {
 #: ``generated-output`` block of that name.
 EXAMPLE_RUNS = (
     ("examples/rates_demo", [
-        (None, ["rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:50",
+        ("demo-maxwellian", [
+                "rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:50",
                 "-o", "out/rates.csv", "--fit", "broken", "--table",
                 "out/dr_n2plus_levels.csv", "--write-entry", "out/dr_n2plus.reactions",
                 "--entry", "DR_N2plus", "--reaction", "N2+(v) + e -> N(2D) + N",
