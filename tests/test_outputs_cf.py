@@ -152,3 +152,26 @@ def test_rate_coefficients_are_split_by_order_with_one_unit_each(column):
     assert np.isnan(ds["rate_coefficient"].sel(reaction="P1")).all()
     assert np.isnan(ds["rate_coefficient_first_order"].sel(reaction="R1")).all()
     assert list(ds["reaction_order"].values) == [1, 2]
+
+
+def test_cf_dimension_order_in_files_and_kept_for_files_read_back(tmp_path):
+    """CF §2.4: in a written file a transient variable is stored (species, time, altitude),
+    labels left of time and altitude; a file the program reads back by position (a sweep's
+    stored template column, ``reorder=False``) keeps the dataset's own order, so batches
+    packed before a resume unpack the same way after it."""
+    from ionochem.io.netcdf import write_netcdf
+    t = np.array(["2025-03-20T18:00", "2025-03-20T19:00"], dtype="datetime64[ns]")
+    ds = xr.Dataset(
+        {"density": (("time", "species", "altitude"), np.arange(12.0).reshape(2, 2, 3),
+                     {"units": "cm-3", "long_name": "number density"})},
+        coords={"time": ("time", t), "species": ["e", "NO+"],
+                "altitude": ("altitude", [100.0, 200.0, 300.0],
+                             {"units": "km", "standard_name": "altitude", "positive": "up"})})
+    write_netcdf(ds, tmp_path / "cf.nc")
+    write_netcdf(ds, tmp_path / "back.nc", reorder=False)
+    with xr.open_dataset(tmp_path / "cf.nc") as cf, xr.open_dataset(tmp_path / "back.nc") as b:
+        assert cf["density"].dims == ("species", "time", "altitude")
+        assert b["density"].dims == ("time", "species", "altitude")
+        np.testing.assert_array_equal(b["density"].values, ds["density"].values)
+        xr.testing.assert_equal(cf["density"].transpose(*ds["density"].dims).load(),
+                                ds["density"])

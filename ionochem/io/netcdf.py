@@ -68,16 +68,17 @@ def cf_dimension_order(ds, dims):
     return tuple(sorted(dims, key=lambda d: key[d]))        # sorted() is stable
 
 
-def _encodable(ds):
+def _encodable(ds, reorder=True):
     """Copy of ``ds`` ready for a CF-1.8 netCDF file.
 
     Object (string) arrays become fixed strings, bools int8 and 64-bit integers 32-bit
     ones (CF-1.8 §2.2 has no 64-bit integer); every variable's dimensions follow CF §2.4
     (time, altitude, latitude, longitude last and in that order); ``Conventions`` is
-    :data:`CONVENTIONS`. A coordinate variable (one named after its dimension) is written
-    without ``_FillValue`` (CF §2.5.1); one of labels (species, reaction ids) as a character
-    array (CF §5 and §6.1: a coordinate variable is numeric, labels are characters), which
-    xarray reads back as the same string index.
+    :data:`CONVENTIONS`. ``reorder=False`` keeps the dimension order (a file read back by
+    the program itself, whose layout must match the dataset's). A coordinate variable (one
+    named after its dimension) is written without ``_FillValue`` (CF §2.5.1); one of labels
+    (species, reaction ids) as a character array (CF §5 and §6.1: a coordinate variable is
+    numeric, labels are characters), which xarray reads back as the same string index.
     """
     out = ds.copy()
     for name in list(out.variables):
@@ -88,7 +89,7 @@ def _encodable(ds):
             out[name] = var.astype(np.int8)
         elif var.dtype.kind in "iu" and var.dtype.itemsize == 8:
             out[name] = var.astype(np.int32)
-    for name in list(out.data_vars):
+    for name in list(out.data_vars) if reorder else ():
         order = cf_dimension_order(out, out[name].dims)
         if order != out[name].dims:
             out[name] = out[name].transpose(*order)
@@ -284,10 +285,14 @@ def atomic_path(path):
             raise
 
 
-def write_netcdf(ds, path) -> Path:
-    """Write ``ds`` to ``path`` atomically (NETCDF4 format); returns the path."""
+def write_netcdf(ds, path, *, reorder=True) -> Path:
+    """Write ``ds`` to ``path`` atomically (NETCDF4 format, CF-1.8); returns the path.
+
+    ``reorder=False`` keeps each variable's dimension order (for files the program reads
+    back and unpacks by position, such as a sweep's stored template column).
+    """
     with atomic_path(path) as tmp:
-        _encodable(ds).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
+        _encodable(ds, reorder=reorder).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
     return Path(path)
 
 
