@@ -7,7 +7,8 @@ This is the one script for README.md, docs/, reactions/README.md and examples/:
   them (:data:`PASSAGES`, file of each in :data:`FILES`);
 - printed command output, marked ``<!-- generated-output: NAME -->`` …
   ``<!-- /generated-output: NAME -->`` around a code block, is the standard output of the
-  command shown beside it, run anew (:data:`OUTPUTS`);
+  command shown beside it, run anew (:data:`OUTPUTS`), or an excerpt of a file an
+  example writes (:data:`EXCERPTS`);
 - with ``--figures``, every figure the docs show is redrawn by the command the docs give
   for it: docs/figures/ by ``docs/figures/make_figures.py`` (its ``COMMANDS``), the rates
   demo's figures by its README's commands in a scratch copy (:data:`EXAMPLE_RUNS`, whose
@@ -261,6 +262,28 @@ EXAMPLE_RUNS = (
 )
 
 
+#: Excerpts of files the example runs write, shown in the docs: name → (Markdown file,
+#: example folder, file written there). The excerpt keeps the comment and header lines and
+#: the first row of levels 0 and 1, each followed by "...".
+EXCERPTS = {
+    "demo-level-table": (ROOT / "docs" / "rates.md", "examples/rates_demo",
+                         "out/dr_n2plus_levels.csv"),
+}
+
+
+def _excerpt(text):
+    """The head of a level-row table: comments, header, first row of v = 0 and of v = 1."""
+    lines = text.splitlines()
+    head = [ln for ln in lines if ln.startswith("#")]
+    rows = [ln for ln in lines if ln and not ln.startswith("#")]
+    out = head + rows[:1]
+    for v in ("0", "1"):
+        first = next((r for r in rows[1:] if r.split(",", 1)[0] == v), None)
+        if first is not None:
+            out += [first, "..."]
+    return "\n".join(out)
+
+
 def _make_figures():
     """docs/figures/make_figures.py as a module."""
     import importlib.util
@@ -327,6 +350,9 @@ def run_examples(draw=False):
                         fig = argv[argv.index("--plot") + 1]
                         print(f"{folder}/{fig}", flush=True)
                         shutil.copy(work / fig, ROOT / folder / fig)
+                for name, (_, where, rel) in EXCERPTS.items():
+                    if where == folder:
+                        printed[name] = _excerpt((work / rel).read_text(encoding="utf-8"))
             finally:
                 os.chdir(here)
     return printed
@@ -459,6 +485,8 @@ def _output_file(name):
     """The Markdown file holding printed output ``name``."""
     if name in OUTPUTS:
         return OUTPUTS[name][0]
+    if name in EXCERPTS:
+        return EXCERPTS[name][0]
     for folder, runs in EXAMPLE_RUNS:
         if name in {n for n, _ in runs}:
             return ROOT / folder / "README.md"
