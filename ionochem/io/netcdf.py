@@ -68,6 +68,14 @@ def cf_dimension_order(ds, dims):
     return tuple(sorted(dims, key=lambda d: key[d]))        # sorted() is stable
 
 
+def _fits_int32(var):
+    """True when every value of an integer variable fits in a 32-bit signed integer (else
+    it is kept 64-bit rather than wrapped)."""
+    v = np.asarray(var.values)
+    info = np.iinfo(np.int32)
+    return v.size == 0 or (int(v.min()) >= info.min and int(v.max()) <= info.max)
+
+
 def _encodable(ds, reorder=True):
     """Copy of ``ds`` ready for a CF-1.8 netCDF file.
 
@@ -87,7 +95,7 @@ def _encodable(ds, reorder=True):
             out[name] = var.astype(str)
         elif var.dtype == bool:
             out[name] = var.astype(np.int8)
-        elif var.dtype.kind in "iu" and var.dtype.itemsize == 8:
+        elif var.dtype.kind in "iu" and var.dtype.itemsize == 8 and _fits_int32(var):
             out[name] = var.astype(np.int32)
     for name in list(out.data_vars) if reorder else ():
         order = cf_dimension_order(out, out[name].dims)
