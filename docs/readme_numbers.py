@@ -1,15 +1,26 @@
-"""Regenerate the numbers the README quotes, from the current code.
+"""Regenerate every number and figure the documentation shows, from the current code.
 
-README.md (and reactions/README.md) mark each generated passage with
-``<!-- generated: NAME -->`` … ``<!-- /generated: NAME -->``; this script recomputes every
-passage from the demo scenarios (invented sites and dates) and rewrites them in place:
+This is the one script for README.md, docs/, reactions/README.md and examples/:
 
-    python docs/readme_numbers.py            # rewrite README.md
-    python docs/readme_numbers.py --check    # exit 1 if README.md is stale
+- prose passages marked ``<!-- generated: NAME -->`` … ``<!-- /generated: NAME -->`` are
+  recomputed from the demo scenarios (invented sites and dates), rounded as the prose needs
+  them (:data:`PASSAGES`, file of each in :data:`FILES`);
+- printed command output, marked ``<!-- generated-output: NAME -->`` …
+  ``<!-- /generated-output: NAME -->`` around a code block, is the standard output of the
+  command shown beside it, run anew (:data:`OUTPUTS`), or an excerpt of a file an
+  example writes (:data:`EXCERPTS`);
+- with ``--figures``, every figure the docs show is redrawn by the command the docs give
+  for it: docs/figures/ by ``docs/figures/make_figures.py`` (its ``COMMANDS``), the rates
+  demo's figures by its README's commands in a scratch copy (:data:`EXAMPLE_RUNS`, whose
+  printed outputs fill that README's blocks).
 
-``tests/test_readme_numbers.py`` runs the check, so a change of the chemistry, the
-environment or the solver that moves a quoted number fails the suite until the README is
-regenerated. Numbers are rounded as the prose needs them.
+    python docs/readme_numbers.py               # rewrite the numbers in place
+    python docs/readme_numbers.py --figures     # ... and redraw every figure
+    python docs/readme_numbers.py --check       # exit 1 if a number is stale
+
+``tests/test_readme_numbers.py`` runs the check (a change of the chemistry, the environment
+or the solver that moves a quoted number fails the suite until the docs are regenerated)
+and checks that every figure a Markdown file shows is one this script draws.
 """
 
 from __future__ import annotations
@@ -21,6 +32,8 @@ from pathlib import Path
 import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
+if str(ROOT) not in sys.path:
+    sys.path.insert(0, str(ROOT))        # the checkout's own code, installed or not
 README = ROOT / "README.md"
 DEMO = ROOT / "scenarios" / "midlatitude_equinox.toml"
 EXPERIMENT = ROOT / "docs" / "experiments" / "n2plus_dr_new.reactions"
@@ -211,12 +224,204 @@ def fit_example(model, ds):
             f"correlated ({corr:+.2f}): the data constrain their ratio, not each.")
 
 
-PASSAGES = {"reading": reading, "fit-example": fit_example, "compare-O2D_N2": compare_o2d,
+#: Printed command output in the docs: name → (file, argument list after ``ionochem``).
+OUTPUTS = {
+    "fit-output": (ROOT / "docs" / "observations.md",
+                   ["fit", "scenarios/tabulated_column.toml", "--observed",
+                    "scenarios/observations/brackenfold_n2plus_ne.csv", "--free", "PI_N2",
+                    "--free", "N2plus_O_NOplus", "--free", "DR_N2plus",
+                    "--constrain-electrons", "--profile", "N2plus_O_NOplus",
+                    "--profile-points", "9"]),
+}
+
+#: Runs of examples/rates_demo/ as its README gives them, in order, in a scratch copy after
+#: ``python make_inputs.py``: (printed-output name or None, argument list). Each ``--plot``
+#: figure is copied back with ``--figures``; each named output fills the README's
+#: ``generated-output`` block of that name.
+EXAMPLE_RUNS = (
+    ("examples/rates_demo", [
+        ("demo-maxwellian", [
+                "rates", "maxwellian", "sigma_n2plus.csv", "--temperatures", "100:6000:50",
+                "-o", "out/rates.csv", "--fit", "broken", "--table",
+                "out/dr_n2plus_levels.csv", "--write-entry", "out/dr_n2plus.reactions",
+                "--entry", "DR_N2plus", "--reaction", "N2+(v) + e -> N(2D) + N",
+                "--fraction", "0.54", "--entry", "DR_N2plus_2D2D", "--reaction",
+                "N2+(v) + e -> 2 N(2D)", "--fraction", "0.46", "--plot",
+                "figures/maxwellian_fits.png"]),
+        ("demo-compare", ["compare", "{root}/scenarios/midlatitude_equinox.toml",
+                          "--reactions", "out/dr_n2plus.reactions", "--species", "N2+",
+                          "--species", "N2+(v=0)", "--species", "N2+(v=1)", "--species",
+                          "NO+", "--plot", "figures/compare.png"]),
+        ("demo-beam", ["rates", "beam", "sigma_n2plus.csv", "--kt-perp", "2e-3", "--kt-par",
+                       "5e-5", "--detuning", "1e-4:1:2000", "--log", "--measured",
+                       "measured_curve.csv", "-o", "out/beam.csv", "--plot",
+                       "figures/beam_curve.png"]),
+        ("demo-populations", ["rates", "populations", "signals.csv", "--design",
+                              "design.csv", "-o", "out/populations.csv"]),
+    ]),
+)
+
+
+#: Excerpts of files the example runs write, shown in the docs: name → (Markdown file,
+#: example folder, file written there). The excerpt keeps the comment and header lines and
+#: the first row of levels 0 and 1, each followed by "...".
+EXCERPTS = {
+    "demo-level-table": (ROOT / "docs" / "rates.md", "examples/rates_demo",
+                         "out/dr_n2plus_levels.csv"),
+}
+
+
+def _excerpt(text):
+    """The head of a level-row table: comments, header, first row of v = 0 and of v = 1."""
+    lines = text.splitlines()
+    head = [ln for ln in lines if ln.startswith("#")]
+    rows = [ln for ln in lines if ln and not ln.startswith("#")]
+    out = head + rows[:1]
+    for v in ("0", "1"):
+        first = next((r for r in rows[1:] if r.split(",", 1)[0] == v), None)
+        if first is not None:
+            out += [first, "..."]
+    return "\n".join(out)
+
+
+def _make_figures():
+    """docs/figures/make_figures.py as a module."""
+    import importlib.util
+    spec = importlib.util.spec_from_file_location("make_figures",
+                                                  ROOT / "docs" / "figures" / "make_figures.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    return mod
+
+
+def figure_paths():
+    """Every figure this script draws (paths relative to the repository root)."""
+    out = [f"docs/figures/{name}" for name, _, _ in _make_figures().COMMANDS]
+    for folder, runs in EXAMPLE_RUNS:
+        out += [f"{folder}/{argv[argv.index('--plot') + 1]}" for _, argv in runs
+                if "--plot" in argv]
+    return out
+
+
+def draw_figures():
+    """Redraw every figure: docs/figures/ and the examples' (:func:`run_examples`)."""
+    import os
+    here = os.getcwd()
+    try:
+        _make_figures().main()
+    finally:
+        os.chdir(here)
+    run_examples(draw=True)
+
+
+def run_examples(draw=False):
+    """Run :data:`EXAMPLE_RUNS` in scratch copies; returns {output name: printed output}.
+    With ``draw`` the figures are copied back into the repository."""
+    import contextlib
+    import io
+    import os
+    import runpy
+    import shutil
+    import tempfile
+
+    from ionochem.cli import main as ionochem
+    here = os.getcwd()
+    printed = {}
+    for folder, runs in EXAMPLE_RUNS:
+        with tempfile.TemporaryDirectory() as tmp:
+            work = Path(tmp) / "demo"
+            shutil.copytree(ROOT / folder, work)
+            (work / "out").mkdir(exist_ok=True)
+            os.chdir(work)
+            try:
+                with contextlib.redirect_stdout(io.StringIO()):
+                    runpy.run_path("make_inputs.py", run_name="__main__")
+                for name, argv in runs:
+                    argv = [a.format(root=ROOT) for a in argv]
+                    buf = io.StringIO()
+                    with contextlib.redirect_stdout(buf), \
+                            contextlib.redirect_stderr(io.StringIO()):
+                        code = ionochem(argv)
+                    if code != 0:
+                        raise SystemExit(f"failed: {folder}: ionochem {' '.join(argv)}")
+                    if name:
+                        printed[name] = buf.getvalue().rstrip("\n")
+                    if draw and "--plot" in argv:
+                        fig = argv[argv.index("--plot") + 1]
+                        print(f"{folder}/{fig}", flush=True)
+                        shutil.copy(work / fig, ROOT / folder / fig)
+                for name, (_, where, rel) in EXCERPTS.items():
+                    if where == folder:
+                        printed[name] = _excerpt((work / rel).read_text(encoding="utf-8"))
+            finally:
+                os.chdir(here)
+    return printed
+
+
+def command_output(argv):
+    """Standard output of ``ionochem ARGV`` run from the repository root."""
+    import contextlib
+    import io
+    import os
+
+    from ionochem.cli import main as ionochem
+    here = os.getcwd()
+    buf = io.StringIO()
+    os.chdir(ROOT)
+    try:
+        with contextlib.redirect_stdout(buf), contextlib.redirect_stderr(io.StringIO()):
+            code = ionochem(list(argv))
+    finally:
+        os.chdir(here)
+    if code != 0:
+        raise SystemExit(f"failed: ionochem {' '.join(argv)}")
+    return buf.getvalue().rstrip("\n")
+
+
+def fit_reading(model, ds):
+    """docs/observations.md: what the invented Brackenfold fit says, with its numbers."""
+    import ionochem
+    from ionochem.analysis.fit import electron_constrained_model, fit
+    scen = ionochem.load_scenario(ROOT / "scenarios" / "tabulated_column.toml")
+    obs = ionochem.load_observations(ROOT / "scenarios" / "observations" /
+                                     "brackenfold_n2plus_ne.csv")
+    base = electron_constrained_model(ionochem.Model(scen), obs)
+    free = ["PI_N2", "N2plus_O_NOplus", "DR_N2plus"]
+    res = fit(base, obs, free, profile="N2plus_O_NOplus", profile_points=9)
+    m = {p: float(res["multiplier"].sel(parameter=p)) for p in free}
+    sig = float(res["log_multiplier_sigma"].sel(parameter="N2plus_O_NOplus"))
+    g_lo, g_hi = (m["N2plus_O_NOplus"] * np.exp(s) for s in (-sig, sig))
+    p_lo, p_hi = (float(v) for v in res.attrs["profile_interval_68"].split(" to "))
+    corr = float(res["correlation"].sel(parameter="PI_N2", parameter_b="N2plus_O_NOplus"))
+    weakest = 1.0 / float(res["singular_value"].min())
+    dr = float(res["log_multiplier"].sel(parameter="DR_N2plus"))
+    dr_prior = float(res["prior_log_sigma"].sel(parameter="DR_N2plus"))
+    return (f"The fit closes the gap (χ² from {float(res['chi2_baseline']):.0f} to "
+            f"{float(res['chi2']):.0f} for {int(res['degrees_of_freedom'])} degrees of "
+            f"freedom) by sharing the factor two between a faster N2 photoionization "
+            f"(× {m['PI_N2']:.2g}), a slower charge transfer with O "
+            f"(× {m['N2plus_O_NOplus']:.2g}) and a much slower recombination "
+            f"(× {m['DR_N2plus']:.2g}). The profile likelihood's Δχ² = 1 interval of the "
+            f"charge-transfer multiplier ({p_lo:.2f}–{p_hi:.2f}) matches the Gaussian one "
+            f"({g_lo:.2f}–{g_hi:.2f}), so the linear approximation holds. The fit is "
+            "**degenerate between production and charge transfer**: below 250 km N2+ is their "
+            f"ratio, so the data fix that ratio and not each one (correlation {corr:+.2f}); "
+            "how the change is shared between them is decided by their priors. The "
+            "recombination is separate from both (it acts higher up) but rests on the few "
+            "points above 300 km: the data alone constrain the weakest combination, which is "
+            f"mostly `DR_N2plus`, only to a factor e^{weakest:.1f} ≈ {np.exp(weakest):.0f}, "
+            f"and the fitted value sits {abs(dr) / dr_prior:.1f} σ "
+            f"{'below' if dr < 0 else 'above'} its prior.")
+
+
+PASSAGES = {"reading": reading, "fit-reading": fit_reading, "fit-example": fit_example,
+            "compare-O2D_N2": compare_o2d,
             "levels-experiment": levels_experiment, "e-region": e_region,
             "default-list-checks": default_list_checks}
 
 #: File of each passage (default README.md).
-FILES = {"default-list-checks": ROOT / "reactions" / "README.md"}
+FILES = {"default-list-checks": ROOT / "reactions" / "README.md",
+         "fit-reading": ROOT / "docs" / "observations.md"}
 
 
 def generate():
@@ -244,32 +449,70 @@ def _wrap(text, width=96):
     return "\n".join(lines)
 
 
-def render(readme_text, passages):
-    """The README with each marked passage replaced (markers kept)."""
+def _fenced(text):
+    """Printed output as a Markdown code block."""
+    return f"```\n{text}\n```"
+
+
+def render(readme_text, passages, outputs=None):
+    """The text with each marked passage (wrapped prose) and each marked command output
+    (verbatim) replaced, markers kept."""
     out = readme_text
-    for name, text in passages.items():
-        pat = re.compile(rf"(<!-- generated: {re.escape(name)} -->\n).*?"
-                         rf"(\n<!-- /generated: {re.escape(name)} -->)", re.S)
-        if not pat.search(out):
-            raise SystemExit(f"README.md has no generated passage {name!r}")
-        out = pat.sub(lambda m, t=text: m.group(1) + _wrap(t) + m.group(2), out)
+    for kind, items, fmt in (("generated", passages, _wrap),
+                             ("generated-output", outputs or {}, _fenced)):
+        for name, text in items.items():
+            pat = re.compile(rf"(<!-- {kind}: {re.escape(name)} -->\n).*?"
+                             rf"(\n<!-- /{kind}: {re.escape(name)} -->)", re.S)
+            if not pat.search(out):
+                raise SystemExit(f"no {kind} passage {name!r}")
+            out = pat.sub(lambda m, t=text, f=fmt: m.group(1) + f(t) + m.group(2), out)
     return out
 
 
-def render_all(passages):
-    """{path: (old text, new text)} of every file with generated passages."""
+def render_all(passages, outputs=None):
+    """{path: (old text, new text)} of every file with generated passages or outputs."""
+    outputs = outputs or {}
     out = {}
-    for path in {README, *FILES.values()}:
+    for path in {README, *FILES.values(), *(_output_file(n) for n in outputs)}:
         mine = {n: t for n, t in passages.items() if FILES.get(n, README) == path}
+        printed = {n: t for n, t in outputs.items() if _output_file(n) == path}
         old = path.read_text(encoding="utf-8")
-        out[path] = (old, render(old, mine))
+        out[path] = (old, render(old, mine, printed))
     return out
+
+
+def _output_file(name):
+    """The Markdown file holding printed output ``name``."""
+    if name in OUTPUTS:
+        return OUTPUTS[name][0]
+    if name in EXCERPTS:
+        return EXCERPTS[name][0]
+    for folder, runs in EXAMPLE_RUNS:
+        if name in {n for n, _ in runs}:
+            return ROOT / folder / "README.md"
+    raise KeyError(name)
+
+
+def generate_outputs(examples=True):
+    """{name: printed output} of every command in :data:`OUTPUTS` and, with ``examples``,
+    of the named runs of :data:`EXAMPLE_RUNS`."""
+    out = {name: command_output(argv) for name, (_, argv) in OUTPUTS.items()}
+    return {**out, **run_examples()} if examples else out
 
 
 def main(argv=None):
     argv = sys.argv[1:] if argv is None else argv
     stale = []
-    for path, (old, new) in render_all(generate()).items():
+    figures = "--figures" in argv and "--check" not in argv
+    if figures:
+        import os
+        here = os.getcwd()
+        try:
+            _make_figures().main()
+        finally:
+            os.chdir(here)
+    outputs = {**generate_outputs(examples=False), **run_examples(draw=figures)}
+    for path, (old, new) in render_all(generate(), outputs).items():
         if new != old:
             stale.append(path)
             if "--check" not in argv:

@@ -247,6 +247,9 @@ def test_fit_command_writes_the_contract_variables(column, tmp_path, capsys):
     assert float(ds["multiplier"].sel(parameter="R4")) == pytest.approx(2.0, rel=0.25)
     ds.close()
     assert fig.stat().st_size > 1000
+    from PIL import Image  # matplotlib's own dependency
+    with Image.open(fig) as im:      # a readable page width (the figure was 1,700-2,300 px)
+        assert im.size[0] <= 1500, im.size
     n2_only = tmp_path / "n2.csv"
     synthetic_observations(model, ["N2+"], {}, 0.1, np.random.default_rng(6), path=n2_only)
     for bad, words in ((["--free", "NOPE"], "--free: no reaction"),

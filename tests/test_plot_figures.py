@@ -22,7 +22,7 @@ from ionochem.analysis.rank import rank_reactions
 from ionochem.analysis.uncertainty import monte_carlo
 from ionochem.errors import InputError
 from ionochem.plot.compare import compare_figure
-from ionochem.plot.equilibrium import SHADE_COLOUR
+from ionochem.plot.equilibrium import ONSET_MARKER
 from ionochem.plot.profiles import STYLE, plot_profiles, profiles_figure, time_series_figure
 from ionochem.plot.sensitivity import sensitivity_figure
 from ionochem.plot.uncertainty import BAND_ALPHA, bands_figure
@@ -88,17 +88,22 @@ def _line(ax, label):
 
 
 def _shaded_spans(ax):
-    """(low, high) altitude of each grey span drawn by the equilibrium marks."""
-    from matplotlib.colors import to_rgba
+    """(low, high) altitude of every filled rectangle spanning the panel (a band across
+    all species); the equilibrium marks must draw none."""
     from matplotlib.patches import Rectangle
-    out = []
-    for p in ax.patches:
-        if np.allclose(p.get_facecolor()[:3], to_rgba(SHADE_COLOUR)[:3]):
-            if isinstance(p, Rectangle):
-                out.append((p.get_y(), p.get_y() + p.get_height()))
-            else:
-                y = np.asarray(p.get_xy())[:, 1]
-                out.append((float(y.min()), float(y.max())))
+    return [(p.get_y(), p.get_y() + p.get_height()) for p in ax.patches
+            if isinstance(p, Rectangle) and p.get_width() >= 0.99 and p.get_visible()]
+
+
+def _onsets(ax):
+    """{colour: [(x, altitude), …]} of the open circles marking where a curve's flagged
+    part begins."""
+    from matplotlib.colors import to_hex
+    out = {}
+    for ln in ax.get_lines():
+        if ln.get_marker() == ONSET_MARKER["marker"] and ln.get_linestyle() == "None":
+            x, y = ln.get_data()
+            out.setdefault(to_hex(ln.get_markeredgecolor()), []).extend(zip(x, y))
     return out
 
 
@@ -109,59 +114,91 @@ def _lowest_flag(ds, names):
     return min(lows)
 
 
-def test_metastable_oplus_curves_differ_in_colour_and_dash(steady):
-    """O+(2D) and O+(2P) are drawn in different colours and different dash patterns."""
+def test_only_electrons_are_dashed_and_metastables_differ(steady):
+    """Electrons are the only dashed curve (O+(2P) was dashed too, issue 24); O+(2D) and
+    O+(2P) differ in colour and pattern."""
     fig = profiles_figure(steady)
     ax = fig.axes[0]
     d, p = _line(ax, "O+(2D)"), _line(ax, "O+(2P)")
     assert d.get_color() != p.get_color()
-    assert d._dash_pattern != p._dash_pattern
-    assert STYLE["O+(2D)"]["color"] != STYLE["O+(2P)"]["color"]
+    assert d._unscaled_dash_pattern != p._unscaled_dash_pattern
+
+    def dashed(ln):         # one dash and one gap per period, the dash longer than a dot
+        offset, seq = ln._unscaled_dash_pattern
+        return seq is not None and len(seq) == 2 and seq[0] >= 2.0
+    same = [ln.get_label() for ln in ax.get_lines()
+            if dashed(ln) and not ln.get_label().startswith("_")]
+    assert same == ["e"]
 
 
-def test_profile_legend_clear_and_equilibrium_shading_from_the_flag(steady):
-    """The legend sits outside the data; the grey span starts half a level below the
-    lowest level where a drawn species is flagged ``pce_doubtful`` and reaches the top."""
+def test_profile_marks_each_flagged_species_on_its_own_curve(steady):
+    """No band across the panel: each species flagged ``pce_doubtful`` gets an open circle
+    on its own curve at its lowest flagged level, and no other species gets one (a grey
+    band once spanned species in equilibrium, issue 24); the legend names the flagged
+    species and heights and stays clear of the data."""
+    from matplotlib.colors import to_hex
     fig = profiles_figure(steady)
     assert_legends_clear_of_data(fig)
     ax = fig.axes[0]
+    assert _shaded_spans(ax) == []
+    alt = steady["altitude"].values
+    marks = _onsets(ax)
     drawn = [ln.get_label() for ln in ax.get_lines() if not ln.get_label().startswith("_")]
-    spans = _shaded_spans(ax)
-    assert spans, "no shaded altitudes although O+ is flagged at the top"
-    low = _lowest_flag(steady, drawn)
-    assert min(lo for lo, _ in spans) == pytest.approx(low - 5.0)
-    assert max(hi for _, hi in spans) == pytest.approx(steady["altitude"].values.max())
+    flagged = [s for s in drawn if (steady["pce_doubtful"].sel(species=s).values > 0).any()]
+    assert flagged, "the demo flags some drawn species"
+    for s in drawn:
+        colour = to_hex(_line(ax, s).get_color())
+        if s in flagged:
+            low = alt[steady["pce_doubtful"].sel(species=s).values > 0].min()
+            assert any(y == pytest.approx(low) for _, y in marks.get(colour, [])), s
+        else:
+            assert colour not in marks, f"{s} is in equilibrium but marked"
     text = " ".join(t.get_text() for t in _legends(fig)[0].get_texts())
-    assert "not in photochemical equilibrium" in text and f"{low:g} km" in text
+    assert "not in photochemical" in text and f"{_lowest_flag(steady, drawn):g} km" in text
 
 
-def test_profile_without_flag_has_no_shading(steady):
-    """A dataset without ``pce_doubtful`` (a file written elsewhere) draws no span."""
+def test_profile_without_flag_has_no_marks(steady):
+    """A dataset without ``pce_doubtful`` (a file written elsewhere) draws no mark."""
     fig = profiles_figure(steady.drop_vars("pce_doubtful"))
-    assert _shaded_spans(fig.axes[0]) == []
+    assert _onsets(fig.axes[0]) == {} and _shaded_spans(fig.axes[0]) == []
 
 
-def test_compare_figure_plain_label_legend_outside_and_shading(compared):
+def test_compare_figure_plain_label_legend_outside_and_marks(compared):
     """The change axis reads "change from baseline (%)"; the legend is clear of both panels;
-    both panels shade the baseline's flagged levels."""
+    both panels mark the baseline's flagged species on their curves, no band."""
     fig = compare_figure(compared)
     ax_n, ax_r = fig.axes[:2]
     assert ax_r.get_xlabel() == "change from baseline (%)"
     assert_legends_clear_of_data(fig)
-    assert _shaded_spans(ax_n) and _shaded_spans(ax_n) == _shaded_spans(ax_r)
+    assert _onsets(ax_n) and set(_onsets(ax_n)) == set(_onsets(ax_r))
+    assert _shaded_spans(ax_n) == [] and _shaded_spans(ax_r) == []
     assert "pce_doubtful" in compared
 
 
-def test_rank_bars_are_named_by_reaction_and_colour_bar_says_what_s_is(model):
-    """The bar chart's y labels are the ranked reaction ids (the ranking's own order); the
-    colour bar is labelled as the normalized sensitivity ∂ln n/∂ln k."""
+def test_rank_rows_are_named_by_equation_and_colour_bar_says_what_s_is(model):
+    """The heat map's rows are named by the ranked reactions' equations and the factors'
+    descriptions (from the sensitivity dataset's own ``equation`` and
+    ``factor_description``), in the ranking's order, not by internal ids (issue 24); the
+    bar chart beside it shares the rows; the colour bar is labelled as the normalized
+    sensitivity ∂ln n/∂ln k."""
     sens = model.sensitivity()
     fig = sensitivity_figure(sens, species=["N2+"], altitude_range=(150, 300), top=6)
     heat, bars, cbar = fig.axes[0], fig.axes[1], fig.axes[2]
     rows = rank_reactions(sens, "N2+", (150, 300), 6)
     fig.canvas.draw()
-    assert [t.get_text() for t in bars.get_yticklabels()] == [r.reaction for r in rows]
-    assert [t.get_text() for t in heat.get_yticklabels()] == [r.reaction for r in rows]
+    reactions = list(sens["reaction"].values)
+    factors = list(sens["factor"].values)
+    want = []
+    for r in rows:
+        if r.reaction in reactions:
+            eq = str(sens["equation"].sel(reaction=r.reaction).values)
+            want.append(eq.replace(" -> ", " → "))
+        else:
+            desc = str(sens["factor_description"].values[factors.index(r.reaction)])
+            want.append(desc.split(" (")[0])
+    want = [f"{w} [{r.reaction}]" if want.count(w) > 1 else w for w, r in zip(want, rows)]
+    assert [t.get_text() for t in heat.get_yticklabels()] == want
+    assert len(bars.get_yticks()) == len(rows)
     label = cbar.get_ylabel()
     assert "normalized sensitivity" in label and "∂ln n" in label and "∂ln k" in label
     assert_legends_clear_of_data(fig)
@@ -200,6 +237,51 @@ def test_uncertainty_90_percent_band_is_visible(model):
     assert_legends_clear_of_data(fig)
     labels = [t.get_text() for t in _legends(fig)[0].get_texts()]
     assert "90 % band (5-95 %)" in labels
+
+
+def test_uncertainty_bands_each_species_in_a_panel_of_its_own(model):
+    """The Monte Carlo bands of different species never share a panel (they overlapped
+    unreadably on one axis, issue 24): one titled panel per species, two bands in each."""
+    mc = monte_carlo(model, 12, seed=3)
+    names = ["e", "O2+", "NO+", "N2+"]
+    fig = bands_figure(mc, species=names)
+    panels = [ax for ax in fig.axes if ax.get_visible()]
+    assert [ax.get_title() for ax in panels] == names
+    for ax in panels:
+        assert len(ax.collections) == 2        # the 90 % and the 68 % band of one species
+    assert_legends_clear_of_data(fig)
+
+
+def test_sweep_map_of_one_signed_sensitivity_titles_and_scale(tmp_path, monkeypatch):
+    """A sweep over local time of a scenario titled "noon": the title names it the base
+    scenario and says what is swept; the x axis reads "local solar time (h)"; an all-positive
+    sensitivity gets a sequential scale from zero, not a symmetric diverging one (issue 24);
+    the colour bar carries the reaction's equation."""
+    import ionochem.plot.sweep as sweep_plot
+    hours = np.array([7.0, 12.0, 17.0])
+    alt = np.array([100.0, 200.0, 300.0, 400.0])
+    S = np.linspace(0.05, 0.6, hours.size * alt.size).reshape(hours.size, 1, 1, alt.size)
+    ds = xr.Dataset(
+        {"sensitivity": (("local_hour", "species", "reaction", "altitude"), S),
+         "density": (("local_hour", "species", "altitude"), np.ones((3, 1, 4)))},
+        coords={"local_hour": ("local_hour", hours, {"units": "h"}), "altitude": alt,
+                "species": ["N2+"], "reaction": ["R1"],
+                "equation": ("reaction", ["O+(2D) + N2 -> N2+ + O"])},
+        attrs={"title": "invented site, equinox noon", "sweep_dimensions": "local_hour"})
+    figs = []
+    real = sweep_plot._figure_bytes
+    monkeypatch.setattr(sweep_plot, "_figure_bytes",
+                        lambda fig, path: figs.append(fig) or real(fig, path))
+    sweep_plot.plot_sweep_map(ds, tmp_path / "m.png", species="N2+", reaction="R1")
+    ax, cax = figs[0].axes[:2]
+    title = ax.get_title()
+    assert title.startswith("base scenario: invented site, equinox noon")
+    assert "swept: local solar time 7–17 (h)" in title
+    assert ax.get_xlabel() == "local solar time (h)"
+    mesh = ax.collections[0]
+    assert mesh.norm.vmin == 0.0 and mesh.norm.vmax == pytest.approx(0.6)
+    assert mesh.cmap.name == sweep_plot.CMAP_POSITIVE
+    assert "O+(2D) + N2 → N2+ + O" in cax.get_ylabel()
 
 
 def _transient(alt=(100.0, 200.0, 300.0)):
@@ -306,16 +388,30 @@ def test_global_sensitivity_figure_legend_is_outside_every_panel():
     assert_legends_clear_of_data(global_figure(ds))
 
 
-def test_level_members_get_shades_of_their_family_colour_distinct_from_the_palette():
-    """N2+(v=0) and N2+(v=1) are drawn in shades of the N2+ colour (same hue, matplotlib's
-    HSV conversion), different from each other, from N2+ and from every palette colour."""
-    from matplotlib.colors import rgb_to_hsv, to_rgb
+def _cie_lightness(rgb):
+    """CIE 1976 L* of an sRGB colour (IEC 61966-2-1 linearisation, D65 luminance
+    weights), written out here as the outside reference."""
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    y = 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+    return 116 * y ** (1 / 3) - 16 if y > (6 / 29) ** 3 else y * (29 / 3) ** 3
+
+
+def test_level_colours_are_sequential_with_contrast_and_labelled(steady):
+    """Vibrational levels v = 0..4 are drawn darkest to lightest with at least 8 units of
+    CIE L* between neighbours, v = 4 still dark enough to read on white (L* < 80; pale
+    near-identical shades hid v = 4, issue 24), none a palette colour; every level curve of
+    a profile figure carries a direct ``v=K`` label in its colour."""
+    from matplotlib.colors import to_hex, to_rgb
 
     from ionochem.plot.profiles import style_of
-    base = to_rgb(STYLE["N2+"]["color"])
-    shades = [to_rgb(style_of(f"N2+(v={v})")["color"]) for v in range(5)]
-    palette = {to_rgb(st["color"]) for st in STYLE.values()}
-    assert len(set(shades)) == 5 and not set(shades) & palette
-    for c in shades:
-        assert abs(rgb_to_hsv(c)[0] - rgb_to_hsv(base)[0]) < 0.02
-    assert to_rgb(style_of("X+", ["N2+", "e"])["color"]) not in palette
+    L = [_cie_lightness(to_rgb(style_of(f"N2+(v={v})")["color"])) for v in range(5)]
+    assert all(b - a >= 8 for a, b in zip(L, L[1:])), L
+    assert L[-1] < 80, L
+    palette = {to_hex(st["color"]) for st in STYLE.values()}
+    assert not {to_hex(style_of(f"N2+(v={v})")["color"]) for v in range(5)} & palette
+    levels = [f"N2+(v={v})" for v in range(5)]
+    fig = profiles_figure(steady, species=["e", *levels])
+    ax = fig.axes[0]
+    texts = {t.get_text(): to_hex(t.get_color()) for t in ax.texts}
+    for v, s in enumerate(levels):
+        assert texts.get(f"v={v}") == to_hex(_line(ax, s).get_color()), (s, texts)

@@ -53,6 +53,7 @@ from ionochem.analysis.misfit import (
     log_sigma,
 )
 from ionochem.errors import InputError, SolverError
+from ionochem.io.dataset import ALTITUDE_ATTRS
 from ionochem.io.observations import check_against_model
 
 #: A singular direction below this fraction of the largest singular value is degenerate.
@@ -542,11 +543,13 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
             "parameter_equation": ("parameter", np.array(
                 [_equation(problem.base_ds, p) for p in params], dtype=object),
                 {"long_name": "what the parameter multiplies"}),
-            "direction": ("direction", np.arange(P)),
+            "direction": ("direction", np.arange(P), {
+                "units": "1", "long_name": "index of the singular direction"}),
             "species": ("species", np.array(problem.species, dtype=object)),
-            "altitude": ("altitude", alt, {"units": "km", "long_name": "altitude"}),
+            "altitude": ("altitude", alt, ALTITUDE_ATTRS),
             "observation_altitude": ("observation", obs["altitude_km"].values[use],
-                                     {"units": "km"}),
+                                     {"units": "km", "long_name": "altitude of the "
+                                      "observation"}),
             "observation_species": ("observation", obs["species"].values[use]),
             "observation_kind": ("observation", obs["kind"].values[use]),
         },

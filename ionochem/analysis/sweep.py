@@ -449,7 +449,7 @@ def run_sweep(spec: SweepSpec, *, output=None, resume=False, workers=1, schedule
             computed += 1
             layout = layout_of(template)
             if store is not None:
-                write_netcdf(template, tpath)
+                write_netcdf(template, tpath, reorder=False)   # read back by position
                 if (0, 1) not in store.finished():
                     store.write(0, 1, np.zeros((1, 1)), pack(template, layout)[None])
             else:

@@ -36,12 +36,14 @@ FIXED_SECTIONS = ("grid", "changes", "output")
 RANGE_TOLERANCE = 1e-9
 #: Units and long names of the dimensions the demo keys make (CF attributes).
 AXIS_ATTRS = {
-    "f107": {"units": "sfu", "long_name": "daily F10.7 solar radio flux "
-             "(1 sfu = 1e-22 W m-2 Hz-1)"},
-    "f107a": {"units": "sfu", "long_name": "81-day mean F10.7 solar radio flux"},
+    "f107": {"units": "1e-22 W m-2 Hz-1", "long_name": "daily F10.7 solar radio flux (sfu)"},
+    "f107a": {"units": "1e-22 W m-2 Hz-1",
+              "long_name": "81-day mean F10.7 solar radio flux (sfu)"},
     "ap": {"units": "1", "long_name": "daily geomagnetic ap index"},
-    "latitude_deg": {"units": "degree_north", "long_name": "geodetic latitude"},
-    "longitude_deg": {"units": "degree_east", "long_name": "longitude"},
+    "latitude_deg": {"units": "degree_north", "long_name": "geodetic latitude",
+                     "standard_name": "latitude"},
+    "longitude_deg": {"units": "degree_east", "long_name": "longitude",
+                      "standard_name": "longitude"},
     "local_hour": {"units": "h", "long_name": "local apparent solar time (12 h = the Sun's "
                    "meridian transit)"},
     "day_of_year": {"units": "day", "long_name": "day of the year of the scenario's year "

@@ -33,8 +33,61 @@ def _umask_mode():
     return 0o666 & ~mask
 
 
-def _encodable(ds):
-    """Copy of ``ds`` with object (string) arrays as fixed strings and bools as int8."""
+#: The CF version every output file declares and is checked against (compliance-checker's
+#: ``cf:1.8`` suite, tests/test_outputs_cf.py).
+CONVENTIONS = "CF-1.8"
+
+
+#: Latitude and longitude units of CF §4.1 and §4.2.
+_NORTH = ("degrees_north", "degree_north", "degree_N", "degrees_N", "degreeN", "degreesN")
+_EAST = ("degrees_east", "degree_east", "degree_E", "degrees_E", "degreeE", "degreesE")
+
+
+def _axis(var):
+    """CF axis (``T``, ``Z``, ``Y``, ``X``) of a coordinate variable, or None (other)."""
+    attrs = var.attrs
+    units = str(attrs.get("units", ""))
+    if (np.issubdtype(var.dtype, np.datetime64) or " since " in units
+            or attrs.get("axis") == "T" or attrs.get("standard_name") == "time"):
+        return "T"
+    if attrs.get("axis") == "Z" or "positive" in attrs or attrs.get("standard_name") in (
+            "altitude", "height"):
+        return "Z"
+    if attrs.get("axis") == "Y" or units in _NORTH:
+        return "Y"
+    if attrs.get("axis") == "X" or units in _EAST:
+        return "X"
+    return None
+
+
+def cf_dimension_order(ds, dims):
+    """``dims`` reordered as CF §2.4 recommends: other dimensions first (in their order),
+    then time, altitude, latitude, longitude."""
+    rank = {"T": 1, "Z": 2, "Y": 3, "X": 4}
+    key = {d: rank.get(_axis(ds[d]), 0) if d in ds.coords else 0 for d in dims}
+    return tuple(sorted(dims, key=lambda d: key[d]))        # sorted() is stable
+
+
+def _fits_int32(var):
+    """True when every value of an integer variable fits in a 32-bit signed integer (else
+    it is kept 64-bit rather than wrapped)."""
+    v = np.asarray(var.values)
+    info = np.iinfo(np.int32)
+    return v.size == 0 or (int(v.min()) >= info.min and int(v.max()) <= info.max)
+
+
+def _encodable(ds, reorder=True):
+    """Copy of ``ds`` ready for a CF-1.8 netCDF file.
+
+    Object (string) arrays become fixed strings, bools int8 and 64-bit integers 32-bit
+    ones (CF-1.8 §2.2 has no 64-bit integer); every variable's dimensions follow CF §2.4
+    (time, altitude, latitude, longitude last and in that order); ``Conventions`` is
+    :data:`CONVENTIONS`. ``reorder=False`` keeps the dimension order (a file read back by
+    the program itself, whose layout must match the dataset's). A coordinate variable (one
+    named after its dimension) is written without ``_FillValue`` (CF §2.5.1); one of labels
+    (species, reaction ids) as a character array (CF §5 and §6.1: a coordinate variable is
+    numeric, labels are characters), which xarray reads back as the same string index.
+    """
     out = ds.copy()
     for name in list(out.variables):
         var = out[name]
@@ -42,11 +95,23 @@ def _encodable(ds):
             out[name] = var.astype(str)
         elif var.dtype == bool:
             out[name] = var.astype(np.int8)
+        elif var.dtype.kind in "iu" and var.dtype.itemsize == 8 and _fits_int32(var):
+            out[name] = var.astype(np.int32)
+    for name in list(out.data_vars) if reorder else ():
+        order = cf_dimension_order(out, out[name].dims)
+        if order != out[name].dims:
+            out[name] = out[name].transpose(*order)
     for key, val in list(out.attrs.items()):
         if isinstance(val, bool):
             out.attrs[key] = int(val)
         elif val is None:
             out.attrs[key] = ""
+    for name in out.dims:
+        if name in out.variables:
+            extra = ({"dtype": "S1"} if out[name].dtype.kind in "OSU"
+                     else {"_FillValue": None})
+            out[name].encoding = {**out[name].encoding, **extra}
+    out.attrs["Conventions"] = CONVENTIONS
     return out
 
 
@@ -228,10 +293,14 @@ def atomic_path(path):
             raise
 
 
-def write_netcdf(ds, path) -> Path:
-    """Write ``ds`` to ``path`` atomically (NETCDF4 format); returns the path."""
+def write_netcdf(ds, path, *, reorder=True) -> Path:
+    """Write ``ds`` to ``path`` atomically (NETCDF4 format, CF-1.8); returns the path.
+
+    ``reorder=False`` keeps each variable's dimension order (for files the program reads
+    back and unpacks by position, such as a sweep's stored template column).
+    """
     with atomic_path(path) as tmp:
-        _encodable(ds).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
+        _encodable(ds, reorder=reorder).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
     return Path(path)
 
 

@@ -44,6 +44,17 @@ ATTRIBUTE_VARIABLES = {
     "column_recombination_cm2_s": ("cm-2 s-1", "column-integrated recombination rate"),
     "column_balance": ("1", "relative imbalance of column ionization and recombination"),
 }
+#: Where the column is, as CF coordinates (scalar when the key is not swept; a swept
+#: ``latitude_deg`` or ``longitude_deg`` is itself the coordinate): name → (global
+#: attribute of a single run, attributes).
+POSITION = {
+    "latitude": ("latitude_deg", {"units": "degree_north", "standard_name": "latitude",
+                                  "long_name": "geodetic latitude of the column"}),
+    "longitude": ("longitude_deg", {"units": "degree_east", "standard_name": "longitude",
+                                    "long_name": "longitude of the column"}),
+}
+#: Per-column variables that are coordinates of the sweep (the UTC of each point).
+POINT_COORDINATES = ("time_utc",)
 EPOCH = np.datetime64("1970-01-01T00:00:00", "us")
 TIME_UNITS = "seconds since 1970-01-01 00:00:00"
 
@@ -68,6 +79,7 @@ def column_variables(ds, utc):
     t = np.datetime64(utc, "us")
     ds["time_utc"] = ((), float((t - EPOCH) / np.timedelta64(1, "s")),
                       {"units": TIME_UNITS, "calendar": "proleptic_gregorian",
+                       "standard_name": "time",
                        "long_name": "UTC of the column (the scenario time of this point)"})
     for name, (units, long_name) in ATTRIBUTE_VARIABLES.items():
         if name in ds.attrs:
@@ -146,6 +158,9 @@ def skeleton(template, layout, coords, attrs):
     ds = xr.Dataset(attrs=dict(attrs))
     for name, (values, vattrs) in coords.items():
         ds.coords[name] = (name, np.asarray(values), dict(vattrs))
+    for name, (key, vattrs) in POSITION.items():
+        if key not in coords and key in template.attrs:
+            ds.coords[name] = ((), float(template.attrs[key]), dict(vattrs))
     for name, c in template.coords.items():
         ds.coords[name] = c.variable.copy()
     for name in STATIC_VARIABLES:
@@ -202,6 +217,7 @@ def assemble_sweep(skel, layout, batches, *, var_attrs):
     for e in layout:
         ds[e.name] = ((*dims, *e.dims), data[e.name].reshape((*shape, *e.shape)),
                       dict(var_attrs.get(e.name, {})))
+    ds = ds.set_coords([n for n in POINT_COORDINATES if n in ds.data_vars])
     return xr.decode_cf(ds, decode_timedelta=False)
 
 
@@ -245,13 +261,19 @@ def _nc_attrs(attrs):
 
 
 def _write_netcdf(path, skel, layout, batches, var_attrs):
+    """Stream the batches into a CF-1.8 netCDF file (dimensions in the order CF §2.4
+    recommends, the UTC and position of the points as coordinates of every variable)."""
     import netCDF4
 
     from ionochem.io.netcdf import _encodable, atomic_path
     dims = sweep_dims(skel)
     shape = tuple(skel.sizes[d] for d in dims)
+    ready = _encodable(skel)
+    names = {e.name for e in layout}
+    coords = " ".join(n for n in (*POINT_COORDINATES, *POSITION)
+                      if n in names or n in ready.coords)
     with atomic_path(path) as tmp:
-        _encodable(skel).to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
+        ready.to_netcdf(tmp, format="NETCDF4", engine="netcdf4")
         with netCDF4.Dataset(tmp, "a") as nc:
             sizes = dict(skel.sizes)
             variables = {}
@@ -259,25 +281,48 @@ def _write_netcdf(path, skel, layout, batches, var_attrs):
                 for d, n in zip(e.dims, e.shape):
                     if d not in nc.dimensions:
                         nc.createDimension(d, sizes.get(d, n))
-                full = (*shape, *e.shape)
-                chunks = (1,) * len(shape) + e.shape if all(full) and full else None
-                fill = np.nan if e.dtype.startswith("float") else None
-                v = nc.createVariable(e.name, np.dtype(e.dtype), (*dims, *e.dims),
-                                      zlib=True, complevel=1, shuffle=True,
-                                      chunksizes=chunks, fill_value=fill)
-                v.setncatts(_nc_attrs(var_attrs.get(e.name, {})))
-                variables[e.name] = v
+                variables[e.name] = _create(nc, ready, e, dims, shape)
+                attrs = _nc_attrs(var_attrs.get(e.name, {}))
+                if dims and coords and e.name not in POINT_COORDINATES:
+                    attrs["coordinates"] = coords
+                variables[e.name][0].setncatts(attrs)
             for a, b, rows in batches:
                 blocks = _unpack(np.asarray(rows, float), layout)
                 for off, lead, last in _runs(a, b, shape):
                     n = 1 if last is None else last.stop - last.start
                     for e in layout:
-                        block = blocks[e.name][off:off + n]
-                        if last is None:
-                            variables[e.name][...] = block[0]
-                        else:
-                            variables[e.name][(*lead, last)] = block
+                        _put(*variables[e.name], blocks[e.name][off:off + n], e, dims,
+                             lead, last)
     return path
+
+
+def _create(nc, ready, e, dims, shape):
+    """The netCDF variable of one per-column entry, its dimensions in CF order; returns
+    (variable, dimension order)."""
+    from ionochem.io.netcdf import cf_dimension_order
+    natural = (*dims, *e.dims)
+    order = cf_dimension_order(ready, natural)
+    size = dict(zip(natural, (*shape, *e.shape)))
+    full = tuple(size[d] for d in order)
+    chunks = (tuple(1 if d in dims else size[d] for d in order)
+              if all(full) and full else None)
+    fill = np.nan if e.dtype.startswith("float") else None
+    v = nc.createVariable(e.name, np.dtype(e.dtype), order, zlib=True, complevel=1,
+                          shuffle=True, chunksizes=chunks, fill_value=fill)
+    return v, order
+
+
+def _put(var, order, block, e, dims, lead, last):
+    """Write ``block`` (points along the last sweep dimension, *e.shape) into ``var``."""
+    if last is None:
+        var[...] = np.transpose(block[0], [e.dims.index(d) for d in order])
+        return
+    index = dict(zip(dims[:-1], lead))
+    index[dims[-1]] = last
+    key = tuple(index.get(d, slice(None)) for d in order)
+    have = (dims[-1], *e.dims)
+    left = [d for d in order if d not in dims[:-1]]
+    var[key] = np.transpose(block, [have.index(d) for d in left])
 
 
 def _write_zarr(path, skel, layout, batches, var_attrs):

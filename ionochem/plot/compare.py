@@ -14,7 +14,7 @@ import numpy as np
 
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right
-from ionochem.plot.profiles import save_figure, style_density_axes, style_of
+from ionochem.plot.profiles import label_levels, save_figure, style_density_axes, style_of
 
 COMPARE_SPECIES = ("e", "O+(total)", "O+", "O2+", "NO+", "N2+")
 
@@ -70,10 +70,12 @@ def compare_figure(ds, *, species=None, title=None, observed=None):
         style["color"] = line.get_color()
         plot_marked(ax_n, np.where(nc > 0, nc, np.nan), alt, masks[s], ls="--", **style)
         pct = 100.0 * (ds["ratio"].sel(species=s).values - 1.0)
-        plot_marked(ax_r, pct, alt, masks[s], ls="-", **style)
+        plot_marked(ax_r, pct, alt, masks[s], ls="-", label=s, **style)
         positive.append(nb[nb > 0])
         positive.append(nc[nc > 0])
     style_density_axes(ax_n, alt, positive)
+    label_levels(ax_n, [ln for ln in ax_n.get_lines() if ln.get_label() in names])
+    label_levels(ax_r, [ln for ln in ax_r.get_lines() if ln.get_label() in names])
     ax_r.axvline(0.0, color="0.5", lw=0.8)
     ax_r.set_xlabel("change from baseline (%)")
     ax_r.grid(True, alpha=0.3)

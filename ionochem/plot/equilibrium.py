@@ -3,9 +3,11 @@
 A result dataset flags, per species and level, where the chemical lifetime n/L is longer than
 the O+ ambipolar diffusion time (``pce_doubtful``, see
 :mod:`ionochem.analysis.diagnostics`): there a chemistry-only column misrepresents the
-species. Every profile and comparison figure shows it the same way: the altitudes where any
-drawn species is flagged are shaded light grey, and each curve is drawn faded where its own
-species is flagged. This module only reads the flag; it computes nothing.
+species. Every profile and comparison figure shows it the same way, per species: each curve is
+drawn faded where its own species is flagged, and an open circle on the curve marks where the
+flagged part begins. (A grey band across the panel once marked the union of the flagged
+heights, which wrongly tarred the species that are in equilibrium there.) This module only
+reads the flag; it computes nothing.
 """
 
 from __future__ import annotations
@@ -14,8 +16,8 @@ import numpy as np
 
 #: Opacity of a curve where its species is flagged (the project's choice).
 FADED_ALPHA = 0.3
-#: Fill of the shaded altitudes (light grey, behind the curves).
-SHADE_COLOUR = "0.88"
+#: Marker at the start of a flagged part of a curve (open circle in the curve's colour).
+ONSET_MARKER = dict(marker="o", ms=5.5, mfc="white", mew=1.3, ls="none", zorder=4)
 
 
 def doubtful_mask(ds, species, var="pce_doubtful"):
@@ -73,11 +75,19 @@ def plot_marked(ax, x, alt, mask, *, vertical=True, **style):
         style["color"] = line.get_color()
         style.pop("alpha", None)
         ax.plot(*xy(faded), alpha=FADED_ALPHA, **style)
+        onset = np.flatnonzero(mask & ~np.concatenate([[False], mask[:-1]]))
+        onset = onset[np.isfinite(x[onset])]
+        if onset.size:
+            pts = (x[onset], alt[onset]) if vertical else (alt[onset], x[onset])
+            ax.plot(*pts, mec=line.get_color(), **ONSET_MARKER)
     return line
 
 
 def shade_doubtful(ax, alt, masks, *, vertical=True):
-    """Shade the altitudes where any of ``masks`` is True; return a legend handle or None.
+    """A legend handle saying what the faded parts and their circles mean, or None.
+
+    Nothing is drawn across the panel: :func:`plot_marked` marks each species on its own
+    curve (the name is kept for the callers).
 
     Parameters
     ----------
@@ -87,40 +97,20 @@ def shade_doubtful(ax, alt, masks, *, vertical=True):
     masks : dict of str to ndarray of bool (altitude,)
         Per drawn species, the flagged levels.
     vertical : bool
-        True: altitude on the y axis.
+        Unused (kept for the callers).
 
     Returns
     -------
-    matplotlib.patches.Patch or None
+    matplotlib.lines.Line2D or None
         A handle labelled with the flagged species and their lowest flagged altitude.
     """
-    from matplotlib.patches import Patch
+    from matplotlib.lines import Line2D
     flagged = {s: m for s, m in masks.items() if np.any(m)}
     if not flagged:
         return None
-    union = np.any(np.stack(list(flagged.values())), axis=0)
-    for lo, hi in _runs(np.asarray(alt, float), union):
-        span = ax.axhspan if vertical else ax.axvspan
-        span(lo, hi, color=SHADE_COLOUR, zorder=0, lw=0)
     starts = sorted(((float(np.asarray(alt)[m].min()), s) for s, m in flagged.items()))
     where = "\n".join(f"  {s} above {a:g} km" for a, s in starts)
-    return Patch(facecolor=SHADE_COLOUR, edgecolor="0.6",
-                 label="not in photochemical equilibrium\n(lifetime > O+ diffusion time;\n"
-                       f"curve faded there):\n{where}")
-
-
-def _runs(alt, mask):
-    """(low, high) km of each run of True levels, widened by half a level spacing."""
-    out = []
-    idx = np.flatnonzero(mask)
-    if idx.size == 0:
-        return out
-    breaks = np.flatnonzero(np.diff(idx) > 1)
-    firsts = np.concatenate([[idx[0]], idx[breaks + 1]])
-    lasts = np.concatenate([idx[breaks], [idx[-1]]])
-    for i, j in zip(firsts, lasts, strict=True):
-        lo = alt[i] - (0.5 * (alt[i] - alt[i - 1]) if i > 0 else 0.0)
-        hi = alt[j] + (0.5 * (alt[j + 1] - alt[j]) if j + 1 < alt.size else 0.0)
-        out.append((lo, hi))
-    return out
-
+    return Line2D([], [], color="0.4", alpha=FADED_ALPHA + 0.2, lw=1.5, mec="0.3",
+                  **{k: v for k, v in ONSET_MARKER.items() if k != "ls"},
+                  label="faded from ○ up: not in photochemical\nequilibrium (lifetime > O+ "
+                        f"diffusion time):\n{where}")

@@ -35,9 +35,14 @@ def plot_fit(ds, path, *, title=None):
     kinds = obs["kind"].values.astype(str)
     names = list(dict.fromkeys(obs["species"].values.astype(str)[kinds != "ratio"]))
     has_profile = "profile_chi2" in ds
-    ncols = 4 if has_profile else 3
-    fig, axes = plt.subplots(1, ncols, figsize=(4.4 * ncols, 5.6), layout="constrained",
-                             gridspec_kw={"width_ratios": [1.4, 1.0, 1.0] + [1.0] * (ncols - 3)})
+    # At most about 1,400 px wide at the project's 130 dpi: with the profile panel the four
+    # panels go two by two (one row of four was 2,300 px, too wide to read on a page).
+    if has_profile:
+        fig, axes = plt.subplots(2, 2, figsize=(10.5, 9.0), layout="constrained")
+        axes = axes.ravel()
+    else:
+        fig, axes = plt.subplots(1, 3, figsize=(10.5, 5.6), layout="constrained",
+                                 gridspec_kw={"width_ratios": [1.4, 1.0, 1.0]})
     ax_n, ax_r, ax_m = axes[:3]
     alt = ds["altitude"].values
     curves = []

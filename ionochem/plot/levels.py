@@ -17,7 +17,7 @@ import numpy as np
 from ionochem.errors import InputError
 from ionochem.io.netcdf import atomic_write_bytes
 from ionochem.plot.legend import legend_below
-from ionochem.plot.profiles import _figure_bytes
+from ionochem.plot.profiles import _figure_bytes, label_levels, level_colour
 
 _DASHES = ("-", (0, (6, 2)), (0, (2, 2)), (0, (6, 2, 1, 2)), (0, (1, 1)), (0, (10, 3)))
 
@@ -66,17 +66,18 @@ def plot_levels(ds, path, *, family: str = "N2+", title=None):
         raise InputError(f"no vibrational levels of {family} in the result")
     alt = ds["altitude"].values
     fig, (ax, bx) = plt.subplots(1, 2, figsize=(10.0, 5.6), sharey=True, layout="constrained")
-    cmap = plt.get_cmap("viridis")
+    top = max(len(members) - 1, 1)
     for i, s in enumerate(members):
         f = ds["level_fraction"].sel(species=s).values
         ax.plot(np.where(f > 0, f, np.nan), alt, label=s,
-                color=cmap(i / max(len(members) - 1, 1)), lw=2.0 if i == 0 else 1.4)
+                color=level_colour(i, top), lw=2.0 if i == 0 else 1.4)
     ax.set_xscale("log")
     ax.set_xlim(1e-4, 1.5)
     ax.set_xlabel(f"fraction of {family} in each level")
     ax.set_ylabel("altitude (km)")
     ax.set_ylim(alt.min(), alt.max())
     ax.grid(True, which="major", alpha=0.3)
+    label_levels(ax, ax.get_lines())
     legend_below(ax, ncol=3)
     drawn = 0
     k_all = None

@@ -18,8 +18,9 @@ from ionochem.io.netcdf import atomic_write_bytes
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right, legend_right
 
-# The project's palette (its own choice; colour-blind-distinguishable hues). The two O+
-# metastables differ in both colour and dash so that they can be told apart in print.
+# The project's palette (its own choice; colour-blind-distinguishable hues). Only electrons
+# are dashed; the two O+ metastables differ in colour and pattern (dotted, solid thin) so
+# that they can be told apart in print.
 STYLE = {
     "O+(total)": dict(color="#1b7f5b", lw=2.4, ls="-"),
     "O+": dict(color="#1b7f5b", lw=2.4, ls="-"),
@@ -28,16 +29,19 @@ STYLE = {
     "N2+": dict(color="#d68910", lw=2.0, ls="-"),
     "N+": dict(color="#7d3c98", lw=1.6, ls="-."),
     "O+(2D)": dict(color="#0097a7", lw=1.5, ls=(0, (1, 1.5))),
-    "O+(2P)": dict(color="#d81b60", lw=1.5, ls=(0, (6, 2))),
+    "O+(2P)": dict(color="#d81b60", lw=1.1, ls="-"),
     "N(2D)": dict(color="#8d6e63", lw=1.2, ls=(0, (5, 2, 1, 2))),
     # Electrons on top of the ion they equal (NO+ after sunset, O+ high up).
     "e": dict(color="black", lw=1.8, ls="--", zorder=3),
 }
 # Colours for species outside the palette, chosen apart from its hues.
 EXTRA_COLOURS = ("#6b8e23", "#5d6d7e", "#b7950b", "#a04000", "#117a65", "#884ea0")
-# Shade of a vibrational level against its family's colour: v = 0 darker, higher levels
-# lighter (negative: towards black, positive: towards white).
-_LEVEL_SHADE = (-0.45, 0.3, 0.5, 0.65, 0.78)
+# Vibrational levels: a sequential map (cividis, dark blue to olive yellow, monotonic in
+# lightness and readable by colour-blind readers) over this range, v = 0 darkest; the top
+# stays dark enough to read on white. Every level curve is also labelled at its end.
+LEVEL_MAP = ("cividis", 0.0, 0.78)
+#: Highest level the map spreads over (a higher one takes the last colour).
+LEVEL_SPAN = 4
 
 
 def style_of(name, others=()):
@@ -49,17 +53,43 @@ def style_of(name, others=()):
     dict
         Matplotlib line properties (``color``, ``lw`` and, for palette species, ``ls``).
     """
-    from matplotlib.colors import to_rgb
     if name in STYLE:
         return dict(STYLE[name])
     m = re.fullmatch(r"(.+)\(v=(\d+)\)", str(name))
-    if m and m.group(1) in STYLE:
-        rgb = np.array(to_rgb(STYLE[m.group(1)]["color"]))
-        t = _LEVEL_SHADE[min(int(m.group(2)), len(_LEVEL_SHADE) - 1)]
-        rgb = rgb * (1 + t) if t < 0 else rgb + (1 - rgb) * t
-        return dict(color=tuple(float(c) for c in rgb), lw=1.3)
+    if m:
+        return dict(color=level_colour(int(m.group(2))), lw=1.4)
     unknown = [o for o in others if o not in STYLE and not re.fullmatch(r".+\(v=\d+\)", o)]
     return dict(color=EXTRA_COLOURS[len(unknown) % len(EXTRA_COLOURS)], lw=1.2)
+
+
+def level_colour(v, top=LEVEL_SPAN):
+    """Colour of vibrational level ``v`` (0 … ``top``) on :data:`LEVEL_MAP`, RGB tuple."""
+    from matplotlib import colormaps
+    name, lo, hi = LEVEL_MAP
+    t = lo + (hi - lo) * min(max(int(v), 0), top) / max(top, 1)
+    return tuple(float(c) for c in colormaps[name](t)[:3])
+
+
+def label_levels(ax, lines, *, vertical=True):
+    """Write ``v=K`` beside each level curve among ``lines``, in its colour, near the top
+    of the altitude axis, each level a little lower than the one before so that labels of
+    neighbouring curves do not overlap (direct labels: the reader need not match shades in a
+    legend)."""
+    levels = [(ln, m) for ln in lines
+              if (m := re.fullmatch(r".+\(v=(\d+)\)", str(ln.get_label())))]
+    for j, (line, m) in enumerate(levels):
+        x, y = (np.asarray(a, float) for a in line.get_data())
+        alt, val = (y, x) if vertical else (x, y)
+        ok = np.isfinite(val) & np.isfinite(alt)
+        if not ok.any():
+            continue
+        lo, hi = ax.get_ylim() if vertical else ax.get_xlim()
+        target = lo + (0.93 - 0.06 * j) * (hi - lo)
+        i = np.flatnonzero(ok)[np.argmin(np.abs(alt[ok] - target))]
+        xy = (val[i], alt[i]) if vertical else (alt[i], val[i])
+        ax.annotate(f"v={m.group(1)}", xy, xytext=(3, 0), textcoords="offset points",
+                    color=line.get_color(), fontsize=7, va="center", ha="left",
+                    annotation_clip=True)
 
 
 PROFILE_SPECIES = ("e", "O+(total)", "O2+", "NO+", "N2+", "N+", "O+(2D)", "O+(2P)")
@@ -137,6 +167,7 @@ def profiles_figure(ds, *, species=None, title=None, observed=None):
         plot_marked(ax, np.where(n > 0, n, np.nan), alt, masks[s], label=s,
                     **style_of(s, names[:names.index(s)]))
     style_density_axes(ax, alt, [ds["density"].sel(species=s).values for s in names])
+    label_levels(ax, ax.get_lines())
     from ionochem.plot.observations import overlay_observations
     overlay_observations(ax, observed, names)
     handles, labels = ax.get_legend_handles_labels()

@@ -89,7 +89,7 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
         mesh = ax_h.pcolormesh(edges, np.arange(len(rows) + 1), np.ma.masked_invalid(M),
                                cmap=CMAP, norm=TwoSlopeNorm(0.0, -lim, lim), shading="flat")
         ax_h.set_yticks(np.arange(len(rows)) + 0.5)
-        ax_h.set_yticklabels([r.reaction for r in rows], fontsize=8)
+        ax_h.set_yticklabels(row_labels(rows), fontsize=8)
         ax_h.invert_yaxis()
         ax_h.set_xlabel("altitude (km)")
         colour = style_of(s)["color"]
@@ -111,7 +111,7 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
                   color=np.where(signed >= 0, POSITIVE, NEGATIVE), alpha=0.85)
         ax_b.barh(y, mean, height=0.6, fill=False, edgecolor="0.2", lw=1.0)
         ax_b.set_yticks(y)
-        ax_b.set_yticklabels([r.reaction for r in rows], fontsize=8)
+        ax_b.set_yticklabels([])           # the same rows as the heat map, named there
         ax_b.invert_yaxis()
         ax_b.axvline(0.0, color="0.4", lw=0.8)
         # The altitude of the largest |S| beside each bar, outside its end.
@@ -139,6 +139,19 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
     fig.suptitle((title or sens_ds.attrs.get("title", ""))
                  + f"\nnormalized sensitivities, {lo:g}-{hi:g} km", fontsize=11)
     return fig
+
+
+def row_labels(rows):
+    """Readable names of ranked rows: a reaction's equation (``→`` for ``->``; its id in
+    brackets when two rows share an equation, such as photoionization and photoelectron
+    impact of one gas), an environment factor's description up to its parenthesis. The ids
+    stay in the printed table and the output file."""
+    def text(r):
+        eq = str(r.equation or r.reaction)
+        return eq.split(" (", 1)[0] if " -> " not in eq else eq.replace(" -> ", " → ")
+    texts = [text(r) for r in rows]
+    return [f"{t} [{r.reaction}]" if texts.count(t) > 1 else t
+            for t, r in zip(texts, rows, strict=True)]
 
 
 def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10,

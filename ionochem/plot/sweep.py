@@ -11,6 +11,8 @@ figure is rendered to memory and written atomically.
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 
 from ionochem.errors import InputError
@@ -18,6 +20,10 @@ from ionochem.io.netcdf import atomic_write_bytes
 from ionochem.plot.profiles import _figure_bytes
 
 CMAP = "RdBu_r"
+#: One-signed sensitivities (all S ≥ 0 or all S ≤ 0 on the map) get a sequential map from
+#: zero instead, so half of a diverging scale is not spent on values that never occur.
+CMAP_POSITIVE = "Reds"
+CMAP_NEGATIVE = "Blues_r"
 LEVELS = (0.1, 0.5)
 #: Densities below this are numerical dust of a decaying column (cm-3), left blank.
 FLOOR_CM3 = 1e-3
@@ -101,7 +107,10 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
                              file="--map-reaction")
         z = var.sel(reaction=members).sum("reaction", skipna=False) \
             .transpose("altitude", axis).values
-        label = f"∂ln n({species}) / ∂ln k({reaction})"
+        label = f"S = ∂ln n({species}) / ∂ln k({reaction})"
+        eq = _equation(ds, members)
+        if eq:
+            label += f"\n{reaction}: {eq}"
     else:
         z = var.transpose("altitude", axis).values
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -115,8 +124,15 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
     if sens:
         lim = float(np.nanmax(np.abs(z))) if np.any(np.isfinite(z)) else 1.0
         lim = lim or 1.0
-        mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP, shading="nearest",
-                             norm=TwoSlopeNorm(0.0, -lim, lim))
+        if np.nanmin(z) >= 0.0:
+            mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP_POSITIVE, shading="nearest",
+                                 vmin=0.0, vmax=lim)
+        elif np.nanmax(z) <= 0.0:
+            mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP_NEGATIVE, shading="nearest",
+                                 vmin=-lim, vmax=0.0)
+        else:
+            mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP, shading="nearest",
+                                 norm=TwoSlopeNorm(0.0, -lim, lim))
         if z.shape[1] > 1 and z.shape[0] > 1:
             cs = ax.contour(xs, alt, np.abs(z), levels=[v for v in LEVELS if v < lim],
                             colors="k", linewidths=[0.6, 1.2][:len(LEVELS)])
@@ -125,19 +141,56 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
         mesh = ax.pcolormesh(xs, alt, z, cmap="viridis", shading="nearest")
     cbar = fig.colorbar(mesh, ax=ax)
     cbar.set_label(label)
-    attrs = ds[axis].attrs
-    unit = attrs.get("units", "")
-    ax.set_xlabel(f"{axis}" + (f" ({unit})" if unit and unit != "1" else "")
-                  + (f" — {attrs['scenario_key']}" if attrs.get("scenario_key") else ""))
+    ax.set_xlabel(_axis_label(ds, axis))
     if not numeric:
         ax.set_xticks(xs, [str(v) for v in x])
     ax.set_ylabel("altitude (km)")
-    head = title or ds.attrs.get("title", "")
-    sub = label + (f"; {label_held}" if label_held else "")
+    head = title or _base_title(ds, axis, x)
+    sub = label.split("\n")[0] + (f"; {label_held}" if label_held else "")
     ax.set_title(f"{head}\n{sub}" if head else sub, fontsize=9)
     data = _figure_bytes(fig, path)
     plt.close(fig)
     return atomic_write_bytes(path, data)
+
+
+#: Readable names of the swept keys on the x axis (units from the coordinate).
+AXIS_NAMES = {"local_hour": "local solar time", "day_of_year": "day of year",
+              "f107": "F10.7", "f107a": "81-day mean F10.7", "ap": "ap index",
+              "latitude_deg": "latitude", "longitude_deg": "longitude"}
+#: Units written the way a reader expects them on an axis.
+UNIT_TEXT = {"1e-22 W m-2 Hz-1": "sfu", "degree_north": "°N", "degree_east": "°E"}
+
+
+def _axis_label(ds, axis):
+    """``local solar time (h)``, ``F10.7 (sfu)``: the swept key in words with its unit."""
+    unit = str(ds[axis].attrs.get("units", ""))
+    unit = UNIT_TEXT.get(unit, unit)
+    return AXIS_NAMES.get(axis, axis) + (f" ({unit})" if unit and unit != "1" else "")
+
+
+def _base_title(ds, axis, x):
+    """The scenario's title as the *base* of the sweep, and what the x axis sweeps: a title
+    such as "equinox noon" is no longer the time of every column."""
+    head = ds.attrs.get("title", "")
+    xs = np.asarray(x)
+    span = (f"{_text(xs.min())}–{_text(xs.max())}" if xs.dtype.kind in "fiu" and xs.size > 1
+            else ", ".join(_text(v) for v in xs))
+    unit = _axis_label(ds, axis)
+    name, paren, rest = unit.partition(" (")
+    swept = f"swept: {name} {span}" + (f" ({rest}" if paren else "")
+    return f"base scenario: {head}; {swept}" if head else swept
+
+
+def _equation(ds, members):
+    """The equation of the mapped reaction (its first member), ``→`` for ``->``."""
+    if "equation" not in ds.coords or not members:
+        return ""
+    try:
+        eq = str(ds["equation"].sel(reaction=members[0]).values).replace(" -> ", " → ")
+    except (KeyError, IndexError):
+        return ""
+    # A family's map sums its members: write the level as v.
+    return re.sub(r"\(v=\d+\)", "(v)", eq) if len(members) > 1 else eq
 
 
 def _text(v):

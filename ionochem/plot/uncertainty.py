@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
-from ionochem.plot.legend import legend_figure_right, legend_right
+from ionochem.plot.legend import legend_figure_right
 from ionochem.plot.profiles import (
     _species_to_draw,
     save_figure,
@@ -42,21 +42,28 @@ def _pyplot():
 
 
 def bands_figure(ds, *, species=None, title=None, observed=None):
-    """Median densities against altitude with shaded 68 % and 90 % Monte Carlo bands.
+    """Median densities against altitude with shaded 68 % and 90 % Monte Carlo bands, one
+    panel per species (shared altitude axis).
 
-    The 90 % band is a light fill with thin edges at the 5 % and 95 % quantiles, so that it
-    stays visible where bands of several species overlap; levels where the central solution
-    is not in photochemical equilibrium are shaded (:mod:`ionochem.plot.equilibrium`).
+    The bands of several species on one axis overlapped unreadably (the molecular ions
+    cross between 200 and 300 km); in panels of their own each band reads cleanly. The 90 %
+    band is a light fill with thin edges at the 5 % and 95 % quantiles; where the central
+    solution is not in photochemical equilibrium the median is faded from an open circle
+    (:mod:`ionochem.plot.equilibrium`).
     """
+    from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
     plt = _pyplot()
     names = species or [s for s in _species_to_draw(ds) if s not in ("O+(2D)", "O+(2P)")]
     alt = ds["altitude"].values
     q = ds["density_quantiles"]
-    fig, ax = plt.subplots(figsize=(6.4, 6.0))
+    ncols = min(3, len(names))
+    nrows = -(-len(names) // ncols)
+    fig, axes = plt.subplots(nrows, ncols, figsize=(3.5 * ncols, 4.2 * nrows), sharey=True,
+                             squeeze=False, layout="constrained")
     masks = {s: doubtful_mask(ds, s) for s in names}
-    shown_vals = []
-    for s in names:
+    from ionochem.plot.observations import overlay_observations
+    for ax, s in zip(axes.ravel(), names):
         style = style_of(s, names[:names.index(s)])
         colour = style.get("color", "grey")
 
@@ -70,25 +77,27 @@ def bands_figure(ds, *, species=None, title=None, observed=None):
         for p in (0.05, 0.95):
             ax.plot(quant(p), alt, color=colour, lw=EDGE_WIDTH, alpha=0.9)
         plot_marked(ax, quant(0.5), alt, masks[s], label=s, **style)
-        shown_vals.append(quant(0.05))
-        shown_vals.append(quant(0.95))
-    style_density_axes(ax, alt, shown_vals)
-    from ionochem.plot.observations import overlay_observations
-    overlay_observations(ax, observed, names)
-    handles, labels = ax.get_legend_handles_labels()
-    handles += [Patch(facecolor="0.3", alpha=BAND_ALPHA[0.68] + BAND_ALPHA[0.90], lw=0),
-                Patch(facecolor=(0.3, 0.3, 0.3, BAND_ALPHA[0.90]), edgecolor="0.3",
-                      lw=EDGE_WIDTH)]
-    labels += ["68 % band (16-84 %)", "90 % band (5-95 %)"]
-    shade = shade_doubtful(ax, alt, masks)
+        style_density_axes(ax, alt, [quant(0.05), quant(0.95)])
+        overlay_observations(ax, observed, [s])
+        ax.set_title(s, fontsize=10, color=colour)
+        if ax not in axes[:, 0]:
+            ax.set_ylabel("")
+    for ax in axes.ravel()[len(names):]:
+        ax.set_visible(False)
+    handles = [Line2D([], [], color="0.3", lw=1.8),
+               Patch(facecolor="0.3", alpha=BAND_ALPHA[0.68] + BAND_ALPHA[0.90], lw=0),
+               Patch(facecolor=(0.3, 0.3, 0.3, BAND_ALPHA[0.90]), edgecolor="0.3",
+                     lw=EDGE_WIDTH)]
+    labels = ["median of the samples", "68 % band (16-84 %)", "90 % band (5-95 %)"]
+    shade = shade_doubtful(axes[0, 0], alt, masks)
     if shade is not None:
         handles.append(shade)
         labels.append(shade.get_label())
-    legend_right(ax, handles, labels, title="median of the samples", title_fontsize=8)
+    legend_figure_right(fig, handles, labels)
     sub = f"\nMonte Carlo over rate uncertainties, {ds.attrs.get('samples', '?')} samples"
     if ds.attrs.get("environment_spreads"):
         sub += f" (environment {ds.attrs['environment_spreads']})"
-    ax.set_title((title or ds.attrs.get("title", "")) + sub, fontsize=10)
+    fig.suptitle((title or ds.attrs.get("title", "")) + sub, fontsize=10)
     return fig
 
 
