@@ -53,39 +53,6 @@ def _extra_scales(before, after):
     return out
 
 
-def _model_on(baseline, reaction_list):
-    """A model of ``reaction_list`` on the baseline's column (rebuilt when it needs more).
-
-    The scenario's own changes apply to the new list as they did to the baseline; changes
-    the baseline carried beyond them (``with_changes``) are carried over too.
-    """
-    from ionochem import Model
-    from ionochem.errors import MechanismError
-    scen = baseline.scenario
-    try:
-        new = Model(scen, mechanism=reaction_list, environment=baseline.environment)
-        if not _needs(new) <= _needs(baseline):
-            new = None
-    except MechanismError:
-        # The baseline's environment may lack a photo channel or a neutral the other list
-        # needs; a fresh environment for the new list has them (or says why not).
-        new = None
-    if new is None:
-        new = Model(scen, mechanism=reaction_list)
-    extra_set = {k: v for k, v in baseline.changes["set"].items()
-                 if new.changes["set"].get(k) != v}
-    extra_scale = _extra_scales(new.changes["scale"], baseline.changes["scale"])
-    dirs = getattr(baseline, "_set_dirs", {})
-    groups = {}
-    for key, text in extra_set.items():
-        groups.setdefault(dirs.get(key), {})[key] = text
-    for folder, sets in groups.items():
-        new = new.with_changes(sets, base_dir=folder)
-    if extra_scale:
-        new = new.with_changes({}, scale=extra_scale)
-    return new
-
-
 def merge_replacements(baseline_list, replacements):
     """The baseline reaction list with the entries of ``replacements`` swapped in by id.
 
@@ -136,8 +103,13 @@ def _merged(baseline_list, other, reactions, families):
 
 
 def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), additions=(),
-                  alternative=None, base_dir=None):
+                  alternative=None, base_dir=None, log=None):
     """The baseline model with rate changes applied, on the same environment.
+
+    The command line takes precedence over the scenario (:mod:`ionochem.analysis.changes`):
+    a reaction whose entry a file gives, or that ``set_dict`` names, keeps none of the
+    baseline's ``set``/``scale`` changes in the changed model; ``scale`` multiplies the
+    baseline rate; ``set_dict`` and ``scale`` apply after the files.
 
     Parameters
     ----------
@@ -155,22 +127,45 @@ def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), addit
     base_dir : path, optional
         Folder that table paths in ``set_dict`` resolve against (default: the reaction
         list's folder).
+    log : list, optional
+        Receives one line per change: where it came from and which model carries it.
 
     Returns
     -------
     ionochem.Model
     """
-    model = baseline
-    if alternative is not None:
-        model = _model_on(model, alternative)
+    from ionochem.analysis.changes import given_entries, resolve_changes
+    final = baseline.reaction_list if alternative is None else alternative
     for rl in replacements:
-        model = _model_on(model, merge_replacements(model.reaction_list, rl))
+        final = merge_replacements(final, rl)
     for rl in additions:
-        model = _model_on(model, merge_additions(model.reaction_list, rl))
-    if set_dict or scale:
-        model = model.with_changes(dict(set_dict or {}), scale=dict(scale or {}),
-                                   base_dir=base_dir)
-    return model
+        final = merge_additions(final, rl)
+    given = given_entries(baseline.reaction_list, replacements=replacements,
+                          additions=additions, alternative=alternative)
+    plan = resolve_changes(baseline, final, given=given, set_dict=set_dict, scale=scale,
+                           base_dir=base_dir)
+    if log is not None:
+        log.extend(plan.log)
+    return _model_with(baseline, final, plan)
+
+
+def _model_with(baseline, reaction_list, plan):
+    """A model of ``reaction_list`` with ``plan``'s changes on the baseline's column (its
+    environment reused unless the new list or expressions need more)."""
+    from ionochem import Model
+    from ionochem.errors import MechanismError
+    changes = (plan.set, plan.scale, "api", plan.dirs)
+    scen = baseline.scenario
+    try:
+        new = Model(scen, mechanism=reaction_list, environment=baseline.environment,
+                    _changes=changes)
+        if new.needs <= _needs(baseline):
+            return new
+    except MechanismError:
+        # The baseline's environment may lack a photo channel or a neutral the other list
+        # needs; a fresh environment for the new list has them (or says why not).
+        pass
+    return Model(scen, mechanism=reaction_list, _changes=changes)
 
 
 # ------------------------------------------------------------------ the comparison
@@ -214,7 +209,7 @@ def _add_equilibrium_flag(out, ds_b, names):
 
 
 def compare(baseline_model, changed_model, *, baseline=None, changed=None,
-            reaction_lists=()):
+            reaction_lists=(), change_log=()):
     """Solve a baseline and a changed model and compare their steady densities.
 
     Parameters
@@ -225,6 +220,9 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         Their steady solutions, if already computed.
     reaction_lists : sequence, optional
         The reaction lists (or their paths) that made the change, for the attributes.
+    change_log : sequence of str, optional
+        Where each change came from (``log`` of :func:`changed_model`): the attribute
+        ``changes_applied``.
 
     Returns
     -------
@@ -275,6 +273,7 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
     for key in ("changes_set", "changes_scale"):
         out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
     out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
+    out.attrs["changes_applied"] = "; ".join(change_log)
     out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
     _add_equilibrium_flag(out, ds_b, names)
     return out

@@ -23,6 +23,7 @@ from ionochem.cli.options import (
     stamp_history,
     write_outputs,
 )
+from ionochem.cli.steady_at import add_steady_at_option, analysis_scenario
 from ionochem.errors import InputError
 
 
@@ -48,20 +49,15 @@ def register(subparsers):
                    help="altitude bands of the summary, km (default E=90:150,F1=150:200,"
                         "F2=200:300)")
     add_observed_option(c)
+    add_steady_at_option(c)
     c.set_defaults(func=cmd_compare)
 
 
-def note_steady(scen):
-    if scen.solve.mode != "steady":
-        print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; this command works "
-              "on the steady state (photochemical equilibrium)", file=sys.stderr)
-
-
-def baseline_model(path):
-    """Scenario and model of a scenario file, warnings printed."""
+def baseline_model(args, command):
+    """Scenario and model of ``args.scenario`` (a transient one at ``--steady-at``),
+    warnings printed."""
     import ionochem
-    scen = ionochem.load_scenario(path)
-    note_steady(scen)
+    scen = analysis_scenario(args, command)
     model = ionochem.Model(scen)
     print_warnings(model.warnings)
     return scen, model
@@ -91,14 +87,16 @@ def cmd_compare(args):
     replacements = [parse_reaction_list(f) for f in args.reactions or []]
     additions = [parse_reaction_list(f) for f in args.add or []]
     alternative = parse_reaction_list(args.alternative) if args.alternative else None
-    scen, base = baseline_model(args.scenario)
+    scen, base = baseline_model(args, "compare")
     check_outputs(args, inputs=scenario_inputs(scen) + files)
+    log = []
     changed = changed_model(base, set_dict=sets, scale=scales, replacements=replacements,
-                            additions=additions, alternative=alternative, base_dir=Path.cwd())
+                            additions=additions, alternative=alternative, base_dir=Path.cwd(),
+                            log=log)
     for w in changed.warnings:
         if w not in base.warnings:
             print(f"warning: changed model: {w}", file=sys.stderr)
-    ds = compare(base, changed, reaction_lists=files)
+    ds = compare(base, changed, reaction_lists=files, change_log=log)
     stamp_history(ds, args)
     species = None
     if args.species:
@@ -111,6 +109,7 @@ def cmd_compare(args):
     what = "; ".join(x for x in (ds.attrs["changes_set"], ds.attrs["changes_scale"],
                                  ds.attrs["changes_reactions"]) if x)
     print(f"{ds.attrs.get('title', '')}\nchanged: {what or '(no effective change)'}")
+    print_change_log(log)
     rows = band_summary(ds, bands, species=species)
     table = band_table(rows)
     print("percentage change of the changed model against the baseline "
@@ -129,6 +128,14 @@ def cmd_compare(args):
         plot_compare(ds, args.plot, species=species, observed=observed)
         print(f"wrote {args.plot}")
     return 0
+
+
+def print_change_log(log):
+    """The changes applied and where each came from (command line over scenario)."""
+    if log:
+        print("changes applied (the command line takes precedence over the scenario):")
+        for line in log:
+            print(f"  {line}")
 
 
 def band_table(rows):

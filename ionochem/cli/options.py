@@ -201,18 +201,28 @@ def scenario_inputs(scenario):
 
 
 # ------------------------------------------------------------------ models
-def load_model(args):
-    """Scenario and model of ``args.scenario`` with ``--set``/``--scale`` applied.
+def load_model(args, *, command=None, replacements=(), additions=(), log=None):
+    """Scenario and model of ``args.scenario`` with ``--set``/``--scale`` (and replacement
+    or added entries, already parsed) applied, the command line taking precedence over the
+    scenario's ``[changes]`` (:mod:`ionochem.analysis.changes`); ``log`` receives where
+    each change came from. With ``command`` (an analysis of a steady state) a transient
+    scenario needs ``--steady-at`` (:mod:`ionochem.cli.steady_at`).
 
     Table paths inside ``--set`` expressions resolve against the working directory.
     """
     import ionochem
-    scen = ionochem.load_scenario(args.scenario)
+    if command is None:
+        scen = ionochem.load_scenario(args.scenario)
+    else:
+        from ionochem.cli.steady_at import analysis_scenario
+        scen = analysis_scenario(args, command)
     model = ionochem.Model(scen)
     sets = parse_assignments(getattr(args, "set", None), "set")
     scales = parse_scales(getattr(args, "scale", None))
-    if sets or scales:
-        model = model.with_changes(sets, scale=scales, base_dir=Path.cwd())
+    if sets or scales or replacements or additions:
+        from ionochem.analysis.compare import changed_model
+        model = changed_model(model, set_dict=sets, scale=scales, replacements=replacements,
+                              additions=additions, base_dir=Path.cwd(), log=log)
     return scen, model
 
 

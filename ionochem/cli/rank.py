@@ -14,6 +14,7 @@ from ionochem.cli.options import (
     stamp_history,
     write_outputs,
 )
+from ionochem.cli.steady_at import add_steady_at_option
 from ionochem.errors import InputError
 
 
@@ -34,6 +35,7 @@ def register(subparsers):
     r.add_argument("-o", "--output", help="write sensitivities and rankings (netCDF)")
     r.add_argument("--plot", help="write the heat map and bar chart (PNG, PDF, SVG)")
     r.add_argument("--csv", metavar="FILE", help="write the printed ranking as CSV")
+    add_steady_at_option(r)
     r.set_defaults(func=cmd_rank)
 
 
@@ -53,7 +55,7 @@ def cmd_rank(args):
     share = DEFAULT_MIN_SHARE if args.min_share is None else args.min_share
     if not 0.0 <= share < 1.0:
         raise InputError("--min-share must be at least 0 and below 1", file="--min-share")
-    scen, model = baseline_model(args.scenario)
+    scen, model = baseline_model(args, "rank")
     check_outputs(args, inputs=scenario_inputs(scen))
     sens = model.sensitivity()
     names = list(sens["species"].values)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.cli.compare import print_change_log
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     Table,
@@ -23,6 +24,7 @@ from ionochem.cli.options import (
     workers_option,
     write_outputs,
 )
+from ionochem.cli.steady_at import add_steady_at_option
 from ionochem.errors import InputError
 
 REPORT_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
@@ -78,6 +80,7 @@ def register(subparsers):
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
     add_observed_option(u)
+    add_steady_at_option(u)
     u.set_defaults(func=cmd_uncertainty)
     return subparsers
 
@@ -124,21 +127,18 @@ def cmd_uncertainty(args):
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
     observed = load_observed(args)
-    scen, model = load_model(args)
+    from ionochem.mechanism.parser import parse_reaction_list
+    log = []
+    scen, model = load_model(
+        args, command="uncertainty", log=log,
+        replacements=[parse_reaction_list(f) for f in args.reactions or []],
+        additions=[parse_reaction_list(f) for f in args.add or []])
     check_outputs(args, inputs=scenario_inputs(scen) + files)
-    if files:
-        from ionochem.analysis.compare import changed_model
-        from ionochem.mechanism.parser import parse_reaction_list
-        model = changed_model(model,
-                              replacements=[parse_reaction_list(f) for f in args.reactions or []],
-                              additions=[parse_reaction_list(f) for f in args.add or []])
+    print_change_log(log)
     from ionochem.cli.limits import check_ensemble
     runs = 1 if args.method == "montecarlo" else args.top + len(spreads or ()) + 2
     check_ensemble(args.samples, runs, model.altitude_km.size, len(model.species),
                    len(model.reactions), allow_long=args.allow_long)
-    if scen.solve.mode != "steady":
-        print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
-              "states (photochemical equilibrium)", file=sys.stderr)
     print_warnings(model.warnings)
     common = dict(seed=args.seed, environment=spreads, batch=args.batch,
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
