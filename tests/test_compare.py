@@ -246,3 +246,33 @@ def test_scenario_change_of_a_family_is_kept_on_the_levels_the_command_line_leav
     np.testing.assert_allclose(k[:, j0], 3e-15, rtol=1e-12)
     np.testing.assert_allclose(k[:, j1], 2e-15, rtol=1e-12)
     assert any("except L(v=1)" in line for line in log)
+
+
+FAMILY_CHAIN = """\
+PN(v): N2 -> N2+(v) + e | k = 1e-10 | levels v = 0..1 | ref = invented test
+DR(v): N2+(v) + e -> N + N | k = 2e-7 | levels v = 0..1 | ref = invented test
+CT(v): N2+(v) + O -> NO+ + N | k = 1e-10 | levels v = 0..1 | ref = invented test
+DN: NO+ + e -> N + O | k = 4e-7 | ref = invented test
+"""
+
+
+def test_default_bands_cover_the_grid_and_every_changed_effective_rate_is_printed(
+        column, capsys):
+    """On a 100-600 km column the summary's bands reach the top of the grid (an ``upper``
+    band 300-600 km after E, F1, F2); the effective rate of the recombination family, which
+    a faster v = 1 recombination changes, is printed per band, and that of the charge
+    transfer, equal for both levels (so k_eff = k exactly, whatever the populations), is
+    listed as unchanged."""
+    alt = np.linspace(100.0, 600.0, 26)
+    path = column(FAMILY_CHAIN, alt, neutrals={"N2": 1e12 * np.exp(-(alt - 100) / 30.0),
+                                               "O": 1e11 * np.exp(-(alt - 100) / 50.0),
+                                               "N": 1e8},
+                  Tn=800.0)
+    assert _run(["compare", str(path), "--set", "DR(v=1)=6e-7"]) == 0
+    out = capsys.readouterr().out
+    assert "upper 300-600" in out
+    section = out.split("effective (population-weighted) rate coefficient")[1]
+    dr = [ln.split() for ln in section.splitlines() if ln.split()[:1] == ["DR(v)"]]
+    assert [ln[1] for ln in dr] == ["E", "F1", "F2", "upper"]
+    assert all(float(ln[-3]) > 0 for ln in dr)          # faster v = 1: k_eff rises
+    assert "effective rate coefficients unchanged (below 0.0001 %): CT(v)" in out

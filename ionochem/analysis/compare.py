@@ -22,8 +22,29 @@ import xarray as xr
 from ionochem.errors import InputError
 
 #: Altitude bands of the summary, km: the E region (90-150 km), F1 (150-200 km) and the
-#: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*.
+#: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*. On a grid the
+#: summary uses :func:`default_bands`: these cut to the grid, with "D" below 90 km and
+#: "upper" from 300 km to the top of the grid when it reaches beyond them.
 DEFAULT_BANDS = {"E": (90.0, 150.0), "F1": (150.0, 200.0), "F2": (200.0, 300.0)}
+
+
+def default_bands(altitude_km):
+    """:data:`DEFAULT_BANDS` cut to the grid ``altitude_km``, with ``D`` (grid bottom to
+    90 km) and ``upper`` (300 km to the grid top) where the grid reaches beyond them, so
+    the summary covers the whole column. Returns ``{name: (low_km, high_km)}``."""
+    alt = np.asarray(altitude_km, float)
+    lo, hi = float(alt.min()), float(alt.max())
+    first, last = min(b[0] for b in DEFAULT_BANDS.values()), max(
+        b[1] for b in DEFAULT_BANDS.values())
+    out = {}
+    if lo < first:
+        out["D"] = (lo, first)
+    for name, (a, b) in DEFAULT_BANDS.items():
+        if b >= lo and a <= hi:
+            out[name] = (max(a, lo), min(b, hi))
+    if hi > last:
+        out["upper"] = (last, hi)
+    return out
 
 #: Main ions summarised (O+(total) stands for O+ when metastable O+ states are solved).
 MAIN_IONS = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
@@ -380,7 +401,8 @@ def band_summary(ds, bands=None, species=None):
     ds : xarray.Dataset
         From :func:`compare` (needs ``ratio``).
     bands : dict[str, (float, float)] or sequence of (name, low_km, high_km), optional
-        Altitude bands, km, both ends included; default :data:`DEFAULT_BANDS`.
+        Altitude bands, km, both ends included; default :func:`default_bands` of the
+        dataset's grid.
     species : sequence of str, optional
         Default: the main ions present (:func:`main_species`).
 
@@ -389,7 +411,7 @@ def band_summary(ds, bands=None, species=None):
     list of BandRow
         Species-major order.
     """
-    bands = DEFAULT_BANDS if bands is None else bands
+    bands = default_bands(ds["altitude"].values) if bands is None else bands
     if not isinstance(bands, dict):
         bands = {name: (lo, hi) for name, lo, hi in bands}
     names = list(ds["species"].values)
@@ -397,22 +419,31 @@ def band_summary(ds, bands=None, species=None):
     unknown = [s for s in species if s not in names]
     if unknown:
         raise InputError(f"compare: no species {', '.join(unknown)} in the result")
-    alt = ds["altitude"].values
     rows = []
     for s in species:
-        pct = 100.0 * (ds["ratio"].sel(species=s).values - 1.0)
-        for name, (lo, hi) in bands.items():
-            inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
-            vals = pct[inside]
-            good = np.isfinite(vals)
-            if not good.any():
-                rows.append(BandRow(s, name, lo, hi, int(inside.sum()), np.nan, np.nan,
-                                    np.nan))
-                continue
-            i = np.nanargmax(np.abs(np.where(good, vals, np.nan)))
-            rows.append(BandRow(s, name, float(lo), float(hi), int(good.sum()),
-                                float(np.median(vals[good])), float(vals[i]),
-                                float(alt[inside][i])))
+        rows += change_rows(s, ds["ratio"].sel(species=s).values, ds["altitude"].values,
+                            bands)
+    return rows
+
+
+def change_rows(name, ratio, altitude_km, bands):
+    """:class:`BandRow` of one ratio profile (changed/baseline) in each band; ``name``
+    labels the rows (a species or a family reaction)."""
+    alt = np.asarray(altitude_km, float)
+    pct = 100.0 * (np.asarray(ratio, float) - 1.0)
+    rows = []
+    for band, (lo, hi) in bands.items():
+        inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
+        vals = pct[inside]
+        good = np.isfinite(vals)
+        if not good.any():
+            rows.append(BandRow(name, band, lo, hi, int(inside.sum()), np.nan, np.nan,
+                                np.nan))
+            continue
+        i = np.nanargmax(np.abs(np.where(good, vals, np.nan)))
+        rows.append(BandRow(name, band, float(lo), float(hi), int(good.sum()),
+                            float(np.median(vals[good])), float(vals[i]),
+                            float(alt[inside][i])))
     return rows
 
 
