@@ -76,3 +76,54 @@ def test_steady_at_is_refused_on_a_steady_scenario(column, capsys):
     path = column(ONE_ION, ALT, neutrals={"O": 1e11}, Tn=600.0, production={"P1": Q})
     assert main(["rank", str(path), "--steady-at", "10"]) == 2
     assert capsys.readouterr().err.startswith("--steady-at: ")
+
+
+@pytest.fixture
+def one_ion(column):
+    return column(ONE_ION, ALT, neutrals={"O": 1e11}, Tn=600.0, production={"P1": Q})
+
+
+@pytest.fixture
+def no_solve(monkeypatch):
+    """A solve is a failure of the test: every check below must come before one."""
+    def refuse(*_a, **_k):
+        raise AssertionError("solved before checking the input")
+    monkeypatch.setattr(ionochem.Model, "solve", refuse)
+    monkeypatch.setattr(ionochem.Model, "sensitivity", refuse)
+
+
+@pytest.mark.parametrize("argv_tail, where, words", [
+    (["--budget", "@200"], "--budget", "names no species"),
+    (["--budget", "NO+@200"], "--budget", "no species 'NO+'"),
+    (["--budget", "O+@450"], "--budget", "450 km is outside the grid 100-300 km"),
+    (["--observed", "OBS_HIGH"], "obs.csv:2", "outside the model grid"),
+    (["--observed", "OBS_SPECIES"], "obs.csv:2", "species 'NO+' is not in the model"),
+])
+def test_budget_and_observed_checks_come_before_the_solve(one_ion, tmp_path, capsys,
+                                                          no_solve, argv_tail, where, words):
+    """``run --budget @200`` (no species), a budget species or height the result will not
+    have, and observations off the grid or of an unknown species stop with exit 2 and one
+    line at the option or file line, before any solve (the solve is made to fail here)."""
+    obs = tmp_path / "obs.csv"
+    row = "450,O+,1e4,1e3" if argv_tail[-1] == "OBS_HIGH" else "200,NO+,1e4,1e3"
+    obs.write_text(f"altitude_km,species,density_cm3,sigma_cm3\n{row}\n")
+    argv = ["run", str(one_ion), *[str(obs) if a.startswith("OBS") else a for a in argv_tail]]
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and where in err[0] and words in err[0], err
+
+
+def test_compare_checks_observations_before_solving(one_ion, tmp_path, capsys, no_solve):
+    """compare refuses observations off the grid before solving either model."""
+    obs = tmp_path / "obs.csv"
+    obs.write_text("altitude_km,species,density_cm3,sigma_cm3\n450,O+,1e4,1e3\n")
+    assert main(["compare", str(one_ion), "--scale", "R1=0.5", "--observed", str(obs)]) == 2
+    assert "outside the model grid" in capsys.readouterr().err
+
+
+def test_rank_of_a_fixed_neutral_is_refused(one_ion, capsys, no_solve):
+    """A fixed neutral's density is given, so every sensitivity to a rate is 0: ``rank
+    --species O`` says so (exit 2, at --species) instead of printing a table of zeros."""
+    assert main(["rank", str(one_ion), "--species", "O"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("--species: O is a fixed neutral") and "O+" in err

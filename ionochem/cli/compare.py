@@ -14,6 +14,7 @@ from ionochem.cli.observed import add_observed_option, load_observed, print_misf
 from ionochem.cli.options import (
     Table,
     add_rate_change_options,
+    check_observed,
     check_output,
     check_outputs,
     parse_assignments,
@@ -93,6 +94,7 @@ def cmd_compare(args):
     alternative = parse_reaction_list(args.alternative) if args.alternative else None
     scen, base = baseline_model(args, "compare")
     check_outputs(args, inputs=scenario_inputs(scen) + files)
+    check_observed(observed, base)
     log = []
     changed = changed_model(base, set_dict=sets, scale=scales, replacements=replacements,
                             additions=additions, alternative=alternative, base_dir=Path.cwd(),

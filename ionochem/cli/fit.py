@@ -13,6 +13,7 @@ import sys
 from ionochem.cli.observed import misfit_table
 from ionochem.cli.options import (
     Table,
+    check_observed,
     check_outputs,
     parse_assignments,
     print_warnings,
@@ -74,6 +75,7 @@ def cmd_fit(args):
     scen = analysis_scenario(args, "fit")
     check_outputs(args, inputs=scenario_inputs(scen) + [args.observed])
     model = ionochem.Model(scen)
+    check_observed(obs, model)
     print_warnings(model.warnings)
     if args.constrain_electrons:
         model = electron_constrained_model(model, obs, balance_ion=args.balance_ion)

@@ -10,6 +10,7 @@ from ionochem.cli.compare import baseline_model
 from ionochem.cli.options import (
     check_output,
     check_outputs,
+    result_species,
     scenario_inputs,
     stamp_history,
     write_outputs,
@@ -57,13 +58,14 @@ def cmd_rank(args):
         raise InputError("--min-share must be at least 0 and below 1", file="--min-share")
     scen, model = baseline_model(args, "rank")
     check_outputs(args, inputs=scenario_inputs(scen))
-    sens = model.sensitivity()
-    names = list(sens["species"].values)
+    names, roles = result_species(model)
     species = list(args.species) if args.species else default_species(names)
     unknown = [s for s in species if s not in names]
     if unknown:
         raise InputError(f"no species {', '.join(unknown)} in the result (species: "
                          f"{', '.join(names)})", file="--species")
+    refuse_fixed(dict(zip(names, roles, strict=True)), species)
+    sens = model.sensitivity()
     print(sens.attrs.get("title", ""))
     alt = sens["altitude"].values
     lo, hi = rng if rng is not None else (alt.min(), alt.max())
@@ -89,6 +91,19 @@ def cmd_rank(args):
                          min_share=share)
         print(f"wrote {args.plot}")
     return 0
+
+
+def refuse_fixed(roles, species):
+    """A fixed neutral's density comes from the neutral source: no reaction changes it, so
+    its sensitivities are zero by construction; refuse to rank it rather than print zeros.
+    ``roles`` maps each species of the result to its role."""
+    fixed = [s for s in species if roles.get(s) == "fixed"]
+    if fixed:
+        solved = [str(s) for s, r in roles.items() if r != "fixed"]
+        what = "is a fixed neutral" if len(fixed) == 1 else "are fixed neutrals"
+        raise InputError(f"{', '.join(fixed)} {what} (given by the scenario's neutral "
+                         "source): no reaction changes it, so every sensitivity is 0; "
+                         f"rank one of {', '.join(solved)}", file="--species")
 
 
 def ranking_table(rows, by):

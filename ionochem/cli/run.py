@@ -9,6 +9,8 @@ from ionochem.cli.options import (
     DEFAULT_REPORT_KM,
     Table,
     add_rate_change_options,
+    check_budgets,
+    check_observed,
     check_output,
     check_outputs,
     fmt_value,
@@ -83,6 +85,8 @@ def cmd_run(args):
     scen, model = load_model(args)
     check_outputs(args, inputs=scenario_inputs(scen))
     budgets += [parse_budget(b) for b in scen.output.budget]
+    check_budgets(budgets, model)
+    check_observed(observed, model)
     print_warnings(model.warnings)
     transient = scen.solve.mode == "transient"
     if transient and getattr(args, "plot_levels", None):

@@ -14,6 +14,7 @@ from ionochem.cli.observed import add_observed_option, load_observed, print_misf
 from ionochem.cli.options import (
     Table,
     add_rate_change_options,
+    check_observed,
     check_output,
     check_outputs,
     fmt_value,
@@ -134,6 +135,7 @@ def cmd_uncertainty(args):
         replacements=[parse_reaction_list(f) for f in args.reactions or []],
         additions=[parse_reaction_list(f) for f in args.add or []])
     check_outputs(args, inputs=scenario_inputs(scen) + files)
+    check_observed(observed, model)
     print_change_log(log)
     from ionochem.cli.limits import check_ensemble
     runs = 1 if args.method == "montecarlo" else args.top + len(spreads or ()) + 2
