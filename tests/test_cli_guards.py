@@ -127,3 +127,31 @@ def test_rank_of_a_fixed_neutral_is_refused(one_ion, capsys, no_solve):
     assert main(["rank", str(one_ion), "--species", "O"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("--species: O is a fixed neutral") and "O+" in err
+
+
+def test_a_given_electron_density_gets_no_night_layer_warning_and_no_balance(tmp_path,
+                                                                             capsys):
+    """The midnight demo with a given (invented) electron density: the F layer is the given
+    one, so the warning that photochemistry alone cannot keep a night F layer does not
+    apply, and the imposed Ne recombines far more than the night sources ionize (some 160
+    times here), which is no check of the solution: no ``column_balance`` is reported and
+    the terminal says why, instead of printing a balance of about -1.6e2."""
+    from pathlib import Path
+    root = Path(__file__).resolve().parents[1]
+    alt = np.arange(90.0, 452.0, 2.0)
+    ne = 1e3 + 3e5 * np.exp(-((alt - 300.0) / 60.0) ** 2)   # invented night F layer
+    (tmp_path / "ne.csv").write_text("altitude_km,Ne\n" + "".join(
+        f"{a:g},{n:.6g}\n" for a, n in zip(alt, ne, strict=True)))
+    text = (root / "scenarios" / "midlatitude_midnight.toml").read_text()
+    text = text.replace('"../reactions/', f'"{root.as_posix()}/reactions/')
+    scen = tmp_path / "midnight_ne.toml"
+    scen.write_text(text + '\n[solve]\nelectrons = "table"\nelectron_table = "ne.csv"\n')
+    out = tmp_path / "m.nc"
+    assert main(["run", str(scen), "-o", str(out)]) == 0
+    captured = capsys.readouterr()
+    assert "night F layer" not in captured.err
+    assert "balance -" not in captured.out and "no balance expected" in captured.out
+    import xarray as xr
+    with xr.open_dataset(out) as ds:
+        assert "column_balance" not in ds.attrs
+        assert ds.attrs["column_recombination_cm2_s"] > 100 * ds.attrs["column_ionization_cm2_s"]

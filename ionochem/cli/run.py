@@ -107,10 +107,13 @@ def cmd_run(args):
     print(table.text())
     if not transient:
         bal = ds.attrs.get("column_balance")
-        if bal is not None:
+        if "column_ionization_cm2_s" in ds.attrs:
+            tail = (f"(balance {bal:.1e})" if bal is not None else
+                    "(at the given electron density, which this column's ionization does not "
+                    "make: no balance expected)")
             print(f"column ionization {ds.attrs['column_ionization_cm2_s']:.4e} cm-2 s-1, "
                   f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1 "
-                  f"(balance {bal:.1e})")
+                  + tail)
         for note in ds.attrs.get("warnings", "").split("; "):
             if note and note not in model.warnings:
                 print(f"warning: {note}", file=sys.stderr)
