@@ -73,7 +73,7 @@ def test_demo_beam_and_populations_recover_the_invented_mix(demo, capsys):
     assert np.all(np.abs(p - TRUTH) <= 3 * e + 1e-9)
     text = capsys.readouterr().out
     pops = [float(line.split()[2]) for line in text.splitlines()
-            if line.strip().startswith("v") and len(line.split()) == 4
+            if line.strip().startswith("v") and len(line.split()) >= 4
             and line.split()[1].isdigit()][:5]
     assert np.allclose(pops, TRUTH, atol=0.2)
 

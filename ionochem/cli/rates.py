@@ -560,8 +560,8 @@ def cmd_beam(args):
             total = at_measured @ (res.populations * res.scale)
             levels = _levels(table, main)
             t = Table(["column", "v", "population", "error"])
-            for c, v, p, e in zip(main, levels, res.populations, res.errors):
-                t.add(c, v, f"{p:.4f}", f"{e:.4f}")
+            for c, v, cells in zip(main, levels, population_cells(res)):
+                t.add(c, v, *cells)
             print("level mix fitted to the measured curve (non-negative, normalised; "
                   f"scale {res.scale:.4g}):")
             print(t.text())
@@ -605,6 +605,22 @@ def _print_detuning(Ed, curves, rows=8):
 
 
 # ------------------------------------------------------------------ populations
+def population_cells(res):
+    """``(population, error)`` cells of each level: ``p ± e``, or for a level fitted at zero
+    with linearised errors (which are then zero and mean nothing) ``0 (on bound)`` and its
+    upper limit."""
+    import numpy as np
+    limits = res.upper_limits if res.method == "linear" else None
+    out = []
+    for i, (p, e) in enumerate(zip(res.populations, res.errors)):
+        ul = np.nan if limits is None else limits[i]
+        if np.isfinite(ul):
+            out.append(("0 (on bound)", f"upper limit {ul:.4f}"))
+        else:
+            out.append((f"{p:.4f}", f"{e:.4f}"))
+    return out
+
+
 def _channels(table):
     import numpy as np
     ch = table["channel"]
@@ -651,16 +667,21 @@ def cmd_populations(args):
     print(f"{args.signals}: {len(ch_s)} channels, {len(levels)} levels; non-negative least "
           f"squares, errors by {'parametric bootstrap' if args.bootstrap else 'linearisation'}")
     t = Table(["v", "population", "error"])
-    for v, p, e in zip(levels, res.populations, res.errors):
-        t.add(v, f"{p:.4f}", f"{e:.4f}")
+    for v, cells in zip(levels, population_cells(res)):
+        t.add(v, *cells)
     print(t.text())
+    if res.upper_limits is not None and np.isfinite(res.upper_limits).any():
+        print("a level fitted at 0 sits on the non-negativity bound, where the linearised "
+              "error means nothing: its upper limit is where chi2 rises by 1 (the others "
+              "refitted)")
     pv = "" if not np.isfinite(res.p_value) else f", p = {res.p_value:.3g}"
     print(f"chi2 = {res.chi2:.4g} for {res.dof} degrees of freedom{pv}; overall scale "
           f"{res.scale:.4g}")
     if args.output:
         cov = res.covariance
-        write_csv(args.output, ["v", "population", "error", *[f"cov_v{v}" for v in levels]],
-                  [np.array(levels), res.populations, res.errors,
+        write_csv(args.output, ["v", "population", "error", "upper_limit",
+                                *[f"cov_v{v}" for v in levels]],
+                  [np.array(levels), res.populations, res.errors, res.upper_limits,
                    *[cov[:, j] for j in range(len(levels))]],
                   comments=[f"level populations from {args.signals} and {args.design}",
                             f"chi2 = {res.chi2:.6g}, dof = {res.dof}, errors: {method}"])
