@@ -85,8 +85,7 @@ def cmd_reactions(args):
         title, rows = _list_rows(args, wanted)
     if not rows:
         raise InputError(f"no reaction involves {', '.join(sorted(wanted))}", file="--species")
-    table = Table(["id", "equation", "k", "f sampled", "ref"],
-                  align=["<", "<", ">", ">", "<"])
+    table = Table(["id", "equation", "k", "f", "ref"], align=["<", "<", ">", ">", "<"])
     shown = Table(table.header, align=table.align)
     for row in rows:
         table.add(*row)
@@ -95,7 +94,7 @@ def cmd_reactions(args):
     print(title)
     print(shown.text())
     if any(row[3].endswith(BAND_MARK) for row in rows):
-        print(f"f sampled: the one-sigma factor `uncertainty` draws; '{BAND_MARK}' marks a rate "
+        print(f"f: the one-sigma factor `uncertainty` samples; '{BAND_MARK}' marks a rate "
               "table's band (k_low..k_high), which is sampled instead of the entry's f: "
               "/(k/k_low) below k, x(k_high/k) above")
     write_outputs(args, table=table)
