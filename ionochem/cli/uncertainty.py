@@ -54,6 +54,9 @@ def register(subparsers):
                    help="samples per batch (default: about 1000 rows of samples x levels)")
     u.add_argument("--resume", action="store_true",
                    help="continue an interrupted run from OUT.nc.samples")
+    u.add_argument("--restart", action="store_true",
+                   help="discard the samples of an earlier run in OUT.nc.samples and start "
+                        "over")
     u.add_argument("--keep-samples", action="store_true",
                    help="keep OUT.nc.samples (the solved samples) after writing OUT.nc")
     u.add_argument("--vary-environment", metavar="NAME=F,...",
@@ -114,6 +117,10 @@ def _check_args(args):
     if args.resume and not args.output:
         raise InputError("--resume needs -o OUT.nc (the samples are kept next to it)",
                          file="--resume")
+    if args.restart and (args.resume or not args.output):
+        raise InputError("--restart needs -o OUT.nc and cannot go with --resume (continue "
+                         "the earlier samples, or discard them: one or the other)",
+                         file="--restart")
     if args.method == "sobol" and args.samples & (args.samples - 1):
         print(f"note: --samples {args.samples} is not a power of 2; the Sobol' sequence is "
               "balanced only for powers of 2", file=sys.stderr)
@@ -142,6 +149,11 @@ def cmd_uncertainty(args):
     check_ensemble(args.samples, runs, model.altitude_km.size, len(model.species),
                    len(model.reactions), allow_long=args.allow_long)
     print_warnings(model.warnings)
+    if args.restart:
+        from ionochem.analysis.ensemble_store import discard_store, store_path_for
+        if discard_store(store_path_for(args.output)):
+            print(f"--restart: discarded the samples of an earlier run in "
+                  f"{store_path_for(args.output)}", file=sys.stderr)
     common = dict(seed=args.seed, environment=spreads, batch=args.batch,
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
                   resume=args.resume,
@@ -159,6 +171,8 @@ def cmd_uncertainty(args):
             print(f"finished batches are kept in {args.output}.samples: run the same command "
                   "with --resume to continue", file=sys.stderr)
         raise
+    if ds.attrs.get("failed_samples"):
+        print(f"warning: {ds.attrs['failed_samples_note']}", file=sys.stderr)
     if args.method == "montecarlo":
         table = _print_montecarlo(ds)
     else:
@@ -207,7 +221,10 @@ def _print_montecarlo(ds, out=None):
     rows = sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in REPORT_KM
                    if alt.min() - 1e-9 <= a <= alt.max() + 1e-9}) or [float(alt[0])]
     print(f"{ds.attrs.get('title', '')}", file=out)
-    print(f"Monte Carlo: {ds.attrs['samples']} samples, seed {ds.attrs['seed']}"
+    failed = ds.attrs.get("failed_samples", 0)
+    print(f"Monte Carlo: {ds.attrs['samples']} samples"
+          + (f" ({failed} more failed and are left out)" if failed else "")
+          + f", seed {ds.attrs['seed']}"
           + (f", environment {ds.attrs['environment_spreads']}"
              if ds.attrs.get("environment_spreads") else ""), file=out)
     print("median density (cm-3) and the 68 % range as a factor (sqrt(n84/n16))", file=out)
