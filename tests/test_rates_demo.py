@@ -24,7 +24,7 @@ TRUTH = np.array([0.6, 0.3, 0.1, 0.0, 0.0])
 @pytest.fixture
 def demo(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
-    runpy.run_path(str(DEMO / "make_inputs.py"))
+    runpy.run_path(str(DEMO / "make_inputs.py"), init_globals={"OUT": tmp_path})
     (tmp_path / "out").mkdir()
     return tmp_path
 
@@ -51,8 +51,9 @@ def test_demo_cross_sections_to_table_and_entries_read_per_level(demo, capsys):
     rows = _rows(demo / "out" / "dr.csv")
     assert rows[0] == ["v", "Te_K", "k", "k_low", "k_high"]
     assert sorted({int(r[0]) for r in rows[1:]}) == [0, 1, 2, 3, 4]
-    assert ('DR_N2plus(v): N2+(v) + e -> N(2D) + N | k = 0.54*table("dr.csv", "k") | '
-            "levels v = 0..4") in (demo / "out" / "dr.reactions").read_text()
+    assert ('DR_N2plus(v): N2+(v) + e -> N(2D) + N | k = 0.54*table("dr.csv", "k") | f = '
+            in (demo / "out" / "dr.reactions").read_text())
+    assert main(["check", "--strict", str(demo / "out" / "dr.reactions")]) == 0
     assert "DR_N2plus_2D2D(v)" in out
     k_table = next(float(r[2]) for r in rows[1:] if r[0] == "2" and float(r[1]) == 1000.0)
     rl = parse_reaction_list(demo / "out" / "dr.reactions")

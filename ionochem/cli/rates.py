@@ -24,6 +24,8 @@ import warnings
 from pathlib import Path
 
 from ionochem.cli.options import Table, check_output
+from ionochem.cli.rates_table import add_ref_option, emit_entries, entry_ref
+from ionochem.cli.rates_table import register as register_table
 from ionochem.errors import InputError
 
 FORMS = ("power", "broken", "arrhenius")
@@ -91,6 +93,7 @@ def register(subparsers):
                    help="temperatures of the written table, K (default: those of the file)")
     f.add_argument("--plot", help="write a figure of the data and the fits")
     f.set_defaults(func=cmd_fit)
+    register_table(sub)
 
 
 def _fit_options(p, *, form_flag, required):
@@ -112,6 +115,7 @@ def _fit_options(p, *, form_flag, required):
                         "per --entry)")
     p.add_argument("--write-entry", metavar="FILE.reactions",
                    help="also write the entry to a reaction-list file (for compare --reactions)")
+    add_ref_option(p)
 
 
 # ------------------------------------------------------------------ option parsing
@@ -375,7 +379,7 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
     import numpy as np
 
     from ionochem.rates import fit_rate
-    from ionochem.rates.tables import family_entry, write_level_table
+    from ionochem.rates.tables import write_level_table
     T_data = T_out if T_data is None else T_data
     if T_out.min() < T_data.min() * (1 - 1e-9) or T_out.max() > T_data.max() * (1 + 1e-9):
         print(f"warning: {source}: the table's temperatures {T_out.min():g}..{T_out.max():g} K "
@@ -418,36 +422,12 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
                   f"(bands: {'band columns' if bands else 'fit covariance, 1 sigma'})",
                   "columns: level v, temperature (K), k and its band (cm3 s-1)"])
     print(f"wrote {target}")
-    entries = _entries(args)
-    ref = f"{args.form} fit of {Path(source).name} (ionochem rates)"
-    given = [f for _, _, f in entries if f is not None]
-    if given and abs(sum(given) - 1.0) > 1e-6:
-        print(f"note: the branching fractions sum to {sum(given):.6g}, not 1", file=sys.stderr)
-
-    def lines(table_name):
-        return [family_entry(rid, reaction, table_name, list(by_level), ref=ref,
-                             fraction=fraction) for rid, reaction, fraction in entries]
-
-    if args.write_entry:
-        rel = Path(target).resolve()
-        folder = Path(args.write_entry).resolve().parent
-        try:
-            name = str(rel.relative_to(folder))
-        except ValueError:
-            name = str(rel)
-        from ionochem.io.netcdf import atomic_write_bytes
-        text = "".join(f"{line}\n" for line in lines(name))
-        atomic_write_bytes(args.write_entry,
-                           (f"# written by ionochem rates from {Path(source).name}\n"
-                            + text).encode())
-        print(f"wrote {args.write_entry}")
-    print("reaction-list entr" + ("ies" if len(entries) > 1 else "y")
-          + " (the table path resolves against the reaction file's folder):")
-    for line in lines(Path(target).name):
-        print(f"  {line}")
-    if not args.reaction:
-        print("note: give --entry ID and --reaction 'N2+(v) + e -> N + N' (your reaction; "
-              "repeat both, with --fraction F, for several product channels)")
+    from ionochem.rates.tables import band_f_expression, check_ref
+    f = band_f_expression({levels[c]: (out[c][0], *out[c][1]) for c in out})
+    args.source = source
+    emit_entries(args, target, list(by_level), f=f,
+                 ref=entry_ref(check_ref(getattr(args, "ref", None)),
+                               f"{args.form} fit of {Path(source).name} (ionochem rates)"))
     return out
 
 
