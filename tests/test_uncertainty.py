@@ -496,3 +496,16 @@ def test_a_leftover_store_offers_resume_or_restart(column, tmp_path, monkeypatch
     with xr.open_dataset(out) as ds:
         np.testing.assert_array_equal(ds["density_quantiles"].values, first)
     assert not store_path_for(out).exists()
+
+
+def test_global_sensitivity_still_needs_every_run(column, monkeypatch):
+    """A Morris design cannot leave runs out: a failed run is an error (SolverError naming
+    how many failed) once the batches are done, not a silently thinner design."""
+    from ionochem.analysis.globalsens import global_sensitivity
+    from ionochem.errors import SolverError
+    model = _one_ion(column)
+    j = model.reactions.index("R1")
+    k0 = model.rate_coefficients()[:, j]
+    _failing_solver(monkeypatch, j, float(k0.max()) * F_A ** 1.5)
+    with pytest.raises(SolverError, match="could not be solved.*needs every run"):
+        global_sensitivity(model, 8, method="morris", seed=1)

@@ -266,20 +266,25 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
                     finish(a, b, z, solve_batch(kernel, z, base_rates(model, kernel, z), a))
     finally:
         bar.close()
-    if store is not None:
-        z, n = store.load(total)
-    elif not results:
-        A, S = kernel.altitude_km.size, len(kernel.species)
-        return np.empty((0, kernel.width)), np.empty((0, A, S))
-    else:
-        order = sorted(results)
-        z = np.concatenate([results[a][0] for a in order])
-        n = np.concatenate([results[a][1] for a in order])
+    z, n = _collected(kernel, store, results, total)
     failed = failed_samples(n)
     if failed.size and not allow_failed:
         raise SolverError(describe_failed(failed, total) + "; this design needs every run",
                           levels=failed.tolist())
     return z, n
+
+
+def _collected(kernel, store, results, total):
+    """Draws and densities of every sample, in sample order (from the store when there is
+    one, else from the batches kept in memory)."""
+    if store is not None:
+        return store.load(total)
+    if not results:
+        A, S = kernel.altitude_km.size, len(kernel.species)
+        return np.empty((0, kernel.width)), np.empty((0, A, S))
+    order = sorted(results)
+    return (np.concatenate([results[a][0] for a in order]),
+            np.concatenate([results[a][1] for a in order]))
 
 
 def solve_batches(kernel, zs, k_bases, firsts):
