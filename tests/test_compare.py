@@ -191,3 +191,88 @@ def test_compare_through_main_exits_2_on_unknown_id(column, capsys):
     err = [ln for ln in capsys.readouterr().err.splitlines()
            if ln.strip() and not ln.startswith("warning:")]
     assert len(err) == 1 and "NOPE" in err[0] and "Traceback" not in err[0], err
+
+
+@pytest.mark.parametrize("flag", ["--reactions", "--list", "--set"])
+def test_command_line_changes_take_precedence_over_the_scenarios(column, tmp_path, capsys,
+                                                                 flag):
+    """The scenario's ``[changes]`` set C1 to twice (or scale it by a half); the command line
+    gives C1 anew (a replacement entry, an alternative list at half the rate, or ``--set``).
+    The command line wins in the changed model, so [O+] = P/(k [N2]) changes by the
+    analytic factor 2, 4 (0.5 with the scale) instead of 0.00 % (the scenario silently
+    overriding the command line), and ``changes_applied`` says what came from where."""
+    scale_case = flag == "--set"
+    extra = ("[changes]\nscale = { C1 = 0.5 }\n" if scale_case
+             else f'[changes]\nset = {{ C1 = "{2 * K_CT:g}" }}\n')
+    neutrals = {"O": 1e11 * np.exp(-(ALT - 100.0) / 60.0), "N2": N2,
+                "N": 1e8 * np.ones_like(ALT)}
+    scen = column(CHAIN, ALT, neutrals=neutrals, Tn=np.linspace(200.0, 900.0, ALT.size),
+                  Te=TE, production={"P1": Q}, extra=extra)
+    repl = tmp_path / "repl.reactions"
+    repl.write_text(f"C1: O+ + N2 -> NO+ + N | k = {K_CT:g} | ref = invented test\n")
+    alt_list = tmp_path / "alt.reactions"
+    alt_list.write_text(CHAIN.replace(f"k = {K_CT:g}", f"k = {K_CT / 2:g}"))
+    arg = {"--reactions": str(repl), "--list": str(alt_list), "--set": f"C1={K_CT:g}"}[flag]
+    out = tmp_path / "c.nc"
+    assert _run(["compare", str(scen), flag, arg, "-o", str(out)]) == 0
+    text = capsys.readouterr().out
+    # [O+] ∝ 1/k: the baseline's k is 2 K_CT (K_CT/2 with the scale); the changed one K_CT
+    # (K_CT/2 in the alternative list)
+    expected = {"--reactions": 2.0, "--list": 4.0, "--set": 0.5}[flag]
+    with xr.open_dataset(out) as ds:
+        np.testing.assert_allclose(ds["ratio"].sel(species="O+").values, expected, rtol=1e-8)
+        applied = ds.attrs["changes_applied"]
+    kind = "scale" if scale_case else "set"
+    assert f"scenario [changes] {kind} C1" in applied
+    assert "takes precedence" in applied and flag in applied
+    assert "command line takes precedence over the scenario" in text
+    assert f"scenario [changes] {kind} C1" in text
+
+
+def test_scenario_change_of_a_family_is_kept_on_the_levels_the_command_line_leaves(column):
+    """A scenario scale on a two-level family stays on the level ``--set`` leaves alone and
+    is dropped on the level it sets (rates compared directly: 3 x 1e-15 and 2e-15)."""
+    chain = (CHAIN + "L(v): O+ + N -> NO+ | k = 1e-15 | levels v = 0..1 "
+             "| ref = invented test\n")
+    neutrals = {"O": 1e11 * np.exp(-(ALT - 100.0) / 60.0), "N2": N2,
+                "N": 1e8 * np.ones_like(ALT)}
+    scen = column(chain, ALT, neutrals=neutrals, Tn=np.linspace(200.0, 900.0, ALT.size),
+                  Te=TE, production={"P1": Q}, extra="[changes]\nscale = { \"L(v)\" = 3.0 }\n")
+    base = ionochem.Model(ionochem.load_scenario(scen))
+    log = []
+    new = changed_model(base, set_dict={"L(v=1)": "2e-15"}, log=log)
+    k = new.rate_coefficients()
+    j0, j1 = new.reactions.index("L(v=0)"), new.reactions.index("L(v=1)")
+    np.testing.assert_allclose(k[:, j0], 3e-15, rtol=1e-12)
+    np.testing.assert_allclose(k[:, j1], 2e-15, rtol=1e-12)
+    assert any("except L(v=1)" in line for line in log)
+
+
+FAMILY_CHAIN = """\
+PN(v): N2 -> N2+(v) + e | k = 1e-10 | levels v = 0..1 | ref = invented test
+DR(v): N2+(v) + e -> N + N | k = 2e-7 | levels v = 0..1 | ref = invented test
+CT(v): N2+(v) + O -> NO+ + N | k = 1e-10 | levels v = 0..1 | ref = invented test
+DN: NO+ + e -> N + O | k = 4e-7 | ref = invented test
+"""
+
+
+def test_default_bands_cover_the_grid_and_every_changed_effective_rate_is_printed(
+        column, capsys):
+    """On a 100-600 km column the summary's bands reach the top of the grid (an ``upper``
+    band 300-600 km after E, F1, F2); the effective rate of the recombination family, which
+    a faster v = 1 recombination changes, is printed per band, and that of the charge
+    transfer, equal for both levels (so k_eff = k exactly, whatever the populations), is
+    listed as unchanged."""
+    alt = np.linspace(100.0, 600.0, 26)
+    path = column(FAMILY_CHAIN, alt, neutrals={"N2": 1e12 * np.exp(-(alt - 100) / 30.0),
+                                               "O": 1e11 * np.exp(-(alt - 100) / 50.0),
+                                               "N": 1e8},
+                  Tn=800.0)
+    assert _run(["compare", str(path), "--set", "DR(v=1)=6e-7"]) == 0
+    out = capsys.readouterr().out
+    assert "upper 300-600" in out
+    section = out.split("effective (population-weighted) rate coefficient")[1]
+    dr = [ln.split() for ln in section.splitlines() if ln.split()[:1] == ["DR(v)"]]
+    assert [ln[1] for ln in dr] == ["E", "F1", "F2", "upper"]
+    assert all(float(ln[-3]) > 0 for ln in dr)          # faster v = 1: k_eff rises
+    assert "effective rate coefficients unchanged (below 0.0001 %): CT(v)" in out

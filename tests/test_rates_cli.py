@@ -27,6 +27,29 @@ def _write(path, header, rows, comment="invented test data"):
     return str(path)
 
 
+def _f_from_table(path):
+    """The entry's expected ``f`` from a written level-row table (read with csv): per level
+    the widest one-sigma factor max(k/k_low, k_high/k), rounded up to 3 significant digits;
+    one number when the levels agree, else the chain by v."""
+    import math
+    widest = {}
+    with open(path, newline="") as fh:
+        for row in csv.DictReader(r for r in fh if not r.startswith("#")):
+            k, lo, hi = (float(row[c]) for c in ("k", "k_low", "k_high"))
+            v = int(row["v"])
+            widest[v] = max(widest.get(v, 1.0), k / lo, hi / k)
+    up = {}
+    for v, x in sorted(widest.items()):
+        scale = 10.0 ** (2 - math.floor(math.log10(x)))
+        up[v] = math.ceil(x * scale - 1e-9) / scale
+    if len(set(up.values())) == 1:
+        return f"{next(iter(up.values())):g}"
+    text = f"{up[max(up)]:g}"
+    for v in sorted(up)[-2::-1]:
+        text = f"{up[v]:g} if v < {v + 0.5:g} else ({text})"
+    return text
+
+
 def _sigma_file(tmp_path, levels=2):
     E = np.geomspace(1e-7, 30.0, 1500)
     cols = [E]
@@ -73,7 +96,8 @@ def test_maxwellian_writes_rates_table_and_entry(tmp_path, capsys):
     assert {r[0] for r in trows[1:]} == {"0", "1"}
     v1 = [r for r in trows[1:] if r[0] == "1"]
     assert float(v1[0][3]) == pytest.approx(0.8 * float(v1[0][2]), rel=1e-4)
-    expected = ('DR_X(v): N2+(v) + e -> N + N | k = table("dr.csv", "k") | levels v = 0..1 | '
+    expected = ('DR_X(v): N2+(v) + e -> N + N | k = table("dr.csv", "k") | '
+                f"f = {_f_from_table(table)} | levels v = 0..1 | "
                 "ref = power fit of sigma.csv (ionochem rates)")
     assert expected in text
     assert expected in entry.read_text()
@@ -145,7 +169,8 @@ def test_fit_command_writes_table_in_the_files_temperature_column(tmp_path, caps
     assert (tmp_path / "f.png").stat().st_size > 1000
     text = capsys.readouterr().out
     assert "B = -0.8" in text
-    assert 'CT(v): REACTANTS(v) -> PRODUCTS | k = table("t.csv", "k") | levels v = 2..2' in text
+    assert ('CT(v): REACTANTS(v) -> PRODUCTS | k = table("t.csv", "k") | '
+            f"f = {_f_from_table(out)} | levels v = 2..2") in text
     rows = _rows(out)
     assert rows[0] == ["v", "Ti_K", "k", "k_low", "k_high"]
     assert all(r[0] == "2" for r in rows[1:])
@@ -238,3 +263,78 @@ def test_branching_channels_get_one_entry_each(tmp_path, capsys):
     assert main(base + ["--entry", "A", "--reaction", "X(v) -> Y", "--fraction", "1.5"]) == 2
     assert capsys.readouterr().err.startswith("--fraction: ")
 
+
+
+# ------------------------------------------------------------------ rates table
+WIDE = """\
+# invented per-level rates (test data)
+Te_K,v0,v0_low,v0_high,v1,v1_low,v1_high
+300,2.0e-7,1.6e-7,2.5e-7,1.0e-7,0.5e-7,2.17e-7
+1000,1.2e-7,0.96e-7,1.5e-7,0.6e-7,0.3e-7,1.2e-7
+3000,0.7e-7,0.56e-7,0.875e-7,0.35e-7,0.175e-7,0.7e-7
+"""
+LONG = """\
+# invented per-level rates (test data), level-row layout
+v,Te_K,k,k_sigma
+0,300,2.0e-7,0.2e-7
+0,3000,0.7e-7,0.07e-7
+1,300,1.0e-7,0.3e-7
+1,1000,0.6e-7,0.18e-7
+1,3000,0.35e-7,0.105e-7
+"""
+
+
+@pytest.mark.parametrize("layout", ["wide", "long"])
+def test_table_job_writes_a_level_row_table_and_strict_entries(tmp_path, capsys, layout):
+    """``rates table`` takes a tabulated per-level k(T) (wide columns v0, v1 with bands, or
+    long rows v, Te_K, k, k_sigma) without a fit: the level-row table holds the file's
+    values (read back with csv), the entries carry f from the table's bands (k_sigma s
+    becomes k/(1+s/k)..k(1+s/k)), the user's --ref, and pass ``check --strict``; the
+    written entries parse level by level (v = 1 at 300 K is the table's row)."""
+    src = tmp_path / f"{layout}.csv"
+    src.write_text(WIDE if layout == "wide" else LONG)
+    table, entry = tmp_path / "dr_levels.csv", tmp_path / "dr.reactions"
+    ref = "storage-ring measurement, invented group, 2026 (unpublished)"
+    assert main(["rates", "table", str(src), "-o", str(table), "--entry", "DR_X",
+                 "--reaction", "N2+(v) + e -> N + N", "--ref", ref,
+                 "--write-entry", str(entry)]) == 0
+    out = capsys.readouterr().out
+    rows = _rows(table)
+    assert rows[0] == ["v", "Te_K", "k", "k_low", "k_high"]
+    v1 = [[float(x) for x in r] for r in rows[1:] if r[0] == "1"]
+    assert v1[0][:3] == [1.0, 300.0, 1.0e-7]
+    if layout == "long":
+        assert v1[0][3] == pytest.approx(1.0e-7 / 1.3, rel=1e-5)
+        assert v1[0][4] == pytest.approx(1.3e-7, rel=1e-5)
+    else:
+        assert v1[0][3:] == [0.5e-7, 2.17e-7]
+    f = _f_from_table(table)
+    text = entry.read_text()
+    assert (f'DR_X(v): N2+(v) + e -> N + N | k = table("dr_levels.csv", "k") | f = {f} | '
+            f"levels v = 0..1 | ref = {ref}; tabulated in {src.name}") in text
+    assert f"f = {f}" in out
+    if layout == "wide":
+        assert " if v < 0.5 else " in f          # the two levels' bands differ
+    assert main(["check", "--strict", str(entry)]) == 0
+    capsys.readouterr()
+    from ionochem.mechanism.parser import parse_reaction_list
+    member = next(r for r in parse_reaction_list(entry).reactions if r.id == "DR_X(v=1)")
+    assert member.k.evaluate({"Te": np.array([300.0]), "v": 1})[0] == pytest.approx(1.0e-7)
+    assert member.f.evaluate({"v": 1}) == pytest.approx(float(f.split("else (")[-1].rstrip(")"))
+                                                        if "else" in f else float(f))
+
+
+def test_table_job_needs_an_uncertainty(tmp_path, capsys):
+    """A table without band columns gets no entry without --f (exit 2, at the file); with
+    --f 1.5 the entries carry f = 1.5."""
+    src = tmp_path / "r.csv"
+    src.write_text("T_K,v0,v1\n300,2e-7,1e-7\n3000,7e-8,3.5e-8\n")
+    table = tmp_path / "t.csv"
+    assert main(["rates", "table", str(src), "-o", str(table), "--entry", "X",
+                 "--reaction", "N2+(v) + e -> N + N"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"{src}: ") and "--f F" in err
+    assert main(["rates", "table", str(src), "-o", str(table), "--entry", "X",
+                 "--reaction", "N2+(v) + e -> N + N", "--f", "1.5"]) == 0
+    assert "| f = 1.5 | levels v = 0..1 |" in capsys.readouterr().out
+    assert _rows(table)[0] == ["v", "Te_K", "k"]

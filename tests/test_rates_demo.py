@@ -24,7 +24,7 @@ TRUTH = np.array([0.6, 0.3, 0.1, 0.0, 0.0])
 @pytest.fixture
 def demo(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
-    runpy.run_path(str(DEMO / "make_inputs.py"))
+    runpy.run_path(str(DEMO / "make_inputs.py"), init_globals={"OUT": tmp_path})
     (tmp_path / "out").mkdir()
     return tmp_path
 
@@ -51,8 +51,9 @@ def test_demo_cross_sections_to_table_and_entries_read_per_level(demo, capsys):
     rows = _rows(demo / "out" / "dr.csv")
     assert rows[0] == ["v", "Te_K", "k", "k_low", "k_high"]
     assert sorted({int(r[0]) for r in rows[1:]}) == [0, 1, 2, 3, 4]
-    assert ('DR_N2plus(v): N2+(v) + e -> N(2D) + N | k = 0.54*table("dr.csv", "k") | '
-            "levels v = 0..4") in (demo / "out" / "dr.reactions").read_text()
+    assert ('DR_N2plus(v): N2+(v) + e -> N(2D) + N | k = 0.54*table("dr.csv", "k") | f = '
+            in (demo / "out" / "dr.reactions").read_text())
+    assert main(["check", "--strict", str(demo / "out" / "dr.reactions")]) == 0
     assert "DR_N2plus_2D2D(v)" in out
     k_table = next(float(r[2]) for r in rows[1:] if r[0] == "2" and float(r[1]) == 1000.0)
     rl = parse_reaction_list(demo / "out" / "dr.reactions")
@@ -73,7 +74,7 @@ def test_demo_beam_and_populations_recover_the_invented_mix(demo, capsys):
     assert np.all(np.abs(p - TRUTH) <= 3 * e + 1e-9)
     text = capsys.readouterr().out
     pops = [float(line.split()[2]) for line in text.splitlines()
-            if line.strip().startswith("v") and len(line.split()) == 4
+            if line.strip().startswith("v") and len(line.split()) >= 4
             and line.split()[1].isdigit()][:5]
     assert np.allclose(pops, TRUTH, atol=0.2)
 
@@ -89,3 +90,46 @@ def test_demo_entries_run_in_compare(demo, capsys):
     captured = capsys.readouterr()
     assert code == 0, captured.err
     assert "DR_N2plus(v)" in captured.out and "DR_N2plus_2D2D(v)" in captured.out
+
+
+def _readme_rates_commands():
+    """The commands of README.md's laboratory-toolkit section, continuation lines joined."""
+    text = (DEMO.parents[1] / "README.md").read_text()
+    section = text.split("<!-- section: laboratory toolkit (rates) -->")[1].split(
+        "<!-- end section: laboratory toolkit (rates) -->")[0]
+    commands = []
+    for block in section.split("```bash")[1:]:
+        body = block.split("```")[0].replace("\\\n", " ")
+        commands += [ln.strip() for ln in body.splitlines() if ln.strip()]
+    return commands
+
+
+def test_readme_rates_examples_run_from_the_repository_root(tmp_path, monkeypatch, capsys):
+    """Every command of README.md's rates section runs as written from a copy of the
+    repository root (the demo inputs made by its first line, the others by the ionochem
+    command line), and the entries they write pass ``check --strict``."""
+    import os
+    import shlex
+    import shutil
+    import subprocess
+    import sys
+    (tmp_path / "examples" / "rates_demo").mkdir(parents=True)
+    shutil.copy(DEMO / "make_inputs.py", tmp_path / "examples" / "rates_demo")
+    monkeypatch.chdir(tmp_path)
+    commands = _readme_rates_commands()
+    assert commands[0].startswith("python ") and len(commands) >= 4
+    for cmd in commands:
+        words = shlex.split(cmd)
+        if words[0] == "python":
+            # the package under test, wherever the interpreter would otherwise find one
+            env = {**os.environ, "PYTHONPATH": str(DEMO.parents[1])}
+            subprocess.run([sys.executable, *words[1:]], check=True, cwd=tmp_path,
+                           capture_output=True, env=env)
+        else:
+            assert words[0] == "ionochem"
+            assert main(words[1:]) == 0, (cmd, capsys.readouterr().err)
+    written = sorted(p.name for p in tmp_path.glob("*.reactions"))
+    assert written == ["dr.reactions", "dr_tabulated.reactions"]
+    for name in written:
+        assert main(["check", "--strict", name]) == 0
+    capsys.readouterr()

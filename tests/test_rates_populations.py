@@ -86,3 +86,24 @@ def test_bad_inputs_are_refused(args, words):
     """Shape mismatch, negative design, zero errors, signals nothing can explain: InputError."""
     with pytest.raises(InputError, match=words):
         level_populations(*args)
+
+
+def test_a_level_fitted_at_zero_gets_its_delta_chi2_upper_limit(tmp_path, capsys):
+    """Two channels that each see one level (identity design), signals 1 and -0.5 with
+    sigma 1: level 1 sits on the bound (its unconstrained value -0.5 with width 1). Holding
+    it at t, chi2 rises by (t + 0.5)^2 - 0.25, so Delta chi2 = 1 at t = sqrt(1.25) - 0.5
+    (analytic), a normalised share t/(1 + t). The command line shows that limit instead of
+    the linearised "0.0000 +- 0.0000"."""
+    res = level_populations(np.eye(2), np.array([1.0, -0.5]), 1.0)
+    t = np.sqrt(1.25) - 0.5
+    assert res.populations[1] == 0.0
+    assert res.upper_limits[1] == pytest.approx(t / (1.0 + t), rel=1e-9)
+    assert np.isnan(res.upper_limits[0])
+    from ionochem.cli import main
+    (tmp_path / "sig.csv").write_text("channel,signal,sigma\n0,1.0,1.0\n1,-0.5,1.0\n")
+    (tmp_path / "des.csv").write_text("channel,v0,v1\n0,1,0\n1,0,1\n")
+    assert main(["rates", "populations", str(tmp_path / "sig.csv"), "--design",
+                 str(tmp_path / "des.csv")]) == 0
+    rows = [ln.split() for ln in capsys.readouterr().out.splitlines()
+            if ln.split()[:1] == ["1"]]
+    assert rows == [["1", "0", "(on", "bound)", "upper", "limit", f"{t / (1 + t):.4f}"]]

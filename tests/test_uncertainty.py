@@ -413,3 +413,99 @@ def test_a_worker_process_that_dies_ends_the_run_with_an_error(column):
     with pytest.raises(SolverError, match="worker process ended unexpectedly"):
         E.run_ensemble(model, kernel, lambda a, b: U.draw_normals(0, a, b, kernel.width), 40,
                        batch=5, workers=2)
+
+
+# ----------------------------------------------------------------------------- failed samples
+def _failing_solver(monkeypatch, j, threshold):
+    """Make the steady solver fail, as it does for a column it cannot bring in, on every row
+    whose rate coefficient j exceeds ``threshold`` (a sample drawn far in the tail)."""
+    import ionochem.solve.batch as batch
+    from ionochem.errors import SolverError
+    real = batch.solve_rows
+
+    def solve_rows(mechanism, k, given, **kw):
+        bad = np.flatnonzero(np.asarray(k)[:, j] > threshold)
+        if bad.size:
+            raise SolverError("steady state not reached (planted)", levels=bad.tolist())
+        return real(mechanism, k, given, **kw)
+
+    monkeypatch.setattr(batch, "solve_rows", solve_rows)
+
+
+def test_failed_samples_are_recorded_and_the_run_finishes(column, tmp_path, monkeypatch,
+                                                          capsys):
+    """Samples whose recombination factor is drawn beyond +1.5 sigma are made unsolvable.
+    The run still finishes: the failed samples are exactly those whose standard normal for
+    R1 (its own numpy stream, SeedSequence(seed, spawn_key=(i,)), second draw) exceeds 1.5;
+    the output records their count and indices, the terminal reports them, and the
+    statistics are those of the others (the batches they shared solve unchanged)."""
+    model = _one_ion(column)
+    seed, n = 3, 40
+    eps = np.array([np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(i,)))
+                    .standard_normal(2)[1] for i in range(n)])
+    expected = np.flatnonzero(eps > 1.5)
+    assert 0 < expected.size < n - 2
+    j = model.reactions.index("R1")
+    k0 = model.rate_coefficients()[:, j]
+    _failing_solver(monkeypatch, j, float(k0.max()) * F_A ** 1.5)
+    out = tmp_path / "mc.nc"
+    path = model.scenario.source
+    assert _cli(monkeypatch, ["uncertainty", str(path), "--samples", str(n), "--seed",
+                              str(seed), "--batch", "8", "-o", str(out)]) == 0
+    captured = capsys.readouterr()
+    with xr.open_dataset(out) as ds:
+        assert ds.attrs["failed_samples"] == expected.size
+        assert ds.attrs["failed_sample_indices"] == ", ".join(map(str, expected))
+        assert ds.attrs["samples"] == n - expected.size
+        quantiles = ds["density_quantiles"].transpose("quantile", "altitude", "species").values
+    assert f"{expected.size} of {n} samples could not be solved" in captured.err
+    assert f"({expected.size} more failed and are left out)" in captured.out
+    # Unplanted, every sample solves; the run's quantiles are those of the others.
+    monkeypatch.undo()
+    kernel = U.SampleKernel(model)
+    z, dens = U.run_ensemble(model, kernel, lambda a, b: U.draw_normals(seed, a, b,
+                                                                        kernel.width), n)
+    assert U.failed_samples(dens).size == 0
+    np.testing.assert_allclose(z[:, j], eps)
+    ok = np.setdiff1d(np.arange(n), expected)
+    reported = U.species_samples(model, kernel, z[ok], dens[ok])[0]
+    np.testing.assert_allclose(quantiles, np.quantile(reported, U.QUANTILES, axis=0),
+                               rtol=1e-9)
+
+
+def test_a_leftover_store_offers_resume_or_restart(column, tmp_path, monkeypatch, capsys):
+    """A store left by an earlier run (kept with --keep-samples) blocks a plain rerun with a
+    message naming both --resume and --restart; --restart discards it and starts over (the
+    result equals a fresh run), and is refused together with --resume."""
+    model = _one_ion(column)
+    path, out = str(model.scenario.source), tmp_path / "mc.nc"
+    base = ["uncertainty", path, "--samples", "10", "--seed", "2", "-o", str(out)]
+    assert _cli(monkeypatch, [*base, "--keep-samples"]) == 0
+    with xr.open_dataset(out) as ds:
+        first = ds["density_quantiles"].values
+    capsys.readouterr()
+    assert _cli(monkeypatch, base) == 2
+    err = capsys.readouterr().err
+    assert "--resume" in err and "--restart" in err
+    assert _cli(monkeypatch, [*base, "--seed", "5", "--resume"]) == 2
+    assert "--restart" in capsys.readouterr().err
+    assert _cli(monkeypatch, [*base, "--restart", "--resume"]) == 2
+    capsys.readouterr()
+    assert _cli(monkeypatch, [*base, "--restart"]) == 0
+    assert "discarded the samples of an earlier run" in capsys.readouterr().err
+    with xr.open_dataset(out) as ds:
+        np.testing.assert_array_equal(ds["density_quantiles"].values, first)
+    assert not store_path_for(out).exists()
+
+
+def test_global_sensitivity_still_needs_every_run(column, monkeypatch):
+    """A Morris design cannot leave runs out: a failed run is an error (SolverError naming
+    how many failed) once the batches are done, not a silently thinner design."""
+    from ionochem.analysis.globalsens import global_sensitivity
+    from ionochem.errors import SolverError
+    model = _one_ion(column)
+    j = model.reactions.index("R1")
+    k0 = model.rate_coefficients()[:, j]
+    _failing_solver(monkeypatch, j, float(k0.max()) * F_A ** 1.5)
+    with pytest.raises(SolverError, match="could not be solved.*needs every run"):
+        global_sensitivity(model, 8, method="morris", seed=1)

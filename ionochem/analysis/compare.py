@@ -23,8 +23,29 @@ from ionochem.errors import InputError
 from ionochem.mechanism.units import check_ties
 
 #: Altitude bands of the summary, km: the E region (90-150 km), F1 (150-200 km) and the
-#: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*.
+#: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*. On a grid the
+#: summary uses :func:`default_bands`: these cut to the grid, with "D" below 90 km and
+#: "upper" from 300 km to the top of the grid when it reaches beyond them.
 DEFAULT_BANDS = {"E": (90.0, 150.0), "F1": (150.0, 200.0), "F2": (200.0, 300.0)}
+
+
+def default_bands(altitude_km):
+    """:data:`DEFAULT_BANDS` cut to the grid ``altitude_km``, with ``D`` (grid bottom to
+    90 km) and ``upper`` (300 km to the grid top) where the grid reaches beyond them, so
+    the summary covers the whole column. Returns ``{name: (low_km, high_km)}``."""
+    alt = np.asarray(altitude_km, float)
+    lo, hi = float(alt.min()), float(alt.max())
+    first, last = min(b[0] for b in DEFAULT_BANDS.values()), max(
+        b[1] for b in DEFAULT_BANDS.values())
+    out = {}
+    if lo < first:
+        out["D"] = (lo, first)
+    for name, (a, b) in DEFAULT_BANDS.items():
+        if b >= lo and a <= hi:
+            out[name] = (max(a, lo), min(b, hi))
+    if hi > last:
+        out["upper"] = (last, hi)
+    return out
 
 #: Main ions summarised (O+(total) stands for O+ when metastable O+ states are solved).
 MAIN_IONS = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
@@ -52,39 +73,6 @@ def _extra_scales(before, after):
         if f != base:
             out[key] = f / base if base else float("inf")
     return out
-
-
-def _model_on(baseline, reaction_list):
-    """A model of ``reaction_list`` on the baseline's column (rebuilt when it needs more).
-
-    The scenario's own changes apply to the new list as they did to the baseline; changes
-    the baseline carried beyond them (``with_changes``) are carried over too.
-    """
-    from ionochem import Model
-    from ionochem.errors import MechanismError
-    scen = baseline.scenario
-    try:
-        new = Model(scen, mechanism=reaction_list, environment=baseline.environment)
-        if not _needs(new) <= _needs(baseline):
-            new = None
-    except MechanismError:
-        # The baseline's environment may lack a photo channel or a neutral the other list
-        # needs; a fresh environment for the new list has them (or says why not).
-        new = None
-    if new is None:
-        new = Model(scen, mechanism=reaction_list)
-    extra_set = {k: v for k, v in baseline.changes["set"].items()
-                 if new.changes["set"].get(k) != v}
-    extra_scale = _extra_scales(new.changes["scale"], baseline.changes["scale"])
-    dirs = getattr(baseline, "_set_dirs", {})
-    groups = {}
-    for key, text in extra_set.items():
-        groups.setdefault(dirs.get(key), {})[key] = text
-    for folder, sets in groups.items():
-        new = new.with_changes(sets, base_dir=folder)
-    if extra_scale:
-        new = new.with_changes({}, scale=extra_scale)
-    return new
 
 
 def merge_replacements(baseline_list, replacements):
@@ -148,8 +136,13 @@ def _merged(baseline_list, other, reactions, families):
 
 
 def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), additions=(),
-                  alternative=None, base_dir=None):
+                  alternative=None, base_dir=None, log=None):
     """The baseline model with rate changes applied, on the same environment.
+
+    The command line takes precedence over the scenario (:mod:`ionochem.analysis.changes`):
+    a reaction whose entry a file gives, or that ``set_dict`` names, keeps none of the
+    baseline's ``set``/``scale`` changes in the changed model; ``scale`` multiplies the
+    baseline rate; ``set_dict`` and ``scale`` apply after the files.
 
     Parameters
     ----------
@@ -167,22 +160,45 @@ def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), addit
     base_dir : path, optional
         Folder that table paths in ``set_dict`` resolve against (default: the reaction
         list's folder).
+    log : list, optional
+        Receives one line per change: where it came from and which model carries it.
 
     Returns
     -------
     ionochem.Model
     """
-    model = baseline
-    if alternative is not None:
-        model = _model_on(model, alternative)
+    from ionochem.analysis.changes import given_entries, resolve_changes
+    final = baseline.reaction_list if alternative is None else alternative
     for rl in replacements:
-        model = _model_on(model, merge_replacements(model.reaction_list, rl))
+        final = merge_replacements(final, rl)
     for rl in additions:
-        model = _model_on(model, merge_additions(model.reaction_list, rl))
-    if set_dict or scale:
-        model = model.with_changes(dict(set_dict or {}), scale=dict(scale or {}),
-                                   base_dir=base_dir)
-    return model
+        final = merge_additions(final, rl)
+    given = given_entries(baseline.reaction_list, replacements=replacements,
+                          additions=additions, alternative=alternative)
+    plan = resolve_changes(baseline, final, given=given, set_dict=set_dict, scale=scale,
+                           base_dir=base_dir)
+    if log is not None:
+        log.extend(plan.log)
+    return _model_with(baseline, final, plan)
+
+
+def _model_with(baseline, reaction_list, plan):
+    """A model of ``reaction_list`` with ``plan``'s changes on the baseline's column (its
+    environment reused unless the new list or expressions need more)."""
+    from ionochem import Model
+    from ionochem.errors import MechanismError
+    changes = (plan.set, plan.scale, "api", plan.dirs)
+    scen = baseline.scenario
+    try:
+        new = Model(scen, mechanism=reaction_list, environment=baseline.environment,
+                    _changes=changes)
+        if new.needs <= _needs(baseline):
+            return new
+    except MechanismError:
+        # The baseline's environment may lack a photo channel or a neutral the other list
+        # needs; a fresh environment for the new list has them (or says why not).
+        pass
+    return Model(scen, mechanism=reaction_list, _changes=changes)
 
 
 # ------------------------------------------------------------------ the comparison
@@ -226,7 +242,7 @@ def _add_equilibrium_flag(out, ds_b, names):
 
 
 def compare(baseline_model, changed_model, *, baseline=None, changed=None,
-            reaction_lists=()):
+            reaction_lists=(), change_log=()):
     """Solve a baseline and a changed model and compare their steady densities.
 
     Parameters
@@ -237,6 +253,9 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
         Their steady solutions, if already computed.
     reaction_lists : sequence, optional
         The reaction lists (or their paths) that made the change, for the attributes.
+    change_log : sequence of str, optional
+        Where each change came from (``log`` of :func:`changed_model`): the attribute
+        ``changes_applied``.
 
     Returns
     -------
@@ -287,6 +306,7 @@ def compare(baseline_model, changed_model, *, baseline=None, changed=None,
     for key in ("changes_set", "changes_scale"):
         out.attrs[f"baseline_{key}"] = ds_b.attrs.get(key, "")
     out.attrs.update(_change_attrs(baseline_model, changed_model, reaction_lists))
+    out.attrs["changes_applied"] = "; ".join(change_log)
     out.attrs["analysis"] = "compare: baseline and changed rates on the same environment"
     _add_equilibrium_flag(out, ds_b, names)
     return out
@@ -393,7 +413,8 @@ def band_summary(ds, bands=None, species=None):
     ds : xarray.Dataset
         From :func:`compare` (needs ``ratio``).
     bands : dict[str, (float, float)] or sequence of (name, low_km, high_km), optional
-        Altitude bands, km, both ends included; default :data:`DEFAULT_BANDS`.
+        Altitude bands, km, both ends included; default :func:`default_bands` of the
+        dataset's grid.
     species : sequence of str, optional
         Default: the main ions present (:func:`main_species`).
 
@@ -402,7 +423,7 @@ def band_summary(ds, bands=None, species=None):
     list of BandRow
         Species-major order.
     """
-    bands = DEFAULT_BANDS if bands is None else bands
+    bands = default_bands(ds["altitude"].values) if bands is None else bands
     if not isinstance(bands, dict):
         bands = {name: (lo, hi) for name, lo, hi in bands}
     names = list(ds["species"].values)
@@ -410,22 +431,31 @@ def band_summary(ds, bands=None, species=None):
     unknown = [s for s in species if s not in names]
     if unknown:
         raise InputError(f"compare: no species {', '.join(unknown)} in the result")
-    alt = ds["altitude"].values
     rows = []
     for s in species:
-        pct = 100.0 * (ds["ratio"].sel(species=s).values - 1.0)
-        for name, (lo, hi) in bands.items():
-            inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
-            vals = pct[inside]
-            good = np.isfinite(vals)
-            if not good.any():
-                rows.append(BandRow(s, name, lo, hi, int(inside.sum()), np.nan, np.nan,
-                                    np.nan))
-                continue
-            i = np.nanargmax(np.abs(np.where(good, vals, np.nan)))
-            rows.append(BandRow(s, name, float(lo), float(hi), int(good.sum()),
-                                float(np.median(vals[good])), float(vals[i]),
-                                float(alt[inside][i])))
+        rows += change_rows(s, ds["ratio"].sel(species=s).values, ds["altitude"].values,
+                            bands)
+    return rows
+
+
+def change_rows(name, ratio, altitude_km, bands):
+    """:class:`BandRow` of one ratio profile (changed/baseline) in each band; ``name``
+    labels the rows (a species or a family reaction)."""
+    alt = np.asarray(altitude_km, float)
+    pct = 100.0 * (np.asarray(ratio, float) - 1.0)
+    rows = []
+    for band, (lo, hi) in bands.items():
+        inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
+        vals = pct[inside]
+        good = np.isfinite(vals)
+        if not good.any():
+            rows.append(BandRow(name, band, lo, hi, int(inside.sum()), np.nan, np.nan,
+                                np.nan))
+            continue
+        i = np.nanargmax(np.abs(np.where(good, vals, np.nan)))
+        rows.append(BandRow(name, band, float(lo), float(hi), int(good.sum()),
+                            float(np.median(vals[good])), float(vals[i]),
+                            float(alt[inside][i])))
     return rows
 
 

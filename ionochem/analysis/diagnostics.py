@@ -140,6 +140,7 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
         coords["emission_line"] = ("emission", np.array([lab for _, lab in labels],
                                                         dtype=object))
 
+    given_ne = env.electron_density is not None and mech.balance_ion is not None
     # Ionization–recombination balance from the electron row of the stoichiometry.
     if ELECTRON in mech.all_species:
         nu_e = mech.nu_all[mech.index(ELECTRON)]
@@ -154,14 +155,18 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
         col_rec = np.trapezoid(rec, z_cm) if rec.size > 1 else float(rec.sum())
         attrs["column_ionization_cm2_s"] = float(col_ion)
         attrs["column_recombination_cm2_s"] = float(col_rec)
-        attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
-            else 0.0
+        # With a given electron density (electrons = "table") the electrons are not made
+        # by this column's ionization, so ionization and recombination need not balance:
+        # their ratio is no check of the solution and is not reported.
+        if not given_ne:
+            attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
+                else 0.0
 
     dark = env.dark(None)
     notes = list(model.warnings)
     sources = list(getattr(env.sun, "photon_sources", ()) or ())
     night = any(src.startswith("night:") for src in sources)
-    if dark.all():
+    if dark.all() and not given_ne:
         notes.append("every level is dark: only the scattered night-time sources ionize "
                      "(photochemistry alone, without transport, cannot keep the night F "
                      "layer)" if night else
@@ -174,7 +179,7 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
                            lambda: float(env.solar_zenith_angle(None)))
     out["solar_zenith_angle"] = ((), sza,
                                  {"units": "degree", "long_name": "solar zenith angle"})
-    if env.electron_density is not None and mech.balance_ion is not None:
+    if given_ne:
         b = list(species).index(mech.balance_ion)
         neg = dens[b] < 0
         out["balance_negative"] = ("altitude", neg.astype(np.int8),

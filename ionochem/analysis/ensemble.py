@@ -31,27 +31,76 @@ def solve_batch(kernel, z, k_base=None, first=0):
     Runs on dask workers as well as in-process. ``first`` is the index of the first sample
     (for error messages).
     """
-    from ionochem.solve.batch import solve_rows
     k, given = kernel.perturbed(z, k_base)
     S = len(kernel.mechanism.solved)
     A = kernel.altitude_km.size
+    B = z.shape[0]
     try:
-        transport = getattr(kernel, "transport", None)
-        # Samples start from the central column (without transport a warm start, no
-        # fixed-point sweeps).
-        central = getattr(kernel, "n_central", None)
-        n0 = None if central is None else np.tile(central, (z.shape[0], 1))
-        res = solve_rows(kernel.mechanism, k, given, rtol=kernel.rtol, n0=n0,
-                         transport=transport)
-    except SolverError as exc:
-        rows = np.asarray(exc.levels, int)
-        where = [f"sample {first + r // A} at {kernel.altitude_km[r % A]:g} km"
-                 for r in rows[:6]]
-        raise SolverError(f"steady state not reached for {rows.size} level(s) of the "
-                          f"ensemble: {', '.join(where)}{' …' if rows.size > 6 else ''} "
-                          "(rate factors far in the tails can make a column unsolvable)",
-                          levels=[first + int(r) // A for r in rows]) from None
-    return res.n.reshape(z.shape[0], A, S)
+        return _solve_samples(kernel, k, given, B).reshape(B, A, S)
+    except SolverError:
+        pass
+    # Some sample's column could not be solved (rate factors far in the tails can make a
+    # column unsolvable): solve the samples one by one and mark the failed ones (all NaN),
+    # so one sample does not cost the batch or the run. Each sample's answer is the same
+    # alone as in a batch (the solver decides per row; per column with transport).
+    n = np.full((B, A, S), np.nan)
+    k3, g3 = k.reshape(B, A, -1), given.reshape(B, A, -1)
+    for b in range(B):
+        try:
+            n[b] = _solve_samples(kernel, k3[b], g3[b], 1)
+        except SolverError:
+            pass
+    return n
+
+
+def _solve_samples(kernel, k, given, samples):
+    """Solved densities (samples × A, S) of stacked sample columns; raises SolverError."""
+    from ionochem.solve.batch import solve_rows
+    transport = getattr(kernel, "transport", None)
+    # Samples start from the central column (without transport a warm start, no fixed-point
+    # sweeps).
+    central = getattr(kernel, "n_central", None)
+    n0 = None if central is None else np.tile(central, (samples, 1))
+    return solve_rows(kernel.mechanism, k, given, rtol=kernel.rtol, n0=n0,
+                      transport=transport).n
+
+
+def failed_samples(n):
+    """Indices of the samples whose column failed (:func:`solve_batch` leaves them NaN)."""
+    n = np.asarray(n)
+    return np.flatnonzero(~np.isfinite(n.reshape(n.shape[0], -1)).all(axis=1))
+
+
+def drop_failed(z, n, total):
+    """The Monte Carlo keeps the samples that solved: ``(z, n, failed indices)``.
+
+    Raises SolverError when fewer than two samples are left (no spread to report).
+    """
+    failed = failed_samples(n)
+    if failed.size:
+        keep = np.ones(n.shape[0], bool)
+        keep[failed] = False
+        z, n = z[keep], n[keep]
+        if n.shape[0] < 2:
+            raise SolverError(describe_failed(failed, total) + "; fewer than two are left",
+                              levels=failed.tolist())
+    return z, n, failed
+
+
+def failed_attrs(failed, total):
+    """Attributes recording the failed samples of a Monte Carlo run."""
+    return {"failed_samples": int(len(failed)),
+            "failed_sample_indices": ", ".join(str(int(i)) for i in failed),
+            "failed_samples_note": (describe_failed(failed, total) + "; the statistics are "
+                                    "of the others (failures in the tails narrow them)")
+            if len(failed) else ""}
+
+
+def describe_failed(failed, total):
+    """One sentence naming the failed samples (the first few) of ``total``."""
+    shown = ", ".join(str(int(i)) for i in failed[:10]) + (" …" if len(failed) > 10 else "")
+    return (f"{len(failed)} of {total} samples could not be solved (samples {shown}; rate "
+            "factors far in the tails can make a column unsolvable)")
 
 
 #: Level solves (samples × levels) from which ``workers="auto"`` starts worker processes:
@@ -134,7 +183,7 @@ def _split(gaps, size):
 
 
 def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler=None,
-                 store=None, progress=False, on_batch=None):
+                 store=None, progress=False, on_batch=None, allow_failed=False):
     """Solve ``total`` samples in batches; returns draws ``z`` (total, width) and
     densities ``n`` (total, A, S), in sample order.
 
@@ -161,6 +210,10 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
     on_batch : callable, optional
         ``on_batch(start, stop, done, total)`` after each batch is stored (a hook for
         progress reports and for tests that interrupt a run).
+    allow_failed : bool
+        Return samples that could not be solved as NaN (:func:`failed_samples` finds them)
+        instead of raising :class:`SolverError` once every batch is done (a design that
+        needs every run, Sobol or Morris, cannot use the others).
     """
     from tqdm import tqdm
     total = int(total)
@@ -213,6 +266,17 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
                     finish(a, b, z, solve_batch(kernel, z, base_rates(model, kernel, z), a))
     finally:
         bar.close()
+    z, n = _collected(kernel, store, results, total)
+    failed = failed_samples(n)
+    if failed.size and not allow_failed:
+        raise SolverError(describe_failed(failed, total) + "; this design needs every run",
+                          levels=failed.tolist())
+    return z, n
+
+
+def _collected(kernel, store, results, total):
+    """Draws and densities of every sample, in sample order (from the store when there is
+    one, else from the batches kept in memory)."""
     if store is not None:
         return store.load(total)
     if not results:

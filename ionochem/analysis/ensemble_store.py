@@ -126,7 +126,7 @@ class EnsembleStore:
         if not resume:
             self._unlock()
             raise InputError("holds samples of an earlier run: pass --resume to continue it, "
-                             "or remove the folder to start again", file=where)
+                             "or --restart to discard them and start again", file=where)
         try:
             stored = json.loads(mpath.read_text(encoding="utf-8"))
             if not isinstance(stored, dict):
@@ -142,36 +142,14 @@ class EnsembleStore:
             shown = "; ".join(f"{k}: stored {_short(stored.get(k))}, now "
                               f"{_short(self.manifest.get(k))}" for k in diff)
             raise InputError("cannot resume: the stored samples were made with different "
-                             f"inputs ({shown}); remove the folder or use another output",
-                             file=where)
+                             f"inputs ({shown}); pass --restart to discard them and start "
+                             "again, or use another output", file=where)
         self._set_aside_damaged()
 
     # ------------------------------------------------------------------ locking
     def _lock(self):
         """Take the store's lock or refuse: one run per store."""
-        try:
-            import fcntl
-        except ImportError:                       # not POSIX: no lock
-            return
-        path = self.folder / ".lock"
-        try:
-            fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
-        except OSError as exc:
-            raise InputError(f"cannot create the store lock: {exc.strerror}",
-                             file=str(self.folder)) from None
-        try:
-            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except OSError:
-            holder = ""
-            with contextlib.suppress(OSError, ValueError):
-                holder = f" (process {int(os.read(fd, 32).decode().strip())})"
-            os.close(fd)
-            raise InputError(f"another ionochem run is using this sample store{holder}; "
-                             "wait for it to finish or give another -o",
-                             file=str(self.folder)) from None
-        os.ftruncate(fd, 0)
-        os.write(fd, f"{os.getpid()}\n".encode())
-        self._lock_fd = fd
+        self._lock_fd = _take_lock(self.folder)
 
     def _unlock(self):
         if self._lock_fd is not None:
@@ -281,6 +259,75 @@ class EnsembleStore:
         """Delete the store (after the final output was written)."""
         self._unlock()
         shutil.rmtree(self.folder, ignore_errors=True)
+
+
+def _take_lock(folder):
+    """Lock ``folder``'s ``.lock`` (flock, held until closed) and return its descriptor
+    (None where there is no fcntl); another holder is refused with an InputError."""
+    try:
+        import fcntl
+    except ImportError:                       # not POSIX: no lock
+        return None
+    path = Path(folder) / ".lock"
+    try:
+        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+    except OSError as exc:
+        raise InputError(f"cannot create the store lock: {exc.strerror}",
+                         file=str(folder)) from None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        holder = ""
+        with contextlib.suppress(OSError, ValueError):
+            holder = f" (process {int(os.read(fd, 32).decode().strip())})"
+        os.close(fd)
+        raise InputError(f"another ionochem run is using this sample store{holder}; "
+                         "wait for it to finish or give another -o",
+                         file=str(folder)) from None
+    os.ftruncate(fd, 0)
+    os.write(fd, f"{os.getpid()}\n".encode())
+    return fd
+
+
+def discard_store(folder) -> bool:
+    """Empty an earlier run's store so that a new run starts over (``--restart``).
+
+    Only a folder that is an ionochem sample store (it holds ``manifest.json``) is emptied,
+    under the store's lock (a store another run is using is refused); its batch files, set
+    aside files and manifest are removed, the folder stays. Returns whether there was a
+    store to empty.
+
+    Raises
+    ------
+    InputError
+        When the path is not a folder, is a folder without a manifest (not a store: nothing
+        is removed), or another run holds the lock.
+    """
+    folder = Path(folder)
+    if not folder.exists() and not folder.is_symlink():
+        return False
+    where = str(folder)
+    if not folder.is_dir():
+        raise InputError("the sample store path exists and is not a folder; remove or "
+                         "rename it", file=where)
+    if not (folder / "manifest.json").is_file():
+        if not [p for p in folder.iterdir() if p.name != ".lock"]:
+            return False
+        raise InputError("this folder has no manifest.json, so it is not an ionochem sample "
+                         "store; --restart removes nothing there: remove or rename it, or "
+                         "choose another -o", file=where)
+    fd = _take_lock(folder)
+    try:
+        for p in folder.iterdir():
+            if p.name == "manifest.json" or _BATCH.match(p.name.removesuffix(".damaged")) \
+                    or (p.name.startswith(".") and p.name.endswith(".tmp")):
+                with contextlib.suppress(OSError):
+                    p.unlink()
+    finally:
+        if fd is not None:
+            with contextlib.suppress(OSError):
+                os.close(fd)
+    return True
 
 
 def _readable(path) -> bool:

@@ -89,6 +89,9 @@ from ionochem.analysis.ensemble import (  # noqa: E402,F401
     ROW_TARGET,
     dask_client,
     default_batch,
+    drop_failed,
+    failed_attrs,
+    failed_samples,
     run_ensemble,
     single_thread_blas,
     solve_batch,
@@ -214,12 +217,14 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
     try:
         z, n = run_ensemble(model, kernel, rows, samples, batch=batch, workers=workers,
                             scheduler=scheduler, store=store, progress=progress,
-                            on_batch=on_batch)
+                            on_batch=on_batch, allow_failed=True)
     finally:
         if store is not None:
             store.close()
+    z, n, failed = drop_failed(z, n, samples)
     ds = summarise(model, kernel, z, n, seed=seed)
     ds.attrs["batch_samples"] = int(batch or default_batch(kernel.altitude_km.size))
+    ds.attrs.update(failed_attrs(failed, samples))
     return ds
 
 

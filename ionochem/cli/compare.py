@@ -14,6 +14,7 @@ from ionochem.cli.observed import add_observed_option, load_observed, print_misf
 from ionochem.cli.options import (
     Table,
     add_rate_change_options,
+    check_observed,
     check_output,
     check_outputs,
     parse_assignments,
@@ -23,7 +24,12 @@ from ionochem.cli.options import (
     stamp_history,
     write_outputs,
 )
+from ionochem.cli.steady_at import add_steady_at_option, analysis_scenario
 from ionochem.errors import InputError
+
+#: Relative change of an effective rate coefficient below which it is listed as unchanged
+#: (rounding of the level solutions, far below anything a table prints).
+EFFECTIVE_UNCHANGED = 1e-6
 
 
 def register(subparsers):
@@ -48,20 +54,15 @@ def register(subparsers):
                    help="altitude bands of the summary, km (default E=90:150,F1=150:200,"
                         "F2=200:300)")
     add_observed_option(c)
+    add_steady_at_option(c)
     c.set_defaults(func=cmd_compare)
 
 
-def note_steady(scen):
-    if scen.solve.mode != "steady":
-        print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; this command works "
-              "on the steady state (photochemical equilibrium)", file=sys.stderr)
-
-
-def baseline_model(path):
-    """Scenario and model of a scenario file, warnings printed."""
+def baseline_model(args, command):
+    """Scenario and model of ``args.scenario`` (a transient one at ``--steady-at``),
+    warnings printed."""
     import ionochem
-    scen = ionochem.load_scenario(path)
-    note_steady(scen)
+    scen = analysis_scenario(args, command)
     model = ionochem.Model(scen)
     print_warnings(model.warnings)
     return scen, model
@@ -69,10 +70,10 @@ def baseline_model(path):
 
 def cmd_compare(args):
     from ionochem.analysis.compare import (
-        DEFAULT_BANDS,
         band_summary,
         changed_model,
         compare,
+        default_bands,
         parse_bands,
     )
     from ionochem.mechanism.parser import parse_reaction_list
@@ -81,7 +82,7 @@ def cmd_compare(args):
         files.append(args.alternative)
     check_outputs(args, inputs=[args.scenario, *files])
     check_output(args.csv, "--csv", inputs=[args.scenario, *files])
-    bands = parse_bands(args.bands) if args.bands else DEFAULT_BANDS
+    bands = parse_bands(args.bands) if args.bands else None
     sets = parse_assignments(args.set, "set")
     scales = parse_scales(args.scale)
     if not (sets or scales or files):
@@ -91,14 +92,17 @@ def cmd_compare(args):
     replacements = [parse_reaction_list(f) for f in args.reactions or []]
     additions = [parse_reaction_list(f) for f in args.add or []]
     alternative = parse_reaction_list(args.alternative) if args.alternative else None
-    scen, base = baseline_model(args.scenario)
+    scen, base = baseline_model(args, "compare")
     check_outputs(args, inputs=scenario_inputs(scen) + files)
+    check_observed(observed, base)
+    log = []
     changed = changed_model(base, set_dict=sets, scale=scales, replacements=replacements,
-                            additions=additions, alternative=alternative, base_dir=Path.cwd())
+                            additions=additions, alternative=alternative, base_dir=Path.cwd(),
+                            log=log)
     for w in changed.warnings:
         if w not in base.warnings:
             print(f"warning: changed model: {w}", file=sys.stderr)
-    ds = compare(base, changed, reaction_lists=files)
+    ds = compare(base, changed, reaction_lists=files, change_log=log)
     stamp_history(ds, args)
     species = None
     if args.species:
@@ -111,13 +115,16 @@ def cmd_compare(args):
     what = "; ".join(x for x in (ds.attrs["changes_set"], ds.attrs["changes_scale"],
                                  ds.attrs["changes_reactions"]) if x)
     print(f"{ds.attrs.get('title', '')}\nchanged: {what or '(no effective change)'}")
+    print_change_log(log)
+    if bands is None:
+        bands = default_bands(ds["altitude"].values)
     rows = band_summary(ds, bands, species=species)
     table = band_table(rows)
     print("percentage change of the changed model against the baseline "
           "(100 (changed/baseline - 1))")
     print(table.text())
     if "effective_rate_change" in ds:
-        print(effective_rate_table(ds).text())
+        print_effective_rates(ds, bands)
     if observed is not None:
         from ionochem.analysis.misfit import misfit_of_dataset
         print_misfit(observed, {
@@ -131,14 +138,22 @@ def cmd_compare(args):
     return 0
 
 
-def band_table(rows):
+def print_change_log(log):
+    """The changes applied and where each came from (command line over scenario)."""
+    if log:
+        print("changes applied (the command line takes precedence over the scenario):")
+        for line in log:
+            print(f"  {line}")
+
+
+def band_table(rows, first="species"):
     """The band summary as an aligned table (one row per species and band)."""
     import numpy as np
 
     def pct(x):
         return f"{x:+.2f}" if np.isfinite(x) else "-"
 
-    table = Table(["species", "band", "median %", "largest %", "at km"],
+    table = Table([first, "band", "median %", "largest %", "at km"],
                   align=["<", "<", ">", ">", ">"])
     for r in rows:
         at = f"{r.largest_alt_km:g}" if np.isfinite(r.largest_alt_km) else "-"
@@ -147,17 +162,27 @@ def band_table(rows):
     return table
 
 
-def effective_rate_table(ds):
-    """Largest change of each family's population-weighted rate coefficient."""
+def print_effective_rates(ds, bands):
+    """The change of every family's population-weighted rate coefficient that changed, per
+    altitude band (median and largest), and how many did not change."""
     import numpy as np
+
+    from ionochem.analysis.compare import change_rows
     var = ds["effective_rate_change"]
-    table = Table(["family reaction", "largest change of effective k %", "at km"],
-                  align=["<", ">", ">"])
+    dim = var.dims[0]
     alt = ds["altitude"].values
-    for name in var[var.dims[0]].values:
-        pct = 100.0 * (var.sel({var.dims[0]: name}).values - 1.0)
-        if not np.any(np.isfinite(pct)):
+    rows, same = [], []
+    for name in var[dim].values:
+        ratio = var.sel({dim: name}).values
+        moved = np.abs(np.where(np.isfinite(ratio), ratio, 1.0) - 1.0)
+        if not moved.max(initial=0.0) > EFFECTIVE_UNCHANGED:
+            same.append(str(name))
             continue
-        i = int(np.nanargmax(np.abs(pct)))
-        table.add(name, f"{pct[i]:+.2f}", f"{alt[i]:g}")
-    return table
+        rows += change_rows(str(name), ratio, alt, bands)
+    if rows:
+        print("percentage change of each family's effective (population-weighted) rate "
+              "coefficient")
+        print(band_table(rows, "family reaction").text())
+    if same:
+        print(f"effective rate coefficients unchanged (below {100 * EFFECTIVE_UNCHANGED:g} "
+              f"%): {', '.join(same)}")

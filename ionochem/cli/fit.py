@@ -13,12 +13,14 @@ import sys
 from ionochem.cli.observed import misfit_table
 from ionochem.cli.options import (
     Table,
+    check_observed,
     check_outputs,
     parse_assignments,
     print_warnings,
     scenario_inputs,
     stamp_history,
 )
+from ionochem.cli.steady_at import add_steady_at_option, analysis_scenario
 from ionochem.errors import InputError
 
 
@@ -52,6 +54,7 @@ def register(subparsers):
                    help="points of the profile (default 13)")
     f.add_argument("-o", "--output", help="write the fit dataset (netCDF)")
     f.add_argument("--plot", help="write the fit figure (PNG, PDF, SVG)")
+    add_steady_at_option(f)
     f.set_defaults(func=cmd_fit)
     return subparsers
 
@@ -69,12 +72,10 @@ def cmd_fit(args):
         raise InputError("--profile-points must be at least 3", file="--profile-points")
     priors = parse_assignments(args.prior, "prior")
     obs = ionochem.load_observations(args.observed)
-    scen = ionochem.load_scenario(args.scenario)
+    scen = analysis_scenario(args, "fit")
     check_outputs(args, inputs=scenario_inputs(scen) + [args.observed])
-    if scen.solve.mode != "steady":
-        print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the fit works on "
-              "the steady state (photochemical equilibrium)", file=sys.stderr)
     model = ionochem.Model(scen)
+    check_observed(obs, model)
     print_warnings(model.warnings)
     if args.constrain_electrons:
         model = electron_constrained_model(model, obs, balance_ion=args.balance_ion)

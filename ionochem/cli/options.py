@@ -108,6 +108,9 @@ def parse_budget(item):
         raise InputError(f"budget {item!r} must look like SPECIES@KM (N2+@200)",
                          file="--budget")
     name, km = item.rsplit("@", 1)
+    if not name.strip():
+        raise InputError(f"budget {item!r} names no species; it must look like SPECIES@KM "
+                         "(N2+@200)", file="--budget")
     try:
         value = float(km)
     except ValueError:
@@ -206,19 +209,61 @@ def scenario_inputs(scenario):
 
 
 # ------------------------------------------------------------------ models
-def load_model(args):
-    """Scenario and model of ``args.scenario`` with ``--set``/``--scale`` applied.
+def load_model(args, *, command=None, replacements=(), additions=(), log=None):
+    """Scenario and model of ``args.scenario`` with ``--set``/``--scale`` (and replacement
+    or added entries, already parsed) applied, the command line taking precedence over the
+    scenario's ``[changes]`` (:mod:`ionochem.analysis.changes`); ``log`` receives where
+    each change came from. With ``command`` (an analysis of a steady state) a transient
+    scenario needs ``--steady-at`` (:mod:`ionochem.cli.steady_at`).
 
     Table paths inside ``--set`` expressions resolve against the working directory.
     """
     import ionochem
-    scen = ionochem.load_scenario(args.scenario)
+    if command is None:
+        scen = ionochem.load_scenario(args.scenario)
+    else:
+        from ionochem.cli.steady_at import analysis_scenario
+        scen = analysis_scenario(args, command)
     model = ionochem.Model(scen)
     sets = parse_assignments(getattr(args, "set", None), "set")
     scales = parse_scales(getattr(args, "scale", None))
-    if sets or scales:
-        model = model.with_changes(sets, scale=scales, base_dir=Path.cwd())
+    if sets or scales or replacements or additions:
+        from ionochem.analysis.compare import changed_model
+        model = changed_model(model, set_dict=sets, scale=scales, replacements=replacements,
+                              additions=additions, base_dir=Path.cwd(), log=log)
     return scen, model
+
+
+def result_species(model):
+    """``(names, roles)`` of the species a result of ``model`` reports (solved, electrons,
+    fixed neutrals, derived totals), known before any solve: for checks of ``--species``,
+    ``--budget`` and ``--observed`` before the work starts."""
+    import numpy as np
+    _, names, roles = model.species_table(np.zeros((model.altitude_km.size,
+                                                   len(model.species))))
+    return list(names), list(roles)
+
+
+def check_budgets(budgets, model):
+    """Refuse, before the solve, a ``--budget SPECIES@KM`` whose species the result will not
+    have or whose altitude is off the grid."""
+    names, _ = result_species(model)
+    alt = model.altitude_km
+    for name, km in budgets:
+        if name not in names:
+            raise InputError(f"no species {name!r} in the result (species: "
+                             f"{', '.join(names)})", file="--budget")
+        if not alt.min() - 1e-9 <= km <= alt.max() + 1e-9:
+            raise InputError(f"{km:g} km is outside the grid {alt.min():g}-{alt.max():g} km",
+                             file="--budget")
+
+
+def check_observed(observed, model):
+    """Refuse, before the solve, observations of species the result will not have or at
+    heights off the grid (:func:`ionochem.io.observations.check_against_model`)."""
+    if observed is not None:
+        from ionochem.io.observations import check_against_model
+        check_against_model(observed, result_species(model)[0], model.altitude_km)
 
 
 def stamp_history(ds, args):

@@ -11,10 +11,12 @@ from ionochem.cli.options import (
     MEMBERS_HELP,
     check_output,
     check_outputs,
+    result_species,
     scenario_inputs,
     stamp_history,
     write_outputs,
 )
+from ionochem.cli.steady_at import add_steady_at_option
 from ionochem.errors import InputError
 
 
@@ -36,6 +38,7 @@ def register(subparsers):
     r.add_argument("-o", "--output", help="write sensitivities and rankings (netCDF)")
     r.add_argument("--plot", help="write the heat map and bar chart (PNG, PDF, SVG)")
     r.add_argument("--csv", metavar="FILE", help="write the printed ranking as CSV")
+    add_steady_at_option(r)
     r.set_defaults(func=cmd_rank)
 
 
@@ -55,15 +58,16 @@ def cmd_rank(args):
     share = DEFAULT_MIN_SHARE if args.min_share is None else args.min_share
     if not 0.0 <= share < 1.0:
         raise InputError("--min-share must be at least 0 and below 1", file="--min-share")
-    scen, model = baseline_model(args.scenario)
+    scen, model = baseline_model(args, "rank")
     check_outputs(args, inputs=scenario_inputs(scen))
-    sens = model.sensitivity()
-    names = list(sens["species"].values)
+    names, roles = result_species(model)
     species = list(args.species) if args.species else default_species(names)
     unknown = [s for s in species if s not in names]
     if unknown:
         raise InputError(f"no species {', '.join(unknown)} in the result (species: "
                          f"{', '.join(names)})", file="--species")
+    refuse_fixed(dict(zip(names, roles, strict=True)), species)
+    sens = model.sensitivity()
     print(sens.attrs.get("title", ""))
     alt = sens["altitude"].values
     lo, hi = rng if rng is not None else (alt.min(), alt.max())
@@ -94,6 +98,19 @@ def cmd_rank(args):
                          min_share=share, members=args.members)
         print(f"wrote {args.plot}")
     return 0
+
+
+def refuse_fixed(roles, species):
+    """A fixed neutral's density comes from the neutral source: no reaction changes it, so
+    its sensitivities are zero by construction; refuse to rank it rather than print zeros.
+    ``roles`` maps each species of the result to its role."""
+    fixed = [s for s in species if roles.get(s) == "fixed"]
+    if fixed:
+        solved = [str(s) for s, r in roles.items() if r != "fixed"]
+        what = "is a fixed neutral" if len(fixed) == 1 else "are fixed neutrals"
+        raise InputError(f"{', '.join(fixed)} {what} (given by the scenario's neutral "
+                         "source): no reaction changes it, so every sensitivity is 0; "
+                         f"rank one of {', '.join(solved)}", file="--species")
 
 
 def ranking_table(rows, by, by_members=False):

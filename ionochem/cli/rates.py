@@ -24,6 +24,8 @@ import warnings
 from pathlib import Path
 
 from ionochem.cli.options import Table, check_output
+from ionochem.cli.rates_table import add_ref_option, emit_entries, entry_ref
+from ionochem.cli.rates_table import register as register_table
 from ionochem.errors import InputError
 
 FORMS = ("power", "broken", "arrhenius")
@@ -91,6 +93,7 @@ def register(subparsers):
                    help="temperatures of the written table, K (default: those of the file)")
     f.add_argument("--plot", help="write a figure of the data and the fits")
     f.set_defaults(func=cmd_fit)
+    register_table(sub)
 
 
 def _fit_options(p, *, form_flag, required):
@@ -112,6 +115,7 @@ def _fit_options(p, *, form_flag, required):
                         "per --entry)")
     p.add_argument("--write-entry", metavar="FILE.reactions",
                    help="also write the entry to a reaction-list file (for compare --reactions)")
+    add_ref_option(p)
 
 
 # ------------------------------------------------------------------ option parsing
@@ -375,7 +379,7 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
     import numpy as np
 
     from ionochem.rates import fit_rate
-    from ionochem.rates.tables import family_entry, write_level_table
+    from ionochem.rates.tables import write_level_table
     T_data = T_out if T_data is None else T_data
     if T_out.min() < T_data.min() * (1 - 1e-9) or T_out.max() > T_data.max() * (1 + 1e-9):
         print(f"warning: {source}: the table's temperatures {T_out.min():g}..{T_out.max():g} K "
@@ -418,36 +422,12 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
                   f"(bands: {'band columns' if bands else 'fit covariance, 1 sigma'})",
                   "columns: level v, temperature (K), k and its band (cm3 s-1)"])
     print(f"wrote {target}")
-    entries = _entries(args)
-    ref = f"{args.form} fit of {Path(source).name} (ionochem rates)"
-    given = [f for _, _, f in entries if f is not None]
-    if given and abs(sum(given) - 1.0) > 1e-6:
-        print(f"note: the branching fractions sum to {sum(given):.6g}, not 1", file=sys.stderr)
-
-    def lines(table_name):
-        return [family_entry(rid, reaction, table_name, list(by_level), ref=ref,
-                             fraction=fraction) for rid, reaction, fraction in entries]
-
-    if args.write_entry:
-        rel = Path(target).resolve()
-        folder = Path(args.write_entry).resolve().parent
-        try:
-            name = str(rel.relative_to(folder))
-        except ValueError:
-            name = str(rel)
-        from ionochem.io.netcdf import atomic_write_bytes
-        text = "".join(f"{line}\n" for line in lines(name))
-        atomic_write_bytes(args.write_entry,
-                           (f"# written by ionochem rates from {Path(source).name}\n"
-                            + text).encode())
-        print(f"wrote {args.write_entry}")
-    print("reaction-list entr" + ("ies" if len(entries) > 1 else "y")
-          + " (the table path resolves against the reaction file's folder):")
-    for line in lines(Path(target).name):
-        print(f"  {line}")
-    if not args.reaction:
-        print("note: give --entry ID and --reaction 'N2+(v) + e -> N + N' (your reaction; "
-              "repeat both, with --fraction F, for several product channels)")
+    from ionochem.rates.tables import band_f_expression, check_ref
+    f = band_f_expression({levels[c]: (out[c][0], *out[c][1]) for c in out})
+    args.source = source
+    emit_entries(args, target, list(by_level), f=f,
+                 ref=entry_ref(check_ref(getattr(args, "ref", None)),
+                               f"{args.form} fit of {Path(source).name} (ionochem rates)"))
     return out
 
 
@@ -560,8 +540,8 @@ def cmd_beam(args):
             total = at_measured @ (res.populations * res.scale)
             levels = _levels(table, main)
             t = Table(["column", "v", "population", "error"])
-            for c, v, p, e in zip(main, levels, res.populations, res.errors):
-                t.add(c, v, f"{p:.4f}", f"{e:.4f}")
+            for c, v, cells in zip(main, levels, population_cells(res)):
+                t.add(c, v, *cells)
             print("level mix fitted to the measured curve (non-negative, normalised; "
                   f"scale {res.scale:.4g}):")
             print(t.text())
@@ -605,6 +585,22 @@ def _print_detuning(Ed, curves, rows=8):
 
 
 # ------------------------------------------------------------------ populations
+def population_cells(res):
+    """``(population, error)`` cells of each level: ``p ± e``, or for a level fitted at zero
+    with linearised errors (which are then zero and mean nothing) ``0 (on bound)`` and its
+    upper limit."""
+    import numpy as np
+    limits = res.upper_limits if res.method == "linear" else None
+    out = []
+    for i, (p, e) in enumerate(zip(res.populations, res.errors)):
+        ul = np.nan if limits is None else limits[i]
+        if np.isfinite(ul):
+            out.append(("0 (on bound)", f"upper limit {ul:.4f}"))
+        else:
+            out.append((f"{p:.4f}", f"{e:.4f}"))
+    return out
+
+
 def _channels(table):
     import numpy as np
     ch = table["channel"]
@@ -651,16 +647,21 @@ def cmd_populations(args):
     print(f"{args.signals}: {len(ch_s)} channels, {len(levels)} levels; non-negative least "
           f"squares, errors by {'parametric bootstrap' if args.bootstrap else 'linearisation'}")
     t = Table(["v", "population", "error"])
-    for v, p, e in zip(levels, res.populations, res.errors):
-        t.add(v, f"{p:.4f}", f"{e:.4f}")
+    for v, cells in zip(levels, population_cells(res)):
+        t.add(v, *cells)
     print(t.text())
+    if res.upper_limits is not None and np.isfinite(res.upper_limits).any():
+        print("a level fitted at 0 sits on the non-negativity bound, where the linearised "
+              "error means nothing: its upper limit is where chi2 rises by 1 (the others "
+              "refitted)")
     pv = "" if not np.isfinite(res.p_value) else f", p = {res.p_value:.3g}"
     print(f"chi2 = {res.chi2:.4g} for {res.dof} degrees of freedom{pv}; overall scale "
           f"{res.scale:.4g}")
     if args.output:
         cov = res.covariance
-        write_csv(args.output, ["v", "population", "error", *[f"cov_v{v}" for v in levels]],
-                  [np.array(levels), res.populations, res.errors,
+        write_csv(args.output, ["v", "population", "error", "upper_limit",
+                                *[f"cov_v{v}" for v in levels]],
+                  [np.array(levels), res.populations, res.errors, res.upper_limits,
                    *[cov[:, j] for j in range(len(levels))]],
                   comments=[f"level populations from {args.signals} and {args.design}",
                             f"chi2 = {res.chi2:.6g}, dof = {res.dof}, errors: {method}"])

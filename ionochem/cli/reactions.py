@@ -37,6 +37,22 @@ def register(subparsers):
     r.set_defaults(func=cmd_reactions)
 
 
+#: Marks an uncertainty shown from a rate table's band (what the Monte Carlo samples).
+BAND_MARK = "(band)"
+
+
+def band_factor(k, low, high):
+    """The one-sigma factors a band gives around k, as sampled (analysis/sampling.py: the
+    band is the 68 % range of a two-piece log-normal): ``x2.17 (band)`` when both sides
+    agree to 1 %, else ``/2 x2.36 (band)``; None without a usable band (k or low ≤ 0)."""
+    if not (k > 0 and low > 0):
+        return None
+    below, above = max(k / low, 1.0), max(high / k, 1.0)
+    if abs(below / above - 1.0) <= 0.01:
+        return f"x{above:.3g} {BAND_MARK}"
+    return f"/{below:.3g} x{above:.3g} {BAND_MARK}"
+
+
 def _involves(r, names):
     if not names:
         return True
@@ -77,6 +93,10 @@ def cmd_reactions(args):
         shown.add(*row[:-1], ref)
     print(title)
     print(shown.text())
+    if any(row[3].endswith(BAND_MARK) for row in rows):
+        print(f"f: the one-sigma factor `uncertainty` samples; '{BAND_MARK}' marks a rate "
+              "table's band (k_low..k_high), which is sampled instead of the entry's f: "
+              "/(k/k_low) below k, x(k_high/k) above")
     write_outputs(args, table=table)
     return 0
 
@@ -104,6 +124,10 @@ def _list_rows(args, wanted):
             k = f"{float(np.ravel(r.k.evaluate(env))[0]):.3e}"
         f_expr = r.f if r.f is not None else rl.default_f
         f = "-" if f_expr is None else f"{float(np.ravel(f_expr.evaluate(env))[0]):.3g}"
+        band = None if source else r.k.bands(env)
+        if band is not None:
+            f = band_factor(float(np.ravel(r.k.evaluate(env))[0]),
+                            *(float(np.ravel(b)[0]) for b in band)) or f
         rows.append((r.id, _equation(r), k, f, r.ref or "-"))
     return f"{args.file}: rate coefficients at T = {T:g} K (cm3 s-1, s-1 or cm6 s-1)", rows
 
@@ -123,10 +147,14 @@ def _scenario_rows(args, wanted):
     a = int(np.argmin(np.abs(alt - target)))
     k = model.rate_coefficients()[a]
     f = model.uncertainty_factors()[a]
+    bands = model.rate_bands()
     rows = []
     for j, r in enumerate(model.reaction_objects):
         if _involves(r, wanted):
-            rows.append((r.id, _equation(r), f"{k[j]:.3e}", f"{f[j]:.3g}", r.ref or "-"))
+            shown = f"{f[j]:.3g}"
+            if j in bands:
+                shown = band_factor(k[j], float(bands[j][0][a]), float(bands[j][1][a])) or shown
+            rows.append((r.id, _equation(r), f"{k[j]:.3e}", shown, r.ref or "-"))
     return (f"{scen.title}: rate coefficients at {alt[a]:g} km (Te {model.environment.Te[a]:.0f}"
             f" K, Ti {model.environment.Ti[a]:.0f} K, Tn {model.environment.Tn[a]:.0f} K; "
             "cm3 s-1, s-1 or cm6 s-1)", rows)

@@ -10,6 +10,8 @@ from ionochem.cli.options import (
     MEMBERS_HELP,
     Table,
     add_rate_change_options,
+    check_budgets,
+    check_observed,
     check_output,
     check_outputs,
     fmt_value,
@@ -86,6 +88,8 @@ def cmd_run(args):
     scen, model = load_model(args)
     check_outputs(args, inputs=scenario_inputs(scen))
     budgets += [parse_budget(b) for b in scen.output.budget]
+    check_budgets(budgets, model)
+    check_observed(observed, model)
     print_warnings(model.warnings)
     transient = scen.solve.mode == "transient"
     if transient and getattr(args, "plot_levels", None):
@@ -106,10 +110,13 @@ def cmd_run(args):
     print(table.text())
     if not transient:
         bal = ds.attrs.get("column_balance")
-        if bal is not None:
+        if "column_ionization_cm2_s" in ds.attrs:
+            tail = (f"(balance {bal:.1e})" if bal is not None else
+                    "(at the given electron density, which this column's ionization does not "
+                    "make: no balance expected)")
             print(f"column ionization {ds.attrs['column_ionization_cm2_s']:.4e} cm-2 s-1, "
                   f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1 "
-                  f"(balance {bal:.1e})")
+                  + tail)
         for note in ds.attrs.get("warnings", "").split("; "):
             if note and note not in model.warnings:
                 print(f"warning: {note}", file=sys.stderr)

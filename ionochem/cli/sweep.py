@@ -62,6 +62,8 @@ def register(subparsers):
                         "2000 points)")
     s.add_argument("--resume", action="store_true",
                    help="continue an interrupted sweep from OUT.points")
+    s.add_argument("--restart", action="store_true",
+                   help="discard the points of an earlier sweep in OUT.points and start over")
     s.add_argument("--keep-points", action="store_true",
                    help="keep OUT.points (the stored batches) after writing OUT")
     s.add_argument("-o", "--output",
@@ -103,6 +105,10 @@ def _check_args(args):
     if args.resume and not out:
         raise InputError("--resume needs -o OUT.nc (the finished points are kept next to it)",
                          file="--resume")
+    if args.restart and (args.resume or not out):
+        raise InputError("--restart needs -o OUT and cannot go with --resume (continue the "
+                         "earlier points, or discard them: one or the other)",
+                         file="--restart")
     if not args.vary and not args.diurnal:
         raise InputError("give at least one --vary KEY=VALUES (or --diurnal)", file="--vary")
     if args.diurnal:
@@ -142,6 +148,12 @@ def cmd_sweep(args):
              else "") + (f", diurnal: {args.days} day(s)" if diurnal else ""),
           file=sys.stderr)
     history = stamp_history(_Attrs(), args).attrs["history"]
+    if args.restart:
+        from ionochem.analysis.ensemble_store import discard_store
+        from ionochem.analysis.sweep import store_path
+        if discard_store(store_path(args.output)):
+            print(f"--restart: discarded the points of an earlier sweep in "
+                  f"{store_path(args.output)}", file=sys.stderr)
     try:
         run = run_sweep(spec, output=args.output, resume=args.resume, workers=args.workers,
                         scheduler=args.scheduler, batch=args.batch,

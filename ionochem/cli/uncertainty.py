@@ -9,11 +9,13 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.cli.compare import print_change_log
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     MEMBERS_HELP,
     Table,
     add_rate_change_options,
+    check_observed,
     check_output,
     check_outputs,
     fmt_value,
@@ -24,6 +26,7 @@ from ionochem.cli.options import (
     workers_option,
     write_outputs,
 )
+from ionochem.cli.steady_at import add_steady_at_option
 from ionochem.errors import InputError
 
 REPORT_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
@@ -52,6 +55,9 @@ def register(subparsers):
                    help="samples per batch (default: about 1000 rows of samples x levels)")
     u.add_argument("--resume", action="store_true",
                    help="continue an interrupted run from OUT.nc.samples")
+    u.add_argument("--restart", action="store_true",
+                   help="discard the samples of an earlier run in OUT.nc.samples and start "
+                        "over")
     u.add_argument("--keep-samples", action="store_true",
                    help="keep OUT.nc.samples (the solved samples) after writing OUT.nc")
     u.add_argument("--vary-environment", metavar="NAME=F,...",
@@ -85,6 +91,7 @@ def register(subparsers):
     u.add_argument("-o", "--output", help="write the result dataset (netCDF)")
     u.add_argument("--plot", help="write the figure (PNG, PDF, SVG)")
     add_observed_option(u)
+    add_steady_at_option(u)
     u.set_defaults(func=cmd_uncertainty)
     return subparsers
 
@@ -121,6 +128,10 @@ def _check_args(args):
     if rho is not None and not (0.0 <= rho <= 1.0):
         raise InputError(f"{rho:g} must be between 0 and 1 (1: one draw per unit; 0: "
                          "independent members)", file="--member-correlation")
+    if args.restart and (args.resume or not args.output):
+        raise InputError("--restart needs -o OUT.nc and cannot go with --resume (continue "
+                         "the earlier samples, or discard them: one or the other)",
+                         file="--restart")
     if args.method == "sobol" and args.samples & (args.samples - 1):
         print(f"note: --samples {args.samples} is not a power of 2; the Sobol' sequence is "
               "balanced only for powers of 2", file=sys.stderr)
@@ -135,22 +146,25 @@ def cmd_uncertainty(args):
     spreads = parse_spreads(args.vary_environment)
     altitudes = _parse_altitudes(args.altitudes)
     observed = load_observed(args)
-    scen, model = load_model(args)
+    from ionochem.mechanism.parser import parse_reaction_list
+    log = []
+    scen, model = load_model(
+        args, command="uncertainty", log=log,
+        replacements=[parse_reaction_list(f) for f in args.reactions or []],
+        additions=[parse_reaction_list(f) for f in args.add or []])
     check_outputs(args, inputs=scenario_inputs(scen) + files)
-    if files:
-        from ionochem.analysis.compare import changed_model
-        from ionochem.mechanism.parser import parse_reaction_list
-        model = changed_model(model,
-                              replacements=[parse_reaction_list(f) for f in args.reactions or []],
-                              additions=[parse_reaction_list(f) for f in args.add or []])
+    check_observed(observed, model)
+    print_change_log(log)
     from ionochem.cli.limits import check_ensemble
     runs = 1 if args.method == "montecarlo" else args.top + len(spreads or ()) + 2
     check_ensemble(args.samples, runs, model.altitude_km.size, len(model.species),
                    len(model.reactions), allow_long=args.allow_long)
-    if scen.solve.mode != "steady":
-        print(f"note: {scen.source}: solve.mode is {scen.solve.mode!r}; the samples are steady "
-              "states (photochemical equilibrium)", file=sys.stderr)
     print_warnings(model.warnings)
+    if args.restart:
+        from ionochem.analysis.ensemble_store import discard_store, store_path_for
+        if discard_store(store_path_for(args.output)):
+            print(f"--restart: discarded the samples of an earlier run in "
+                  f"{store_path_for(args.output)}", file=sys.stderr)
     common = dict(seed=args.seed, environment=spreads, batch=args.batch,
                   workers=args.workers, scheduler=args.scheduler, output=args.output,
                   resume=args.resume,
@@ -172,6 +186,8 @@ def cmd_uncertainty(args):
             print(f"finished batches are kept in {args.output}.samples: run the same command "
                   "with --resume to continue", file=sys.stderr)
         raise
+    if ds.attrs.get("failed_samples"):
+        print(f"warning: {ds.attrs['failed_samples_note']}", file=sys.stderr)
     if args.method == "montecarlo":
         table = _print_montecarlo(ds, members=args.members)
     else:
@@ -220,7 +236,10 @@ def _print_montecarlo(ds, out=None, members=False):
     rows = sorted({float(alt[np.argmin(np.abs(alt - a))]) for a in REPORT_KM
                    if alt.min() - 1e-9 <= a <= alt.max() + 1e-9}) or [float(alt[0])]
     print(f"{ds.attrs.get('title', '')}", file=out)
-    print(f"Monte Carlo: {ds.attrs['samples']} samples, seed {ds.attrs['seed']}"
+    failed = ds.attrs.get("failed_samples", 0)
+    print(f"Monte Carlo: {ds.attrs['samples']} samples"
+          + (f" ({failed} more failed and are left out)" if failed else "")
+          + f", seed {ds.attrs['seed']}"
           + (f", environment {ds.attrs['environment_spreads']}"
              if ds.attrs.get("environment_spreads") else ""), file=out)
     print("median density (cm-3) and the 68 % range as a factor (sqrt(n84/n16))", file=out)

@@ -55,6 +55,11 @@ class PopulationResult:
     p_value : float
     method : str
         ``"linear"`` or ``"bootstrap"``.
+    upper_limits : ndarray, shape (level,)
+        For a level fitted at zero (on the non-negativity bound, where the linearised error
+        is zero and means nothing): the normalised population at which chi-square has
+        risen by one with the other levels refitted (:func:`upper_limits`); NaN for the
+        other levels.
     """
 
     populations: np.ndarray
@@ -64,6 +69,7 @@ class PopulationResult:
     dof: int
     p_value: float
     method: str
+    upper_limits: np.ndarray | None = None
 
     def __iter__(self):
         yield self.populations
@@ -154,7 +160,47 @@ def level_populations(design, signals, sigma, *, method="linear", n_boot=1000, s
             draws[i] = q / q.sum() if q.sum() > 0 else np.nan
         draws = draws[np.isfinite(draws).all(axis=1)]
         C = np.cov(draws, rowvar=False)
-    return PopulationResult(n, C, float(total), chi2, dof, pval, method)
+    return PopulationResult(n, C, float(total), chi2, dof, pval, method,
+                            upper_limits(Aw, bw, p))
+
+
+def _chi2_with(Aw, bw, i, t):
+    """Smallest chi-square with level i held at t (unnormalised), the others >= 0, and the
+    populations of that fit."""
+    others = np.arange(Aw.shape[1]) != i
+    q = _nnls(Aw[:, others], bw - Aw[:, i] * t)
+    p = np.empty(Aw.shape[1])
+    p[others], p[i] = q, t
+    return float(np.sum((Aw @ p - bw) ** 2)), p
+
+
+def upper_limits(Aw, bw, p):
+    """Upper limits of the levels fitted at zero: the normalised population n_i = p_i/sum p
+    where chi-square, minimised over the other levels (>= 0), has risen by 1 above the fit
+    (the one-sided Delta chi2 = 1 rule for a parameter on its bound, *(common practice)*).
+    Found by bisection; NaN for levels not at zero. ``Aw``, ``bw`` are the weighted design
+    and signals, ``p`` the unnormalised fit."""
+    out = np.full(p.size, np.nan)
+    chi0 = float(np.sum((Aw @ p - bw) ** 2))
+    for i in np.flatnonzero(p <= 0):
+        col = Aw[:, i]
+        if not np.any(col > 0):
+            continue                       # no channel sees this level: no limit at all
+        hi = max(1.0, float(np.max(np.abs(bw)) / np.max(col)))
+        for _ in range(200):               # chi-square grows as t^2: a few doublings
+            if _chi2_with(Aw, bw, i, hi)[0] >= chi0 + 1.0:
+                break
+            hi *= 2.0
+        lo = 0.0
+        for _ in range(60):
+            mid = 0.5 * (lo + hi)
+            if _chi2_with(Aw, bw, i, mid)[0] < chi0 + 1.0:
+                lo = mid
+            else:
+                hi = mid
+        q = _chi2_with(Aw, bw, i, hi)[1]
+        out[i] = hi / q.sum() if q.sum() > 0 else np.nan
+    return out
 
 
 def beam_populations(energy_eV, sigma_levels_cm2, detuning_eV, measured_cm3_s,

@@ -34,7 +34,8 @@ from ionochem.io.netcdf import atomic_path
 from ionochem.io.paths import PathProblem, read_bounded, resolve_path
 
 __all__ = ["NumericTable", "read_numeric_csv", "write_level_table", "write_csv",
-           "family_entry", "LEVEL_COLUMN", "level_of_column"]
+           "family_entry", "LEVEL_COLUMN", "level_of_column", "band_f_expression",
+           "check_ref"]
 
 LEVEL_COLUMN = "v"
 _NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
@@ -218,18 +219,69 @@ def write_level_table(path, temperature_K, rates, *, low=None, high=None,
 
 
 def family_entry(reaction_id, reaction, table_name, levels, *, column="k", ref=None,
-                 fraction=None):
+                 fraction=None, f=None):
     """The reaction-list family entry that reads a level-row table.
 
     Returns text like ``ID(v): N2+(v) + e -> N + N | k = table("file.csv", "k") |
-    levels v = 0..4 | ref = ...``; with ``fraction`` (a branching fraction of one product
-    channel) the rate is ``F*table(...)``.
+    f = 1.3 | levels v = 0..4 | ref = ...``; with ``fraction`` (a branching fraction of
+    one product channel) the rate is ``F*table(...)``; ``f`` is the text of the one-sigma
+    factor (:func:`band_f_expression`).
     """
     lo, hi = min(levels), max(levels)
     k = f'table("{table_name}", "{column}")'
     if fraction is not None:
         k = f"{fraction:g}*{k}"
-    parts = [f"{reaction_id}(v): {reaction}", f"k = {k}", f"levels v = {lo}..{hi}"]
+    parts = [f"{reaction_id}(v): {reaction}", f"k = {k}"]
+    if f:
+        parts.append(f"f = {f}")
+    parts.append(f"levels v = {lo}..{hi}")
     if ref:
         parts.append(f"ref = {ref}")
     return " | ".join(parts)
+
+
+def _round_up(x, digits=3):
+    """``x`` rounded up to ``digits`` significant digits (a factor never understated)."""
+    scale = 10.0 ** (digits - 1 - int(np.floor(np.log10(x))))
+    return float(np.ceil(x * scale - 1e-9) / scale)
+
+
+def band_f_expression(bands):
+    """The ``f`` of a family entry from its table's bands: per level the widest one-sigma
+    factor of the band over the table's temperatures, max(k/k_low, k_high/k), rounded up.
+
+    ``bands`` maps each level v to ``(k, low, high)`` arrays. Returns ``"1.3"`` when every
+    level has the same factor, else a chain ``"1.3 if v < 0.5 else (2.17 if v < 1.5 else
+    2.3)"`` in the reaction-list language. The Monte Carlo samples the band itself
+    (analysis/sampling.py); this ``f`` states the same width where one number is asked for
+    (``check --strict``, the default-list convention of a factor per entry).
+    """
+    factors = {}
+    for v, (k, low, high) in sorted(bands.items()):
+        # The values as the table holds them (written to 6 significant digits, _fmt), so
+        # the factor is the one a reader of the table finds.
+        k, low, high = (np.array([float(_fmt(float(x))) for x in np.ravel(a)])
+                        for a in (k, low, high))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            f = np.fmax(np.where(low > 0, k / low, np.nan), np.where(k > 0, high / k, np.nan))
+        f = f[np.isfinite(f)]
+        factors[int(v)] = _round_up(max(1.0, float(f.max()))) if f.size else 1.0
+    values = list(factors.values())
+    if len(set(values)) == 1:
+        return f"{values[0]:g}"
+    levels = list(factors)
+    text = f"{factors[levels[-1]]:g}"
+    for v in reversed(levels[:-1]):
+        text = f"{factors[v]:g} if v < {v + 0.5:g} else ({text})"
+    return text
+
+
+def check_ref(text, flag="--ref"):
+    """A reference for a reaction-list entry: one line, no ``|`` (the field separator)."""
+    if text is None:
+        return None
+    text = str(text).strip()
+    if not text or "|" in text or any(ord(c) < 32 for c in text):
+        raise InputError("a reference must be one non-empty line without '|' (the "
+                         "reaction list's field separator)", file=flag)
+    return text
