@@ -41,7 +41,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError
+from ionochem.errors import Error, InputError
 
 FORMAT = 1
 _BATCH = re.compile(r"^batch_(\d{9})_(\d{9})\.npz$")
@@ -61,6 +61,13 @@ def _atomic_write(folder: Path, name: str, write) -> None:
                 fh.flush()
                 os.fsync(fh.fileno())
             os.replace(tmp, folder / name)
+        except OSError as exc:
+            # A full disk or a file size limit: the batch is not stored (a --resume after
+            # freeing space recomputes it); one line instead of a traceback.
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise Error(f"cannot store {name}: {exc.strerror or exc}; free space and run "
+                        "again with --resume", file=str(folder)) from None
         except BaseException:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)
