@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.analysis.bounds import MAX_PROFILE_POINTS, count_option
 from ionochem.cli.observed import misfit_table
 from ionochem.cli.options import (
     Table,
@@ -48,7 +49,8 @@ def register(subparsers):
     f.add_argument("--profile", metavar="ID",
                    help="profile likelihood of one free parameter (chi-square with the "
                         "others refitted)")
-    f.add_argument("--profile-points", type=int, default=13, metavar="K",
+    f.add_argument("--profile-points", type=count_option(3, MAX_PROFILE_POINTS, "points"),
+                   default=13, metavar="K",
                    help="points of the profile (default 13)")
     f.add_argument("-o", "--output", help="write the fit dataset (netCDF)")
     f.add_argument("--plot", help="write the fit figure (PNG, PDF, SVG)")

@@ -77,6 +77,17 @@ def parse_scales(items):
         if not np.isfinite(f) or f < 0:
             raise InputError(f"scale factor for {key} must be a finite number ≥ 0 "
                              "(0 switches the reaction off)", file="--scale")
+        # The bounds of changes.scale in a scenario hold on the command line too.
+        from ionochem.io.scenario.ranges import RANGES
+        bound = RANGES["changes.scale"]
+        if f > bound.hard[1]:
+            raise InputError(f"scale factor {f:g} for {key} is above {bound.hard[1]:g}, the "
+                             "bound of changes.scale in a scenario", file="--scale")
+        if f and not bound.soft[0] <= f <= bound.soft[1]:
+            import warnings
+            warnings.warn(f"--scale: factor {f:g} for {key} is outside the usual "
+                          f"{bound.soft[0]:g} to {bound.soft[1]:g} ({bound.basis})",
+                          stacklevel=2)
         out[key] = f
     return out
 

@@ -23,6 +23,7 @@ import sys
 import warnings
 from pathlib import Path
 
+from ionochem.analysis.bounds import MAX_BOOTSTRAP, MAX_SEED, count_option
 from ionochem.cli.options import Table, check_output
 from ionochem.errors import InputError
 
@@ -75,9 +76,10 @@ def register(subparsers):
     p.add_argument("signals", metavar="SIGNALS.csv", help="channel, signal, sigma")
     p.add_argument("--design", required=True, metavar="DESIGN.csv",
                    help="channel, then the response of that channel to each level (v0, v1...)")
-    p.add_argument("--bootstrap", type=int, metavar="N",
+    p.add_argument("--bootstrap", type=count_option(1, MAX_BOOTSTRAP, "refits"), metavar="N",
                    help="errors from N bootstrap refits instead of linearisation")
-    p.add_argument("--seed", type=int, help="seed of the bootstrap noise")
+    p.add_argument("--seed", type=count_option(0, MAX_SEED, "seed"),
+                   help="seed of the bootstrap noise")
     p.add_argument("-o", "--output", metavar="OUT.csv", help="write populations as CSV")
     p.set_defaults(func=cmd_populations)
 
