@@ -354,7 +354,28 @@ def _entries(args):
             raise InputError(f"branching fraction {f!r} must be in (0, 1]", file="--fraction")
     if len(set(ids)) != len(ids):
         raise InputError("the same id is given twice", file="--entry")
+    if args.reaction:
+        for rid, reaction in zip(ids, reactions):
+            _check_entry(rid, reaction)
     return list(zip(ids, reactions, fractions))
+
+
+def _check_entry(rid, reaction):
+    """Refuse an --entry/--reaction pair the reaction-list parser would refuse, before work:
+    the entry is parsed as a family line with a constant rate (the table it will read is
+    written later), so ``--reaction 'garbage ->'`` never reaches a file."""
+    from ionochem.mechanism.parser import parse_reaction_text
+    if any(c in reaction for c in "|\n#"):
+        raise InputError("the reaction must not contain '|', '#' or a line break",
+                         file="--reaction")
+    try:
+        parse_reaction_text(f"{rid}(v): {reaction} | k = 1e-7 | levels v = 1..2\n",
+                            path="--reaction")
+    except InputError as exc:
+        message = exc.message.split(": ", 1)[-1] if exc.message.startswith("line") else \
+            exc.message
+        raise InputError(f"{rid}(v): {reaction!r} is not a valid family entry: {message}",
+                         file="--reaction") from None
 
 
 def _table_target(args):

@@ -139,8 +139,8 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
         row = []
         for col, cell in zip(header, cells):
             if not _NUMBER.fullmatch(cell):
-                raise InputError(f"the cell in column {safe_name(col)} is not a plain decimal "
-                                 "number", file=name, line=number)
+                raise InputError(f"the cell in column {safe_name(col)} is not a number (plain "
+                                 "decimal)", file=name, line=number)
             value = float(cell)
             if not np.isfinite(value):
                 raise InputError(f"the cell in column {safe_name(col)} is too large",
