@@ -13,7 +13,14 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError, MechanismError, SolverError, TableRangeError
+from ionochem.errors import (
+    InputError,
+    MechanismError,
+    ScenarioError,
+    SolverError,
+    TableRangeError,
+)
+from ionochem.io.checks import balance_ion_problem
 from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 
 SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
@@ -166,6 +173,12 @@ class Model:
             environment = build_environment(scenario, self._needs)
         self.environment = environment
         env = environment
+        if scenario.solve.electrons == "table":
+            listed = {sp.name for r in mechanism.reactions
+                      for sp, _ in (*r.reactants, *r.products)}
+            problem = balance_ion_problem(scenario.solve.balance_ion, listed)
+            if problem:
+                raise ScenarioError(problem, file=scenario.source, key="solve.balance_ion")
         self.mechanism = Mechanism(mechanism, fixed=env.neutrals,
                                    electrons=scenario.solve.electrons,
                                    balance_ion=scenario.solve.balance_ion)

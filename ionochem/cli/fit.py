@@ -67,8 +67,11 @@ def cmd_fit(args):
     from ionochem.analysis.misfit import band_rows
     from ionochem.io.netcdf import write_netcdf
     check_outputs(args, inputs=[args.scenario, args.observed])
-    if args.profile_points < 3:
-        raise InputError("--profile-points must be at least 3", file="--profile-points")
+    if args.constrain_electrons:
+        from ionochem.io.checks import balance_ion_problem
+        problem = balance_ion_problem(args.balance_ion)
+        if problem:
+            raise InputError(problem, file="--balance-ion")
     priors = parse_assignments(args.prior, "prior")
     obs = ionochem.load_observations(args.observed)
     scen = ionochem.load_scenario(args.scenario)
@@ -79,6 +82,9 @@ def cmd_fit(args):
     model = ionochem.Model(scen)
     print_warnings(model.warnings)
     if args.constrain_electrons:
+        problem = balance_ion_problem(args.balance_ion, model.species)
+        if problem:
+            raise InputError(problem, file="--balance-ion")
         model = electron_constrained_model(model, obs, balance_ion=args.balance_ion)
     ds = fit(model, obs, args.free, priors=priors, max_factor=args.max_factor,
              profile=args.profile, profile_points=args.profile_points)
