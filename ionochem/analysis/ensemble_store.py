@@ -146,8 +146,8 @@ class EnsembleStore:
                       if stored.get(k) != self.manifest.get(k))
         if diff:
             self._unlock()
-            shown = "; ".join(f"{k}: stored {_short(stored.get(k))}, now "
-                              f"{_short(self.manifest.get(k))}" for k in diff)
+            shown = "; ".join(_difference(k, stored.get(k), self.manifest.get(k))
+                              for k in diff)
             raise InputError("cannot resume: the stored samples were made with different "
                              f"inputs ({shown}); remove the folder or use another output",
                              file=where)
@@ -302,6 +302,15 @@ def _readable(path) -> bool:
 
 def _name(start, stop):
     return f"batch_{start:09d}_{stop:09d}.npz"
+
+
+def _difference(key, old, new):
+    """One manifest entry that differs, as text; for a mapping (the digests of input files)
+    the sub-keys that changed."""
+    if isinstance(old, dict) and isinstance(new, dict):
+        changed = sorted(k for k in set(old) | set(new) if old.get(k) != new.get(k))
+        return f"{key}: changed since: {', '.join(changed)}"
+    return f"{key}: stored {_short(old)}, now {_short(new)}"
 
 
 def _short(value):
