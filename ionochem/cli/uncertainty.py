@@ -123,6 +123,9 @@ def cmd_uncertainty(args):
     files = [*(args.reactions or []), *(args.add or [])]
     check_output(args.csv, "--csv", inputs=[args.scenario, *files])
     spreads = parse_spreads(args.vary_environment)
+    from ionochem.cli.limits import sample_warnings
+    for text in sample_warnings(args.method, args.samples, spreads):
+        print(f"warning: {text}", file=sys.stderr)
     altitudes = _parse_altitudes(args.altitudes)
     observed = load_observed(args)
     scen, model = load_model(args)

@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["HARD_MAX", "column_kind", "check_column"]
+__all__ = ["HARD_MAX", "column_kind", "check_column", "peak_above_grid"]
 
 #: Above these an input is refused: the products of the chemistry would overflow float64.
 HARD_MAX = {"density": 1e25, "production": 1e20, "temperature": 1e6}
@@ -91,3 +91,29 @@ def check_column(name, where, values, altitude_km):
                             f"{above}, above the usual {hi:g}: is it per m3 (1e6 times per "
                             "cm3)?")
     return None, None, None
+
+
+#: A grid whose top is below this (km) and whose electron density still rises at the top
+#: is taken to end below the F peak (the F2 peak lies at some 200-400 km; the E and F1
+#: layers below 200 km have their own maxima) *(common practice)*.
+F_PEAK_CHECK_BELOW_KM = 400.0
+
+
+def peak_above_grid(altitude_km, electron_density_cm3, dark=None) -> str | None:
+    """A warning when the electron density of a sunlit column still rises at the grid's top
+    below :data:`F_PEAK_CHECK_BELOW_KM` (the F peak and the topside are then missing, and
+    results near the top depend on where the grid was cut), else None."""
+    alt = np.asarray(altitude_km, float)
+    ne = np.asarray(electron_density_cm3, float)
+    if alt.size < 3 or not np.isfinite(ne).all():
+        return None
+    order = np.argsort(alt)
+    alt, ne = alt[order], ne[order]
+    if dark is not None and np.asarray(dark, bool)[order][-1]:
+        return None
+    top = alt[-1]
+    if top >= F_PEAK_CHECK_BELOW_KM or not ne[-1] > ne[-2] or int(np.argmax(ne)) != ne.size - 1:
+        return None
+    return (f"the electron density still rises at the top of the grid ({top:g} km): the F "
+            "peak lies above the grid; extend the grid upward (to 400 km or more) for "
+            "results near the peak")
