@@ -194,6 +194,13 @@ class Model:
             raise MechanismError(
                 f"{name} is produced (by {r.id}) but never lost; declare it fixed by giving "
                 "its density in the neutral source, or add its loss", file=r.file, line=r.line)
+        for name, r in mech.never_made():
+            # A reactant nobody supplies is an error, not a zero density (docs/scenario.md,
+            # "Species the list needs"): its reactions would be off without a word.
+            raise MechanismError(
+                f"{r.id} needs {name}, which the neutral source does not supply and no "
+                f"reaction produces (its density would be zero); give {name} in the neutral "
+                f"table or remove {r.id}", file=r.file, line=r.line)
         self.species = list(mech.solved)
         self.altitude_km = env.altitude_km
         # The parser cannot know which species the neutral source fixes: its warnings of
