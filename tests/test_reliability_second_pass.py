@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import os
 import resource
-import signal
 import subprocess
 import sys
 import time
@@ -110,7 +109,6 @@ SECRET = "hunter2-secret"
 
 
 @pytest.mark.parametrize("make, words", [
-    (lambda d: os.mkfifo(d / "fifo.csv") or d / "fifo.csv", "not a regular file"),
     (lambda d: Path("/dev/zero"), "not a regular file"),
     (lambda d: (d / "env.csv").write_bytes(f"A={SECRET}\0B=1\0".encode()) and d / "env.csv",
      "NUL"),
@@ -130,11 +128,14 @@ def test_observation_files_go_through_the_guarded_reader(col, capsys, make, word
 
 
 def test_load_observations_of_the_library_is_guarded(col):
-    """The library's ``load_observations`` applies the same guard (a FIFO is not opened)."""
-    import ionochem
+    """The library's ``load_observations`` applies the same guard: a FIFO is refused, not
+    opened (run in a subprocess with a timeout, so a regression fails instead of hanging)."""
     os.mkfifo(col / "f.csv")
-    with pytest.raises(InputError, match="not a regular file"):
-        ionochem.load_observations(col / "f.csv")
+    code = ("import ionochem\ntry:\n    ionochem.load_observations('f.csv')\n"
+            "except ionochem.InputError as exc:\n    print(exc)\n")
+    proc = subprocess.run([sys.executable, "-c", code], cwd=col, capture_output=True,
+                          text=True, timeout=30, env=dict(os.environ, PYTHONPATH=str(ROOT)))
+    assert "f.csv: is not a regular file" in proc.stdout, proc.stderr[-1500:]
 
 
 def test_observation_count_and_tiny_sigma_are_refused(col, monkeypatch):
@@ -262,7 +263,8 @@ def test_sweep_range_is_counted_before_it_is_built(step, span):
 @given(n=st.one_of(st.integers(-10, 1), st.integers(100_001, 10 ** 12)))
 def test_library_applies_the_same_bounds(n):
     """Property: the library functions refuse what the options refuse, before allocating:
-    bootstrap refits, profile points and seeds outside their bounds."""
+    bootstrap refits, profile points, seeds and diurnal days outside their bounds."""
+    from ionochem.analysis.diurnal import diurnal_times
     from ionochem.analysis.fit import fit
     from ionochem.analysis.uncertainty import monte_carlo
     from ionochem.rates.populations import level_populations
@@ -272,6 +274,8 @@ def test_library_applies_the_same_bounds(n):
         fit(None, None, ["R1"], profile="R1", profile_points=n * 1000 if n > 1 else n)
     with pytest.raises(InputError, match="--seed"):
         monte_carlo(None, 10, seed=-1 if n < 2 else 2 ** 63 + n)
+    with pytest.raises(InputError, match="--days"):
+        diurnal_times(n - 1 if n <= 1 else n, 900.0)
 
 
 # ------------------------------------------------ class 4: full disk
@@ -298,19 +302,37 @@ def test_stdout_to_a_full_device_is_one_line(col):
 
 
 # ------------------------------------------------ class 5: interruption and resume
+INTERRUPT_ON_IMPORT = """
+import runpy, sys
+class Interrupt:
+    def find_spec(self, name, *args):
+        if name == "ionochem.cli":
+            raise KeyboardInterrupt
+sys.meta_path.insert(0, Interrupt())
+sys.argv = ["ionochem", "run", "s.toml"]
+runpy.run_module("ionochem", run_name="__main__")
+"""
+
+
 def test_interrupt_while_loading_is_one_line(col):
-    """SIGINT very early (a KeyboardInterrupt traceback on the original tree): status 130
-    and no traceback, whenever it lands."""
-    env = dict(os.environ, PYTHONPATH=str(ROOT), OPENBLAS_NUM_THREADS="1")
-    for delay in (0.15, 0.4):
-        p = subprocess.Popen([sys.executable, "-m", "ionochem", "run", "s.toml"], cwd=col,
-                             env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                             text=True)
-        time.sleep(delay)
-        p.send_signal(signal.SIGINT)
-        _, err = p.communicate(timeout=60)
-        assert "Traceback" not in err, err
-        assert p.returncode in (130, -signal.SIGINT, 0), (p.returncode, err)
+    """Ctrl-C while the command line is still being imported (a KeyboardInterrupt
+    traceback on the original tree): one line and status 130. The interrupt is raised by an
+    import hook at the import of ``ionochem.cli``, the earliest moment, deterministically."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    proc = subprocess.run([sys.executable, "-c", INTERRUPT_ON_IMPORT], cwd=col, env=env,
+                          capture_output=True, text=True, timeout=60)
+    assert proc.returncode == 130, proc.stderr
+    assert proc.stderr.strip() == "interrupted"
+
+
+def test_interrupt_while_parsing_is_one_line(col, capsys, monkeypatch):
+    """Ctrl-C inside ``main`` before a command runs (while parsing): status 130."""
+    import ionochem.cli as cli
+    def interrupted(argv):
+        raise KeyboardInterrupt
+    monkeypatch.setattr(cli, "_main", interrupted)
+    assert cli.main(["run", "s.toml"]) == 130
+    assert capsys.readouterr().err.strip() == "interrupted"
 
 
 @pytest.mark.parametrize("changed", ["t.csv", "rate.csv"])
