@@ -399,6 +399,14 @@ def test_unit_slips_in_tables_are_warned(col, capsys, name, text, words):
     assert words in err, err
 
 
+def test_observations_per_m3_are_warned(col):
+    """An observation file in m-3 (1e6 times cm-3) loads, with a warning naming its line."""
+    import ionochem
+    (col / "m3.csv").write_text(OBS.replace("1e4, 1e3", "1e10, 1e9"))
+    with pytest.warns(UserWarning, match="m3.csv:2: .* is the file per m3"):
+        ionochem.load_observations(col / "m3.csv")
+
+
 def test_cross_sections_in_megabarn_are_warned(col, capsys):
     (col / "mb.csv").write_text("energy_eV,v0\n0.1,30\n1,3\n10,0.3\n")
     _, _, _, err = run_cli(capsys, "rates", "maxwellian", "mb.csv")

@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import csv
 import math
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -57,6 +58,10 @@ MIN_RELATIVE_SIGMA = 1e-9
 #: Largest interpolation matrix (observations × species × levels entries, float64) a
 #: comparison with a model may build: 2.5e8 entries are 2 GB *(common practice)*.
 MAX_MATRIX_ENTRIES = 250_000_000
+
+#: Largest usual measured ion or electron density (cm-3): F2 peaks reach some 3e6 cm-3
+#: *(common practice)*; above it a file is taken to be per m3 (warned, not refused).
+USUAL_MAX_CM3 = 1e8
 
 #: Altitude tolerance (km) for a point at the edge of the model grid (grid rounding).
 EDGE_TOLERANCE_KM = 1e-6
@@ -277,6 +282,12 @@ def load_observations(path):
                              f"{'on line ' + str(first) if first else 'earlier'})",
                              file=path, line=line or None)
         seen[key] = line
+    dense = [(v, ln) for _, _, k, v, _, ln in records if k != "ratio" and v > USUAL_MAX_CM3]
+    if dense:
+        v, ln = max(dense)
+        warnings.warn(f"{path}{':' + str(ln) if ln else ''}: a measured density of {v:g} cm-3, "
+                      f"above the {USUAL_MAX_CM3:g} cm-3 of any ionosphere: is the file per m3 "
+                      "(1e6 times per cm3)?", stacklevel=2)
     alt, species, kind, value, sigma, line = zip(*records)
     ds = xr.Dataset(
         {
