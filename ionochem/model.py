@@ -13,7 +13,14 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError, MechanismError, SolverError, TableRangeError
+from ionochem.errors import (
+    InputError,
+    MechanismError,
+    ScenarioError,
+    SolverError,
+    TableRangeError,
+)
+from ionochem.io.checks import balance_ion_problem
 from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 
 SOURCE_KINDS = ("photo", "photoelectron", "prescribed")
@@ -166,6 +173,12 @@ class Model:
             environment = build_environment(scenario, self._needs)
         self.environment = environment
         env = environment
+        if scenario.solve.electrons == "table":
+            listed = {sp.name for r in mechanism.reactions
+                      for sp, _ in (*r.reactants, *r.products)}
+            problem = balance_ion_problem(scenario.solve.balance_ion, listed)
+            if problem:
+                raise ScenarioError(problem, file=scenario.source, key="solve.balance_ion")
         self.mechanism = Mechanism(mechanism, fixed=env.neutrals,
                                    electrons=scenario.solve.electrons,
                                    balance_ion=scenario.solve.balance_ion)
@@ -181,6 +194,13 @@ class Model:
             raise MechanismError(
                 f"{name} is produced (by {r.id}) but never lost; declare it fixed by giving "
                 "its density in the neutral source, or add its loss", file=r.file, line=r.line)
+        for name, r in mech.never_made():
+            # A reactant nobody supplies is an error, not a zero density (docs/scenario.md,
+            # "Species the list needs"): its reactions would be off without a word.
+            raise MechanismError(
+                f"{r.id} needs {name}, which the neutral source does not supply and no "
+                f"reaction produces (its density would be zero); give {name} in the neutral "
+                f"table or remove {r.id}", file=r.file, line=r.line)
         self.species = list(mech.solved)
         self.altitude_km = env.altitude_km
         # The parser cannot know which species the neutral source fixes: its warnings of

@@ -23,14 +23,28 @@ from __future__ import annotations
 import numpy as np
 
 DAY_S = 86400.0
+#: Most days a diurnal run integrates: a year; neutrals and the sun's activity are held
+#: fixed, so longer runs mean nothing, and two or three days reach a repeating day
+#: *(common practice)*.
+MAX_DAYS = 366
 #: Density floor of the day-to-day change, cm-3 (below it a species is absent).
 CHANGE_FLOOR_CM3 = 1.0
 
 
 def diurnal_times(days: int, step_s: float) -> np.ndarray:
     """Output times (s after the start) of a ``days``-day run every ``step_s`` seconds."""
+    check_days(days)
+    check_step(step_s / 60.0)
     per_day = int(round(DAY_S / step_s))
     return np.arange(days * per_day + 1, dtype=float) * (DAY_S / per_day)
+
+
+def check_days(days):
+    """Days of a diurnal run: a whole number from 1 to :data:`MAX_DAYS` (``--days``)."""
+    from ionochem.errors import InputError
+    if isinstance(days, bool) or not float(days).is_integer() or not 1 <= days <= MAX_DAYS:
+        raise InputError(f"{days} days: give a whole number from 1 to {MAX_DAYS}",
+                         file="--days")
 
 
 def check_step(step_minutes: float):

@@ -41,7 +41,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError
+from ionochem.errors import Error, InputError
 
 FORMAT = 1
 _BATCH = re.compile(r"^batch_(\d{9})_(\d{9})\.npz$")
@@ -61,6 +61,13 @@ def _atomic_write(folder: Path, name: str, write) -> None:
                 fh.flush()
                 os.fsync(fh.fileno())
             os.replace(tmp, folder / name)
+        except OSError as exc:
+            # A full disk or a file size limit: the batch is not stored (a --resume after
+            # freeing space recomputes it); one line instead of a traceback.
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise Error(f"cannot store {name}: {exc.strerror or exc}; free space and run "
+                        "again with --resume", file=str(folder)) from None
         except BaseException:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)
@@ -139,8 +146,8 @@ class EnsembleStore:
                       if stored.get(k) != self.manifest.get(k))
         if diff:
             self._unlock()
-            shown = "; ".join(f"{k}: stored {_short(stored.get(k))}, now "
-                              f"{_short(self.manifest.get(k))}" for k in diff)
+            shown = "; ".join(_difference(k, stored.get(k), self.manifest.get(k))
+                              for k in diff)
             raise InputError("cannot resume: the stored samples were made with different "
                              f"inputs ({shown}); pass --restart to discard them and start "
                              "again, or use another output", file=where)
@@ -342,6 +349,15 @@ def _readable(path) -> bool:
 
 def _name(start, stop):
     return f"batch_{start:09d}_{stop:09d}.npz"
+
+
+def _difference(key, old, new):
+    """One manifest entry that differs, as text; for a mapping (the digests of input files)
+    the sub-keys that changed."""
+    if isinstance(old, dict) and isinstance(new, dict):
+        changed = sorted(k for k in set(old) | set(new) if old.get(k) != new.get(k))
+        return f"{key}: changed since: {', '.join(changed)}"
+    return f"{key}: stored {_short(old)}, now {_short(new)}"
 
 
 def _short(value):

@@ -46,6 +46,7 @@ import dataclasses
 import numpy as np
 import xarray as xr
 
+from ionochem.analysis.bounds import MAX_PROFILE_POINTS, check_count
 from ionochem.analysis.misfit import (
     band_rows,
     interpolation_matrix,
@@ -398,6 +399,8 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
         with ``profile`` ``profile_log_multiplier(profile_point)`` and
         ``profile_chi2(profile_point)``. Attributes: ``warnings``, ``degenerate``, ...
     """
+    if profile is not None:
+        check_count(profile_points, 3, MAX_PROFILE_POINTS, "--profile-points", "points")
     params = resolve_parameters(model, free)
     if not (np.isfinite(max_factor) and max_factor > 1):
         raise InputError("the bound on the multipliers must be a number > 1",

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ionochem.io.observations import check_against_model, ratio_parts
+from ionochem.io.observations import check_against_model, check_matrix_size, ratio_parts
 
 #: Altitude bands of the misfit summary, km, [low, high) *(common practice: D, E, F1, F2,
 #: topside)*; the E–F2 edges are those of ``compare``.
@@ -53,6 +53,7 @@ def interpolation_matrix(obs, species, altitude_km):
     names = [str(s) for s in species]
     alt = np.asarray(altitude_km, float)
     A = alt.size
+    check_matrix_size(obs.sizes["observation"], len(names), A, source=obs.attrs.get("source"))
     order = np.argsort(alt)
     a_sorted = alt[order]
     x = np.clip(obs["altitude_km"].values.astype(float), a_sorted[0], a_sorted[-1])

@@ -51,11 +51,13 @@ This module must not read files other than through the scenario loader and the m
 
 from __future__ import annotations
 
+import contextlib
 import copy
 import dataclasses
 import datetime as dt
 import hashlib
 import json
+import re
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -348,7 +350,40 @@ def manifest(spec: SweepSpec) -> dict:
             "set": dict(sorted(spec.sets.items())),
             "scale": {k: float(v) for k, v in sorted(spec.scales.items())},
             "sensitivity": spec.sensitivity,
-            "diurnal": list(spec.diurnal) if spec.diurnal else None}
+            "diurnal": list(spec.diurnal) if spec.diurnal else None,
+            "input_files": input_file_digests(spec)}
+
+
+def input_file_digests(spec: SweepSpec) -> dict:
+    """SHA-256 of every file the points read, by path: the tables and spectra the scenario
+    names, the rate tables of the reaction list and of the ``--set`` expressions.
+
+    The scenario and the list are hashed as parsed; a table changed between an interrupted
+    run and its ``--resume`` would otherwise mix columns made from the old file with columns
+    made from the new one (uncertainty hashes the arrays it samples for the same reason).
+    """
+    from ionochem.io.paths import file_digest, resolve_path
+    paths = set()
+    for section in spec.raw.values():
+        if isinstance(section, dict):
+            for name in _FILE_KEYS:
+                value = section.get(name)
+                if isinstance(value, str) and value.strip():
+                    with contextlib.suppress(ValueError):
+                        paths.add(resolve_path(value, spec.base_dir))
+    for r in getattr(spec.reaction_list, "reactions", ()):
+        for expr in (r.k, r.f):
+            for table in getattr(expr, "tables", ()):
+                paths.add(Path(table.path))
+    for text in spec.sets.values():
+        for name in re.findall(r"""table\(\s*["']([^"']+)["']""", str(text)):
+            with contextlib.suppress(ValueError):
+                paths.add(resolve_path(name, spec.set_dir))
+    return {str(p): file_digest(p) for p in sorted(paths)}
+
+
+#: Keys of scenario sections that name files (docs/scenario.md).
+_FILE_KEYS = ("table", "no_table", "spectrum", "extra_spectrum", "electron_table")
 
 
 def store_path(output) -> Path:

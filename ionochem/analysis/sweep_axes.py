@@ -34,6 +34,10 @@ DERIVED_KEYS = ("time.local_hour", "time.day_of_year")
 FIXED_SECTIONS = ("grid", "changes", "output")
 #: Relative tolerance for ``(stop − start)/step`` to count as whole (as ``[grid]``).
 RANGE_TOLERANCE = 1e-9
+#: Most points of a sweep (all axes together), --allow-long or not: the store names batches
+#: with nine digits and a sweep of a million columns is days of work on a few cores; the
+#: work bound (level solves, cli/limits.py) usually refuses far fewer *(common practice)*.
+MAX_SWEEP_POINTS = 1_000_000
 #: Units and long names of the dimensions the demo keys make (CF attributes).
 AXIS_ATTRS = {
     "f107": {"units": "1e-22 W m-2 Hz-1", "long_name": "daily F10.7 solar radio flux (sfu)"},
@@ -128,6 +132,10 @@ def parse_vary(items) -> tuple[Axis, ...]:
                              file="--vary")
     if "time.local_hour" in keys and "time.utc" in keys:
         raise InputError("time.local_hour sets time.utc: vary one of them", file="--vary")
+    total = math.prod(len(a.values) for a in axes)
+    if total > MAX_SWEEP_POINTS:
+        raise InputError(f"the axes make {total:.3g} points, more than the "
+                         f"{MAX_SWEEP_POINTS} a sweep may have", file="--vary")
     if "time.day_of_year" in keys and "time.utc" in keys:
         raise InputError("time.day_of_year sets time.utc: vary one of them", file="--vary")
     return tuple(axes)
@@ -156,6 +164,10 @@ def parse_values(text: str, key: str) -> tuple:
         if ratio < -RANGE_TOLERANCE:
             raise InputError(f"{key}: range {text!r} is empty (stop lies before start in the "
                              "direction of the step)", file="--vary")
+        if ratio + 1 > MAX_SWEEP_POINTS:
+            # Refused from the arguments, before a value is made.
+            raise InputError(f"{key}: range {text!r} has {ratio + 1:.3g} values, more than "
+                             f"the {MAX_SWEEP_POINTS} points a sweep may have", file="--vary")
         count = round(ratio)
         if abs(ratio - count) > RANGE_TOLERANCE * max(1.0, abs(ratio)):
             raise InputError(f"{key}: (stop - start)/step of {text!r} is {ratio:g}, not a "
@@ -163,6 +175,9 @@ def parse_values(text: str, key: str) -> tuple:
         values = tuple(float(f"{start + i * step:.12g}") for i in range(count + 1))
     else:
         items = [p.strip() for p in text.split(",")]
+        if len(items) > MAX_SWEEP_POINTS:
+            raise InputError(f"{key}: {len(items)} values, more than the {MAX_SWEEP_POINTS} "
+                             "points a sweep may have", file="--vary")
         if any(not p for p in items):
             raise InputError(f"{key}: empty value in {text!r}", file="--vary")
         values = tuple(_value(p, where) for p in items)

@@ -80,6 +80,7 @@ import hashlib
 import numpy as np
 import xarray as xr
 
+from ionochem.analysis.bounds import MAX_SEED, check_count
 from ionochem.errors import InputError
 
 QUANTILES = (0.05, 0.16, 0.5, 0.84, 0.95)
@@ -204,9 +205,7 @@ def monte_carlo(model, samples, *, seed=0, environment=None, batch=None, workers
     samples = int(samples)
     if samples < 2:
         raise InputError("--samples must be at least 2", file="--samples")
-    seed = int(seed)
-    if seed < 0:
-        raise InputError("--seed must be a non-negative integer", file="--seed")
+    seed = check_count(seed, 0, MAX_SEED, "--seed", "seed")
     kernel = SampleKernel(model, environment, member_correlation)
     store = open_store(output, manifest_for(model, kernel, "montecarlo", samples, seed),
                        resume=resume)

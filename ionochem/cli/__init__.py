@@ -9,6 +9,7 @@ Nothing below the command layer imports it.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import gc
 import importlib
 import os
@@ -143,8 +144,39 @@ def _one_blas_thread():
     os.environ["OPENBLAS_NUM_THREADS"] = "1"
 
 
+#: errno values of a full or failing output device (stdout to /dev/full, a full disk).
+_WRITE_FAILURES = ("ENOSPC", "EDQUOT", "EFBIG", "EIO")
+
+
 def main(argv=None):
-    """Run the command line; returns the exit status (0, 1 for a bug, 2 for bad input)."""
+    """Run the command line; returns the exit status (0, 1 for a bug, 2 for bad input,
+    130 when interrupted).
+
+    Ctrl-C at any moment (even while the parser and the libraries load) ends with one line
+    and status 130; standard output that cannot be written (``> /dev/full``) ends with one
+    line and status 2, never a traceback.
+    """
+    import errno
+    try:
+        status = _main(argv)
+        sys.stdout.flush()
+        return status
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+    except OSError as exc:
+        if exc.errno not in {getattr(errno, n) for n in _WRITE_FAILURES if hasattr(errno, n)}:
+            raise
+        # The data still buffered for stdout cannot be written; point the descriptor at
+        # /dev/null so the interpreter's final flush does not fail a second time.
+        with contextlib.suppress(OSError):
+            fd = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(fd, sys.stdout.fileno())
+        print(f"cannot write the output: {exc.strerror or exc}", file=sys.stderr)
+        return 2
+
+
+def _main(argv=None):
     parser = build_parser()
     process_ends = argv is None          # the `ionochem` script and `python -m ionochem`
     argv = sys.argv[1:] if argv is None else list(argv)
@@ -174,6 +206,8 @@ def main(argv=None):
         nogc = (_CollectorPaused(process_ends) if args.command in PAUSE_GC
                 else contextlib.nullcontext())
         with terminate_cleanly(), nodask, nogc:
+            from ionochem.cli.options import check_targets
+            check_targets(args)
             return args.func(args)
     except Error as exc:
         print(str(exc), file=sys.stderr)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.analysis.bounds import MAX_PROFILE_POINTS, count_option
 from ionochem.cli.observed import misfit_table
 from ionochem.cli.options import (
     Table,
@@ -50,7 +51,8 @@ def register(subparsers):
     f.add_argument("--profile", metavar="ID",
                    help="profile likelihood of one free parameter (chi-square with the "
                         "others refitted)")
-    f.add_argument("--profile-points", type=int, default=13, metavar="K",
+    f.add_argument("--profile-points", type=count_option(3, MAX_PROFILE_POINTS, "points"),
+                   default=13, metavar="K",
                    help="points of the profile (default 13)")
     f.add_argument("-o", "--output", help="write the fit dataset (netCDF)")
     f.add_argument("--plot", help="write the fit figure (PNG, PDF, SVG)")
@@ -68,8 +70,11 @@ def cmd_fit(args):
     from ionochem.analysis.misfit import band_rows
     from ionochem.io.netcdf import write_netcdf
     check_outputs(args, inputs=[args.scenario, args.observed])
-    if args.profile_points < 3:
-        raise InputError("--profile-points must be at least 3", file="--profile-points")
+    if args.constrain_electrons:
+        from ionochem.io.checks import balance_ion_problem
+        problem = balance_ion_problem(args.balance_ion)
+        if problem:
+            raise InputError(problem, file="--balance-ion")
     priors = parse_assignments(args.prior, "prior")
     obs = ionochem.load_observations(args.observed)
     scen = analysis_scenario(args, "fit")
@@ -78,6 +83,9 @@ def cmd_fit(args):
     check_observed(obs, model)
     print_warnings(model.warnings)
     if args.constrain_electrons:
+        problem = balance_ion_problem(args.balance_ion, model.species)
+        if problem:
+            raise InputError(problem, file="--balance-ion")
         model = electron_constrained_model(model, obs, balance_ion=args.balance_ion)
     ds = fit(model, obs, args.free, priors=priors, max_factor=args.max_factor,
              profile=args.profile, profile_points=args.profile_points)

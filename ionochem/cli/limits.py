@@ -71,3 +71,33 @@ def check_ensemble(samples, runs_per_sample, levels, n_species, n_reactions, *,
         raise InputError(f"{samples} samples mean {solves:.3g} level solves, beyond the "
                          f"{MAX_LEVEL_SOLVES:.0e} allowed without --allow-long; use fewer "
                          "samples or add --allow-long", file="--samples")
+
+
+#: Fewest samples that give a meaningful answer, per method *(common practice)*: a Monte
+#: Carlo 68 % band from fewer than 30 draws is itself uncertain by more than 15 %; Saltelli's
+#: Sobol' estimators scatter by tens of percent below a base sample of 64 (SALib's examples
+#: use 1024); Morris screening needs at least 4 trajectories (Campolongo et al. 2007 use 10).
+MEANINGFUL_SAMPLES = {"montecarlo": 30, "sobol": 64, "morris": 4}
+#: Largest plausible one-sigma factor of an environment spread (--vary-environment): the
+#: solar EUV is uncertain by some 20-30 %, temperatures by some 10 % *(common practice)*;
+#: a factor of 5 or more is usually a percentage written as a factor (20 for 20 %).
+MAX_PLAUSIBLE_SPREAD = 5.0
+
+
+def sample_warnings(method, samples, spreads=None):
+    """Warnings for settings that run but mean little (``--samples``, ``--vary-environment``).
+
+    Returns a list of str (empty when the settings are sound).
+    """
+    out = []
+    least = MEANINGFUL_SAMPLES.get(method)
+    if least is not None and samples < least:
+        what = {"montecarlo": "Monte Carlo samples", "sobol": "Sobol' base samples",
+                "morris": "Morris trajectories"}[method]
+        out.append(f"--samples: {samples} {what} give a meaningless answer; use at least "
+                   f"{least}")
+    for name, factor in (spreads or {}).items():
+        if factor >= MAX_PLAUSIBLE_SPREAD:
+            out.append(f"--vary-environment: {name}={factor:g} is a one-sigma factor (x/ "
+                       f"{factor:g}), not a percentage; {name}=1.2 means 20 %")
+    return out

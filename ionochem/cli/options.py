@@ -82,6 +82,17 @@ def parse_scales(items):
         if not np.isfinite(f) or f < 0:
             raise InputError(f"scale factor for {key} must be a finite number ≥ 0 "
                              "(0 switches the reaction off)", file="--scale")
+        # The bounds of changes.scale in a scenario hold on the command line too.
+        from ionochem.io.scenario.ranges import RANGES
+        bound = RANGES["changes.scale"]
+        if f > bound.hard[1]:
+            raise InputError(f"scale factor {f:g} for {key} is above {bound.hard[1]:g}, the "
+                             "bound of changes.scale in a scenario", file="--scale")
+        if f and not bound.soft[0] <= f <= bound.soft[1]:
+            import warnings
+            warnings.warn(f"--scale: factor {f:g} for {key} is outside the usual "
+                          f"{bound.soft[0]:g} to {bound.soft[1]:g} ({bound.basis})",
+                          stacklevel=2)
         out[key] = f
     return out
 
@@ -188,6 +199,47 @@ def check_outputs(args, *, inputs=()):
         for flag_b, b in given[i + 1:]:
             if _resolved(a) == _resolved(b):
                 raise InputError(f"{flag_a} and {flag_b} name the same file", file=a)
+
+
+#: Output targets a command may have: attribute of the parsed arguments → option.
+OUTPUT_OPTIONS = {"output": "-o", "plot": "--plot", "plot_levels": "--plot-levels",
+                  "csv": "--csv", "table": "--table", "write_entry": "--write-entry"}
+#: Input files a command may name: attribute → option (a positional's metavar-like name).
+INPUT_OPTIONS = {"scenario": "SCENARIO", "observed": "--observed", "measured": "--measured",
+                 "sigma": "SIGMA.csv", "rates": "RATES.csv", "signals": "SIGNALS.csv",
+                 "design": "--design", "file": "FILE", "reactions": "--reactions"}
+
+
+def check_targets(args):
+    """Refuse, before any work, two output options naming one file, or an output naming
+    one of the command's input files (``-o`` equal to ``--observed``, ``--plot`` equal to
+    ``--plot-levels``), whatever the command.
+
+    Every command's arguments pass here (``ionochem.cli.main``), so a new option named in
+    :data:`OUTPUT_OPTIONS` or :data:`INPUT_OPTIONS` is covered without a check of its own;
+    the commands still check the files a scenario names once it is loaded.
+    """
+    outputs = []
+    for attr, flag in OUTPUT_OPTIONS.items():
+        value = getattr(args, attr, None)
+        if isinstance(value, (str, os.PathLike)) and str(value).strip():
+            outputs.append((flag, str(value)))
+    inputs = []
+    for attr, flag in INPUT_OPTIONS.items():
+        value = getattr(args, attr, None)
+        for item in value if isinstance(value, (list, tuple)) else [value]:
+            if isinstance(item, (str, os.PathLike)) and str(item).strip():
+                inputs.append((flag, str(item)))
+    for i, (flag_a, a) in enumerate(outputs):
+        if "\0" in a:
+            continue                    # check_output names it
+        for flag_b, b in outputs[i + 1:]:
+            if "\0" not in b and _resolved(a) == _resolved(b):
+                raise InputError(f"{flag_a} and {flag_b} name the same file", file=a)
+        for flag_b, b in inputs:
+            if "\0" not in b and (_resolved(a) == _resolved(b) or _same_file(a, b)):
+                raise InputError(f"the output would overwrite the input file {b} "
+                                 f"({flag_b}); choose another name", file=a, key=flag_a)
 
 
 def _resolved(path):

@@ -23,6 +23,7 @@ import sys
 import warnings
 from pathlib import Path
 
+from ionochem.analysis.bounds import MAX_BOOTSTRAP, MAX_SEED, count_option
 from ionochem.cli.options import Table, check_output
 from ionochem.cli.rates_table import add_ref_option, emit_entries, entry_ref
 from ionochem.cli.rates_table import register as register_table
@@ -77,9 +78,10 @@ def register(subparsers):
     p.add_argument("signals", metavar="SIGNALS.csv", help="channel, signal, sigma")
     p.add_argument("--design", required=True, metavar="DESIGN.csv",
                    help="channel, then the response of that channel to each level (v0, v1...)")
-    p.add_argument("--bootstrap", type=int, metavar="N",
+    p.add_argument("--bootstrap", type=count_option(1, MAX_BOOTSTRAP, "refits"), metavar="N",
                    help="errors from N bootstrap refits instead of linearisation")
-    p.add_argument("--seed", type=int, help="seed of the bootstrap noise")
+    p.add_argument("--seed", type=count_option(0, MAX_SEED, "seed"),
+                   help="seed of the bootstrap noise")
     p.add_argument("-o", "--output", metavar="OUT.csv", help="write populations as CSV")
     p.set_defaults(func=cmd_populations)
 
@@ -356,7 +358,28 @@ def _entries(args):
             raise InputError(f"branching fraction {f!r} must be in (0, 1]", file="--fraction")
     if len(set(ids)) != len(ids):
         raise InputError("the same id is given twice", file="--entry")
+    if args.reaction:
+        for rid, reaction in zip(ids, reactions):
+            _check_entry(rid, reaction)
     return list(zip(ids, reactions, fractions))
+
+
+def _check_entry(rid, reaction):
+    """Refuse an --entry/--reaction pair the reaction-list parser would refuse, before work:
+    the entry is parsed as a family line with a constant rate (the table it will read is
+    written later), so ``--reaction 'garbage ->'`` never reaches a file."""
+    from ionochem.mechanism.parser import parse_reaction_text
+    if any(c in reaction for c in "|\n#"):
+        raise InputError("the reaction must not contain '|', '#' or a line break",
+                         file="--reaction")
+    try:
+        parse_reaction_text(f"{rid}(v): {reaction} | k = 1e-7 | levels v = 1..2\n",
+                            path="--reaction")
+    except InputError as exc:
+        message = exc.message.split(": ", 1)[-1] if exc.message.startswith("line") else \
+            exc.message
+        raise InputError(f"{rid}(v): {reaction!r} is not a valid family entry: {message}",
+                         file="--reaction") from None
 
 
 def _table_target(args):

@@ -121,6 +121,13 @@ def cmd_run(args):
             if note and note not in model.warnings:
                 print(f"warning: {note}", file=sys.stderr)
         dark = ds["dark"].values.astype(bool)
+        from ionochem.io.plausibility import peak_above_grid
+        names = [str(s) for s in ds["species"].values]
+        if "e" in names:
+            top = peak_above_grid(ds["altitude"].values,
+                                  ds["density"].sel(species="e").values, dark)
+            if top:
+                print(f"warning: {top}", file=sys.stderr)
         if dark.any() and not dark.all():
             print(f"{int(dark.sum())} dark level(s) below "
                   f"{ds['altitude'].values[dark].max():g} km", file=sys.stderr)

@@ -112,9 +112,8 @@ def _check_args(args):
     if not args.vary and not args.diurnal:
         raise InputError("give at least one --vary KEY=VALUES (or --diurnal)", file="--vary")
     if args.diurnal:
-        from ionochem.analysis.diurnal import check_step
-        if args.days < 1:
-            raise InputError("--days must be at least 1", file="--days")
+        from ionochem.analysis.diurnal import check_days, check_step
+        check_days(args.days)
         check_step(args.step_minutes)
         if args.sensitivity:
             raise InputError("--sensitivity needs steady points; it cannot go with --diurnal",
@@ -140,6 +139,12 @@ def cmd_sweep(args):
     spec = make_spec(scen, axes, sets=sets, scales=scales, set_dir=Path.cwd(),
                      sensitivity=args.sensitivity, diurnal=diurnal)
     check_axes(spec)
+    if args.plot and args.map_axis is not None:
+        names = ["local_hour"] if args.diurnal else []
+        names += [a.name for a in axes]
+        if args.map_axis not in names:
+            raise InputError(f"{args.map_axis!r} is not a swept dimension (have "
+                             f"{', '.join(names) or 'none'})", file="--map-axis")
     _check_work(args, spec, total=point_count(axes))
     members = _map_members(spec.reaction_list, args.map_reaction)
     total = point_count(axes)

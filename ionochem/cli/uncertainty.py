@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import sys
 
+from ionochem.analysis.bounds import MAX_SEED, count_option
 from ionochem.cli.compare import print_change_log
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
@@ -41,7 +42,7 @@ def register(subparsers):
     u.add_argument("--samples", type=int, required=True, metavar="N",
                    help="Monte Carlo samples; sobol: base sample size (N (M+2) solves); "
                         "morris: trajectories (N (M+1) solves)")
-    u.add_argument("--seed", type=int, default=0, metavar="S",
+    u.add_argument("--seed", type=count_option(0, MAX_SEED, "seed"), default=0, metavar="S",
                    help="seed of the random streams (default 0)")
     u.add_argument("--method", choices=("montecarlo", "sobol", "morris"), default="montecarlo")
     par = u.add_mutually_exclusive_group()
@@ -144,6 +145,9 @@ def cmd_uncertainty(args):
     files = [*(args.reactions or []), *(args.add or [])]
     check_output(args.csv, "--csv", inputs=[args.scenario, *files])
     spreads = parse_spreads(args.vary_environment)
+    from ionochem.cli.limits import sample_warnings
+    for text in sample_warnings(args.method, args.samples, spreads):
+        print(f"warning: {text}", file=sys.stderr)
     altitudes = _parse_altitudes(args.altitudes)
     observed = load_observed(args)
     from ionochem.mechanism.parser import parse_reaction_list

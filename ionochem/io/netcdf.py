@@ -287,6 +287,16 @@ def atomic_path(path):
                 os.unlink(tmp)
             raise Error(f"cannot write the output: {exc.strerror or exc}; any earlier file "
                         "there is unchanged", file=str(path)) from None
+        except RuntimeError as exc:
+            # The netCDF library reports a failed write (a full disk, `ulimit -f`) as
+            # RuntimeError("NetCDF: HDF error"); anything else is a bug and goes on.
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            if not str(exc).startswith("NetCDF:"):
+                raise
+            raise Error(f"cannot write the output ({exc}: the disk may be full or a file "
+                        "size limit reached); nothing was left behind and any earlier file "
+                        "there is unchanged", file=str(path)) from None
         except BaseException:
             with contextlib.suppress(OSError):
                 os.unlink(tmp)

@@ -29,15 +29,17 @@ from __future__ import annotations
 
 import csv
 import math
+import warnings
 from pathlib import Path
 
 import numpy as np
 import xarray as xr
 
-from ionochem.errors import InputError
+from ionochem.errors import InputError, safe_name
+from ionochem.io.paths import MAX_STORE_BYTES, PathProblem, read_text, regular_file, resolve_path
 
 __all__ = ["COLUMNS", "KINDS", "OPTIONAL_COLUMNS", "check_against_model",
-           "load_observations", "observation_where", "ratio_parts"]
+           "check_matrix_size", "load_observations", "observation_where", "ratio_parts"]
 
 #: Required columns, in the documented order.
 COLUMNS = ("altitude_km", "species", "density_cm3", "sigma_cm3")
@@ -45,6 +47,21 @@ COLUMNS = ("altitude_km", "species", "density_cm3", "sigma_cm3")
 OPTIONAL_COLUMNS = ("kind",)
 #: What a row measures.
 KINDS = ("density", "electron_density", "ratio")
+
+#: Most observations one file may hold: a rocket or radar profile has hundreds to a few
+#: thousand points; the bound keeps the interpolation matrix of a fit (observations ×
+#: species × levels) in memory *(common practice)*.
+MAX_OBSERVATIONS = 100_000
+#: Smallest one-sigma error relative to the value: below it the misfit's weight 1/σ² in log
+#: density overflows or means nothing *(common practice: no density is measured to 1e-9)*.
+MIN_RELATIVE_SIGMA = 1e-9
+#: Largest interpolation matrix (observations × species × levels entries, float64) a
+#: comparison with a model may build: 2.5e8 entries are 2 GB *(common practice)*.
+MAX_MATRIX_ENTRIES = 250_000_000
+
+#: Largest usual measured ion or electron density (cm-3): F2 peaks reach some 3e6 cm-3
+#: *(common practice)*; above it a file is taken to be per m3 (warned, not refused).
+USUAL_MAX_CM3 = 1e8
 
 #: Altitude tolerance (km) for a point at the edge of the model grid (grid rounding).
 EDGE_TOLERANCE_KM = 1e-6
@@ -101,44 +118,58 @@ def _check_row(kind, species, alt, value, sigma):
                          "(the misfit is in log density)")
     if sigma <= 0:
         raise ValueError(f"sigma_cm3 is {sigma:g}; the one-sigma error must be positive")
+    if sigma < MIN_RELATIVE_SIGMA * value:
+        raise ValueError(f"sigma_cm3 is {sigma:g}, below {MIN_RELATIVE_SIGMA:g} of the "
+                         f"value {value:g}; no measurement is that precise (a slip of units?)")
     return kind, species
 
 
 def _number(cell, column):
+    # The cell is not quoted back: the file may be any file the user can read.
     try:
         return float(cell)
     except ValueError:
-        raise ValueError(f"cell {cell!r} in column {column!r} is not a number") from None
+        raise ValueError(f"the cell in column {column!r} is not a number") from None
+
+
+def _rows(reader, numbered, path):
+    """The csv reader's rows, a malformed row (an over-long field) at its line."""
+    it = iter(reader)
+    for lineno, _ in numbered:
+        try:
+            yield next(it)
+        except csv.Error as exc:
+            raise InputError(f"the row is not CSV ({str(exc).split(' (')[0]})", file=path,
+                             line=lineno) from None
 
 
 def _read_csv(path):
     try:
-        text = path.read_bytes().decode("utf-8-sig")
-    except FileNotFoundError:
-        raise InputError("observation file not found", file=path) from None
-    except IsADirectoryError:
-        raise InputError("is a folder, not an observation file", file=path) from None
-    except UnicodeDecodeError as exc:
-        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})",
-                         file=path) from None
-    except OSError as exc:
-        raise InputError(f"cannot read the observation file: {exc.strerror}",
-                         file=path) from None
+        _, text = read_text(path)
+    except PathProblem as exc:
+        raise InputError(str(exc), file=path, line=exc.line) from None
     numbered = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
                 if ln.strip() and not ln.lstrip().startswith("#")]
     if not numbered:
         raise InputError("no header row (the file is empty); the header is "
                          f"{', '.join(COLUMNS)}[, kind]", file=path)
+    if len(numbered) - 1 > MAX_OBSERVATIONS:
+        raise InputError(f"{len(numbered) - 1} rows, more than the {MAX_OBSERVATIONS} "
+                         "observations a file may hold; thin or split the profile", file=path)
     rows = csv.reader([ln for _, ln in numbered], skipinitialspace=True)
     head_line = numbered[0][0]
-    header = [h.strip() for h in next(rows)]
+    try:
+        header = [h.strip() for h in next(rows)]
+    except csv.Error as exc:
+        raise InputError(f"the header row is not CSV ({exc})", file=path,
+                         line=head_line) from None
     for name in header:
         if name not in COLUMNS + OPTIONAL_COLUMNS:
-            raise InputError(f"unknown column {name!r}; the columns are "
+            raise InputError(f"unknown column {safe_name(name)}; the columns are "
                              f"{', '.join(COLUMNS)} and optionally kind", file=path,
                              line=head_line)
         if header.count(name) > 1:
-            raise InputError(f"column {name!r} appears twice in the header", file=path,
+            raise InputError(f"column {safe_name(name)} appears twice in the header", file=path,
                              line=head_line)
     missing = [c for c in COLUMNS if c not in header]
     if missing:
@@ -147,7 +178,8 @@ def _read_csv(path):
                          file=path, line=head_line)
     col = {name: j for j, name in enumerate(header)}
     records = []
-    for (lineno, _), cells in zip(numbered[1:], rows, strict=True):
+    for (lineno, _), cells in zip(numbered[1:], _rows(rows, numbered[1:], path),
+                                   strict=True):
         if len(cells) != len(header):
             raise InputError(f"{len(cells)} cells but the header has {len(header)} columns",
                              file=path, line=lineno)
@@ -170,11 +202,14 @@ def _read_csv(path):
 
 def _read_netcdf(path):
     try:
+        regular_file(resolve_path(path), MAX_STORE_BYTES)
+    except PathProblem as exc:
+        raise InputError(str(exc), file=path) from None
+    try:
         with xr.open_dataset(path) as raw:
             ds = raw.load()
-    except (OSError, ValueError) as exc:
-        raise InputError(f"cannot read the netCDF observation file: {exc}",
-                         file=path) from None
+    except (OSError, ValueError, RuntimeError):
+        raise InputError("cannot be read as a netCDF observation file", file=path) from None
     missing = [c for c in COLUMNS if c not in ds.variables]
     if missing:
         raise InputError(f"missing variable{'s' if len(missing) > 1 else ''} "
@@ -184,11 +219,15 @@ def _read_netcdf(path):
     extra = [str(v) for v in ds.data_vars if str(v) not in known]
     if extra:
         raise InputError(f"unknown variable{'s' if len(extra) > 1 else ''} "
-                         f"{', '.join(extra)}", file=path)
+                         f"{', '.join(safe_name(e) for e in extra)}", file=path)
     for name in (*COLUMNS, *(c for c in OPTIONAL_COLUMNS if c in ds.variables)):
         if ds[name].dims != ("observation",):
             raise InputError(f"variable {name!r} must have the single dimension "
                              f"'observation', not {ds[name].dims}", file=path)
+    if ds.sizes["observation"] > MAX_OBSERVATIONS:
+        raise InputError(f"{ds.sizes['observation']} observations, more than the "
+                         f"{MAX_OBSERVATIONS} a file may hold; thin or split the profile",
+                         file=path)
     records = []
     kinds = ds["kind"].values if "kind" in ds.variables else None
     for i in range(ds.sizes["observation"]):
@@ -243,6 +282,12 @@ def load_observations(path):
                              f"{'on line ' + str(first) if first else 'earlier'})",
                              file=path, line=line or None)
         seen[key] = line
+    dense = [(v, ln) for _, _, k, v, _, ln in records if k != "ratio" and v > USUAL_MAX_CM3]
+    if dense:
+        v, ln = max(dense)
+        warnings.warn(f"{path}{':' + str(ln) if ln else ''}: a measured density of {v:g} cm-3, "
+                      f"above the {USUAL_MAX_CM3:g} cm-3 of any ionosphere: is the file per m3 "
+                      "(1e6 times per cm3)?", stacklevel=2)
     alt, species, kind, value, sigma, line = zip(*records)
     ds = xr.Dataset(
         {
@@ -293,6 +338,8 @@ def check_against_model(obs, species, altitude_km):
     names = [str(s) for s in species]
     known = set(names)
     alt = np.asarray(altitude_km, float)
+    check_matrix_size(obs.sizes["observation"], len(names), alt.size,
+                      source=obs.attrs.get("source"))
     lo, hi = float(alt.min()), float(alt.max())
     for i, (name, kind, a) in enumerate(zip(obs["species"].values, obs["kind"].values,
                                             obs["altitude_km"].values)):
@@ -305,3 +352,14 @@ def check_against_model(obs, species, altitude_km):
         if not (lo - EDGE_TOLERANCE_KM <= a <= hi + EDGE_TOLERANCE_KM):
             raise InputError(f"altitude {a:g} km is outside the model grid {lo:g} to {hi:g} "
                              "km", file=file, line=line, key=key)
+
+
+def check_matrix_size(n_obs, n_species, n_levels, *, source=None):
+    """Refuse a comparison whose interpolation matrix would exceed
+    :data:`MAX_MATRIX_ENTRIES` (observations × species × levels), before it is built."""
+    entries = int(n_obs) * int(n_species) * int(n_levels)
+    if entries > MAX_MATRIX_ENTRIES:
+        raise InputError(f"{n_obs} observations against {n_species} species on {n_levels} "
+                         f"levels need a {entries * 8 / 1024 ** 3:.1f} GiB interpolation "
+                         f"matrix, above the {MAX_MATRIX_ENTRIES * 8 / 1024 ** 3:.0f} GiB "
+                         "bound; thin the observations or use fewer levels", file=source)

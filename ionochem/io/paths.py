@@ -22,16 +22,28 @@ import os
 import stat
 from pathlib import Path
 
-__all__ = ["MAX_INPUT_BYTES", "PathProblem", "read_bounded", "regular_file", "resolve_path"]
+__all__ = ["MAX_INPUT_BYTES", "MAX_STORE_BYTES", "PathProblem", "file_digest", "read_bounded",
+           "read_text", "regular_file", "resolve_path"]
 
 #: Largest input file read (bytes). The largest packaged table is below 1 MB; a reaction list,
 #: scenario or profile table of ten times the packaged ones is still far below this
 #: *(common practice: a bound that stops /dev/zero, not real inputs)*.
 MAX_INPUT_BYTES = 20_000_000
+#: Largest netCDF file read back (bytes): observation files, templates of stores. A netCDF
+#: file is opened by the netCDF library, which reads only what it needs, so the bound is
+#: a sanity limit of the same kind, a hundred times the text one *(common practice)*.
+MAX_STORE_BYTES = 2_000_000_000
 
 
 class PathProblem(ValueError):
-    """A path that cannot be used as an input file; ``str()`` is the message."""
+    """A path that cannot be used as an input file; ``str()`` is the message.
+
+    ``line`` is the 1-based line of a text file the problem is on (``None`` for the file).
+    """
+
+    def __init__(self, message, line=None):
+        super().__init__(message)
+        self.line = line
 
 
 def resolve_path(name, base: str | Path | None = None) -> Path:
@@ -137,6 +149,51 @@ def read_bounded(path: str | Path, limit: int = MAX_INPUT_BYTES) -> bytes:
         raise PathProblem(f"cannot be read ({_reason(exc)})") from None
     finally:
         os.close(fd)
+
+
+def read_text(name, base=None, limit: int = MAX_INPUT_BYTES) -> tuple[Path, str]:
+    """Resolve ``name`` and read it as UTF-8 text, bounded: ``(path, text)``.
+
+    The one reader of the text inputs a user names (observation files, the laboratory
+    toolkit's CSV files): :func:`resolve_path`, :func:`read_bounded`, then UTF-8 (a leading
+    byte-order mark dropped) without NUL characters (``/proc/self/environ`` and binary files
+    are refused here, before any of their content could reach a message).
+
+    Raises
+    ------
+    PathProblem
+        Anything :func:`read_bounded` refuses; text that is not UTF-8 or holds a NUL
+        character (``line`` says where).
+    """
+    path = resolve_path(name, base)
+    data = read_bounded(path, limit)
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise PathProblem("is not UTF-8 text (a binary file?)",
+                          line=data[:exc.start].count(b"\n") + 1) from None
+    if "\0" in text:
+        raise PathProblem("contains a NUL character (a binary file?)",
+                          line=text[:text.index("\0")].count("\n") + 1)
+    return path, text.removeprefix("\ufeff")
+
+
+def file_digest(path, limit: int = MAX_STORE_BYTES) -> str:
+    """SHA-256 of a regular file's bytes (read bounded), or ``"unreadable: REASON"``.
+
+    For resume manifests: a changed input file changes its digest, so stored results made
+    from the old file are not silently reused.
+    """
+    import hashlib
+    try:
+        regular_file(path, limit)
+        h = hashlib.sha256()
+        with open(path, "rb") as fh:
+            for chunk in iter(lambda: fh.read(1 << 20), b""):
+                h.update(chunk)
+        return h.hexdigest()
+    except (PathProblem, OSError) as exc:
+        return f"unreadable: {exc}"
 
 
 def _reason(exc) -> str:

@@ -18,6 +18,7 @@ from __future__ import annotations
 import csv
 import math
 import re
+import warnings
 from collections.abc import Collection, Sequence
 from pathlib import Path
 
@@ -25,6 +26,7 @@ import numpy as np
 
 from ionochem.errors import InputError, ScenarioError, safe_name
 from ionochem.io.paths import PathProblem, read_bounded
+from ionochem.io.plausibility import check_column
 
 __all__ = ["ALTITUDE_TOLERANCE_KM", "read_csv_columns", "read_profile_table"]
 
@@ -261,6 +263,11 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
                 need = "a positive temperature" if name.endswith("_K") else "non-negative"
                 raise fail(f"column {safe_name(name)} has {col[i]:g}; it must be {need}",
                            int(lines[i]))
+        bad, error, warning = check_column(safe_name(name, quote=False), where, col, alt)
+        if error:
+            raise fail(error, int(lines[bad]))
+        if warning:
+            warnings.warn(f"{path.name}: {warning}", stacklevel=2)
         if np.all(col > 0):
             out[name] = np.exp(np.interp(x, alt, np.log(col)))
         else:

@@ -173,6 +173,18 @@ class Mechanism:
                 problems.append((name, self.reactions[produced[0]]))
         return problems
 
+    def never_made(self):
+        """Solved species that are consumed but never produced, as ``(name, reaction)``
+        pairs (the first reaction consuming it). At any steady state their density is zero,
+        so every reaction needing them is silently off: a reactant the neutral source was
+        meant to supply (O3, say) and does not."""
+        problems = []
+        for i, name in enumerate(self.solved):
+            lost = np.nonzero(self.nu[i] < 0)[0]
+            if lost.size and not np.any(self.nu[i] > 0):
+                problems.append((name, self.reactions[lost[0]]))
+        return problems
+
     def _derived_totals(self):
         """Family totals under the bare name and ``X(total)`` for state groups."""
         present = [s for s in self.all_species if s not in (THIRD_BODY,)]

@@ -53,6 +53,7 @@ from ionochem.rates.common import (
     EV_ERG,
     check_cross_sections,
     check_energy_grid,
+    check_kt,
     check_positive,
     speed_cm_s,
 )
@@ -162,9 +163,7 @@ def transverse_smoothing(energy_eV, sigma_cm2, kT_perp_eV, at_energy_eV, *, node
 
 
 def _single(value, name):
-    if np.ndim(value) != 0:
-        raise InputError(f"{name} must be a single number (eV)")
-    return float(check_positive(value, name))
+    return check_kt(value, name)
 
 
 def beam_rate(energy_eV, sigma_cm2, detuning_eV, kT_perp_eV, kT_par_eV):

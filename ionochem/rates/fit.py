@@ -27,7 +27,7 @@ import numpy as np
 from scipy import optimize, stats
 
 from ionochem.errors import InputError
-from ionochem.rates.common import check_positive
+from ionochem.rates.common import check_positive, check_temperatures
 
 __all__ = ["FORMS", "FitResult", "fit_rate", "evaluate_form"]
 
@@ -70,7 +70,7 @@ def evaluate_form(form, parameters, temperature_K):
     """k(T) (cm3 s-1) of a form with public parameters (A in cm3 s-1, T_break in K)."""
     if form not in FORMS:
         raise InputError(f"unknown form {form!r} (forms: {', '.join(FORMS)})")
-    T = check_positive(temperature_K, "temperature_K")
+    T = check_temperatures(temperature_K)
     return np.exp(_log_model(form, T, _to_internal(form, parameters)))
 
 
@@ -121,7 +121,7 @@ class FitResult:
 
     def band(self, temperature_K, n_sigma=1.0):
         """(low, high) of k at ``temperature_K`` from the covariance, in log k."""
-        T = check_positive(temperature_K, "temperature_K")
+        T = check_temperatures(temperature_K)
         p = _to_internal(self.form, self.parameters)
         # Covariance of the internal parameters (log A, log T_b) by the chain rule.
         J = np.eye(p.size)
@@ -183,7 +183,7 @@ def fit_rate(temperature_K, k, form, sigma=None):
     """
     if form not in FORMS:
         raise InputError(f"unknown form {form!r} (forms: {', '.join(FORMS)})")
-    T = check_positive(temperature_K, "temperature_K").reshape(-1)
+    T = check_temperatures(temperature_K).reshape(-1)
     y = check_positive(k, "k").reshape(-1)
     if T.size != y.size:
         raise InputError(f"{T.size} temperatures but {y.size} rate coefficients")

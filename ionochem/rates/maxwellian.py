@@ -44,7 +44,7 @@ from ionochem.rates.common import (
     K_B_EV,
     check_cross_sections,
     check_energy_grid,
-    check_positive,
+    check_temperatures,
 )
 
 __all__ = ["maxwellian_rate", "maxwellian_weights", "missing_weight"]
@@ -85,7 +85,7 @@ def maxwellian_weights(energy_eV, temperature_K):
         Weights in cm s-1 (k in cm3 s-1 when sigma is in cm2).
     """
     E = check_energy_grid(energy_eV)
-    T = check_positive(np.atleast_1d(temperature_K), "temperature_K").reshape(-1)
+    T = check_temperatures(np.atleast_1d(temperature_K)).reshape(-1)
     kT = T * K_B_EV                                                   # eV
     W = np.zeros((T.size, E.size))
     rows = max(1, _BLOCK // E.size)
@@ -118,7 +118,7 @@ def missing_weight(energy_eV, temperature_K, *, below=True, above=True):
         Shaped like ``temperature_K``.
     """
     E = check_energy_grid(energy_eV)
-    T = check_positive(temperature_K, "temperature_K")
+    T = check_temperatures(temperature_K)
     kT = T * K_B_EV
     x0 = E[0] / kT
     x1 = E[-1] / kT
@@ -160,7 +160,7 @@ def maxwellian_rate(energy_eV, sigma_cm2, temperature_K, *, tolerance=1e-3,
         raise InputError(f"uncovered must be 'raise' or 'warn', not {uncovered!r}")
     E = check_energy_grid(energy_eV)
     S, one = check_cross_sections(sigma_cm2, E.size)
-    T = check_positive(temperature_K, "temperature_K")
+    T = check_temperatures(temperature_K)
     miss = missing_weight(E, T, below=bool((S[0] > 0).any()), above=bool((S[-1] > 0).any()))
     over = miss > tolerance
     if over.any():

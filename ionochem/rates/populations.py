@@ -31,6 +31,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, stats
 
+from ionochem.analysis.bounds import MAX_BOOTSTRAP, check_count
 from ionochem.errors import InputError
 from ionochem.rates.beam import beam_rate
 from ionochem.rates.common import check_positive
@@ -150,8 +151,7 @@ def level_populations(design, signals, sigma, *, method="linear", n_boot=1000, s
         G = (np.eye(L) - n[:, None]) / total
         C = G @ Cp @ G.T
     else:
-        if int(n_boot) < 2:
-            raise InputError("n_boot must be at least 2")
+        check_count(n_boot, 2, MAX_BOOTSTRAP, "--bootstrap", "n_boot")
         rng = np.random.default_rng(seed)
         model = A @ p
         draws = np.empty((int(n_boot), L))

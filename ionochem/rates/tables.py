@@ -29,9 +29,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ionochem.errors import InputError
+from ionochem.errors import InputError, safe_name
 from ionochem.io.netcdf import atomic_path
-from ionochem.io.paths import PathProblem, read_bounded, resolve_path
+from ionochem.io.paths import PathProblem, read_text
 
 __all__ = ["NumericTable", "read_numeric_csv", "write_level_table", "write_csv",
            "family_entry", "LEVEL_COLUMN", "level_of_column", "band_f_expression",
@@ -93,18 +93,9 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
     """
     name = str(path)
     try:
-        data = read_bounded(resolve_path(path), _MAX_BYTES)
+        _, text = read_text(path, limit=_MAX_BYTES)
     except PathProblem as exc:
-        raise InputError(str(exc), file=name) from None
-    try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        raise InputError("not valid UTF-8", file=name,
-                         line=data[:exc.start].count(b"\n") + 1) from None
-    if "\x00" in text:
-        raise InputError("contains a NUL byte", file=name,
-                         line=text[:text.index("\x00")].count("\n") + 1)
-    text = text.removeprefix("\ufeff")
+        raise InputError(str(exc), file=name, line=exc.line) from None
     rows = []
     for number, raw in enumerate(text.splitlines(), start=1):
         stripped = raw.strip()
@@ -113,23 +104,32 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
         try:
             cells = next(csv.reader(io.StringIO(raw)))
         except csv.Error as exc:
-            raise InputError(f"CSV error: {exc}", file=name, line=number) from None
+            raise InputError(f"not a CSV row ({str(exc).split(' (')[0]})", file=name,
+                             line=number) from None
         rows.append((number, [c.strip() for c in cells]))
     if not rows:
         raise InputError("no header row", file=name)
     header_line, header = rows[0]
     if any(not h for h in header):
         raise InputError("empty column name in the header", file=name, line=header_line)
+    for i, h in enumerate(header, start=1):
+        # Every later message may quote a column name; a header cell that is not one (a
+        # line of some other file, a spreadsheet formula) is refused without quoting it.
+        if safe_name(h) == "(not a column name)":
+            raise InputError(f"header cell {i} is not a column name (letters, digits and "
+                             "_+-()=,. only, starting with a letter)", file=name,
+                             line=header_line)
     if len(set(header)) != len(header):
         dup = next(h for h in header if header.count(h) > 1)
-        raise InputError(f"column '{dup}' appears twice in the header", file=name,
+        raise InputError(f"column {safe_name(dup)} appears twice in the header", file=name,
                          line=header_line)
     if first is not None and header[0] != first:
-        raise InputError(f"the first column must be '{first}', found '{header[0]}'",
+        raise InputError(f"the first column must be '{first}', found {safe_name(header[0])}",
                          file=name, line=header_line)
     for col in required:
         if col not in header:
-            raise InputError(f"no column '{col}' (columns: {', '.join(header)})", file=name,
+            raise InputError(f"no column '{col}' (columns: "
+                             f"{', '.join(safe_name(h, quote=False) for h in header)})", file=name,
                              line=header_line)
     values = []
     lines = []
@@ -140,10 +140,12 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
         row = []
         for col, cell in zip(header, cells):
             if not _NUMBER.fullmatch(cell):
-                raise InputError(f"{col} '{cell}' is not a number", file=name, line=number)
+                raise InputError(f"the cell in column {safe_name(col)} is not a number (plain "
+                                 "decimal)", file=name, line=number)
             value = float(cell)
             if not np.isfinite(value):
-                raise InputError(f"{col} '{cell}' is too large", file=name, line=number)
+                raise InputError(f"the cell in column {safe_name(col)} is too large",
+                                 file=name, line=number)
             row.append(value)
         values.append(row)
         lines.append(number)

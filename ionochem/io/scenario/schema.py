@@ -12,6 +12,7 @@ import datetime as dt
 
 import numpy as np
 
+from ionochem.io.checks import balance_ion_problem
 from ionochem.io.scenario.ranges import MAX_LEVELS, YEAR_RANGE, check_range
 from ionochem.io.scenario.sections import (
     GRID_TOLERANCE,
@@ -250,6 +251,9 @@ class SchemaValidator(ValueChecks):
                                                          "'table'")
             etable = self.file(sec["electron_table"], f"{key}.electron_table")
             balance = self.string(sec.get("balance_ion", "O+"), f"{key}.balance_ion").strip()
+            problem = balance_ion_problem(balance)
+            if problem:
+                raise self.fail(f"{key}.balance_ion", problem)
         else:
             for name in ("electron_table", "balance_ion"):
                 self.inapplicable(sec, name, key, "electrons = 'table'")
