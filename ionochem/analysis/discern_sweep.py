@@ -23,6 +23,7 @@ from ionochem.analysis.discern import (
     separate,
 )
 from ionochem.analysis.sweep_axes import AXIS_ATTRS, grid_shape, point_count, point_values
+from ionochem.io.dataset import provenance
 
 SEPARATION_UNITS = "1"
 
@@ -67,7 +68,7 @@ def discern(spec, make_changed, observables, errors, uncertain, *, electrons_giv
         results.append(r)
         if alt is None:
             alt = np.asarray(base.altitude_km, float)
-            attrs = dict(base.solve().attrs) if not spec.axes else {}
+            attrs = provenance(base)
         if progress is not None:
             progress(i + 1, total)
     return _dataset(spec, shape, results, alt, observables, bands, attrs, excluded,
@@ -76,8 +77,8 @@ def discern(spec, make_changed, observables, errors, uncertain, *, electrons_giv
 
 def _stack(results, name, shape):
     arr = np.array([getattr(r, name) for r in results], float)
-    return np.moveaxis(arr.reshape(shape + arr.shape[1:]), range(len(shape)),
-                       range(arr.ndim - len(shape), arr.ndim))
+    arr = arr.reshape(shape + arr.shape[1:])
+    return np.moveaxis(arr, range(len(shape)), range(arr.ndim - len(shape), arr.ndim))
 
 
 def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, uncertain,
@@ -91,6 +92,8 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
     var_base = _stack(results, "var_model_baseline", shape)
     var_meas = _stack(results, "var_measurement", shape)
     units = [o.units for o in observables]
+    yu = {"units": units[0]} if len(set(units)) == 1 else {
+        "comment": "units per observable in observable_units"}
     one = {"units": SEPARATION_UNITS}
     data = {
         "separation": (oa, sep, {**one, "long_name": "separation of the changed from the "
@@ -98,10 +101,9 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
                                  "deviation (model uncertainty averaged over the two rate "
                                  "sets, plus measurement error)"}),
         "log_ratio": (oa, lyc - lyb, {**one, "long_name": "ln(y changed / y baseline)"}),
-        "observable_baseline": (oa, np.exp(lyb), {"units": "see observable_units",
-                                                  "long_name": "observable y, baseline"}),
-        "observable_changed": (oa, np.exp(lyc), {"units": "see observable_units",
-                                                 "long_name": "observable y, changed"}),
+        "observable_baseline": (oa, np.exp(lyb), {**yu, "long_name": "observable y, "
+                                                  "baseline"}),
+        "observable_changed": (oa, np.exp(lyc), {**yu, "long_name": "observable y, changed"}),
         "model_log_std": (oa, np.sqrt(var_base), {**one, "long_name": "one-sigma spread of "
                           "ln y of the baseline model from the uncertain rates and "
                           "environment (linear propagation)"}),
@@ -112,7 +114,8 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
                             {"units": "1", "long_name": "1 where the model's spread of ln y "
                              f"exceeds {DOUBTFUL_LOG_SIGMA} and linear propagation is "
                              "doubtful", "flag_values": np.array([0, 1], np.int8),
-                             "flag_meanings": "linear doubtful"}),
+                             "flag_meanings": "linear doubtful",
+                             "doubtful_log_std": DOUBTFUL_LOG_SIGMA}),
         "separation_profile": (("observable",) + dims, _stack(results, "profile", shape),
                                {**one, "long_name": "whole-profile separation sqrt(d' C^-1 "
                                 "d) over the chosen altitudes, full model covariance plus "
@@ -141,9 +144,8 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
         at.setdefault("long_name", f"swept scenario key {a.key}")
         at["scenario_key"] = a.key
         coords[a.name] = (a.name, a.coordinate(), at)
-    keep = ("title", "Conventions", "ionochem_version", "scenario", "scenario_sha256",
-            "reaction_list", "reaction_list_sha256", "source", "institution")
-    out_attrs = {k: v for k, v in attrs.items() if k in keep}
+    swept = {a.name for a in spec.axes} | {"time_utc"} if spec.axes else set()
+    out_attrs = {k: v for k, v in attrs.items() if k not in swept and k != "history"}
     out_attrs.setdefault("Conventions", "CF-1.8")
     out_attrs.update({
         "title": out_attrs.get("title", "") or "ionochem discern",

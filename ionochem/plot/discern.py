@@ -51,12 +51,11 @@ def plot_discern(ds, path):
 
 
 def _threshold(ds):
-    text = ds["linear_doubtful"].attrs.get("long_name", "")
-    parts = [p for p in text.split() if p.replace(".", "", 1).isdigit()]
-    return parts[0] if parts else "threshold"
+    return f"{float(ds['linear_doubtful'].attrs.get('doubtful_log_std', np.nan)):g}"
 
 
 def _profile(ax, ds, name):
+    from matplotlib.ticker import MaxNLocator
     alt = ds["altitude"].values
     sep = ds["separation"].sel(observable=name).values
     bad = ds["linear_doubtful"].sel(observable=name).values.astype(bool)
@@ -75,6 +74,7 @@ def _profile(ax, ds, name):
         ax.text(1.0, 1.01, "red: Monte Carlo check", transform=ax.transAxes, ha="right",
                 va="bottom", fontsize=7, color="tab:red")
     ax.set_xlim(0, top)
+    ax.xaxis.set_major_locator(MaxNLocator(5, prune="upper"))
     ax.set_xlabel("separation (combined standard deviations)")
 
 
