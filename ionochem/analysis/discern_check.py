@@ -123,7 +123,7 @@ def add_checks(ds, spec, points, make_changed, observables, errors, uncertain, s
     ``separation_montecarlo``, ``separation_montecarlo_stderr`` and
     ``separation_check_linear`` (check_point, observable, altitude) to ``ds``."""
     from ionochem.analysis.discern import separate
-    from ionochem.analysis.discern_sweep import point_models
+    from ionochem.analysis.discern_sweep import no_fill_on_coordinates, point_models
     from ionochem.analysis.sweep import point_scenario
     from ionochem.analysis.sweep_axes import point_values
     mc, se, lin, skipped = [], [], [], set()
@@ -155,6 +155,7 @@ def add_checks(ds, spec, points, make_changed, observables, errors, uncertain, s
         ds.coords[f"check_{a.name}"] = ("check_point", np.array(
             [point_values(spec.axes, i)[a.key] for i in points]),
             {"long_name": f"{a.key} at the check point"})
+    no_fill_on_coordinates(ds)
     ds.attrs["montecarlo_samples"] = int(samples)
     ds.attrs["montecarlo_seed"] = int(seed)
     ds.attrs["montecarlo_not_sampled"] = ", ".join(sorted(skipped))

@@ -160,7 +160,15 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
             f"{errors[o.name].absolute:g} {o.units}" for o in observables if o.name in errors),
         "sweep_dimensions": " ".join(dims),
     })
-    return xr.Dataset(data, coords=coords, attrs=out_attrs)
+    return no_fill_on_coordinates(xr.Dataset(data, coords=coords, attrs=out_attrs))
+
+
+def no_fill_on_coordinates(ds):
+    """Coordinates are written without a _FillValue (CF: a coordinate has no missing
+    values)."""
+    for name in ds.coords:
+        ds[name].encoding["_FillValue"] = None
+    return ds
 
 
 def ranking(ds, top=10):
