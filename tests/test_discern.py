@@ -127,9 +127,12 @@ def _log_sigma(model):
     return lnf
 
 
-def _numpy_covariance(model, sens, exclude, spreads, name="N2+"):
-    """Full C over altitudes, one unit at a time: C = Σ_u w_u w_uᵀ + Σ_e w_e w_eᵀ."""
-    S = np.nan_to_num(sens["sensitivity"].sel(species=name).values)      # (R, A)
+def _numpy_covariance(model, sens, exclude, spreads, name="N2+", over=None):
+    """Full C over altitudes, one unit at a time: C = Σ_u w_u w_uᵀ + Σ_e w_e w_eᵀ (of the
+    ratio name/over when ``over`` is given: the difference of the two sensitivities)."""
+    def sel(var, sp):
+        return np.nan_to_num(sens[var].sel(species=sp).values)
+    S = sel("sensitivity", name) - (sel("sensitivity", over) if over else 0.0)  # (R, A)
     sig = _log_sigma(model).T
     units = [str(u) for u in sens["reaction_unit"].values]
     A = S.shape[1]
@@ -140,9 +143,11 @@ def _numpy_covariance(model, sens, exclude, spreads, name="N2+"):
             continue
         w = (S[idx] * sig[idx]).sum(axis=0)
         C += np.outer(w, w)
-    E = sens["sensitivity_environment"].sel(species=name)
+    E = sel("sensitivity_environment", name) - (
+        sel("sensitivity_environment", over) if over else 0.0)
+    factors = list(sens["factor"].values)
     for fac, s in spreads.items():
-        w = np.nan_to_num(E.sel(factor=fac).values) * np.log(s)
+        w = E[factors.index(fac)] * np.log(s)
         C += np.outer(w, w)
     return C
 
@@ -172,6 +177,16 @@ def test_profile_separation_equals_numpy_full_covariance(demo):
     # Altitude by altitude as if independent would overstate it: the factors are shared.
     naive = np.sqrt(np.sum(d ** 2 / np.diag(Cm)))
     assert naive > 1.5 * expect
+    # A ratio: its sensitivities are the differences of its two species'.
+    ratio = separate(demo, changed, [Observable("N2+", "O+(total)")], {}, unc,
+                     sens_baseline=sb, sens_changed=sc)
+    Cr = 0.5 * (_numpy_covariance(demo, sb, exclude, spreads, over="O+(total)")
+                + _numpy_covariance(changed, sc, exclude, spreads, over="O+(total)"))
+    ob = sb["density"].sel(species="O+(total)").values
+    oc = sc["density"].sel(species="O+(total)").values
+    dr = np.log(nc / oc) - np.log(nb / ob)
+    np.testing.assert_allclose(ratio.separation[0], np.abs(dr) / np.sqrt(np.diag(Cr) + 0.01),
+                               rtol=1e-8)
 
 
 def test_inert_reaction_switched_off_gives_zero_separation(demo):
