@@ -232,6 +232,8 @@ def test_halving_n2plus_recombination_separates_more_with_altitude(demo):
     (["--member-correlation", "2"], "--member-correlation: must be between 0 and 1"),
     (["--monte-carlo", "3"], "--monte-carlo: at least 20 samples"),
     (["--altitudes", "300:200"], "--altitudes:"),
+    (["--given-electrons"], "--given-electrons: a given electron density makes O+"),
+    (["--check-point", "0"], "--check-point: needs --monte-carlo N"),
 ])
 def test_bad_input_is_refused_before_work(extra, message, capsys, monkeypatch):
     """Bad options exit 2 with ``--option: message`` and never reach the analysis."""

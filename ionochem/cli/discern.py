@@ -153,6 +153,10 @@ def cmd_discern(args):
     scen = ionochem.load_scenario(args.scenario)
     note_steady(scen)
     check_outputs(args, inputs=scenario_inputs(scen) + files)
+    if args.given_electrons and scen.transport is not None:
+        raise InputError("a given electron density makes O+ the balance of Ne minus the "
+                         "other ions, which cannot be transported: use a scenario without "
+                         "[transport]", file="--given-electrons")
     spec = make_spec(scen, axes)
     if axes:
         check_axes(spec)
