@@ -96,8 +96,7 @@ def _map(fig, ax, ds, name, dims):
     if z.shape[1] > 1:
         cs = ax.contour(xs, alt, z, levels=list(SIGMA_LINES), colors="w", linewidths=0.8)
         ax.clabel(cs, fmt=lambda v: f"{v:g}σ", fontsize=7)
-        ax.contourf(xs, alt, bad.values.astype(float), levels=[0.5, 1.5], colors="none",
-                    hatches=["//"])
+    _hatch(ax, xs, alt, bad.values.astype(bool))
     fig.colorbar(mesh, ax=ax).set_label("separation (combined std. dev.)")
     unit = ds[axis].attrs.get("units", "")
     ax.set_xlabel(axis + (f" ({unit})" if unit and unit != "1" else ""))
@@ -106,3 +105,21 @@ def _map(fig, ax, ds, name, dims):
     if held:
         ax.text(0.0, 1.01, ", ".join(f"{d} = {ds[d].values[i]:g}" for d, i in held.items()),
                 transform=ax.transAxes, fontsize=7, va="bottom")
+
+
+def _edges(c):
+    c = np.asarray(c, float)
+    if c.size == 1:
+        return np.array([c[0] - 0.5, c[0] + 0.5])
+    mid = 0.5 * (c[1:] + c[:-1])
+    return np.concatenate([[2 * c[0] - mid[0]], mid, [2 * c[-1] - mid[-1]]])
+
+
+def _hatch(ax, x, alt, bad):
+    """Hatch the cells (altitude, x) where ``bad``, over the same cells the map draws."""
+    if not bad.any():
+        return
+    coll = ax.pcolor(_edges(x), _edges(alt), np.ma.masked_where(~bad, bad.astype(float)),
+                     hatch="//", linewidth=0.0)
+    coll.set_facecolor("none")
+    coll.set_edgecolor("k")
