@@ -250,3 +250,17 @@ def test_bad_input_is_refused_before_work(extra, message, capsys, monkeypatch):
 def test_discern_needs_a_change(capsys):
     assert main(["discern", DEMO]) == 2
     assert "needs at least one change" in capsys.readouterr().err
+
+
+def test_help_states_the_default_spreads():
+    """The help text (written out so that --help loads no numpy) names the defaults the
+    analysis uses."""
+    import argparse
+
+    from ionochem.analysis.discern import DEFAULT_SPREADS
+    from ionochem.cli import discern as cli
+    sub = argparse.ArgumentParser().add_subparsers()
+    cli.register(sub)
+    text = sub.choices["discern"].format_help().replace("\n", "").replace(" ", "")
+    for k, v in DEFAULT_SPREADS.items():
+        assert f"{k}={v:g}" in text
