@@ -264,3 +264,20 @@ def test_help_states_the_default_spreads():
     text = sub.choices["discern"].format_help().replace("\n", "").replace(" ", "")
     for k, v in DEFAULT_SPREADS.items():
         assert f"{k}={v:g}" in text
+
+
+def test_given_electron_density_is_the_baselines_in_both_models():
+    """``--given-electrons`` (a radar's Ne): both models run in ``electrons = "table"`` mode
+    at the baseline's own solved Ne (its definition), so Δ ln Ne = 0 at every level while
+    the change still moves N2+."""
+    from ionochem.analysis.discern import given_electron_models
+    base = ionochem.Model(ionochem.load_scenario("scenarios/midlatitude_solar_minimum.toml"))
+    changed = changed_model(base, scale={"DR_N2plus_branches": 0.5})
+    ne = base.solve()["density"].sel(species="e").values
+    gb, gc = given_electron_models(base, changed)
+    for m in (gb, gc):
+        assert m.scenario.solve.electrons == "table"
+        np.testing.assert_allclose(m.solve()["density"].sel(species="e").values, ne,
+                                   rtol=1e-10)
+    r = separate(gb, gc, [Observable("N2+")], {}, Uncertain())
+    assert np.nanmax(r.separation) > 0.5
