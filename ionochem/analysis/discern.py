@@ -175,6 +175,19 @@ def parse_environment(text, *, where="--environment"):
     return {k: v for k, v in spreads.items() if v > 1}
 
 
+def check_spreads(spreads, model):
+    """Refuse a spread of an environment factor the model does not have (``n(Ar)`` when
+    Ar reacts nowhere, ``Ti`` when no rate reads it)."""
+    from ionochem.analysis.sensitivity import environment_factors
+    # Te is always a factor; only the names are wanted, not the derivatives.
+    dlnk_te = np.zeros((len(model.altitude_km), len(model.reactions)))
+    known = [f for f, _ in environment_factors(model, dlnk_te)[0]]
+    for name in spreads:
+        if name not in known:
+            raise InputError(f"no environment factor {name!r} in this model (factors: "
+                             f"{', '.join(known)})", file="--environment")
+
+
 def canonical_factor(key):
     """``euv`` → ``EUV``, ``O`` → ``n(O)``; temperatures and ``n(X)`` unchanged."""
     if key.lower() == "euv":

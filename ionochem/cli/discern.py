@@ -134,7 +134,12 @@ def _changes(args):
 
 def cmd_discern(args):
     import ionochem
-    from ionochem.analysis.discern import Uncertain, parse_environment, parse_observables
+    from ionochem.analysis.discern import (
+        Uncertain,
+        check_spreads,
+        parse_environment,
+        parse_observables,
+    )
     from ionochem.analysis.discern_sweep import discern, ranking
     from ionochem.analysis.sweep import check_axes, make_spec
     from ionochem.analysis.sweep_axes import parse_vary
@@ -174,7 +179,7 @@ def cmd_discern(args):
                          "be an observable", file="--observable")
     errors = _errors(args.error, observables)
     uncertain = Uncertain(spreads, args.member_correlation)
-    _check_factors(spreads, base)
+    check_spreads(spreads, base)
     ds = discern(spec, make_changed, observables, errors, uncertain,
                  electrons_given=args.given_electrons, altitude_range=altitudes, bands=bands)
     rows = ranking(ds, args.top)
@@ -211,15 +216,6 @@ def _observable_names(args, model):
         out += [n.replace("O+(total)", "O+") for n in DEFAULT_OBSERVABLES
                 if "O+(total)" in n and "O+" in have]
     return out
-
-
-def _check_factors(spreads, model):
-    from ionochem.analysis.sensitivity import _dlnk, environment_factors
-    known = [f for f, _ in environment_factors(model, _dlnk(model, "Te"))[0]]
-    for name in spreads:
-        if name not in known:
-            raise InputError(f"no environment factor {name!r} in this model (factors: "
-                             f"{', '.join(known)})", file="--environment")
 
 
 def _best_index(ds, rows, spec):
