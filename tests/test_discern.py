@@ -281,3 +281,26 @@ def test_given_electron_density_is_the_baselines_in_both_models():
                                    rtol=1e-10)
     r = separate(gb, gc, [Observable("N2+")], {}, Uncertain())
     assert np.nanmax(r.separation) > 0.5
+
+
+def test_output_file_is_cf_readable(column, tmp_path):
+    """Every variable and coordinate of the discern file (a density and a ratio, with the
+    Monte Carlo check) has a UDUNITS-parsable ``units`` (cf_xarray's pint registry, an
+    outside reference) and a ``long_name``; coordinates carry no _FillValue; ``history``
+    names the command."""
+    from cf_xarray.units import units as cf_units
+    scen = _analytic_scenario(column, 1.2)
+    out = tmp_path / "d.nc"
+    argv = ["discern", str(scen), "--scale", f"L2={C}", "--observable", "O+",
+            "--observable", "O+/e", "--monte-carlo", "20", "-o", str(out)]
+    assert main(argv) == 0
+    with xr.open_dataset(out) as ds:
+        for name, var in {**ds.data_vars, **ds.coords}.items():
+            if var.dtype.kind in "OSU" or {"flag_values"} & set(var.attrs):
+                continue
+            assert "long_name" in var.attrs, name
+            cf_units.Unit(var.attrs["units"])
+        for name in ds.coords:
+            assert ds[name].encoding.get("_FillValue") is None, name
+        assert "log_observable_baseline" in ds and "separation_montecarlo" in ds
+        assert ds.attrs["history"].endswith(" ".join(argv))

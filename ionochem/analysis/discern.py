@@ -146,16 +146,17 @@ def parse_error(text, *, where="--error"):
 
 
 def parse_environment(text, *, where="--environment"):
-    """``"EUV=1.3,n(O)=1.1,Tn=1.05"`` (or ``none``) → spreads, over the defaults.
+    """``"EUV=1.3,n(O)=1.1,Tn=1.05"`` (or ``none``) → (spreads over the defaults, the names
+    given).
 
     Names are the factors of ``sensitivity_environment`` (``Te Ti Tn EUV n(X)``); ``O`` is
     read as ``n(O)``. Each value is a one-sigma factor ≥ 1 (1 switches the factor off).
     """
-    spreads = dict(DEFAULT_SPREADS)
+    spreads, named = dict(DEFAULT_SPREADS), set()
     if text is None:
-        return spreads
+        return spreads, named
     if str(text).strip().lower() == "none":
-        return {}
+        return {}, named
     for item in str(text).split(","):
         key, sep, value = (p.strip() for p in item.partition("="))
         if not item.strip():
@@ -172,20 +173,23 @@ def parse_environment(text, *, where="--environment"):
             raise InputError(f"factor for {key} must be a number >= 1 (a one-sigma "
                              "multiplicative factor)", file=where)
         spreads[canonical_factor(key)] = f
-    return {k: v for k, v in spreads.items() if v > 1}
+        named.add(canonical_factor(key))
+    return {k: v for k, v in spreads.items() if v > 1}, named
 
 
-def check_spreads(spreads, model):
-    """Refuse a spread of an environment factor the model does not have (``n(Ar)`` when
-    Ar reacts nowhere, ``Ti`` when no rate reads it)."""
+def check_spreads(spreads, model, named=()):
+    """The spreads of the factors the model has: a default of a factor it lacks is dropped,
+    a factor the user ``named`` that it lacks (``n(Ar)`` when Ar reacts nowhere, ``Ti``
+    when no rate reads it) is refused."""
     from ionochem.analysis.sensitivity import environment_factors
     # Te is always a factor; only the names are wanted, not the derivatives.
     dlnk_te = np.zeros((len(model.altitude_km), len(model.reactions)))
     known = [f for f, _ in environment_factors(model, dlnk_te)[0]]
-    for name in spreads:
+    for name in named:
         if name not in known:
             raise InputError(f"no environment factor {name!r} in this model (factors: "
                              f"{', '.join(known)})", file="--environment")
+    return {k: v for k, v in spreads.items() if k in known}
 
 
 def canonical_factor(key):

@@ -149,12 +149,14 @@ def add_checks(ds, spec, points, make_changed, observables, errors, uncertain, s
     ds["separation_check_linear"] = (dims, np.array(lin), {**one, "long_name": "linear "
                                      "separation at the check point"})
     ds = ds.assign_coords(check_point=("check_point", np.array(points, int),
-                                       {"long_name": "sweep point index of the check (C "
-                                        "order, first swept dimension outermost)"}))
+                                       {"units": "1", "long_name": "sweep point index of "
+                                        "the check (C order, first swept dimension "
+                                        "outermost)"}))
     for a in spec.axes:
+        attrs = {k: v for k, v in ds[a.name].attrs.items() if k == "units"}
         ds.coords[f"check_{a.name}"] = ("check_point", np.array(
             [point_values(spec.axes, i)[a.key] for i in points]),
-            {"long_name": f"{a.key} at the check point"})
+            {**attrs, "long_name": f"{a.key} at the check point"})
     no_fill_on_coordinates(ds)
     ds.attrs["montecarlo_samples"] = int(samples)
     ds.attrs["montecarlo_seed"] = int(seed)

@@ -152,7 +152,7 @@ def cmd_discern(args):
     if args.bands:
         from ionochem.analysis.compare import parse_bands
         bands = parse_bands(args.bands)
-    spreads = parse_environment(args.environment)
+    spreads, named = parse_environment(args.environment)
     axes = parse_vary(args.vary) if args.vary else ()
     make_changed = _changes(args)
     scen = ionochem.load_scenario(args.scenario)
@@ -178,8 +178,7 @@ def cmd_discern(args):
         raise InputError("the electron density is given with --given-electrons; it cannot "
                          "be an observable", file="--observable")
     errors = _errors(args.error, observables)
-    uncertain = Uncertain(spreads, args.member_correlation)
-    check_spreads(spreads, base)
+    uncertain = Uncertain(check_spreads(spreads, base, named), args.member_correlation)
     ds = discern(spec, make_changed, observables, errors, uncertain,
                  electrons_given=args.given_electrons, altitude_range=altitudes, bands=bands)
     rows = ranking(ds, args.top)
