@@ -92,8 +92,6 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
     var_base = _stack(results, "var_model_baseline", shape)
     var_meas = _stack(results, "var_measurement", shape)
     units = [o.units for o in observables]
-    yu = {"units": units[0]} if len(set(units)) == 1 else {
-        "comment": "units per observable in observable_units"}
     one = {"units": SEPARATION_UNITS}
     data = {
         "separation": (oa, sep, {**one, "long_name": "separation of the changed from the "
@@ -101,9 +99,9 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
                                  "deviation (model uncertainty averaged over the two rate "
                                  "sets, plus measurement error)"}),
         "log_ratio": (oa, lyc - lyb, {**one, "long_name": "ln(y changed / y baseline)"}),
-        "observable_baseline": (oa, np.exp(lyb), {**yu, "long_name": "observable y, "
-                                                  "baseline"}),
-        "observable_changed": (oa, np.exp(lyc), {**yu, "long_name": "observable y, changed"}),
+    }
+    data.update(_observable_values(units, oa, lyb, lyc))
+    data.update({
         "model_log_std": (oa, np.sqrt(var_base), {**one, "long_name": "one-sigma spread of "
                           "ln y of the baseline model from the uncertain rates and "
                           "environment (linear propagation)"}),
@@ -114,7 +112,7 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
                             {"units": "1", "long_name": "1 where the model's spread of ln y "
                              f"exceeds {DOUBTFUL_LOG_SIGMA} and linear propagation is "
                              "doubtful", "flag_values": np.array([0, 1], np.int8),
-                             "flag_meanings": "linear doubtful",
+                             "flag_meanings": "linear_adequate linear_doubtful",
                              "doubtful_log_std": DOUBTFUL_LOG_SIGMA}),
         "separation_profile": (("observable",) + dims, _stack(results, "profile", shape),
                                {**one, "long_name": "whole-profile separation sqrt(d' C^-1 "
@@ -126,7 +124,7 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
         "separation_combined": (dims, np.array([r.combined for r in results]).reshape(shape),
                                 {**one, "long_name": "separation over every observable and "
                                  "chosen altitude at once"}),
-    }
+    })
     coords = {
         "observable": ("observable", np.array([o.name for o in observables], dtype=object),
                        {"long_name": "observable: a density or a ratio of densities"}),
@@ -136,8 +134,10 @@ def _dataset(spec, shape, results, alt, observables, bands, attrs, excluded, unc
                                        "standard_name": "altitude", "positive": "up"}),
         "band": ("band", np.array(list(bands), dtype=object),
                  {"long_name": "altitude band"}),
-        "band_bottom": ("band", np.array([b[0] for b in bands.values()]), {"units": "km"}),
-        "band_top": ("band", np.array([b[1] for b in bands.values()]), {"units": "km"}),
+        "band_bottom": ("band", np.array([b[0] for b in bands.values()]),
+                        {"units": "km", "long_name": "bottom of the altitude band"}),
+        "band_top": ("band", np.array([b[1] for b in bands.values()]),
+                     {"units": "km", "long_name": "top of the altitude band"}),
     }
     for a in spec.axes:
         at = dict(AXIS_ATTRS.get(a.name, {}))
@@ -169,6 +169,22 @@ def no_fill_on_coordinates(ds):
     for name in ds.coords:
         ds[name].encoding["_FillValue"] = None
     return ds
+
+
+def _observable_values(units, dims, lyb, lyc):
+    """y of both models: in their unit when every observable shares one, else as ln y
+    (dimensionless; y in its ``observable_units``), since a CF variable has one unit."""
+    if len(set(units)) == 1:
+        u = {"units": units[0]}
+        return {"observable_baseline": (dims, np.exp(lyb), {**u, "long_name":
+                                        "observable y, baseline"}),
+                "observable_changed": (dims, np.exp(lyc), {**u, "long_name":
+                                       "observable y, changed"})}
+    u = {"units": "1"}
+    return {"log_observable_baseline": (dims, lyb, {**u, "long_name": "ln y of the "
+                                        "baseline, y in its observable_units"}),
+            "log_observable_changed": (dims, lyc, {**u, "long_name": "ln y of the changed "
+                                       "model, y in its observable_units"})}
 
 
 def ranking(ds, top=10):
