@@ -152,6 +152,7 @@ def _numpy_covariance(model, sens, exclude, spreads, name="N2+", over=None):
     return C
 
 
+@pytest.mark.slow
 def test_profile_separation_equals_numpy_full_covariance(demo):
     """Demo column, N2+ DR (both branches, all levels) × 0.5, N2+ over 200–400 km, every
     factor fully shared (ρ = 1): sqrt(Δᵀ (½(C_b + C_c) + D)⁻¹ Δ) equals an independent numpy
@@ -189,6 +190,7 @@ def test_profile_separation_equals_numpy_full_covariance(demo):
                                rtol=1e-8)
 
 
+@pytest.mark.slow
 def test_inert_reaction_switched_off_gives_zero_separation(demo):
     """A reaction among fixed neutrals only (O + O2 -> O + O2, invented) has no effect on
     N2+: switching it off leaves separation 0 at every level, and it is the one reaction
