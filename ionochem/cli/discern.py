@@ -85,19 +85,6 @@ def _check_args(args):
         raise InputError("needs --monte-carlo N", file="--check-point")
 
 
-def _altitudes(text):
-    if text is None:
-        return None
-    lo, sep, hi = text.partition(":")
-    try:
-        out = (float(lo), float(hi))
-    except ValueError:
-        out = None
-    if not sep or out is None or not out[0] < out[1]:
-        raise InputError(f"{text!r} must look like LO:HI with LO < HI (km)", file="--altitudes")
-    return out
-
-
 def _errors(items, observables):
     from ionochem.analysis.discern import MeasurementError, parse_error
     names = [o.name for o in observables]
@@ -147,7 +134,10 @@ def cmd_discern(args):
     files = [*(args.reactions or []), *(args.add or [])] + (
         [args.alternative] if args.alternative else [])
     check_outputs(args, inputs=[args.scenario, *files])
-    altitudes = _altitudes(args.altitudes)
+    altitudes = None
+    if args.altitudes:
+        from ionochem.analysis.rank import parse_altitude_range
+        altitudes = parse_altitude_range(args.altitudes)
     bands = None
     if args.bands:
         from ionochem.analysis.compare import parse_bands
