@@ -52,6 +52,12 @@ COMMANDS = (
       "scenarios/observations/brackenfold_n2plus_ne.csv", "--free", "PI_N2", "--free",
       "N2plus_O_NOplus", "--free", "DR_N2plus", "--constrain-electrons", "--profile",
       "N2plus_O_NOplus", "--profile-points", "9"], "--plot"),
+    ("discern_example.png",
+     ["discern", "scenarios/midlatitude_equinox.toml", "--reactions",
+      "docs/experiments/n2plus_dr_new.reactions", "--observable", "N2+", "--observable",
+      "N2+/O+", "--error", "0.25", "--error", "N2+/O+=0.3", "--vary", "sun.f107=70:230:80",
+      "--vary", "time.local_hour=8:16:4", "--monte-carlo", "200", "--top", "6", "-o",
+      "{tmp}/discern.nc"], "--plot"),
 )
 
 

@@ -20,7 +20,7 @@ from ionochem.errors import Error
 #: Subcommand modules of this package, in the order ``ionochem --help`` lists them; each
 #: has ``register(subparsers)`` which adds its parser and sets ``func``.
 COMMANDS = ("run", "check", "reactions", "compare", "rank", "uncertainty", "fit", "rates",
-            "sweep")
+            "sweep", "discern")
 
 
 def build_parser():
@@ -39,7 +39,7 @@ def build_parser():
 
 #: Commands that never use dask: they run with its import blocked (see _WithoutDask).
 #: Commands that may start a dask cluster (uncertainty, sweep) and new ones are not listed.
-WITHOUT_DASK = ("run", "check", "reactions", "compare", "rank", "fit", "rates")
+WITHOUT_DASK = ("run", "check", "reactions", "compare", "rank", "fit", "rates", "discern")
 
 
 class _WithoutDask:

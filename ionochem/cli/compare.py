@@ -36,14 +36,7 @@ def register(subparsers):
     c = subparsers.add_parser(
         "compare", help="solve a baseline and changed rates on the same column and compare")
     c.add_argument("scenario")
-    add_rate_change_options(c)
-    c.add_argument("--reactions", action="append", metavar="FILE",
-                   help="replacement entries: each replaces the baseline entry of the same id "
-                        "(repeatable)")
-    c.add_argument("--add", action="append", metavar="FILE",
-                   help="entries with new ids, added to the baseline list (repeatable)")
-    c.add_argument("--list", metavar="FILE", dest="alternative",
-                   help="a whole alternative reaction list on the same column")
+    add_change_options(c)
     c.add_argument("--species", action="append", metavar="NAME",
                    help="species summarised (repeatable; any species of the result, family "
                         "levels such as 'N2+(v=1)' included; default the main ions)")
@@ -56,6 +49,19 @@ def register(subparsers):
     add_observed_option(c)
     add_steady_at_option(c)
     c.set_defaults(func=cmd_compare)
+
+
+def add_change_options(c):
+    """The change options of ``compare`` (and ``discern``): ``--set``, ``--scale``,
+    ``--reactions``, ``--add``, ``--list``."""
+    add_rate_change_options(c)
+    c.add_argument("--reactions", action="append", metavar="FILE",
+                   help="replacement entries: each replaces the baseline entry of the same id "
+                        "(repeatable)")
+    c.add_argument("--add", action="append", metavar="FILE",
+                   help="entries with new ids, added to the baseline list (repeatable)")
+    c.add_argument("--list", metavar="FILE", dest="alternative",
+                   help="a whole alternative reaction list on the same column")
 
 
 def baseline_model(args, command):
