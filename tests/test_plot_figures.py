@@ -182,9 +182,10 @@ def test_rank_rows_are_named_by_equation_and_colour_bar_says_what_s_is(model):
     bar chart beside it shares the rows; the colour bar is labelled as the normalized
     sensitivity ∂ln n/∂ln k."""
     sens = model.sensitivity()
-    fig = sensitivity_figure(sens, species=["N2+"], altitude_range=(150, 300), top=6)
+    fig = sensitivity_figure(sens, species=["N2+"], altitude_range=(150, 300), top=6,
+                             members=True)
     heat, bars, cbar = fig.axes[0], fig.axes[1], fig.axes[2]
-    rows = rank_reactions(sens, "N2+", (150, 300), 6)
+    rows = rank_reactions(sens, "N2+", (150, 300), 6, members=True)
     fig.canvas.draw()
     reactions = list(sens["reaction"].values)
     factors = list(sens["factor"].values)
