@@ -335,7 +335,11 @@ def run_examples(draw=False):
             os.chdir(work)
             try:
                 with contextlib.redirect_stdout(io.StringIO()):
-                    runpy.run_path("make_inputs.py", run_name="__main__")
+                    saved, sys.argv = sys.argv, ["make_inputs.py"]   # no caller arguments
+                    try:
+                        runpy.run_path("make_inputs.py", run_name="__main__")
+                    finally:
+                        sys.argv = saved
                 for name, argv in runs:
                     argv = [a.format(root=ROOT) for a in argv]
                     buf = io.StringIO()
