@@ -25,7 +25,7 @@ from pathlib import Path
 
 from ionochem.analysis.bounds import MAX_BOOTSTRAP, MAX_SEED, count_option
 from ionochem.cli.options import Table, check_output
-from ionochem.cli.rates_table import add_ref_option, emit_entries, entry_ref
+from ionochem.cli.rates_table import add_entry_options, emit_entries, entry_ref
 from ionochem.cli.rates_table import register as register_table
 from ionochem.errors import InputError
 
@@ -106,18 +106,7 @@ def _fit_options(p, *, form_flag, required):
                    help="level-row rate table to write (default for `fit`: -o)")
     if form_flag == "--form":
         p.add_argument("-o", "--output", metavar="TABLE.csv", help="level-row rate table")
-    p.add_argument("--entry", metavar="ID", action="append",
-                   help="reaction id of the printed family entry (repeatable: one entry per "
-                        "product channel)")
-    p.add_argument("--reaction", metavar="TEXT", action="append",
-                   help="the reaction of the entry, e.g. 'N2+(v) + e -> N + N' (one per "
-                        "--entry)")
-    p.add_argument("--fraction", metavar="F", action="append", type=float,
-                   help="branching fraction of the entry's channel: k = F*table(...) (one "
-                        "per --entry)")
-    p.add_argument("--write-entry", metavar="FILE.reactions",
-                   help="also write the entry to a reaction-list file (for compare --reactions)")
-    add_ref_option(p)
+    add_entry_options(p)
 
 
 # ------------------------------------------------------------------ option parsing
