@@ -24,10 +24,9 @@ VARIANTS = ["newton", "chord", "krylov"]
 
 
 def _bound(model):
-    """The mechanism's tendency, Jacobian and gross rates on the model's rows, bound as
-    solve_rows binds them (ionochem/mechanism/rows.py)."""
-    from ionochem.mechanism.rows import BoundRows
-    rows = BoundRows(model.mechanism, model._k_static, model.given)
+    """The mechanism's tendency, Jacobian and gross rates on the model's rows, as the
+    column system's chemistry binds them (ionochem/system/chemistry.py)."""
+    rows = model.system.row_processes[0].bound
     return rows.tendency, rows.jacobian, rows.gross
 
 
@@ -43,9 +42,8 @@ def demo():
 
 
 def _solve(demo, linear, stats=None):
-    model, (tend, jac, gross) = demo
-    return C.steady_with_transport(tend, jac, gross, model.transport,
-                                   model.altitude_km.size, linear=linear, stats=stats)
+    model, _ = demo
+    return model.column_system().steady(rtol=1e-10, linear=linear, stats=stats)
 
 
 def _significant(n):
@@ -86,6 +84,7 @@ def ivp_steady(demo):
     return sol.y[:, -1].reshape(B, S)
 
 
+@pytest.mark.slow  # the solve_ivp reference run takes ~30 s
 @pytest.mark.parametrize("linear", VARIANTS)
 def test_variant_matches_solve_ivp_run_to_steady_state(demo, ivp_steady, linear):
     """Reference: the column integrated in time by solve_ivp to t = 1e7 s (fixture
@@ -196,12 +195,11 @@ def test_large_twilight_column_uses_the_chord_and_matches_newton():
     utc = t[i].astype(dt.datetime).replace(tzinfo=dt.UTC)
     model = ionochem.Model(base.replace(time=type(base.time)(utc=utc),
                                         grid=Grid(tuple(np.linspace(90.0, 600.0, 900)))))
-    fns = _bound(model)
     B, S = model.altitude_km.size, len(model.species)
     assert C.default_linear(B * S) == "chord"
     stats = {}
-    res = C.steady_with_transport(*fns, model.transport, B, stats=stats)
-    ref = C.steady_with_transport(*fns, model.transport, B, linear="newton")
+    res = model.column_system().steady(rtol=1e-10, stats=stats)
+    ref = model.column_system().steady(rtol=1e-10, linear="newton")
     assert stats["solvers"] == ["chord"]
     assert np.all(res.residual <= 1e-10)
     big = _significant(ref.n)

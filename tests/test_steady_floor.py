@@ -98,7 +98,7 @@ ion = "profile"
 def test_model_failure_names_scenario_species_and_what_to_try(tmp_path, monkeypatch):
     """A SolverError from the batch solve reaches the user at the scenario file and key
     `solve`, naming the stalled species and suggesting what to try (issue 8, class 6)."""
-    import ionochem.solve.batch as batch
+    from ionochem.system.column import ColumnSystem
 
     def stalled(*args, **kwargs):
         raise SolverError("steady state not reached at 1 level(s): 440 km (largest relative "
@@ -114,7 +114,7 @@ def test_model_failure_names_scenario_species_and_what_to_try(tmp_path, monkeypa
         '[neutrals]\nmodel = "table"\ntable = "n.csv"\n[temperatures]\nelectron = "neutral"\n'
         'ion = "neutral"\n[production]\ntable = "p.csv"\n')
     model = ionochem.Model(ionochem.load_scenario(tmp_path / "s.toml"))
-    monkeypatch.setattr(batch, "solve_rows", stalled)
+    monkeypatch.setattr(ColumnSystem, "steady", stalled)
     with pytest.raises(SolverError) as info:
         model.solve()
     text = str(info.value)

@@ -419,7 +419,7 @@ def test_a_worker_process_that_dies_ends_the_run_with_an_error(column):
 def _failing_solver(monkeypatch, j, threshold):
     """Make the steady solver fail, as it does for a column it cannot bring in, on every row
     whose rate coefficient j exceeds ``threshold`` (a sample drawn far in the tail)."""
-    import ionochem.solve.batch as batch
+    import ionochem.system.batch as batch
     from ionochem.errors import SolverError
     real = batch.solve_rows
 

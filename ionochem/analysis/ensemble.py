@@ -2,7 +2,7 @@
 worker processes (:func:`worker_pool`, also used by sweeps) or on a dask.distributed
 scheduler, with single-threaded BLAS, progress, and a store for resuming.
 
-Every batch goes through one solve path, :func:`ionochem.solve.batch.solve_rows` (the same
+Every batch goes through one solve path, :func:`ionochem.system.batch.solve_rows` (the same
 the model's own steady solve uses). This module works on arrays and a
 :class:`~ionochem.analysis.sampling.SampleKernel`; it never reads files.
 """
@@ -55,7 +55,7 @@ def solve_batch(kernel, z, k_base=None, first=0):
 
 def _solve_samples(kernel, k, given, samples):
     """Solved densities (samples × A, S) of stacked sample columns; raises SolverError."""
-    from ionochem.solve.batch import solve_rows
+    from ionochem.system.batch import solve_rows
     transport = getattr(kernel, "transport", None)
     # Samples start from the central column (without transport a warm start, no fixed-point
     # sweeps).
@@ -387,7 +387,7 @@ def worker_pool(workers, state):
     method = "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
     ctx = mp.get_context(method)
     if method == "forkserver":
-        ctx.set_forkserver_preload(["ionochem.analysis.ensemble", "ionochem.solve.batch",
+        ctx.set_forkserver_preload(["ionochem.analysis.ensemble", "ionochem.system.batch",
                                     "ionochem.mechanism.rows"])
     # The resource tracker (a helper process multiprocessing starts once, with this
     # interpreter's -W options) would print two lines about "leaked semaphores" after a

@@ -13,6 +13,7 @@ import datetime as _dt
 import numpy as np
 import xarray as xr
 
+from ionochem.io.diagnostics import steady_diagnostic_vars
 from ionochem.mechanism.mechanism import THIRD_BODY
 
 VALIDITY_NOTE = (
@@ -171,7 +172,7 @@ def steady_dataset(model, res, method_names):
 
     ``method_names`` maps the solver's method codes to names (the solver's
     ``METHOD_NAMES``); the caller adds the diagnostics
-    (:func:`ionochem.analysis.diagnostics.add_steady_diagnostics`), so this module imports
+    (:func:`ionochem.io.diagnostics.steady_diagnostic_vars`), so this module imports
     neither the solver nor the analyses.
     """
     data_vars, coords, attrs = steady_variables(model, res, method_names)
@@ -447,3 +448,36 @@ def _time_attrs(model):
         return {"units": f"seconds since {since}", "calendar": "standard",
                 "standard_name": "time", "long_name": "time"}
     return {"units": "s", "long_name": "time since the start of the run (no scenario time)"}
+
+
+def steady_result(model, res, method_names):
+    """The result dataset of a steady solve: :func:`steady_variables` and the diagnostics
+    (:func:`ionochem.io.diagnostics.steady_diagnostic_vars`), built as plain dicts and made
+    into one Dataset at the end (no merge per variable)."""
+    data_vars, coords, attrs = steady_variables(model, res, method_names)
+    extra, extra_coords, extra_attrs = steady_diagnostic_vars(
+        model, data_vars["density"][1], data_vars["loss"][1], coords["role"][1],
+        data_vars["reaction_rate"][1], list(coords["species"][1]))
+    data_vars.update(extra)
+    coords.update(extra_coords)
+    attrs.update(extra_attrs)
+    return xr.Dataset(data_vars, coords=result_coordinates(model, coords), attrs=attrs)
+
+
+def result_coordinates(model, coords):
+    """``xarray.Coordinates`` of ``coords`` (name -> (dims, values[, attrs])), reused from the
+    model's last result when equal: building their indexes costs more than the rest of the
+    dataset (pandas indexes of the species and reaction names). Each result gets its own
+    shallow copy (its own attribute dicts)."""
+
+    def token(value):
+        dims, values, *rest = value
+        values = np.asarray(values)
+        data = tuple(values.tolist()) if values.dtype == object else values.tobytes()
+        return dims, values.dtype.str, values.shape, data, repr(rest)
+
+    key = tuple((name, token(value)) for name, value in coords.items())
+    cached = model.__dict__.get("_coords_cache")
+    if cached is None or cached[0] != key:
+        cached = model.__dict__["_coords_cache"] = (key, xr.Coordinates(coords))
+    return cached[1].copy(deep=False)

@@ -1,0 +1,82 @@
+"""What a process of the column system provides.
+
+A process is one physical mechanism that changes the column's state: the chemistry of a
+reaction list, the transport of an ion along the field, (next) the electrons' heating,
+cooling and conduction. The state is an array ``n`` shaped (B, U): B altitude rows (several
+columns stacked row-major when an ensemble solves samples together), U unknowns per row
+(the solved species' densities, then any temperatures).
+
+A process is either
+
+- a **row process**: its tendency at a row depends only on that row's unknowns. It may be
+  evaluated on a subset of rows (the steady Newton drops converged rows), and its Jacobian
+  is one dense (U, U) block per row; or
+- a **coupling process**: linear in the state, with a constant sparse Jacobian that links
+  rows (a discretised flux divergence). It is evaluated on whole columns.
+
+Both kinds give gross production and loss (non-negative, shaped like the state): the steady
+solver's convergence rule measures each residual against them (:mod:`ionochem.solve.steady`).
+
+This module only states the interface; it holds no physics.
+"""
+
+from __future__ import annotations
+
+
+class Process:
+    """Base of the processes of :class:`ionochem.system.column.ColumnSystem`.
+
+    Attributes
+    ----------
+    name : str
+        Short name, used in messages (``"chemistry"``, ``"transport"``).
+    unknowns : tuple of str
+        State blocks the process adds (``("density",)`` for the chemistry, ``()`` for one
+        that only acts on others' unknowns, ``("Te",)`` for an electron energy equation).
+    reads : tuple of str
+        State blocks it reads.
+    couples_rows : bool
+        True for a coupling process (see the module docstring).
+
+    Row processes implement :meth:`tendency`, :meth:`gross` and :meth:`blocks` for a
+    subset ``rows`` (sorted unique row indices; all rows needs no copy) and may offer
+    :meth:`tendency_gross` (both from one evaluation). Coupling processes implement
+    :meth:`tendency` and :meth:`gross` on all rows (``rows`` is then always all of them) and
+    :meth:`coupling`.
+    """
+
+    name = "process"
+    unknowns: tuple[str, ...] = ()
+    reads: tuple[str, ...] = ()
+    couples_rows = False
+
+    def tendency(self, n, rows):
+        """d(state)/dt of this process on ``rows``, shaped (len(rows), U)."""
+        raise NotImplementedError
+
+    def evaluate(self, n):
+        """d(state)/dt of every row as reported (:meth:`ionochem.model.Model.tendency`, the
+        time integration); by default :meth:`tendency` on all rows."""
+        return self.tendency(n, slice(None))
+
+    def gross(self, n, rows):
+        """Gross (production, loss) of this process on ``rows``, each (len(rows), U)."""
+        raise NotImplementedError
+
+    def tendency_gross(self, n, rows):
+        """``(tendency, production, loss)`` from one evaluation (default: two calls)."""
+        P, L = self.gross(n, rows)
+        return self.tendency(n, rows), P, L
+
+    def blocks(self, n, rows):
+        """Row process: Jacobian blocks J[b, i, j] = ∂f_{b,i}/∂n_{b,j}, (len(rows), U, U)."""
+        raise NotImplementedError
+
+    def coupling(self, n_columns):
+        """Coupling process: its constant Jacobian, scipy.sparse (B·U, B·U) for
+        ``n_columns`` stacked columns (entry (b·U + i, c·U + j) = ∂f_{b,i}/∂n_{c,j})."""
+        raise NotImplementedError
+
+    def at(self, time_s):
+        """The process at a time after the scenario's (the sun moves); default itself."""
+        return self
