@@ -23,6 +23,8 @@ _LAZY = {
     "load_observations": "ionochem.io.observations",
     "load_reaction_list": "ionochem.model",
     "load_scenario": "ionochem.model",
+    "run": "ionochem.runner",
+    "run_model": "ionochem.runner",
 }
 
 __all__ = [

@@ -17,24 +17,25 @@ import numpy as np
 import xarray as xr
 
 from ionochem.environment.column import build_environment
-from ionochem.errors import InputError, MechanismError, SolverError
+from ionochem.errors import MechanismError, SolverError
 from ionochem.io.dataset import species_table, steady_result, transient_dataset
 from ionochem.io.scenario import load_scenario
 from ionochem.mechanism.bounds import implausible_rates
-from ionochem.mechanism.expressions import compile_expression
 from ionochem.mechanism.parser import parse_reaction_list
 from ionochem.mechanism.units import analysis_units
 from ionochem.solve.steady import METHOD_NAMES
 from ionochem.solve.threads import single_thread_blas
-from ionochem.solve.transport import SpeciesTransport, transport_operator
 from ionochem.system import Chemistry, ColumnSystem, Transport
 from ionochem.system.assembly import (
     RowLabels,
     compile_mechanism,
     given_densities,
     list_warnings,
+    solver_failure,
 )
+from ionochem.system.changes import apply_changes
 from ionochem.system.rates import ColumnRates, environment_needs
+from ionochem.system.transport import species_transport
 
 __all__ = ["Model", "load_mechanism", "load_reaction_list", "load_scenario"]
 
@@ -90,14 +91,14 @@ class Model:
             raise MechanismError("the reaction list holds no reactions",
                                  file=getattr(rl, "path", None) or scenario.reactions)
         self.reactions = [r.id for r in self._rxns]
-        self._id_index = {r.id: j for j, r in enumerate(self._rxns)}
         changes = _changes or (dict(scenario.changes.set), dict(scenario.changes.scale),
                                "scenario", {})
         self.changes = {"set": dict(changes[0]), "scale": dict(changes[1])}
         self._set_dirs = dict(changes[3])  # folder each --set expression's tables resolve in
         self._k_expr = [r.k for r in self._rxns]
         self._scale = np.ones(len(self._rxns))
-        self._apply_changes(*changes[:3])
+        apply_changes(self._rxns, rl, self.units, self._k_expr, self._scale,
+                      (*changes[:3], self._set_dirs), where=scenario.source)
         self._needs = environment_needs(self._rxns, self._k_expr)
         env = self.environment = environment or build_environment(scenario, self._needs)
         self.mechanism = compile_mechanism(rl, scenario, env)
@@ -109,7 +110,7 @@ class Model:
         self._rates = ColumnRates(self._rxns, self._k_expr, self._scale, env,
                                   getattr(rl, "default_f", None))
         self.warnings += implausible_rates(self._rxns, self._rates.static)
-        self.transport = self._species_transport()
+        self.transport = species_transport(scenario, env, self.species, rl.path)
 
     # ---------------------------------------------------------------- description
     @property
@@ -136,8 +137,8 @@ class Model:
         return self._needs
 
     def species_table(self, n_solved):
-        """All reported densities from solved ones: ``(dens, names, roles)``; ``n_solved``
-        shaped (..., altitude, solved species), ``dens`` (..., altitude, reported species)."""
+        """``(dens, names, roles)`` of all reported densities from solved ones (..., altitude,
+        solved species): electrons, fixed neutrals and derived totals added."""
         return species_table(self, n_solved)
 
     def structural(self, name, build):
@@ -151,36 +152,6 @@ class Model:
         return store[name]
 
     # ---------------------------------------------------------------- changes
-    def _ids_for(self, key, where=None):
-        if key in self._id_index:
-            return [self._id_index[key]]
-        for fam, members in getattr(self.reaction_list, "families", {}).items():
-            if key in (fam, fam.split("(")[0]):
-                return [self._id_index[m] for m in members]
-        for unit in self.units:
-            if unit.name == key:
-                return [self._id_index[m] for m in unit.members]
-        raise InputError(f"no reaction with id {key!r} in {self.reaction_list.path}",
-                         file=where)
-
-    def _apply_changes(self, set_dict, scale, origin):
-        path = self.reaction_list.path
-        base_dir = Path(path).parent if path else Path(".")
-        for key, text in set_dict.items():
-            where = self.scenario.source if origin == "scenario" else "--set"
-            for j in self._ids_for(key, where):
-                self._k_expr[j] = compile_expression(str(text), file=where, line=None,
-                                                     base_dir=self._set_dirs.get(key, base_dir),
-                                                     level=self._rxns[j].level)
-        for key, factor in scale.items():
-            factor = float(factor)
-            where = self.scenario.source if origin == "scenario" else "--scale"
-            if not np.isfinite(factor) or factor < 0:
-                raise InputError(f"scale factor for {key} must be a non-negative number",
-                                 file=where)
-            for j in self._ids_for(key, where):
-                self._scale[j] *= factor
-
     def with_changes(self, set_dict=None, scale=None, *, base_dir=None):
         """A new model with some rate expressions replaced and some rates scaled.
 
@@ -203,6 +174,13 @@ class Model:
             new = Model(self.scenario, self.reaction_list, _changes=changes)
         return new
 
+    def at_time(self, utc):
+        """The same model (reaction list, every change) at another scenario time (an aware
+        UTC datetime): a new environment, the sun and neutrals of that time."""
+        scen = self.scenario.replace(time=type(self.scenario.time)(utc=utc))
+        return Model(scen, self.reaction_list, _changes=(
+            self.changes["set"], self.changes["scale"], "api", self._set_dirs))
+
     # ---------------------------------------------------------------- rates
     def rate_coefficients(self, time_s=None, *, temperatures=None):
         """Rate coefficients k, shape (altitude, reaction), in cm3 s-1 / s-1 / cm6 s-1.
@@ -222,21 +200,6 @@ class Model:
         """Tabulated (low, high) bands of k where a table rate has them: {index: (A,), (A,)}."""
         return self._rates.bands()
 
-    def _species_transport(self):
-        """The transport operator of the moving species, or None (photochemical column)."""
-        coef = getattr(self.environment, "transport", None)
-        if coef is None:
-            return None
-        names = self.scenario.transport.species
-        for name in names:
-            if name not in self.species:
-                raise MechanismError(
-                    f"[transport] moves {name}, but {name} is not a solved species of "
-                    f"{self.reaction_list.path}", file=self.scenario.source)
-        op = transport_operator(coef.altitude_km, coef.D_cm2_s, coef.V_cm_s,
-                                coef.upper_flux_cm2_s)
-        return SpeciesTransport(op, self.species.index(names[0]), len(self.species))
-
     # ---------------------------------------------------------------- the system
     def column_system(self, k=None, given=None):
         """The column system of this model's processes on rows with rate coefficients ``k``
@@ -255,7 +218,7 @@ class Model:
 
     @property
     def system(self):
-        """The model's own column system (kept; rebuilt if :attr:`transport` is replaced)."""
+        """The model's own column system (kept; rebuilt if :attr:`transport` changes)."""
         kept = self.__dict__.get("_system")
         if kept is None or kept[0] is not self.transport:
             kept = self._system = (self.transport, self.column_system())
@@ -289,16 +252,7 @@ class Model:
             with single_thread_blas():  # batches of small matrices (solve/threads.py)
                 return sys.steady(rtol=rtol)
         except SolverError as exc:
-            hints = ([f"relax solve.rtol (now {rtol:g}; 1e-10 is the default)"]
-                     if rtol < 1e-12 else [])
-            hints += ["check the rates of the reactions that make and destroy "
-                      f"{', '.join(dict.fromkeys(exc.species)) or 'those species'} at these "
-                      "heights (`ionochem reactions SCENARIO --altitude KM`)",
-                      "or run the column with [solve] mode = \"transient\" to see whether it "
-                      "settles"]
-            raise SolverError(f"{exc.message}; try: {'; '.join(hints)}",
-                              file=self.scenario.source, key="solve", levels=exc.levels,
-                              species=exc.species) from None
+            raise solver_failure(exc, rtol, self.scenario.source) from None
 
     def solve(self):
         """Steady state at every altitude → ``xarray.Dataset`` (photochemical equilibrium

@@ -20,13 +20,15 @@ This module works on a built model; it must not read files.
 
 from __future__ import annotations
 
+import datetime as dt
+
 import numpy as np
 
+from ionochem.environment.geometry import local_solar_time_h, utc_at_local_solar_time
+from ionochem.errors import InputError, ScenarioError
+from ionochem.io.scenario.ranges import MAX_DIURNAL_DAYS as MAX_DAYS
+
 DAY_S = 86400.0
-#: Most days a diurnal run integrates: a year; neutrals and the sun's activity are held
-#: fixed, so longer runs mean nothing, and two or three days reach a repeating day
-#: *(common practice)*.
-MAX_DAYS = 366
 #: Density floor of the day-to-day change, cm-3 (below it a species is absent).
 CHANGE_FLOOR_CM3 = 1.0
 
@@ -41,7 +43,6 @@ def diurnal_times(days: int, step_s: float) -> np.ndarray:
 
 def check_days(days):
     """Days of a diurnal run: a whole number from 1 to :data:`MAX_DAYS` (``--days``)."""
-    from ionochem.errors import InputError
     if isinstance(days, bool) or not float(days).is_integer() or not 1 <= days <= MAX_DAYS:
         raise InputError(f"{days} days: give a whole number from 1 to {MAX_DAYS}",
                          file="--days")
@@ -49,7 +50,6 @@ def check_days(days):
 
 def check_step(step_minutes: float):
     """Minutes between outputs: a divisor of a day's 1440 minutes, at least 1."""
-    from ionochem.errors import InputError
     if not np.isfinite(step_minutes) or step_minutes < 1 or step_minutes > 1440:
         raise InputError("the output step must lie between 1 and 1440 minutes",
                          file="--step-minutes")
@@ -100,3 +100,32 @@ def diurnal_dataset(model, days: int, step_s: float):
     out.attrs["diurnal_days"] = int(days)
     out.attrs["diurnal_step_s"] = float(step_s)
     return out
+
+
+def diurnal_start_utc(scenario, days: int):
+    """UTC of the local apparent midnight that starts a ``days``-day run ending with the
+    scenario's local (solar) day, as an aware datetime.
+
+    Raises
+    ------
+    ScenarioError
+        At ``time`` or ``location`` when the scenario lacks the date or the longitude.
+    """
+    if scenario.time is None:
+        raise ScenarioError("a diurnal run needs [time] utc (it gives the date)",
+                            file=scenario.source, key="time")
+    if scenario.location is None:
+        raise ScenarioError("a diurnal run needs [location] (the longitude sets local time)",
+                            file=scenario.source, key="location")
+    lon = float(scenario.location.longitude_deg)
+    lon = lon - 360.0 if lon > 180.0 else lon
+    utc = np.datetime64(scenario.time.utc.replace(tzinfo=None), "us")
+    # Local solar time = UTC + offset, the offset within minutes of longitude / 15 h (the
+    # equation of time is under 17 min): that fixes the local date.
+    tod = float((utc - utc.astype("datetime64[D]")) / np.timedelta64(1, "h"))
+    offset = float(local_solar_time_h(utc, lon)) - tod
+    offset += 24.0 * round((lon / 15.0 - offset) / 24.0)
+    local = utc + np.timedelta64(int(round(offset * 3.6e9)), "us")
+    date = local.astype("datetime64[D]") - np.timedelta64(int(days) - 1, "D")
+    start = utc_at_local_solar_time(date, 0.0, lon)
+    return start.astype(dt.datetime).replace(tzinfo=dt.timezone.utc)

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import dataclasses
 import sys
 
+from ionochem.cli.limits import check_transient
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     DEFAULT_REPORT_KM,
@@ -57,7 +59,7 @@ def register(subparsers):
 
 def parse_km_list(text, flag="--altitudes"):
     """``"100,150.5"`` → ``[100.0, 150.5]`` (km)."""
-    import numpy as np
+    import numpy as np  # lazy, see cmd_run
     out = []
     for item in str(text).split(","):
         item = item.strip()
@@ -76,8 +78,9 @@ def parse_km_list(text, flag="--altitudes"):
 
 
 def cmd_run(args):
-    import numpy as np
-
+    # Lazy: every command's parser is registered at start-up (cli/__init__.py); the model,
+    # numpy and xarray load only when a run starts (tests/test_cli_imports.py).
+    from ionochem.runner import run_model
     check_outputs(args, inputs=[args.scenario])
     check_output(args.csv, "--csv")
     check_output(getattr(args, "plot_levels", None), "--plot-levels", figure=True,
@@ -91,19 +94,17 @@ def cmd_run(args):
     check_budgets(budgets, model)
     check_observed(observed, model)
     print_warnings(model.warnings)
-    transient = scen.solve.mode == "transient"
+    transient = scen.solve.mode in ("transient", "diurnal")
     if transient and getattr(args, "plot_levels", None):
-        raise InputError("--plot-levels needs a steady run (solve.mode is 'transient')",
-                         file="--plot-levels")
+        raise InputError(f"--plot-levels needs a steady run (solve.mode is "
+                         f"'{scen.solve.mode}')", file="--plot-levels")
     if transient:
-        from ionochem.cli.limits import check_transient
-        check_transient(scen, len(model.species), len(model.reactions),
+        check_transient(_with_output_times(scen), len(model.species), len(model.reactions),
                         allow_long=args.allow_long)
-        initial = model.solve() if scen.solve.start == "steady" else None
-        ds = model.integrate(np.asarray(scen.solve.times_s, float), initial=initial)
+    ds = run_model(model)
+    if transient:
         table = transient_table(ds, heights[0] if heights else 200.0)
     else:
-        ds = model.solve()
         table = density_table(ds, heights or DEFAULT_REPORT_KM)
     stamp_history(ds, args)
     print(ds.attrs.get("title", ""))
@@ -140,15 +141,16 @@ def cmd_run(args):
         from ionochem.analysis.budget import budget_table, format_budget
         at = ds
         if transient:
-            at = ds.isel(time=-1)
+            at = ds.isel({"local_hour" if "local_hour" in ds.dims else "time": -1})
             print(f"budgets at the last output time, t = {float(at['time_s']):g} s")
         for name, km in budgets:
             print(format_budget(budget_table(at, name, km, members=args.members)))
     write_outputs(args, ds, table)
     if args.plot:
-        if transient and heights:
+        if transient and (heights or "local_hour" in ds.dims):
             from ionochem.plot.profiles import plot_time_series
-            plot_time_series(ds, args.plot, altitudes_km=heights)
+            plot_time_series(_on_time_axis(ds), args.plot,
+                             altitudes_km=heights or (120.0, 200.0, 300.0))
         else:
             from ionochem.plot.profiles import plot_result
             plot_result(ds, args.plot, observed=observed)
@@ -170,15 +172,36 @@ def density_table(ds, heights):
     return table
 
 
+def _with_output_times(scen):
+    """The scenario with the output times its run makes (a diurnal run's from its days and
+    step), for the bounds of :func:`check_transient`."""
+    if scen.solve.mode != "diurnal":
+        return scen
+    from ionochem.analysis.diurnal import diurnal_times  # lazy, see cmd_run
+    times = diurnal_times(scen.solve.days, scen.solve.step_minutes * 60.0)
+    return scen.replace(solve=dataclasses.replace(scen.solve, times_s=tuple(times)))
+
+
+def _on_time_axis(ds):
+    """A diurnal result on a ``time`` axis of seconds since the run's start (for the time
+    series figure, which reads ``time``)."""
+    if "local_hour" not in ds.dims:
+        return ds
+    return ds.swap_dims(local_hour="time_s").rename(time_s="time")
+
+
 def transient_table(ds, height_km):
-    """The main densities (cm-3) against time at the level nearest ``height_km``."""
-    import numpy as np
+    """The main densities (cm-3) against time at the altitude nearest ``height_km``."""
+    import numpy as np  # lazy, see cmd_run
     species = [s for s in MAIN_SPECIES if s in ds["species"].values]
     alt = ds["altitude"].values
     a = float(alt[np.argmin(np.abs(alt - height_km))])
-    table = Table([f"time_s (at {a:g} km)", *species])
-    seconds = ds["time_s"].values if "time_s" in ds else ds["time"].values
+    diurnal = "local_hour" in ds.dims
+    table = Table([f"{'local_hour' if diurnal else 'time_s'} (at {a:g} km)", *species])
+    axis = "local_hour" if diurnal else "time"
+    seconds = ds["local_hour"].values if diurnal else (
+        ds["time_s"].values if "time_s" in ds else ds["time"].values)
     for i, t in enumerate(seconds):
-        vals = ds["density"].isel(time=i).sel(altitude=a, species=species).values
+        vals = ds["density"].isel({axis: i}).sel(altitude=a, species=species).values
         table.add(f"{float(t):.1f}", *(fmt_value(v).strip() for v in vals))
     return table

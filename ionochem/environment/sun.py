@@ -147,7 +147,7 @@ class SunColumn:
         self.msis_profile = profile
         # Absorber densities on the grid, for photoelectron sharing.
         self.local = {k: env.neutrals[k] for k in ("N2", "O2", "O") if k in env.neutrals}
-        self.time_dependent = scenario.solve.mode == "transient"
+        self.time_dependent = scenario.solve.mode in ("transient", "diurnal")
         # Rates at lattice times, most recent last; bounded so a long run's memory is too.
         self._cache = collections.OrderedDict()
         self.photon_sources = [spectrum.source]

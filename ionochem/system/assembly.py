@@ -12,7 +12,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from ionochem.errors import MechanismError, ScenarioError
+from ionochem.errors import MechanismError, ScenarioError, SolverError
 from ionochem.io.checks import balance_ion_problem
 from ionochem.mechanism.mechanism import ELECTRON, THIRD_BODY, Mechanism
 
@@ -95,3 +95,17 @@ def list_warnings(reaction_list, environment):
     return [w for w in getattr(reaction_list, "warnings", [])
             if not any(str(getattr(w, "message", w)).startswith(f"{n} is produced")
                        for n in environment.neutrals)]
+
+
+def solver_failure(exc, rtol, scenario_file):
+    """A steady solver's ``SolverError`` at the scenario's file and key ``solve``, with
+    what to try."""
+    hints = ([f"relax solve.rtol (now {rtol:g}; 1e-10 is the default)"]
+             if rtol < 1e-12 else [])
+    hints += ["check the rates of the reactions that make and destroy "
+              f"{', '.join(dict.fromkeys(exc.species)) or 'those species'} at these "
+              "heights (`ionochem reactions SCENARIO --altitude KM`)",
+              "or run the column with [solve] mode = \"transient\" to see whether it "
+              "settles"]
+    return SolverError(f"{exc.message}; try: {'; '.join(hints)}", file=scenario_file,
+                       key="solve", levels=exc.levels, species=exc.species)

@@ -7,6 +7,8 @@ Jacobian is a constant sparse matrix that links each altitude row to its neighbo
 
 from __future__ import annotations
 
+from ionochem.errors import MechanismError
+from ionochem.solve.transport import SpeciesTransport, transport_operator
 from ionochem.system.process import Process
 
 
@@ -40,3 +42,25 @@ class Transport(Process):
 
     def coupling(self, n_columns):
         return self.operator.matrix(n_columns)
+
+
+def species_transport(scenario, environment, species, reaction_path):
+    """The transport operator of the scenario's moving species on the environment's column
+    (``SpeciesTransport``), or None for a photochemical column.
+
+    Raises
+    ------
+    MechanismError
+        When ``[transport]`` moves a species the list does not solve.
+    """
+    coef = getattr(environment, "transport", None)
+    if coef is None:
+        return None
+    names = scenario.transport.species
+    for name in names:
+        if name not in species:
+            raise MechanismError(f"[transport] moves {name}, but {name} is not a solved "
+                                 f"species of {reaction_path}", file=scenario.source)
+    op = transport_operator(coef.altitude_km, coef.D_cm2_s, coef.V_cm_s,
+                            coef.upper_flux_cm2_s)
+    return SpeciesTransport(op, list(species).index(names[0]), len(species))

@@ -13,7 +13,12 @@ import datetime as dt
 import numpy as np
 
 from ionochem.io.checks import balance_ion_problem
-from ionochem.io.scenario.ranges import MAX_LEVELS, YEAR_RANGE, check_range
+from ionochem.io.scenario.ranges import (
+    MAX_DIURNAL_DAYS,
+    MAX_LEVELS,
+    YEAR_RANGE,
+    check_range,
+)
 from ionochem.io.scenario.sections import (
     GRID_TOLERANCE,
     MODELS_WITHOUT_NO,
@@ -230,9 +235,11 @@ class SchemaValidator(ValueChecks):
     def solve(self, value) -> Solve:
         key = "solve"
         sec = self.table(value, key, ("mode", "times_s", "electrons", "electron_table",
-                                      "balance_ion", "rtol", "start"))
-        mode = self.choice(sec.get("mode", "steady"), f"{key}.mode", ("steady", "transient"))
+                                      "balance_ion", "rtol", "start", "days", "step_minutes"))
+        mode = self.choice(sec.get("mode", "steady"), f"{key}.mode",
+                           ("steady", "transient", "diurnal"))
         times = None
+        days, step = 2, 15.0
         if mode == "transient":
             if "times_s" not in sec:
                 raise self.fail(f"{key}.times_s", "is required when mode = 'transient'")
@@ -242,6 +249,11 @@ class SchemaValidator(ValueChecks):
             self.inapplicable(sec, "times_s", key, "mode = 'transient'")
             self.inapplicable(sec, "start", key, "mode = 'transient'")
             start = "zero"
+        if mode == "diurnal":
+            days, step = self.diurnal(sec, key)
+        else:
+            for name in ("days", "step_minutes"):
+                self.inapplicable(sec, name, key, "mode = 'diurnal'")
         electrons = self.choice(sec.get("electrons", "neutrality"), f"{key}.electrons",
                                 ("neutrality", "table"))
         etable, balance = None, "O+"
@@ -259,7 +271,23 @@ class SchemaValidator(ValueChecks):
                 self.inapplicable(sec, name, key, "electrons = 'table'")
         rtol = self.physical(sec.get("rtol", 1e-10), f"{key}.rtol")
         return Solve(mode=mode, times_s=times, electrons=electrons, electron_table=etable,
-                     balance_ion=balance, rtol=rtol, start=start)
+                     balance_ion=balance, rtol=rtol, start=start, days=days,
+                     step_minutes=step)
+
+    def diurnal(self, sec, key):
+        """``days`` (whole, 1 to MAX_DIURNAL_DAYS, default 2) and ``step_minutes`` (a divisor of a
+        day's 1440 minutes, default 15) of a diurnal run."""
+        days = sec.get("days", 2)
+        if isinstance(days, bool) or not isinstance(days, int) \
+                or not 1 <= days <= MAX_DIURNAL_DAYS:
+            raise self.fail(f"{key}.days", f"must be a whole number of days from 1 to "
+                                           f"{MAX_DIURNAL_DAYS}")
+        step = sec.get("step_minutes", 15)
+        if isinstance(step, bool) or not isinstance(step, (int, float)) \
+                or not 1 <= step <= 1440 or abs(1440 / step - round(1440 / step)) > 1e-9:
+            raise self.fail(f"{key}.step_minutes", "must divide a day (1440 minutes) into "
+                                                   "whole steps of at least 1 minute")
+        return days, float(step)
 
     def changes(self, value) -> Changes:
         key = "changes"

@@ -154,6 +154,11 @@ class Solve:
     start : str
         Initial state of a transient run: ``"zero"`` (no ions, default) or ``"steady"``
         (photochemical equilibrium at the scenario's time, t = 0).
+    days : int
+        Days a ``"diurnal"`` run integrates from local apparent midnight (default 2; the
+        last one is reported).
+    step_minutes : float
+        Minutes between a diurnal run's outputs, a divisor of 1440 (default 15).
     """
 
     mode: str = "steady"
@@ -163,6 +168,8 @@ class Solve:
     balance_ion: str = "O+"
     rtol: float = 1e-10
     start: str = "zero"
+    days: int = 2
+    step_minutes: float = 15.0
 
 
 @dataclass(frozen=True)
