@@ -363,7 +363,7 @@ def test_solver_raises_naming_the_levels_it_cannot_solve():
 
     with pytest.raises(ionochem.SolverError) as err:
         solve_steady(np.zeros((3, 1)), tendency, jacobian, gross, max_continuation=50,
-                     level_names=["100 km", "200 km", "300 km"])
+                     row_labels=["100 km", "200 km", "300 km"])
     assert list(err.value.levels) == ["100 km", "300 km"]
     assert "100 km" in str(err.value) and "200 km" not in str(err.value)
 

@@ -57,7 +57,7 @@ def test_failure_names_the_stalled_species():
     with pytest.raises(SolverError) as info:
         solve_steady(np.zeros((2, 1)), *_one_ion(q), rtol=1e-300, max_newton=3,
                      max_continuation=3,
-                     level_names=["100 km", "200 km"], species_names=["NO+"])
+                     row_labels=["100 km", "200 km"], species_names=["NO+"])
     assert info.value.levels == ("100 km", "200 km")
     assert info.value.species == ("NO+", "NO+")
     assert "stalled: NO+" in str(info.value)

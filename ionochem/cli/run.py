@@ -110,28 +110,7 @@ def cmd_run(args):
     print(ds.attrs.get("title", ""))
     print(table.text())
     if not transient:
-        bal = ds.attrs.get("column_balance")
-        if "column_ionization_cm2_s" in ds.attrs:
-            tail = (f"(balance {bal:.1e})" if bal is not None else
-                    "(at the given electron density, which this column's ionization does not "
-                    "make: no balance expected)")
-            print(f"column ionization {ds.attrs['column_ionization_cm2_s']:.4e} cm-2 s-1, "
-                  f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1 "
-                  + tail)
-        for note in ds.attrs.get("warnings", "").split("; "):
-            if note and note not in model.warnings:
-                print(f"warning: {note}", file=sys.stderr)
-        dark = ds["dark"].values.astype(bool)
-        from ionochem.io.plausibility import peak_above_grid
-        names = [str(s) for s in ds["species"].values]
-        if "e" in names:
-            top = peak_above_grid(ds["altitude"].values,
-                                  ds["density"].sel(species="e").values, dark)
-            if top:
-                print(f"warning: {top}", file=sys.stderr)
-        if dark.any() and not dark.all():
-            print(f"{int(dark.sum())} dark level(s) below "
-                  f"{ds['altitude'].values[dark].max():g} km", file=sys.stderr)
+        _print_steady_notes(ds, model)
     if observed is not None:
         from ionochem.analysis.misfit import misfit_of_dataset
         if transient:
@@ -162,8 +141,35 @@ def cmd_run(args):
     return 0
 
 
+def _print_steady_notes(ds, model):
+    """The column's ionization balance, the result's own warnings, a peak above the grid
+    and the dark altitudes of a steady run (stdout and stderr)."""
+    bal = ds.attrs.get("column_balance")
+    if "column_ionization_cm2_s" in ds.attrs:
+        tail = (f"(balance {bal:.1e})" if bal is not None else
+                "(at the given electron density, which this column's ionization does not "
+                "make: no balance expected)")
+        print(f"column ionization {ds.attrs['column_ionization_cm2_s']:.4e} cm-2 s-1, "
+              f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1 "
+              + tail)
+    for note in ds.attrs.get("warnings", "").split("; "):
+        if note and note not in model.warnings:
+            print(f"warning: {note}", file=sys.stderr)
+    dark = ds["dark"].values.astype(bool)
+    from ionochem.io.plausibility import peak_above_grid
+    names = [str(s) for s in ds["species"].values]
+    if "e" in names:
+        top = peak_above_grid(ds["altitude"].values,
+                              ds["density"].sel(species="e").values, dark)
+        if top:
+            print(f"warning: {top}", file=sys.stderr)
+    if dark.any() and not dark.all():
+        print(f"{int(dark.sum())} dark altitude(s) below "
+              f"{ds['altitude'].values[dark].max():g} km", file=sys.stderr)
+
+
 def density_table(ds, heights):
-    """The main densities (cm-3) at the grid levels nearest ``heights``."""
+    """The main densities (cm-3) at the grid altitudes nearest ``heights``."""
     species = [s for s in MAIN_SPECIES if s in ds["species"].values]
     table = Table(["alt_km", *species])
     for a in report_levels(ds["altitude"].values, heights):

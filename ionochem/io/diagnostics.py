@@ -89,11 +89,26 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
     data_vars, coords, attrs : dict
         Name -> (dims, values, attrs) variables, coordinates and global attributes.
     """
-    env = model.environment
-    mech = model.mechanism
-    out = {}
-    coords = {}
-    attrs = {}
+    out, coords, attrs = {}, {}, {}
+    notes = list(model.warnings)
+    out.update(_lifetime_vars(model, dens, loss, roles, species))
+    _emission_vars(model, rates, out, coords)
+    _electron_balance(model, rates, out, attrs)
+    _light_vars(model, out, notes)
+    _balance_ion_vars(model, dens, species, out, notes)
+    attrs["warnings"] = "; ".join(str(n) for n in notes)
+    return out, coords, attrs
+
+
+def _given_ne(model):
+    """True when the electron density is given (``electrons = "table"``)."""
+    return (model.environment.electron_density is not None
+            and model.mechanism.balance_ion is not None)
+
+
+def _lifetime_vars(model, dens, loss, roles, species):
+    """``lifetime``, ``diffusion_time`` and ``pce_doubtful``."""
+    env, mech, out = model.environment, model.mechanism, {}
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         life = np.where(loss > 0, dens / loss, np.inf)
     life[np.asarray(roles) == "fixed"] = np.nan
@@ -110,21 +125,23 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
         # Transported species are not assumed in equilibrium, nor the electrons and totals
         # that follow them: the flag concerns the species still solved locally.
         moved = set(model.scenario.transport.species)
-        names = list(species)
         for tot in mech.derived:
             if moved & set(tot.members):
                 moved.add(tot.name)
         moved.add(ELECTRON)
-        for i, name in enumerate(names):
+        for i, name in enumerate(species):
             if name in moved:
                 doubtful[i] = False
     out["pce_doubtful"] = (("species", "altitude"), doubtful.astype(np.int8),
                            {"long_name": "photochemical equilibrium doubtful: lifetime longer "
                             "than the diffusion time", "flag_values": np.array([0, 1], np.int8),
                             "flag_meanings": "equilibrium_plausible equilibrium_doubtful"})
+    return out
 
-    ver = []
-    labels = []
+
+def _emission_vars(model, rates, out, coords):
+    """``volume_emission_rate`` and its ``emission`` coordinates (when the list has them)."""
+    ver, labels = [], []
     for name, label, found in model.structural("emission_reactions",
                                                lambda: emission_reactions(model)):
         total = np.zeros(rates.shape[1])
@@ -140,57 +157,69 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
         coords["emission_line"] = ("emission", np.array([lab for _, lab in labels],
                                                         dtype=object))
 
-    given_ne = env.electron_density is not None and mech.balance_ion is not None
-    # Ionization–recombination balance from the electron row of the stoichiometry.
-    if ELECTRON in mech.all_species:
-        nu_e = mech.nu_all[mech.index(ELECTRON)]
-        ion = np.clip(nu_e, 0, None) @ rates
-        rec = np.clip(-nu_e, 0, None) @ rates
-        out["ionization_rate"] = ("altitude", ion, {"units": "cm-3 s-1",
-                                                    "long_name": "electron production"})
-        out["recombination_rate"] = ("altitude", rec, {"units": "cm-3 s-1",
-                                                       "long_name": "electron loss"})
-        z_cm = env.altitude_km * 1e5
-        col_ion = np.trapezoid(ion, z_cm) if ion.size > 1 else float(ion.sum())
-        col_rec = np.trapezoid(rec, z_cm) if rec.size > 1 else float(rec.sum())
-        attrs["column_ionization_cm2_s"] = float(col_ion)
-        attrs["column_recombination_cm2_s"] = float(col_rec)
-        # With a given electron density (electrons = "table") the electrons are not made
-        # by this column's ionization, so ionization and recombination need not balance:
-        # their ratio is no check of the solution and is not reported.
-        if not given_ne:
-            attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
-                else 0.0
 
+def _electron_balance(model, rates, out, attrs):
+    """Ionization–recombination balance from the electron row of the stoichiometry."""
+    env, mech = model.environment, model.mechanism
+    if ELECTRON not in mech.all_species:
+        return
+    nu_e = mech.nu_all[mech.index(ELECTRON)]
+    ion = np.clip(nu_e, 0, None) @ rates
+    rec = np.clip(-nu_e, 0, None) @ rates
+    out["ionization_rate"] = ("altitude", ion, {"units": "cm-3 s-1",
+                                                "long_name": "electron production"})
+    out["recombination_rate"] = ("altitude", rec, {"units": "cm-3 s-1",
+                                                   "long_name": "electron loss"})
+    z_cm = env.altitude_km * 1e5
+    col_ion = np.trapezoid(ion, z_cm) if ion.size > 1 else float(ion.sum())
+    col_rec = np.trapezoid(rec, z_cm) if rec.size > 1 else float(rec.sum())
+    attrs["column_ionization_cm2_s"] = float(col_ion)
+    attrs["column_recombination_cm2_s"] = float(col_rec)
+    # With a given electron density (electrons = "table") the electrons are not made by
+    # this column's ionization, so ionization and recombination need not balance: their
+    # ratio is no check of the solution and is not reported.
+    if not _given_ne(model):
+        attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
+            else 0.0
+
+
+def _light_vars(model, out, notes):
+    """``dark`` and ``solar_zenith_angle``, and the note on a wholly dark column."""
+    env = model.environment
     dark = env.dark(None)
-    notes = list(model.warnings)
     sources = list(getattr(env.sun, "photon_sources", ()) or ())
     night = any(src.startswith("night:") for src in sources)
-    if dark.all() and not given_ne:
-        notes.append("every level is dark: only the scattered night-time sources ionize "
+    # Only a photochemical column is "photochemistry alone": with transport the note
+    # does not apply.
+    if dark.all() and not _given_ne(model) and getattr(model, "transport", None) is None:
+        notes.append("every altitude is dark: only the scattered night-time sources ionize "
                      "(photochemistry alone, without transport, cannot keep the night F "
                      "layer)" if night else
-                     "every level is dark: photochemistry alone cannot sustain the night "
+                     "every altitude is dark: photochemistry alone cannot sustain the night "
                      "ionosphere (no transport, no night-time sources)")
     out["dark"] = ("altitude", dark.astype(np.int8),
-                   {"long_name": "no direct sunlight reaches the level",
+                   {"long_name": "no direct sunlight reaches the altitude",
                     "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})
     sza = model.structural("solar_zenith_angle",
                            lambda: float(env.solar_zenith_angle(None)))
     out["solar_zenith_angle"] = ((), sza,
                                  {"units": "degree", "long_name": "solar zenith angle"})
-    if given_ne:
-        b = list(species).index(mech.balance_ion)
-        neg = dens[b] < 0
-        out["balance_negative"] = ("altitude", neg.astype(np.int8),
-                                   {"long_name": f"{mech.balance_ion} = Ne - other ions "
-                                    "would be negative",
-                                    "flag_values": np.array([0, 1], np.int8),
-                                    "flag_meanings": "ok negative"})
-        if neg.any():
-            alt = env.altitude_km[neg]
-            notes.append(f"{mech.balance_ion} = Ne - other ions is negative at {neg.sum()} "
-                         f"level(s), {alt.min():g}-{alt.max():g} km: the given Ne is below "
-                         "the molecular ions there")
-    attrs["warnings"] = "; ".join(str(n) for n in notes)
-    return out, coords, attrs
+
+
+def _balance_ion_vars(model, dens, species, out, notes):
+    """``balance_negative`` where the balance ion (Ne − other ions) would be negative."""
+    mech, env = model.mechanism, model.environment
+    if not _given_ne(model):
+        return
+    b = list(species).index(mech.balance_ion)
+    neg = dens[b] < 0
+    out["balance_negative"] = ("altitude", neg.astype(np.int8),
+                               {"long_name": f"{mech.balance_ion} = Ne - other ions "
+                                "would be negative",
+                                "flag_values": np.array([0, 1], np.int8),
+                                "flag_meanings": "ok negative"})
+    if neg.any():
+        alt = env.altitude_km[neg]
+        notes.append(f"{mech.balance_ion} = Ne - other ions is negative at {neg.sum()} "
+                     f"altitude(s), {alt.min():g}-{alt.max():g} km: the given Ne is below "
+                     "the molecular ions there")

@@ -1,9 +1,9 @@
-"""Steady state of columns whose levels are coupled by transport: Newton on the whole column.
+"""Steady state of columns whose rows are coupled by transport: Newton on the whole column.
 
 Same contract as :mod:`ionochem.solve.steady` (positivity, convergence rule, fallback,
-diagnostics), but the levels are solved together because transport links each level to
-its neighbours. The solver sees only callables on arrays shaped (B, S) — B levels (of one
-column, or of several columns stacked, level-major within each), S solved species — and
+diagnostics), but the rows are solved together because transport links each row to
+its neighbours. The solver sees only callables on arrays shaped (B, S) — B rows (of one
+column, or of several columns stacked, row-major within each), S solved species — and
 never imports the parser, the environment or the physics of transport:
 
 ``tendency(n) -> (B, S)``; ``jacobian(n) -> scipy.sparse matrix (B·S, B·S)`` with entry
@@ -14,30 +14,30 @@ residual.
 
 Method
 ------
-1. Start from the given densities (the photochemical solution of every level is a good
+1. Start from the given densities (the photochemical solution of every row is a good
    start: the molecular ions hardly move, O+ relaxes to its transported profile), then a
    few geometric-mean sweeps n ← sqrt(n P/λ), λ = L/n, with transport counted in P and L,
-   so species with no production go to zero and levels with none become positive.
+   so species with no production go to zero and rows with none become positive.
 2. Damped Newton on the whole column: J Δn = −f solved by one sparse LU factorisation of
    the (B·S)² Jacobian per iteration (SuperLU through ``scipy.sparse.linalg.splu``; the
-   matrix has bandwidth ≈ 2S, so the cost is linear in the number of levels) — or, from
+   matrix has bandwidth ≈ 2S, so the cost is linear in the number of rows) — or, from
    :data:`CHORD_FROM` = 10,000 unknowns, a chord Newton that keeps the LU while every step
    cuts the scaled residual norm tenfold and refactorises otherwise (see "Linear solver"
    below). The Jacobian's CSC structure is built once per column
    (:class:`ColumnJacobian`); each iteration only fills its values. Positivity,
-   per level as in the independent solver: the step of a level is cut so no density falls
+   per row as in the independent solver: the step of a row is cut so no density falls
    below a tenth of its value — nor, here, rises above ten times it, which stops Newton's
-   overshoot from far below a recombination-limited density (levels in the Earth's shadow
+   overshoot from far below a recombination-limited density (rows in the Earth's shadow
    fed only by diffusion start from nothing). The step is halved (at most 8 times) only
    while the scaled residual norm of the column would grow more than a thousandfold: a
    non-monotone rule,
    because the first full steps from the photochemical start (O+ falling several-fold
    at the top, the molecular ions following the electrons quadratically) raise the norm
    before Newton converges quadratically, and a monotone line search would creep there.
-3. Convergence, per level exactly as in :mod:`ionochem.solve.steady` (docs/validation.md):
+3. Convergence, per row exactly as in :mod:`ionochem.solve.steady` (docs/validation.md):
    relative residual max_i |f_i|/(P_i + L_i + floor) ≤ rtol before a step (the same floor),
-   relative step ≤ 1e-3 (or every residual of the level below ``atol``), residual ≤ rtol
-   again at the point reached; the column is converged when every level is. One addition
+   relative step ≤ 1e-3 (or every residual of the row below ``atol``), residual ≤ rtol
+   again at the point reached; the column is converged when every row is. One addition
    for the coupled system: the floor is raised to 1e-20 of the largest gross rate in the
    column at the start, because the errors of the
    column-wide linear solve scale with the column's largest terms. Without it, O+ leaking
@@ -45,11 +45,11 @@ Method
    molecular ions of 1e-10 cm-3) would have to be resolved to its own relative precision.
 4. If Newton does not converge in ``max_newton`` iterations (or meets a singular
    Jacobian), pseudo-transient continuation on the whole column: (diag(1/Δt) − J) Δn = f
-   with a local time step per level, starting at a hundredth of the level's fastest time
+   with a local time step per row, starting at a hundredth of the row's fastest time
    (chemistry or transport) and growing with the fall of the column's residual (switched
    evolution relaxation); Newton then polishes.
 5. A column still unconverged, negative or not finite raises :class:`SolverError` naming
-   the levels that fail the rule.
+   the rows that fail the rule.
 
 Linear solver (issue 13)
 ------------------------
@@ -58,7 +58,7 @@ solved species, resampled over 90–600 km; one BLAS thread, interleaved repeats
 15, a shared 2-core machine), the column solve from the photochemical start:
 
 =========  ================  ================  ================
-levels     200 (2,400 unk.)  1,000 (12,000)    5,000 (60,000)
+rows     200 (2,400 unk.)  1,000 (12,000)    5,000 (60,000)
 =========  ================  ================  ================
 newton     9.5 ms, 6 LU      54 ms, 7 LU       350 ms, 7 LU
 chord      7.7 ms, 3 LU      40 ms, 4 LU       258 ms, 4 LU
@@ -71,9 +71,9 @@ The chord takes one iteration more (8 against 7; its densities differ from Newto
 10,000 unknowns and plain Newton below, where its gain stays under 1.3×. Newton–Krylov
 (GMRES on the scaled rows, incomplete-LU preconditioner) is 0.5–0.9× Newton at every size:
 the exact LU of this banded matrix fills only 30 % beyond the Jacobian (900,083 against
-689,997 entries at 5,000 levels), so ``spilu`` costs as much as ``splu`` and GMRES adds 4–5
+689,997 entries at 5,000 rows), so ``spilu`` costs as much as ``splu`` and GMRES adds 4–5
 products per iteration; a block-diagonal preconditioner (chemistry blocks alone) does not
-converge in 1,000 GMRES iterations, because transport couples the O+ of neighbouring levels
+converge in 1,000 GMRES iterations, because transport couples the O+ of neighbouring rows
 more strongly than chemistry at fine grids. Both variants stay selectable (``linear=``) and
 a variant that does not converge is followed by plain Newton from the same start.
 """
@@ -102,8 +102,8 @@ from ionochem.solve.steady import (
 #: floor ``atol`` of the convergence rule is raised to it (see the module docstring).
 COLUMN_FLOOR = 1e-20
 
-#: Column ordering for SuperLU. The level-major unknowns already give a band of width ≈ 2S,
-#: which the natural order keeps (fill stays in the band); COLAMD factorises the 200-level
+#: Column ordering for SuperLU. The row-major unknowns already give a band of width ≈ 2S,
+#: which the natural order keeps (fill stays in the band); COLAMD factorises the 200-row
 #: demo column about twice as slowly (measured with benchmarks/bench_transport.py).
 ORDERING = "NATURAL"
 
@@ -125,7 +125,7 @@ def block_diagonal(J):
 class ColumnJacobian:
     """The column's sparse Jacobian from its blocks, with the CSC structure built once.
 
-    The matrix is block diagonal (dense (S, S) chemistry blocks of B levels) plus a
+    The matrix is block diagonal (dense (S, S) chemistry blocks of B rows) plus a
     constant sparse coupling (transport); only the values change between Newton
     iterations. The index arrays (rows of every column, column starts) and the place of
     every block entry and coupling entry in them are computed here once; each call fills
@@ -135,14 +135,14 @@ class ColumnJacobian:
 
     Parameters
     ----------
-    n_levels, n_species : int
+    n_rows, n_species : int
         B and S.
     coupling : scipy.sparse matrix (B·S, B·S)
         Constant part, e.g. :meth:`SpeciesTransport.matrix`.
     """
 
-    def __init__(self, n_levels, n_species, coupling):
-        B, S = int(n_levels), int(n_species)
+    def __init__(self, n_rows, n_species, coupling):
+        B, S = int(n_rows), int(n_species)
         N = B * S
         T = sp.coo_matrix(coupling)
         T.sum_duplicates()
@@ -207,11 +207,11 @@ def sparse_solve(J, rhs):
 def _regularise(J, f):
     """Give a small negative diagonal to unknowns whose diagonal entry is exactly zero.
 
-    A species with no loss where the densities are zero (a molecular ion in a dark level:
+    A species with no loss where the densities are zero (a molecular ion in a dark row:
     its recombination vanishes with the electrons) makes J exactly singular. Its diagonal
     becomes −1e-12 × the largest entry of its row (−1 for an empty row): a local
     pseudo-time step far longer than any of its rates, harmless to Newton, which only
-    needs a descent direction to reach f = 0. (A global shift would swamp levels whose own
+    needs a descent direction to reach f = 0. (A global shift would swamp rows whose own
     rates are tiny.)
     """
     J = sp.csc_matrix(J)
@@ -225,12 +225,12 @@ def _regularise(J, f):
 
 
 def _bounded_step(n, dn):
-    """Per-level step fraction keeping every density within [n/10, 10 n].
+    """Per-row step fraction keeping every density within [n/10, 10 n].
 
     The lower bound is the positivity rule of :mod:`steady`; the upper bound stops the
     overshoot of Newton from far below a recombination-limited density (n² α = q gives
-    n → q/(2αn)), which in a coupled column would drag every level's step down with it.
-    Densities below 1e-12 of the level's largest are not bounded (clipped at zero).
+    n → q/(2αn)), which in a coupled column would drag every row's step down with it.
+    Densities below 1e-12 of the row's largest are not bounded (clipped at zero).
     """
     dn, lam = _positive_step(n, dn)
     floor = 1e-12 * n.max(axis=1, initial=0.0)[:, None]
@@ -340,7 +340,7 @@ LINEAR_SOLVERS = {cls.name: cls for cls in (DirectLU, Chord, NewtonKrylov)}
 #: Method*, SIAM, ch. 2 (from memory)). Measured on the demo column (bench_column_solver):
 #: with 0.5 or 0.3 the factors of the third iterate are kept at a contraction of 0.2 per
 #: step and the chord needs 15–16 iterations; with 0.1 it refactorises there and then
-#: contracts by 0.005 per step, 8 iterations with 4 factorisations (200 to 5,000 levels).
+#: contracts by 0.005 per step, 8 iterations with 4 factorisations (200 to 5,000 rows).
 CHORD_RATE = 0.1
 
 #: Newton–Krylov: drop tolerance of the incomplete LU and relative tolerance of GMRES on
@@ -352,7 +352,7 @@ KRYLOV_RTOL = 1e-8
 def _newton(n, tendency, jacobian, gross, *, rtol, atol, floor, max_iter, iterations,
             linear=None):
     """Damped Newton on the column; ``floor`` the rate-scale floor, ``atol`` the absolute
-    residual floor (cm-3 s-1) below which a level is converged whatever its step;
+    residual floor (cm-3 s-1) below which a row is converged whatever its step;
     ``linear`` the solver of J Δn = −f (default :class:`DirectLU`, a fresh LU per
     iteration)."""
     B, S = n.shape
@@ -436,8 +436,8 @@ def default_linear(n_unknowns):
 
 
 def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_newton=60,
-                 max_continuation=600, level_names=None, linear=None, stats=None):
-    """Steady state of transport-coupled levels (see the module docstring).
+                 max_continuation=600, row_labels=None, linear=None, stats=None):
+    """Steady state of transport-coupled rows (see the module docstring).
 
     Parameters
     ----------
@@ -450,8 +450,8 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
         Relative residual target.
     atol : float
         Absolute floor on rates, cm-3 s-1.
-    level_names : sequence, optional
-        Label of each level for error messages.
+    row_labels : sequence, optional
+        Label of each row for error messages.
     linear : {"newton", "chord", "krylov"}, optional
         Linear solver of the Newton iteration (:data:`LINEAR_SOLVERS`); by default
         :func:`default_linear` of the column's size. A variant that does not converge is
@@ -464,7 +464,7 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
     Returns
     -------
     SteadyResult
-        Every level carries the column's iteration count and method.
+        Every row carries the column's iteration count and method.
     """
     B, S = n0.shape
     iterations = np.zeros(B, int)
@@ -497,13 +497,13 @@ def solve_column(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30, max_n
         stats["solvers"] = [s.name for s in solvers]
     valid = (res <= rtol) & np.all(np.isfinite(n) & (n >= 0), axis=1)
     if not ok or not valid.all():
-        labels = np.asarray(level_names if level_names is not None else np.arange(B))
+        labels = np.asarray(row_labels if row_labels is not None else np.arange(B))
         bad = ~valid if (~valid).any() else np.ones(B, bool)
         failed = labels[bad]
         shown = ", ".join(str(x) for x in failed[:12]) + (" …" if failed.size > 12 else "")
         worst = np.nanmax(np.where(np.isfinite(res), res, np.nan)[bad]) \
             if np.isfinite(res[bad]).any() else float("nan")
         raise SolverError(
-            f"steady state with transport not reached at {failed.size} level(s): {shown} "
+            f"steady state with transport not reached at {failed.size} altitude(s): {shown} "
             f"(largest relative residual {worst:.3g})", levels=failed.tolist())
     return SteadyResult(n=n, residual=res, iterations=iterations, method=method)

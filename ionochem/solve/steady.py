@@ -1,7 +1,7 @@
 """Steady state of many independent chemical columns at once: batched damped Newton.
 
-The solver sees only three callables on arrays shaped (B, S) — B independent levels (or
-sample × level), S solved species — and never imports the parser or the environment:
+The solver sees only three callables on arrays shaped (B, S) — B independent rows (or
+sample × row), S solved species — and never imports the parser or the environment:
 
 ``tendency(n) -> (B, S)``, ``jacobian(n) -> (B, S, S)`` with ``J[b, i, j] = ∂f_i/∂n_j``, and
 ``gross(n) -> (P, L)``, the gross production and loss (B, S) used to scale the residual.
@@ -13,34 +13,34 @@ Method
    sqrt(q/α) at once; a species with no production goes to zero exactly. A warm start
    (``warm=True``: the samples of an ensemble start from the central column) skips these
    sweeps.
-2. Damped Newton on all levels together: J Δn = −f solved by batched LU (numpy.linalg.solve).
-   Positivity: per level, the step is cut so no density falls below a tenth of its value
+2. Damped Newton on all rows together: J Δn = −f solved by batched LU (numpy.linalg.solve).
+   Positivity: per row, the step is cut so no density falls below a tenth of its value
    (a species at exactly zero with a negative step stays at zero). The step is then halved
    until the scaled residual norm does not grow (at most 8 halvings).
-3. Convergence, per level (documented in docs/validation.md): the relative residual
+3. Convergence, per row (documented in docs/validation.md): the relative residual
    max_i |f_i| / (P_i + L_i + floor_r) ≤ rtol before a Newton step, that step's relative
    size max_i |Δn_i| / (n_i + floor_n) ≤ 1e-3 (floor_n = 1e-12 × the largest density of the
-   level), and the relative residual ≤ rtol again at the point the step reached. P_i and L_i
+   row), and the relative residual ≤ rtol again at the point the step reached. P_i and L_i
    are the gross production and loss. Or, one iteration sooner: the residual ≤ rtol at the
    point a step reached, that step ≤ sqrt(rtol) and at most a tenth of the one before it —
    Newton in its quadratic regime, where the error left is about the square of the last
    step (Deuflhard, *Newton Methods for Nonlinear Problems*, 2004, ch. 2: the a-posteriori
    error estimate from the contraction of successive steps; *from memory*), so below rtol.
    floor_r is the larger of atol / max(rtol, 1e-10) and
-   1e-20 × the level's fastest gross rate. ``atol`` is an absolute floor (cm-3 s-1): a level
-   whose every residual |f_i| is below it is converged whatever its step (a dark level with
+   1e-20 × the row's fastest gross rate. ``atol`` is an absolute floor (cm-3 s-1): a row
+   whose every residual |f_i| is below it is converged whatever its step (a dark row with
    production of 1e-160 cm-3 s-1 cannot be resolved further and holds nothing physical).
-   Densities below 1e-12 of the level's largest are negligible: they neither limit the
-   level's step (step 2 clips each on its own) nor enter the step test. Without that, in a
-   twilight column a species at 1e-200 cm-3 that must fall to 1e-260 held the whole level to
-   tenfold steps, and the level never converged.
-4. Levels Newton does not bring to convergence in ``max_newton`` iterations go to
+   Densities below 1e-12 of the row's largest are negligible: they neither limit the
+   row's step (step 2 clips each on its own) nor enter the step test. Without that, in a
+   twilight column a species at 1e-200 cm-3 that must fall to 1e-260 held the whole row to
+   tenfold steps, and the row never converged.
+4. Rows Newton does not bring to convergence in ``max_newton`` iterations go to
    pseudo-transient continuation: (I/Δt − J) Δn = f with Δt growing as the residual falls
    (switched evolution relaxation), which follows the physical relaxation and cannot jump
    to a non-physical root; Newton then polishes the result.
 5. Anything still unconverged, negative or not finite raises :class:`SolverError` naming
-   the levels and, per level, the species with the largest relative residual
-   (``SolverError.species``); the caller adds the input file and advice. Levels with no
+   the rows and, per row, the species with the largest relative residual
+   (``SolverError.species``); the caller adds the input file and advice. Rows with no
    production at all solve to zero.
 """
 
@@ -52,21 +52,21 @@ import numpy as np
 
 from ionochem.errors import SolverError
 
-#: Relative Newton step below which a level whose residual already met rtol is converged.
+#: Relative Newton step below which a row whose residual already met rtol is converged.
 STEP_TOL = 1e-3
-#: Densities below this fraction of the largest density of their level are negligible: they
-#: do not limit the level's Newton step and their relative step is not tested
-#: *(common practice: far below double precision relative to the level's main species)*.
+#: Densities below this fraction of the largest density of their row are negligible: they
+#: do not limit the row's Newton step and their relative step is not tested
+#: *(common practice: far below double precision relative to the row's main species)*.
 NEGLIGIBLE = 1e-12
-#: Floor of each species' rate scale as a fraction of the level's fastest gross rate
+#: Floor of each species' rate scale as a fraction of the row's fastest gross rate
 #: (see :func:`_scale`); 1e-20 lies four orders below double-precision rounding of the main
 #: species' balance *(common practice)*.
 LEVEL_FLOOR = 1e-20
 
 #: Fixed-point sweeps of the start (step 1 of the module docstring). Each costs about a
-#: tenth of a Newton iteration; measured on the demo column at 200 and 1,000 levels
+#: tenth of a Newton iteration; measured on the demo column at 200 and 1,000 rows
 #: (benchmarks/bench_perf.py), 16 sweeps gave the fastest solve (12: 7 % slower, 8: 15 %;
-#: 2–3 leave levels Newton cannot bring in).
+#: 2–3 leave rows Newton cannot bring in).
 START_SWEEPS = 16
 
 METHOD_NEWTON = 1
@@ -76,7 +76,7 @@ METHOD_NAMES = {0: "none", METHOD_NEWTON: "newton", METHOD_CONTINUATION: "contin
 
 @dataclass
 class SteadyResult:
-    """Solution and per-level diagnostics (arrays of length B)."""
+    """Solution and per-row diagnostics (arrays of length B)."""
 
     n: np.ndarray            # (B, S) cm-3
     residual: np.ndarray     # (B,) max relative residual
@@ -90,8 +90,8 @@ def _scale(P, L, atol, axis=1):
 
     Its gross rate P + L plus a floor: ``atol`` (the absolute residual floor divided by
     rtol, see :func:`solve_steady`) or, when larger, the :data:`LEVEL_FLOOR` fraction of the
-    fastest gross rate of the level — a species whose whole turnover lies that far below the
-    level's main one cannot change anything that matters, and its residual is rounding noise
+    fastest gross rate of the row — a species whose whole turnover lies that far below the
+    row's main one cannot change anything that matters, and its residual is rounding noise
     of the others.
     """
     gross = P + L
@@ -101,7 +101,7 @@ def _scale(P, L, atol, axis=1):
 
 
 def _relative_residual(f, P, L, atol):
-    """max_i |f_i| / scale_i per level, shape (B,)."""
+    """max_i |f_i| / scale_i per row, shape (B,)."""
     if not f.shape[1]:
         return np.zeros(f.shape[0])
     return np.max(np.abs(f) / _scale(P, L, atol), axis=1)
@@ -114,12 +114,12 @@ def _rate_floor(atol, rtol):
 
 
 def _negligible(f, floor, axis=1):
-    """Levels whose every residual is below the absolute floor (cm-3 s-1)."""
+    """Rows whose every residual is below the absolute floor (cm-3 s-1)."""
     return np.max(np.abs(f), axis=axis, initial=0.0) <= floor
 
 
 def _norms(x):
-    """Euclidean norm of each column of x (species, levels)."""
+    """Euclidean norm of each column of x (species, rows)."""
     return np.sqrt(np.einsum("ij,ij->j", x, x))
 
 
@@ -139,13 +139,13 @@ def _solve(J, rhs):
 
 
 def _positive_step(n, dn, axis=1):
-    """Per-level fraction of the step that keeps every density at least n/10.
+    """Per-row fraction of the step that keeps every density at least n/10.
 
     ``axis`` is the species axis (1 for (rows, species), 0 for rows last). Only densities
-    above :data:`NEGLIGIBLE` times the level's largest set the fraction; a negligible
+    above :data:`NEGLIGIBLE` times the row's largest set the fraction; a negligible
     density (one that cannot change any other species' rates measurably) is clipped on its
     own, so that a species at 1e-200 cm-3 falling towards 1e-260 does not shrink the step
-    of the whole level to a crawl. Returns the step and the fraction (one per level).
+    of the whole row to a crawl. Returns the step and the fraction (one per row).
     """
     dn = np.where((n <= 0) & (dn < 0), 0.0, dn)
     if not n.shape[axis]:
@@ -191,7 +191,7 @@ def initial_guess(n0, gross, sweeps=None):
 class RowsCallables:
     """The solver's rows-last interface (species, rows) over callables on (rows, species).
 
-    :func:`newton` works rows last: every per-level reduction (largest residual, step
+    :func:`newton` works rows last: every per-row reduction (largest residual, step
     size) then runs along the first axis, where numpy vectorises it, instead of along a
     short last axis (measured 4× faster for 12 species). A kernel that works rows last
     natively (:class:`ionochem.mechanism.rows.BoundRows`) has the same three methods.
@@ -234,18 +234,61 @@ class _SubsetRows:
         return self._kernel.jacobian_t(n_t, self._subset[rows])
 
 
+def _measured(f, P, L, floor, atol):
+    """Rate scale, norm of the scaled residual, largest relative residual and the
+    absolute-floor test of the rows at one point (reused by the next iteration from that
+    point); arrays rows last."""
+    scale = _scale(P, L, floor, axis=0)
+    scaled = f / scale
+    return (scale, _norms(scaled), np.abs(scaled).max(axis=0), _negligible(f, atol, axis=0))
+
+
+def _damped_step(kernel, na, dn, active, scale, norm0):
+    """The point a Newton step ``dn`` reaches from ``na`` (species, rows), kept positive and
+    halved (at most 8 times) on rows whose scaled residual grew; returns the point and its
+    tendency and gross rates ``(trial, f, P, L)``."""
+    if (dn >= -0.9 * na).all():
+        # The usual case near the solution: no density falls below a tenth of its value,
+        # so the whole step is taken everywhere (what _positive_step gives then).
+        lam = np.ones(active.size)
+        trial = na + dn
+    else:
+        dn, lam = _positive_step(na, dn, axis=0)
+        lam = np.where(np.isfinite(lam), lam, 0.0)
+        trial = lam * dn
+        trial += na
+        np.maximum(trial, 0.0, out=trial)
+    # Backtracking: halve the step on rows whose scaled residual grew (the scale of the
+    # point the step starts from); only those rows are evaluated again.
+    ft, Pt, Lt = kernel.both_t(trial, active)
+    normt = _norms(ft / scale)
+    worse = ~(normt <= norm0 * (1 - 1e-4 * lam)) & (lam > 1e-3)
+    check = np.nonzero(worse)[0]
+    for _ in range(8):
+        if not check.size:
+            break
+        lam[check] /= 2
+        trial[:, check] = np.maximum(na[:, check] + lam[check] * dn[:, check], 0.0)
+        ft[:, check], Pt[:, check], Lt[:, check] = kernel.both_t(trial[:, check],
+                                                                 active[check])
+        normt = _norms(ft[:, check] / scale[:, check])
+        worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
+        check = check[worse]
+    return trial, ft, Pt, Lt
+
+
 def newton(n, kernel, *, rtol, atol, max_iter, iterations):
-    """Damped Newton on the levels of ``n`` (species, levels: rows last); returns
+    """Damped Newton on the rows of ``n`` (species, rows: rows last); returns
     (n, converged mask, residual).
 
     ``kernel`` has ``both_t(n, rows) -> (f, P, L)`` (the tendency and the gross production
     and loss from one evaluation of the rates) and ``jacobian_t(n, rows) -> (b, S, S)``,
-    on the levels ``rows`` with ``n`` rows last (:class:`RowsCallables`). ``atol`` is the
+    on the rows ``rows`` with ``n`` rows last (:class:`RowsCallables`). ``atol`` is the
     absolute residual floor (cm-3 s-1): residuals below it are noise.
 
     One evaluation of the rates per iteration (plus one per halving of a step): the
     tendency and gross rates at the point a step reaches serve both the backtracking test
-    and, unchanged, the next iteration's residual and right-hand side — and, for a level
+    and, unchanged, the next iteration's residual and right-hand side — and, for a row
     whose step was small, the confirming residual of step 3 in the module docstring.
     """
     S, B = n.shape
@@ -255,57 +298,22 @@ def newton(n, kernel, *, rtol, atol, max_iter, iterations):
     res = np.full(B, np.inf)
     if not B:
         return n, converged, res
-    if not S:                       # nothing to solve: every level is converged as it is
+    if not S:                       # nothing to solve: every row is converged as it is
         iterations += 1
         converged[:] = True
         res[:] = 0.0
         return n, converged, res
 
-    def measured(f, P, L):
-        """Rate scale, norm of the scaled residual, largest relative residual and the
-        absolute-floor test of the levels at one point (reused by the next iteration from
-        that point)."""
-        scale = _scale(P, L, floor, axis=0)
-        scaled = f / scale
-        return (scale, _norms(scaled), np.abs(scaled).max(axis=0),
-                _negligible(f, atol, axis=0))
-
     active = np.arange(B)
     f, P, L = kernel.both_t(n, active)
-    scale, norm0, r0, tiny = measured(f, P, L)
+    scale, norm0, r0, tiny = _measured(f, P, L, floor, atol)
     last_step = np.zeros(B)     # no step yet: only a zero step shows contraction
     for _ in range(max_iter):
         if active.size == 0:
             break
         na = n if active.size == B else n[:, active]
         dn = np.ascontiguousarray(_solve(kernel.jacobian_t(na, active), -f.T).T)
-        if (dn >= -0.9 * na).all():
-            # The usual case near the solution: no density falls below a tenth of its
-            # value, so the whole step is taken everywhere (what _positive_step gives then).
-            lam = np.ones(active.size)
-            trial = na + dn
-        else:
-            dn, lam = _positive_step(na, dn, axis=0)
-            lam = np.where(np.isfinite(lam), lam, 0.0)
-            trial = lam * dn
-            trial += na
-            np.maximum(trial, 0.0, out=trial)
-        # Backtracking: halve the step on levels whose scaled residual grew (the scale of
-        # the point the step starts from); only those levels are evaluated again.
-        ft, Pt, Lt = kernel.both_t(trial, active)
-        normt = _norms(ft / scale)
-        worse = ~(normt <= norm0 * (1 - 1e-4 * lam)) & (lam > 1e-3)
-        check = np.nonzero(worse)[0]
-        for _ in range(8):
-            if not check.size:
-                break
-            lam[check] /= 2
-            trial[:, check] = np.maximum(na[:, check] + lam[check] * dn[:, check], 0.0)
-            ft[:, check], Pt[:, check], Lt[:, check] = kernel.both_t(trial[:, check],
-                                                                     active[check])
-            normt = _norms(ft[:, check] / scale[:, check])
-            worse = ~(normt <= norm0[check] * (1 - 1e-4 * lam[check])) & (lam[check] > 1e-3)
-            check = check[worse]
+        trial, ft, Pt, Lt = _damped_step(kernel, na, dn, active, scale, norm0)
         step = np.abs(trial - na)
         small = NEGLIGIBLE * np.maximum(trial.max(axis=0), 1e-300)
         rel_step = (step / (trial + small)).max(axis=0)
@@ -316,11 +324,11 @@ def newton(n, kernel, *, rtol, atol, max_iter, iterations):
         iterations[active] += 1
         # Residual met before the step and the step itself small: Newton converges
         # quadratically, so the point after it is far inside the tolerance; confirmed by
-        # the residual at that point. A level whose every residual is already below the
-        # absolute floor (a dark level with production of 1e-160 cm-3 s-1, say) is
+        # the residual at that point. A row whose every residual is already below the
+        # absolute floor (a dark row with production of 1e-160 cm-3 s-1, say) is
         # converged whatever the step: its densities are known to within floor / loss
         # frequency, physically nothing.
-        scale_t, norm_t, rt, tiny_t = measured(ft, Pt, Lt)
+        scale_t, norm_t, rt, tiny_t = _measured(ft, Pt, Lt, floor, atol)
         met = (rt <= rtol) | tiny_t
         # Or: the step that reached the point was below sqrt(rtol) and at most a tenth of
         # the one before (Newton in its quadratic regime: the error left is about the
@@ -349,7 +357,7 @@ def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iteratio
     P, L = gross(n, rows)
     with np.errstate(divide="ignore", invalid="ignore"):
         freq = np.where(n > 0, L / np.maximum(n, 1e-300), 0.0)
-    # Start at a hundredth of the fastest chemical time of each level.
+    # Start at a hundredth of the fastest chemical time of each row.
     fastest = np.max(freq, axis=1, initial=0.0)
     dt = np.where(fastest > 0, 0.01 / np.maximum(fastest, 1e-300), 1.0)
     eye = np.eye(S)
@@ -373,7 +381,7 @@ def continuation(n, tendency, jacobian, gross, *, rtol, atol, max_iter, iteratio
 
 
 def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
-                 max_newton=60, max_continuation=400, level_names=None, species_names=None,
+                 max_newton=60, max_continuation=400, row_labels=None, species_names=None,
                  both=None, kernel=None, warm=False):
     """Steady state of B independent chemical systems.
 
@@ -388,13 +396,12 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
         Relative residual target (see the module docstring).
     atol : float
         Absolute floor on rates, cm-3 s-1.
-    level_names : sequence, optional
+    row_labels : sequence, optional
         Label of each row for error messages (for example altitudes in km).
     species_names : sequence, optional
         Name of each of the S species, to say which one stalled.
     both : callable, optional
-        ``both(n, rows) -> (f, P, L)``: tendency and gross production and loss from one
-        evaluation of the rates (a speed-up; the same numbers as the separate callables).
+        ``both(n, rows) -> (f, P, L)`` from one evaluation of the rates (a speed-up).
     kernel : optional
         The same rows last, for Newton: ``both_t``, ``gross_t`` and ``jacobian_t`` on
         densities shaped (S, b) (:class:`ionochem.mechanism.rows.BoundRows`); by default
@@ -450,23 +457,28 @@ def solve_steady(n0, tendency, jacobian, gross, *, rtol=1e-10, atol=1e-30,
         conv[bad] = conv_b
     valid = conv & np.all(np.isfinite(n) & (n >= 0), axis=1)
     if not valid.all():
-        labels = np.asarray(level_names if level_names is not None else all_rows)
-        bad = np.nonzero(~valid)[0]
-        failed = labels[bad]
-        shown = ", ".join(str(x) for x in failed[:12]) + (" …" if failed.size > 12 else "")
-        stalled = _stalled_species(n[bad], bad, tendency, gross, _rate_floor(atol, rtol),
-                                   species_names)
-        worst = ", ".join(dict.fromkeys(stalled))
-        raise SolverError(
-            f"steady state not reached at {failed.size} level(s): {shown} "
-            f"(largest relative residual {np.nanmax(res[~valid]):.3g}"
-            + (f"; stalled: {worst}" if worst else "") + ")",
-            levels=failed.tolist(), species=stalled)
+        raise _failure(n, res, valid, tendency, gross, _rate_floor(atol, rtol), row_labels,
+                       species_names)
     return SteadyResult(n=n, residual=res, iterations=iterations, method=method)
 
 
+def _failure(n, res, valid, tendency, gross, floor, row_labels, species_names):
+    """The ``SolverError`` naming the rows that fail the rule and their stalled species."""
+    labels = np.asarray(row_labels if row_labels is not None else np.arange(n.shape[0]))
+    bad = np.nonzero(~valid)[0]
+    failed = labels[bad]
+    shown = ", ".join(str(x) for x in failed[:12]) + (" …" if failed.size > 12 else "")
+    stalled = _stalled_species(n[bad], bad, tendency, gross, floor, species_names)
+    worst = ", ".join(dict.fromkeys(stalled))
+    return SolverError(
+        f"steady state not reached at {failed.size} altitude(s): {shown} "
+        f"(largest relative residual {np.nanmax(res[~valid]):.3g}"
+        + (f"; stalled: {worst}" if worst else "") + ")",
+        levels=failed.tolist(), species=stalled)
+
+
 def _stalled_species(n, rows, tendency, gross, floor, names):
-    """Per failed level, the species with the largest relative residual (or not finite)."""
+    """Per failed row, the species with the largest relative residual (or not finite)."""
     if names is None or not n.shape[1]:
         return []
     with np.errstate(all="ignore"):

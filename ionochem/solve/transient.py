@@ -1,10 +1,10 @@
 """Time integration of a chemical column with scipy's stiff solvers.
 
-The state is the solved densities of every level flattened level-major, ``y = n.ravel()``
-with ``n`` shaped (altitude, species). Without transport the levels are coupled only through
+The state is the solved densities of every row flattened row-major, ``y = n.ravel()``
+with ``n`` shaped (altitude, species). Without transport the rows are coupled only through
 time, so the Jacobian is block diagonal; with transport it is block tridiagonal and the
 caller's ``jacobian`` returns it as a scipy.sparse matrix already. Either way ``solve_ivp``
-gets a sparse matrix, which keeps the LU factorisation cost linear in the number of levels.
+gets a sparse matrix, which keeps the LU factorisation cost linear in the number of rows.
 
 Like the steady solver this module sees only callables: ``tendency(t, n)`` and
 ``jacobian(t, n)``, so rates may depend on time (a setting sun).

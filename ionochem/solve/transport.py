@@ -1,15 +1,15 @@
 """Finite-volume operator of vertical transport of one species in a column.
 
 The flux Φ = −D dn/dz + V n (cm-2 s-1, positive upward) is given by its coefficients on the
-faces between levels (D in cm2 s-1, V in cm s-1); this module turns it into a linear
+faces between rows (D in cm2 s-1, V in cm s-1); this module turns it into a linear
 operator, dn/dt|transport = T n + s, with T a sparse (A, A) matrix and s a constant source.
 It knows nothing of the physics behind D and V.
 
 Discretisation
 --------------
-Vertex-centred finite volumes: level i owns the cell between the midpoints to its
-neighbours (the top level owns half a cell, closed by the given upper-boundary flux).
-The flux through the face between levels i and i+1 (spacing h) is the exponentially fitted
+Vertex-centred finite volumes: row i owns the cell between the midpoints to its
+neighbours (the top row owns half a cell, closed by the given upper-boundary flux).
+The flux through the face between rows i and i+1 (spacing h) is the exponentially fitted
 form of Scharfetter & Gummel (1969, IEEE Trans. Electron Devices 16, 64), exact when D and V
 are constant across the face:
 
@@ -19,9 +19,9 @@ It is central differencing when diffusion dominates and upwind when drift domina
 the off-diagonal entries of T non-negative (so the scheme preserves positivity), and gives
 the diffusive-equilibrium profile n_{i+1}/n_i = exp(V h / D) exactly.
 
-Lower boundary: the lowest level has no transport row (its density is set by chemistry
-alone, photochemical equilibrium); the flux between it and the next level still enters the
-next level's cell.
+Lower boundary: the lowest row has no transport row (its density is set by chemistry
+alone, photochemical equilibrium); the flux between it and the next row still enters the
+next row's cell.
 """
 
 from __future__ import annotations
@@ -59,7 +59,7 @@ def face_weights(z_cm, D_cm2_s, V_cm_s):
 
 @dataclass
 class TransportOperator:
-    """dn/dt = T n + s for one species on a column of A levels.
+    """dn/dt = T n + s for one species on a column of A rows.
 
     Attributes
     ----------
@@ -103,7 +103,7 @@ class TransportOperator:
     def flux(self, n):
         """Upward flux on the faces, (..., A − 1), and the top flux appended: (..., A).
 
-        The value at index i is the flux through the face above level i (the last one is
+        The value at index i is the flux through the face above row i (the last one is
         the given upper-boundary flux), cm-2 s-1.
         """
         n = np.asarray(n, float)
@@ -118,7 +118,7 @@ def transport_operator(altitude_km, D_cm2_s, V_cm_s, upper_flux_cm2_s=0.0):
     Parameters
     ----------
     altitude_km : ndarray (A,)
-        Strictly increasing levels, km, A ≥ 2.
+        Strictly increasing rows, km, A ≥ 2.
     D_cm2_s, V_cm_s : ndarray (A − 1,)
         Diffusion coefficient and drift velocity on the faces (positive upward).
     upper_flux_cm2_s : float
@@ -131,7 +131,7 @@ def transport_operator(altitude_km, D_cm2_s, V_cm_s, upper_flux_cm2_s=0.0):
     z = np.asarray(altitude_km, float) * 1e5
     A = z.size
     if A < 2:
-        raise ValueError("transport needs at least two levels")
+        raise ValueError("transport needs at least two rows")
     a, b = face_weights(z, D_cm2_s, V_cm_s)
     width = np.empty(A)
     width[1:-1] = 0.5 * (z[2:] - z[:-2])
@@ -153,15 +153,15 @@ def transport_operator(altitude_km, D_cm2_s, V_cm_s, upper_flux_cm2_s=0.0):
 
 
 class SpeciesTransport:
-    """One species' transport operator placed in the (level, species) state of columns.
+    """One species' transport operator placed in the (row, species) state of columns.
 
-    The state is ``n`` shaped (C·A, S): C columns of A levels stacked (level-major within
+    The state is ``n`` shaped (C·A, S): C columns of A rows stacked (row-major within
     each column), S solved species, the transported one at column ``species_index``.
 
     Parameters
     ----------
     operator : TransportOperator
-        For one column of A levels.
+        For one column of A rows.
     species_index : int
         Column of the transported species in ``n``.
     n_species : int
@@ -195,7 +195,7 @@ class SpeciesTransport:
         return P, L
 
     def diagonal(self):
-        """Diagonal of T (A,), s-1: the level's own share of the Jacobian."""
+        """Diagonal of T (A,), s-1: the row's own share of the Jacobian."""
         return self.operator.T.diagonal()
 
     def matrix(self, n_columns=1):

@@ -14,7 +14,7 @@ from ionochem.system.column import ColumnSystem
 from ionochem.system.transport import Transport
 
 
-def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transport=None):
+def solve_rows(mechanism, k, given, *, rtol, row_labels=None, n0=None, transport=None):
     """Steady solved densities of B stacked rows → ``SteadyResult``.
 
     Parameters
@@ -27,7 +27,7 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transpor
         Fixed densities of each row, cm-3.
     rtol : float
         Relative residual target of the steady solver.
-    level_names : sequence of str, optional
+    row_labels : sequence of str, optional
         Label of each row for error messages.
     n0 : ndarray (B, S), optional
         Warm start near the solution (e.g. the central column, tiled).
@@ -40,5 +40,5 @@ def solve_rows(mechanism, k, given, *, rtol, level_names=None, n0=None, transpor
         processes.append(Transport(transport))
         n_columns = k.shape[0] // transport.A
     system = ColumnSystem(list(mechanism.solved), k.shape[0], processes,
-                          n_columns=n_columns, row_labels=level_names)
+                          n_columns=n_columns, row_labels=row_labels)
     return system.steady(rtol=rtol, n0=n0)

@@ -180,7 +180,7 @@ class ColumnSystem:
         if not self.coupled:
             start = np.zeros((self.n_rows, len(self.unknowns))) if n0 is None else n0
             return solve_steady(start, rows.tendency, rows.jacobian, rows.gross, rtol=rtol,
-                                atol=atol, level_names=self.row_labels,
+                                atol=atol, row_labels=self.row_labels,
                                 species_names=self.unknowns, both=rows.both, kernel=rows,
                                 warm=n0 is not None)
         if self.n_rows % self.coupling_processes[0].rows_per_column:
@@ -195,7 +195,7 @@ class ColumnSystem:
             except SolverError:
                 start = np.zeros((self.n_rows, len(self.unknowns)))
         return solve_column(start, self.tendency, self.jacobian, self.gross, rtol=rtol,
-                            atol=atol, level_names=self.row_labels, linear=linear,
+                            atol=atol, row_labels=self.row_labels, linear=linear,
                             stats=stats)
 
     def integrate(self, times_s, n0, *, method="BDF", rtol=1e-8, atol=1e-6):
