@@ -72,22 +72,22 @@ def model_at(levels):
 
 
 def bound(model):
-    """The mechanism's (tendency, jacobian, gross) on the model's rows, as solve_rows binds
-    them (ionochem/solve/batch.py)."""
-    from ionochem.mechanism.rows import BoundRows
-    rows = BoundRows(model.mechanism, model._k_static, model.given)
+    """The mechanism's (tendency, jacobian, gross) on the model's rows, as the column
+    system's chemistry binds them (ionochem/system/chemistry.py)."""
+    rows = model.system.row_processes[0].bound
     return rows.tendency, rows.jacobian, rows.gross
 
 
 def column_callables(model, before=False):
-    """(tendency, jacobian, gross) of the whole column, as steady_with_transport binds them;
-    ``before``: the Jacobian assembled as before the prebuilt structure
-    (block_diagonal + transport, then the CSR and CSC conversions of the old
+    """(tendency, jacobian, gross) of the whole column, as the column system assembles them
+    (ionochem/system/column.py); ``before``: the Jacobian assembled as before the prebuilt
+    structure (block_diagonal + transport, then the CSR and CSC conversions of the old
     ``_regularise`` and ``sparse_solve``)."""
     tend, jac, gross = bound(model)
     B = model.altitude_km.size
     tr = model.transport
-    col_tendency, jacobian, col_gross = C.column_callables(tend, jac, gross, tr, B)
+    system = model.system
+    col_tendency, jacobian, col_gross = system.tendency, system.jacobian, system.gross
     if before:
         rows = np.arange(B)
 

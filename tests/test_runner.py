@@ -143,3 +143,17 @@ def test_diurnal_keys_are_checked_at_their_key(tmp_path, extra, key):
     with pytest.raises(ionochem.ScenarioError) as info:
         ionochem.load_scenario(path)
     assert str(info.value).startswith(f"{path}: {key}:")
+
+
+@pytest.mark.parametrize("command", [["rank", "--species", "N2+"], ["sweep", "--vary",
+                                                                    "sun.f107=100,150"]])
+def test_analyses_refuse_a_diurnal_scenario_at_solve_mode(tmp_path, capsys, command):
+    """rank (a steady analysis) and sweep without --diurnal refuse a diurnal scenario with
+    exit 2 at ``file: solve.mode`` instead of solving it as a steady column."""
+    text = MIDNIGHT.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
+    path = tmp_path / "d.toml"
+    path.write_text(text + '\n[solve]\nmode = "diurnal"\n')
+    code = main([command[0], str(path), *command[1:]])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert f"{path}: solve.mode: is 'diurnal'" in err

@@ -42,15 +42,21 @@ def analysis_scenario(args, command):
             raise InputError("the scenario is steady already (its moment is [time] utc); "
                              "--steady-at is for transient scenarios", file="--steady-at")
         return scen
-    times = scen.solve.times_s or (0.0,)
     if at is None:
         start = f" after {scen.time.utc.isoformat()}" if scen.time is not None else ""
+        if scen.solve.mode == "diurnal":
+            span = f"{scen.solve.days} day(s) from local midnight"
+            last, which = 0.0, "the scenario's moment [time] utc"
+        else:
+            times = scen.solve.times_s or (0.0,)
+            span = f"output times {times[0]:g} to {times[-1]:g} s{start}"
+            last, which = times[-1], "the last output time"
         raise ScenarioError(
-            f"is 'transient' (output times {times[0]:g} to {times[-1]:g} s{start}), and "
+            f"is {scen.solve.mode!r} ({span}), and "
             f"{command} analyses a steady state: it does not follow the run through time. "
             f"Give --steady-at SECONDS for the steady state at that moment (e.g. "
-            f"--steady-at {times[-1]:g} for the last output time), or use `ionochem run` "
-            "for the transient column", file=scen.source, key="solve.mode")
+            f"--steady-at {last:g} for {which}), or use `ionochem run` "
+            "for the column through time", file=scen.source, key="solve.mode")
     return steady_at(scen, at)
 
 
@@ -63,7 +69,7 @@ def steady_at(scen, seconds):
     raw = copy.deepcopy(scen.raw)
     solve = raw.setdefault("solve", {})
     solve["mode"] = "steady"
-    for key in ("times_s", "start"):
+    for key in ("times_s", "start", "days", "step_minutes"):
         solve.pop(key, None)
     when = ""
     if scen.time is not None:

@@ -20,7 +20,7 @@ from ionochem.cli.options import (
     scenario_inputs,
     stamp_history,
 )
-from ionochem.errors import InputError
+from ionochem.errors import InputError, ScenarioError
 
 #: Points listed on the terminal at most.
 SHOWN_POINTS = 12
@@ -135,6 +135,10 @@ def cmd_sweep(args):
     if args.sensitivity and scen.solve.mode != "steady":
         raise InputError(f"--sensitivity needs steady points; {scen.source} has solve.mode "
                          f"{scen.solve.mode!r}", file="--sensitivity")
+    if scen.solve.mode == "diurnal" and not args.diurnal:
+        raise ScenarioError("is 'diurnal': a sweep runs whole days only with --diurnal "
+                            "(--days, --step-minutes); give them, or a steady or transient "
+                            "scenario", file=scen.source, key="solve.mode")
     diurnal = (args.days, 60.0 * args.step_minutes) if args.diurnal else None
     spec = make_spec(scen, axes, sets=sets, scales=scales, set_dir=Path.cwd(),
                      sensitivity=args.sensitivity, diurnal=diurnal)
