@@ -25,7 +25,7 @@ from ionochem.mechanism.parser import parse_reaction_list
 from ionochem.mechanism.units import analysis_units
 from ionochem.solve.steady import METHOD_NAMES
 from ionochem.solve.threads import single_thread_blas
-from ionochem.system import Chemistry, ColumnSystem, Transport
+from ionochem.system import PROCESSES, ColumnSystem
 from ionochem.system.assembly import (
     RowLabels,
     compile_mechanism,
@@ -205,14 +205,9 @@ class Model:
         """The column system of this model's processes on rows with rate coefficients ``k``
         (B, R) and fixed densities ``given`` (B, G) — by default the model's own column
         (rates follow time); several samples of the column may be stacked as rows."""
-        rates = self._rates if k is None else np.asarray(k, float)
-        given = self.given if given is None else given
-        n_rows = self.altitude_km.size if k is None else rates.shape[0]
-        processes = [Chemistry(self.mechanism, rates if k is not None
-                               else (lambda t: self._rates(t)), given)]
-        if self.transport is not None:
-            processes.append(Transport(self.transport))
-        return ColumnSystem(self.species, n_rows, processes,
+        n_rows = self.altitude_km.size if k is None else np.shape(k)[0]
+        built = (cls.for_model(self, k, given) for cls in PROCESSES)
+        return ColumnSystem(self.species, n_rows, [p for p in built if p is not None],
                             n_columns=n_rows // self.altitude_km.size,
                             row_labels=RowLabels(self.altitude_km, n_rows))
 

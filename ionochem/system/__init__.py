@@ -23,9 +23,10 @@ environment; :mod:`ionochem.system.assembly` checks a reaction list against its 
 
 Adding a process is writing one module with a class that follows
 :class:`ionochem.system.process.Process` (its unknowns, the unknowns it reads, tendency,
-gross rates and Jacobian) and adding it to the list the model builds
-(:meth:`ionochem.model.Model.system`); docs/design.md ("The column system") walks through
-an example.
+gross rates and Jacobian) and a ``for_model(model, k=None, given=None)`` class method that
+builds it for a model (or returns None when the scenario does not ask for it), and adding the
+class to :data:`PROCESSES`; docs/design.md ("The column system") walks through an example
+and tests/test_system.py adds one.
 
 This package knows the mechanism's array methods and the environment's arrays; it never
 reads files and never builds datasets.
@@ -36,4 +37,8 @@ from ionochem.system.column import ColumnSystem
 from ionochem.system.process import Process
 from ionochem.system.transport import Transport
 
-__all__ = ["Chemistry", "ColumnSystem", "Process", "Transport"]
+#: The processes a model's column system is built from, in order (row processes first by
+#: convention). Each class's ``for_model`` builds it or returns None.
+PROCESSES = [Chemistry, Transport]
+
+__all__ = ["PROCESSES", "Chemistry", "ColumnSystem", "Process", "Transport"]

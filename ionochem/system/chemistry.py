@@ -52,6 +52,13 @@ class Chemistry(Process):
             self._bound = BoundRows(self.mechanism, np.asarray(self.k, float), self.given)
         return self._bound
 
+    @classmethod
+    def for_model(cls, model, k=None, given=None):
+        """The chemistry of ``model``'s mechanism on its rows (rates following time), or on
+        stacked rows with rate coefficients ``k`` (B, R) and fixed densities ``given``."""
+        rates = (lambda t: model.rate_coefficients(t)) if k is None else np.asarray(k, float)
+        return cls(model.mechanism, rates, model.given if given is None else given)
+
     def at(self, time_s):
         if not callable(self._k):
             return self

@@ -30,6 +30,11 @@ class Transport(Process):
         self.index = transport.index
         self.rows_per_column = transport.A
 
+    @classmethod
+    def for_model(cls, model, k=None, given=None):
+        """The transport of ``model``'s moving species, or None for a photochemical column."""
+        return None if model.transport is None else cls(model.transport)
+
     def tendency(self, n, rows):
         return self.operator.tendency(n)
 
