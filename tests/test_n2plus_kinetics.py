@@ -3,7 +3,7 @@ recombination, and a box model against an independent master equation.
 
 References: the N2+ X vibrational constants omega_e = 2207.00, omega_e x_e = 16.10 cm-1
 (Huber & Herzberg 1979, Constants of Diatomic Molecules *(from memory)*) and h c / k_B =
-1.438777 cm K (CODATA 2018) for detailed balance; the read abstracts of Guberman 2012, J.
+1.438776877 cm K (CODATA 2018) for detailed balance; the read abstracts of Guberman 2012, J.
 Chem. Phys. 137, 074309 (v = 0 fit 2.2 (+0.2, -0.4) e-7 (Te/300)^-0.40, 100-3000 K) and
 Guberman 2014, J. Chem. Phys. 141, 204307 (levels overlap at 100 K except v = 3; excited
 levels slower at and above 300 K; a 300 K total below 2.0e-7 means excited ions); Mehr &
@@ -25,7 +25,7 @@ from ionochem.mechanism.parser import parse_reaction_list
 
 ROOT = Path(__file__).resolve().parents[1]
 LIST_PATH = ROOT / "reactions" / "ionosphere.reactions"
-WE, WEXE, C2 = 2207.00, 16.10, 1.438777           # cm-1, cm-1, cm K
+WE, WEXE, C2 = 2207.00, 16.10, 1.438776877           # cm-1, cm-1, cm K
 TOP = 5
 
 
@@ -157,7 +157,7 @@ def _box_list():
         t = f'table("{tab / f"n2plus_vib_dv{dv}.csv"}", "k")'
         lines.append(f"VdE{dv}(v): N2+(v) + e -> N2+(v-{dv}) + e | k = {t} "
                      f"| levels v = {dv}..5 | ref = default table")
-        lines.append(f"VE{dv}(v): N2+(v-{dv}) + e -> N2+(v) + e | k = {t}*exp(-1.438777*({de})"
+        lines.append(f"VE{dv}(v): N2+(v-{dv}) + e -> N2+(v) + e | k = {t}*exp(-1.438776877*({de})"
                      f"/Te) | levels v = {dv}..5 | ref = default table, detailed balance")
     return "\n".join(lines) + "\n"
 
@@ -213,3 +213,26 @@ def test_box_levels_match_an_independent_master_equation(column, tmp_path):
     # tolerance.
     bare = _master_equation_steady(electron_collisions=False)
     assert np.all(np.abs(ref[:, 5] / bare[:, 5] - 1) > 1e-3)
+
+
+def test_electron_collisions_alone_give_a_boltzmann_distribution_at_te(column, tmp_path):
+    """Detailed balance as physics: with production into each level proportional to the
+    Boltzmann factor exp(-E_v/k Te) and the same loss frequency for every level (no DR, no
+    relaxation), the detailed-balanced electron collisions leave that distribution
+    unchanged, so the model's levels are Boltzmann at Te and n2plus_vibrational_temperature
+    equals Te (Huber & Herzberg level energies), to 1e-8."""
+    (tmp_path / "bz_ne.csv").write_text(
+        "altitude_km,Ne\n" + "\n".join(f"{a},{n}" for a, n in zip(ALT, NE, strict=True)) + "\n")
+    text = "\n".join(ln for ln in _box_list().splitlines()
+                     if not ln.startswith(("DR(v)", "REL(v)"))) + "\n"
+    boltz = np.exp(-C2 * _energy_cm(np.arange(TOP + 1))[None, :] / TE[:, None])   # (A, v)
+    prod = {f"P(v={v})": 50.0 * boltz[:, v] for v in range(TOP + 1)}
+    prod["PO"] = np.full(ALT.size, 1e3)
+    path = column(text, ALT, neutrals={"N2": N_N2, "O": N_O, "N": np.full(ALT.size, 1e7)},
+                  Tn=np.full(ALT.size, 800.0), Te=TE, production=prod, name="bz",
+                  extra='[solve]\nelectrons = "table"\nelectron_table = "bz_ne.csv"\n'
+                        'balance_ion = "O+"\nrtol = 1e-13\n')
+    ds = ionochem.Model(ionochem.load_scenario(path)).solve()
+    n = np.stack([ds["density"].sel(species=f"N2+(v={v})").values for v in range(TOP + 1)], -1)
+    np.testing.assert_allclose(n / n[:, :1], boltz, rtol=1e-8)
+    np.testing.assert_allclose(ds["n2plus_vibrational_temperature"].values, TE, rtol=1e-8)
