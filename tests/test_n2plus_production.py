@@ -19,7 +19,7 @@ from ionochem.environment.n2plus_levels import (
     photoionization_split,
 )
 
-LEVELS = range(5)
+LEVELS = range(6)
 
 
 def _split(wl, **kw):
