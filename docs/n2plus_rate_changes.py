@@ -26,8 +26,8 @@ ALTS = (150.0, 200.0, 250.0, 300.0)
 SPECIES = ("N2+", "O+", "NO+", "e")
 _PREV = str(ROOT / "reactions" / "n2plus_dr_levels_previous.csv")
 _EQUAL = str(ROOT / "reactions" / "n2plus_dr_levels_equal.csv")
-_O2D_SPLIT = ("(0.3886 if v < 0.5 else 0.2791 if v < 1.5 else 0.1838 if v < 2.5 else 0.1038 "
-              "if v < 3.5 else 0.0417 if v < 4.5 else 0.0030)")
+_O2D_SPLIT = ("(0.38858 if v < 0.5 else 0.27910 if v < 1.5 else 0.18376 if v < 2.5 else "
+              "0.10384 if v < 3.5 else 0.04167 if v < 4.5 else 0.00305)")
 
 #: label, old rate -> new rate (text), the changes that put the OLD rate back.
 REVISIONS = [

@@ -236,3 +236,37 @@ def test_electron_collisions_alone_give_a_boltzmann_distribution_at_te(column, t
     n = np.stack([ds["density"].sel(species=f"N2+(v={v})").values for v in range(TOP + 1)], -1)
     np.testing.assert_allclose(n / n[:, :1], boltz, rtol=1e-8)
     np.testing.assert_allclose(ds["n2plus_vibrational_temperature"].values, TE, rtol=1e-8)
+
+
+# ----------------------------------------------------------------------------- level split
+def _demo_with(tmp_path, changes=""):
+    """The equinox demo on a 30 km grid, with an optional [changes] section."""
+    text = (ROOT / "scenarios" / "midlatitude_equinox.toml").read_text()
+    text = text.replace("../reactions/ionosphere.reactions",
+                        str(ROOT / "reactions" / "ionosphere.reactions"))
+    text = text.replace("step = 2.0", "step = 30.0")
+    path = tmp_path / "demo.toml"
+    path.write_text(text + ("\n[changes]\n" + changes + "\n" if changes else ""))
+    return ionochem.Model(ionochem.load_scenario(path))
+
+
+def test_product_level_assumption_switches_in_one_scenario_line(tmp_path):
+    """The O+(2D) + N2 level split is switched by one [changes] line: the template table
+    n2plus_o2d_levels_statistical.csv reproduces the default statistical split (the prior
+    P(v) ~ (E - E_v)^(3/2) of Levine & Bernstein, to the list's 5 decimals, 1e-3), and "all
+    into v = 0" puts the whole 1.5e-10 (Li et al. 1997 *(from memory)*) into v = 0."""
+    ids = [f"O2D_N2(v={v})" for v in range(TOP + 1)]
+    base = _demo_with(tmp_path)
+    cols = [base.reactions.index(i) for i in ids]
+    k_def = base.rate_coefficients()[:, cols]
+    table = _demo_with(tmp_path, 'set = { "O2D_N2" = "1.5e-10*table('
+                       '\\"n2plus_o2d_levels_statistical.csv\\", \\"fraction\\")" }')
+    np.testing.assert_allclose(table.rate_coefficients()[:, cols], k_def, rtol=1e-3)
+    ground = _demo_with(tmp_path, 'set = { "O2D_N2" = "1.5e-10 if v < 0.5 else 0" }')
+    k = ground.rate_coefficients()[:, cols]
+    np.testing.assert_allclose(k[:, 0], 1.5e-10, rtol=1e-12)
+    assert np.all(k[:, 1:] == 0.0)
+    np.testing.assert_allclose(k_def.sum(axis=1), 1.5e-10, rtol=1e-12)
+    # The assumption's uncertainty reaches the Monte Carlo: every level carries f >= 3.
+    f = base.uncertainty_factors()
+    assert np.all(np.asarray(f)[..., cols] >= 3.0)
