@@ -80,8 +80,11 @@ def test_loss_shares_and_vibrational_temperature_match_the_closed_form(column):
                                rtol=1e-12)
     assert np.all(np.isnan(sh.sel(species="N2+(v=0)", loss_process="X(v)").values))
     assert np.all(np.isnan(sh.sel(species="NO+").values))
-    classes = dict(zip(ds["loss_process"].values, ds["loss_process_class"].values,
+    flags = ds["loss_process_class"]
+    meaning = dict(zip(flags.attrs["flag_values"], flags.attrs["flag_meanings"].split(),
                        strict=True))
+    classes = {p: meaning[f] for p, f in zip(ds["loss_process"].values, flags.values,
+                                              strict=True)}
     assert classes == {"L(v)": "ion_neutral", "X(v)": "relaxation"}
     theta = (2207.00 - 2 * 16.10) * 1.438776877
     np.testing.assert_allclose(ds["n2plus_vibrational_temperature"].values,

@@ -22,7 +22,8 @@ total the dataset carries as a derived species):
   the share of its chemical loss (sum over reactions that consume it, k times the densities
   of the reactants) taken by each process -- a reaction family, or a reaction outside any
   family (NaN where the species is not a level or the process does not act on it). Each
-  process has a class in ``loss_process_class(loss_process)``: ``recombination`` (an
+  process has a class in ``loss_process_class(loss_process)``, a CF flag (1..4, meanings in
+  its ``flag_meanings``): ``recombination`` (an
   electron in, no ion out), ``electron_collision`` (an electron in, an ion of the same family
   out: vibrational excitation or de-excitation), ``relaxation`` (a neutral in, an ion of the
   same family out) and ``ion_neutral`` (the rest: charge transfer and reactions).
@@ -41,7 +42,11 @@ import numpy as np
 
 from ionochem.environment.n2plus_levels import CM_TO_K, x_level_energies_cm
 
-__all__ = ["level_output_vars", "level_loss_processes"]
+__all__ = ["level_output_vars", "level_loss_processes", "LOSS_CLASSES"]
+
+#: Classes of the processes that consume a level, in the order of the flag values 1..4 of
+#: ``loss_process_class`` (CF flag_values / flag_meanings).
+LOSS_CLASSES = ("recombination", "electron_collision", "relaxation", "ion_neutral")
 
 _ORDER_NAMES = {1: ("effective_rate_coefficient_first_order", "s-1"),
                 2: ("effective_rate_coefficient", "cm3 s-1"),
@@ -157,9 +162,13 @@ def _loss_share_vars(model, k, dens, names, lead_dims):
                               "chemical loss taken by each process (NaN where the species "
                               "is not a level or the process does not consume it)"}),
         "loss_process": ("loss_process", np.array([p[0] for p in procs], dtype=object)),
-        "loss_process_class": ("loss_process", np.array([p[1] for p in procs], dtype=object),
-                               {"long_name": "recombination, electron_collision, relaxation "
-                                "or ion_neutral"}),
+        "loss_process_class": ("loss_process",
+                               np.array([LOSS_CLASSES.index(p[1]) + 1 for p in procs],
+                                        dtype=np.int8),
+                               {"long_name": "class of each loss process",
+                                "flag_values": np.arange(1, len(LOSS_CLASSES) + 1,
+                                                         dtype=np.int8),
+                                "flag_meanings": " ".join(LOSS_CLASSES)}),
     }
 
 

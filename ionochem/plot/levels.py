@@ -49,7 +49,11 @@ def _loss_share_panel(ax, ds, members):
     """Share of the loss of v = 0 (dashed) and v = 1 (solid) by class of process."""
     alt = ds["altitude"].values
     share = ds["level_loss_share"]
-    classes = np.asarray(ds["loss_process_class"].values, dtype=str)
+    flags = ds["loss_process_class"]
+    meanings = str(flags.attrs.get("flag_meanings", "")).split()
+    values = [int(x) for x in np.atleast_1d(flags.attrs.get("flag_values", []))]
+    names = dict(zip(values, meanings, strict=False))
+    classes = np.array([names.get(int(x), "") for x in flags.values])
     for lvl, style in zip(members[:2], ("--", "-"), strict=False):
         x = share.sel(species=lvl).values                       # (process, altitude)
         for cls, colour in _CLASS_COLOURS.items():
