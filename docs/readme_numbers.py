@@ -87,7 +87,7 @@ def reading(model, ds):
 def compare_o2d(model, ds):
     """The O+(2D) + N2 rate-change experiment of the README."""
     from ionochem.analysis.compare import band_summary, compare
-    changed = model.with_changes(scale={"O2D_N2": 0.1875})
+    changed = model.with_changes(scale={"O2D_N2": 2.0})
     cmp = compare(model, changed, baseline=ds)
     rows = {(r.species, r.band): r for r in band_summary(cmp)}
 

@@ -265,14 +265,14 @@ def test_fit_command_writes_the_contract_variables(column, tmp_path, capsys):
 
 def test_family_and_te_parameters_resolve_on_the_default_list():
     """A family id with or without ``(v)`` frees all its levels (the default list's N2+
-    recombination family has five levels); Te is the electron temperature."""
+    recombination family has six levels, v = 0..5); Te is the electron temperature."""
     from pathlib import Path
     root = Path(__file__).resolve().parents[1]
     model = ionochem.Model(ionochem.load_scenario(root / "scenarios" /
                                                   "tabulated_column.toml"))
     a, b, c = resolve_parameters(model, ["DR_N2plus", "N2plus_O2(v)", "Te"])
-    assert [model.reactions[j] for j in a.indices] == [f"DR_N2plus(v={v})" for v in range(5)]
-    assert len(b.indices) == 5 and c.is_te and c.indices == ()
+    assert [model.reactions[j] for j in a.indices] == [f"DR_N2plus(v={v})" for v in range(6)]
+    assert len(b.indices) == 6 and c.is_te and c.indices == ()
     with pytest.raises(ionochem.InputError, match="overlaps"):
         resolve_parameters(model, ["DR_N2plus", "DR_N2plus(v=1)"])
 

@@ -61,6 +61,37 @@ def test_two_level_family_matches_the_closed_form(column):
     assert eff.attrs["units"] == "cm3 s-1"
 
 
+def test_loss_shares_and_vibrational_temperature_match_the_closed_form(column):
+    """level_loss_share of the two-level family: v = 1 loses k1 [O] n1 to L and k_r [N2] n1
+    to X, so the shares are k1 [O]/(k1 [O] + k_r [N2]) and the rest; v = 0 loses only to L
+    (share 1, X NaN: it does not act on v = 0); classes ion_neutral and relaxation.
+    n2plus_vibrational_temperature = theta/ln(n0/n1) with theta = (E1 - E0) h c/k_B =
+    2174.8 cm-1 x 1.438776877 cm K (Huber & Herzberg 1979 constants omega_e 2207.00,
+    omega_e x_e 16.10 *(from memory)*; CODATA 2018). To 1e-9."""
+    ds = _two_level(column, name="share").solve()
+    n1 = Q1 / (K1 * N_O + KR * N_N2)
+    n0 = (Q0 + KR * N_N2 * n1) / (K0 * N_O)
+    sh = ds["level_loss_share"]
+    np.testing.assert_allclose(sh.sel(species="N2+(v=1)", loss_process="L(v)"),
+                               K1 * N_O / (K1 * N_O + KR * N_N2), rtol=1e-9)
+    np.testing.assert_allclose(sh.sel(species="N2+(v=1)", loss_process="X(v)"),
+                               KR * N_N2 / (K1 * N_O + KR * N_N2), rtol=1e-9)
+    np.testing.assert_allclose(sh.sel(species="N2+(v=0)", loss_process="L(v)"), 1.0,
+                               rtol=1e-12)
+    assert np.all(np.isnan(sh.sel(species="N2+(v=0)", loss_process="X(v)").values))
+    assert np.all(np.isnan(sh.sel(species="NO+").values))
+    flags = ds["loss_process_class"]
+    meaning = dict(zip(flags.attrs["flag_values"], flags.attrs["flag_meanings"].split(),
+                       strict=True))
+    classes = {p: meaning[f] for p, f in zip(ds["loss_process"].values, flags.values,
+                                              strict=True)}
+    assert classes == {"L(v)": "ion_neutral", "X(v)": "relaxation"}
+    theta = (2207.00 - 2 * 16.10) * 1.438776877
+    np.testing.assert_allclose(ds["n2plus_vibrational_temperature"].values,
+                               theta / np.log(n0 / n1), rtol=1e-9)
+    assert ds["n2plus_vibrational_temperature"].attrs["units"] == "K"
+
+
 def test_infinite_relaxation_recovers_the_ground_level_rates(column):
     """With relaxation far faster than any loss (k_r [N2] / (k1 [O]) > 1e6), every ion is
     in v = 0: the effective loss rate is k0 and the summed N2+ is the unresolved
@@ -133,9 +164,9 @@ def demo():
     return model, model.sensitivity()
 
 
-@pytest.mark.parametrize("v", range(5))
+@pytest.mark.parametrize("v", range(6))
 def test_sensitivity_to_each_levels_recombination_is_exact(demo, v):
-    """S = d ln n / d ln k of N2+(v=0..4) and of summed N2+ to the recombination of level v
+    """S = d ln n / d ln k of N2+(v=0..5) and of summed N2+ to the recombination of level v
     (both product channels scaled together: the sum of the two exact columns) equals the
     central difference of re-solved columns with both scaled by exp(+-h), h = 3e-4
     (independent Newton solves), to 1e-5."""
@@ -143,7 +174,7 @@ def test_sensitivity_to_each_levels_recombination_is_exact(demo, v):
     ids = [f"DR_N2plus(v={v})", f"DR_N2plus_2D2D(v={v})"]
     up = model.with_changes(scale={i: np.exp(STEP) for i in ids}).solve()
     dn = model.with_changes(scale={i: np.exp(-STEP) for i in ids}).solve()
-    for s in ["N2+", *[f"N2+(v={w})" for w in range(5)]]:
+    for s in ["N2+", *[f"N2+(v={w})" for w in range(6)]]:
         fd = (np.log(up["density"].sel(species=s).values)
               - np.log(dn["density"].sel(species=s).values)) / (2 * STEP)
         exact = sens["sensitivity"].sel(species=s, reaction=ids).sum("reaction").values
@@ -160,7 +191,7 @@ def test_rank_lists_every_levels_recombination(demo):
     _, sens = demo
     rows = rank_reactions(sens, "N2+(v=1)", top=None, min_share=0, members=True)
     by_id = {r.reaction: r for r in rows}
-    for v in range(5):
+    for v in range(6):
         assert f"DR_N2plus(v={v})" in by_id
     assert by_id["DR_N2plus(v=1)"].signed_at_max < 0
     assert by_id["DR_N2plus(v=1)"].max_abs > by_id["DR_N2plus(v=3)"].max_abs

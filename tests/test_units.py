@@ -73,10 +73,10 @@ def test_ties_are_read_and_checked_at_their_line():
 
 
 def test_default_list_ties_the_branches_of_n2plus_recombination():
-    """The default list's tie joins both N2+ recombination families (10 levels)."""
+    """The default list's tie joins both N2+ recombination families (12 levels, v = 0..5)."""
     model_units = ionochem.load_mechanism("reactions/ionosphere.reactions").units
     dr = [u for u in model_units if u.name == "DR_N2plus_branches"][0]
-    assert dr.parts == ("DR_N2plus(v)", "DR_N2plus_2D2D(v)") and len(dr.members) == 10
+    assert dr.parts == ("DR_N2plus(v)", "DR_N2plus_2D2D(v)") and len(dr.members) == 12
 
 
 # ----------------------------------------------------------------------------- sensitivity
@@ -128,7 +128,7 @@ def test_budget_has_one_line_per_process_equal_to_the_sum_of_its_levels(demo):
     ids = [r[0] for r in b.production]
     assert ids.count("O2D_N2(v)") == 1 and not any("(v=" in i for i in ids)
     a = int(np.argmin(np.abs(ds["altitude"].values - 250.0)))
-    levels = [f"O2D_N2(v={v})" for v in range(5)]
+    levels = [f"O2D_N2(v={v})" for v in range(6)]
     expected = ds["reaction_rate"].sel(reaction=levels).values[:, a].sum()
     got = [r[2] for r in b.production if r[0] == "O2D_N2(v)"][0]
     assert got == pytest.approx(expected, rel=1e-12)
@@ -226,5 +226,5 @@ def test_fit_frees_a_tie_as_one_multiplier():
     model = ionochem.Model(ionochem.load_scenario(DEMO))
     (p,) = resolve_parameters(model, ["DR_N2plus_branches"])
     names = {model.reactions[j] for j in p.indices}
-    assert names == {f"DR_N2plus(v={v})" for v in range(5)} | {
-        f"DR_N2plus_2D2D(v={v})" for v in range(5)}
+    assert names == {f"DR_N2plus(v={v})" for v in range(6)} | {
+        f"DR_N2plus_2D2D(v={v})" for v in range(6)}

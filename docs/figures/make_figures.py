@@ -25,7 +25,7 @@ COMMANDS = (
     ("midlatitude_equinox.png",
      ["run", "scenarios/midlatitude_equinox.toml", "-o", "{tmp}/midlatitude.nc"], "--plot"),
     ("compare_O2D_N2.png",
-     ["compare", "scenarios/midlatitude_equinox.toml", "--scale", "O2D_N2=0.1875"], "--plot"),
+     ["compare", "scenarios/midlatitude_equinox.toml", "--scale", "O2D_N2=2"], "--plot"),
     ("rank_N2plus.png",
      ["rank", "scenarios/midlatitude_equinox.toml", "--species", "N2+", "--altitudes",
       "150:300"], "--plot"),

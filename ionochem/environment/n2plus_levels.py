@@ -77,6 +77,36 @@ _MU_N2 = 0.5 * 14.0030740048 * _AMU  # reduced mass of 14N2 (AME atomic mass of 
 _R_GRID_A = np.linspace(0.75, 2.2, 3000)
 
 
+#: Second radiation constant h c / k_B, cm K (CODATA 2018, from exact constants).
+CM_TO_K = 1.438776877
+
+#: Term values of O+(2D) and O+(2P) above O+(4S), cm-1: 26817 and 40467 (O II levels of the
+#: ADAS adf04 file nlike_dhbl94#o, read; shared/SOURCES.md section 1.4).
+OPLUS_LEVELS_CM = MappingProxyType({"2D": 26817.0, "2P": 40467.0})
+
+#: Ionization energies, eV: O 13.618 and N2 (into N2+ X v=0) 15.581 (NIST *(from memory)*).
+_IP_O_EV = 13.618
+
+#: Energy released by O+(2D) + N2 -> N2+ X(v=0) + O: IP(O) + E(2D) - IP(N2) = 1.362 eV, and by
+#: O+(2P) + N2: 3.054 eV (levels above; ionization energies *(from memory)*).
+O2D_N2_EXOTHERMICITY_EV = round(_IP_O_EV + OPLUS_LEVELS_CM["2D"] * CM_TO_EV - 15.581, 3)
+O2P_N2_EXOTHERMICITY_EV = round(_IP_O_EV + OPLUS_LEVELS_CM["2P"] * CM_TO_EV - 15.581, 3)
+
+
+def x_level_energies_cm(n_levels: int = 6) -> np.ndarray:
+    """Vibrational energies of N2+ X above v = 0, cm-1, from the Dunham two-term expansion.
+
+    G(v) = omega_e (v + 1/2) - omega_e x_e (v + 1/2)^2 with omega_e = 2207.00 and omega_e x_e
+    = 16.10 cm-1 (Huber & Herzberg 1979, Constants of Diatomic Molecules *(from memory)*;
+    :data:`SPECTROSCOPIC_CONSTANTS`); the Morse levels of :func:`vibrational_levels` are the
+    same expansion up to the grid error. E(1) - E(0) = 2174.8 cm-1 (3129 K).
+    """
+    k = SPECTROSCOPIC_CONSTANTS["N2+(X)"]
+    v = np.arange(n_levels) + 0.5
+    g = k["we"] * v - k["wexe"] * v ** 2
+    return g - g[0]
+
+
 @lru_cache(maxsize=None)
 def vibrational_levels(state: str, n_levels: int = 16) -> tuple[np.ndarray, np.ndarray]:
     """Vibrational levels (J = 0) of a Morse model of one N2 or N2+ state.

@@ -18,6 +18,19 @@ total the dataset carries as a derived species):
   variable has one unit. Families whose levels are only made (photoionization into N2+(v),
   O+(2D) + N2 -> N2+(v) + O) have no population weight; their total is the sum of their
   members' rate coefficients.
+- ``level_loss_share(species, loss_process, altitude)``: for every level of a family species,
+  the share of its chemical loss (sum over reactions that consume it, k times the densities
+  of the reactants) taken by each process -- a reaction family, or a reaction outside any
+  family (NaN where the species is not a level or the process does not act on it). Each
+  process has a class in ``loss_process_class(loss_process)``, a CF flag (1..4, meanings in
+  its ``flag_meanings``): ``recombination`` (an
+  electron in, no ion out), ``electron_collision`` (an electron in, an ion of the same family
+  out: vibrational excitation or de-excitation), ``relaxation`` (a neutral in, an ion of the
+  same family out) and ``ion_neutral`` (the rest: charge transfer and reactions).
+- ``n2plus_vibrational_temperature(altitude)``: the temperature of a Boltzmann distribution
+  with the model's N2+(v=1)/N2+(v=0) ratio, T = (E_1 - E_0)/(k ln(n0/n1)), E_1 - E_0 =
+  2174.8 cm-1 (3129 K; :func:`ionochem.environment.n2plus_levels.x_level_energies_cm`);
+  NaN where n1 >= n0 or either is zero. Present when both levels are in the dataset.
 
 Every array carries leading axes (time) before (altitude, ...): this module is used by the
 steady and the transient dataset builders alike.
@@ -27,7 +40,13 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["level_output_vars"]
+from ionochem.environment.n2plus_levels import CM_TO_K, x_level_energies_cm
+
+__all__ = ["level_output_vars", "level_loss_processes", "LOSS_CLASSES"]
+
+#: Classes of the processes that consume a level, in the order of the flag values 1..4 of
+#: ``loss_process_class`` (CF flag_values / flag_meanings).
+LOSS_CLASSES = ("recombination", "electron_collision", "relaxation", "ion_neutral")
 
 _ORDER_NAMES = {1: ("effective_rate_coefficient_first_order", "s-1"),
                 2: ("effective_rate_coefficient", "cm3 s-1"),
@@ -62,6 +81,110 @@ def family_reactants(model):
         if pairs:
             out.append((fam, total, pairs, order))
     return out
+
+
+def _loss_class(reaction, family_of):
+    """Class of a reaction that consumes a level (module docstring)."""
+    ins = [sp for sp, _ in reaction.reactants]
+    level_in = {family_of[sp.name] for sp in ins if sp.name in family_of}
+    level_out = {family_of[sp.name] for sp, _ in reaction.products if sp.name in family_of}
+    has_e = any(sp.name == "e" for sp in ins)
+    if has_e and level_in & level_out:
+        return "electron_collision"
+    if has_e:
+        return "recombination"
+    if level_in & level_out:
+        return "relaxation"
+    return "ion_neutral"
+
+
+def level_loss_processes(model):
+    """Processes that consume a level of a family species, grouped by reaction family.
+
+    Returns
+    -------
+    list of (process name, class, [(reaction index, [(level species, count)],
+    [(reactant species, count)])])
+    """
+    mech = model.mechanism
+    family_of = {m: tot.name for tot in mech.derived for m in tot.members if "v=" in m}
+    if not family_of:
+        return []
+    groups: dict[str, list] = {}
+    classes: dict[str, str] = {}
+    for j, r in enumerate(model.reaction_objects):
+        net: dict[str, int] = {}
+        for sp, c in r.reactants:
+            net[sp.name] = net.get(sp.name, 0) - c
+        for sp, c in r.products:
+            net[sp.name] = net.get(sp.name, 0) + c
+        lost = [(name, -n) for name, n in net.items() if n < 0 and name in family_of]
+        if not lost:
+            continue
+        name = r.family or r.id
+        groups.setdefault(name, []).append(
+            (j, lost, [(sp.name, c) for sp, c in r.reactants]))
+        classes.setdefault(name, _loss_class(r, family_of))
+    return [(name, classes[name], members) for name, members in groups.items()]
+
+
+def _loss_share_vars(model, k, dens, names, lead_dims):
+    """``level_loss_share`` and ``loss_process_class`` (module docstring)."""
+    procs = model.structural("level_loss_processes", lambda: level_loss_processes(model))
+    col = {n: i for i, n in enumerate(names)}
+    if not procs or any(s not in col for _, _, m in procs for _, _, rs in m for s, _ in rs):
+        return {}
+    levels = sorted({s for _, _, m in procs for _, lost, _ in m for s, _ in lost},
+                    key=col.get)
+    loss = np.zeros((*dens.shape[:-1], len(levels), len(procs)))
+    li = {s: i for i, s in enumerate(levels)}
+    for p, (_, _, members) in enumerate(procs):
+        for j, lost, reactants in members:
+            rate = k[..., j].copy()
+            for s, c in reactants:
+                rate = rate * dens[..., col[s]] ** c
+            for s, c in lost:
+                loss[..., li[s], p] += c * rate
+    total = loss.sum(axis=-1, keepdims=True)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        share = np.where(total > 0, loss / total, np.nan)
+    acts = np.zeros((len(levels), len(procs)), bool)
+    for p, (_, _, members) in enumerate(procs):
+        for _, lost, _ in members:
+            acts[[li[s] for s, _ in lost], p] = True
+    share = np.where(acts, share, np.nan)
+    full = np.full((*dens.shape[:-1], len(names), len(procs)), np.nan)
+    full[..., [col[s] for s in levels], :] = share
+    full = np.moveaxis(full, -3, -1)                   # (..., species, process, altitude)
+    return {
+        "level_loss_share": ((*lead_dims, "species", "loss_process", "altitude"), full,
+                             {"units": "1", "long_name": "share of a vibrational level's "
+                              "chemical loss taken by each process (NaN where the species "
+                              "is not a level or the process does not consume it)"}),
+        "loss_process": ("loss_process", np.array([p[0] for p in procs], dtype=object)),
+        "loss_process_class": ("loss_process",
+                               np.array([LOSS_CLASSES.index(p[1]) + 1 for p in procs],
+                                        dtype=np.int8),
+                               {"long_name": "class of each loss process",
+                                "flag_values": np.arange(1, len(LOSS_CLASSES) + 1,
+                                                         dtype=np.int8),
+                                "flag_meanings": " ".join(LOSS_CLASSES)}),
+    }
+
+
+def _vibrational_temperature_var(dens, names, lead_dims):
+    """``n2plus_vibrational_temperature`` from the v = 1 / v = 0 ratio (module docstring)."""
+    if "N2+(v=0)" not in names or "N2+(v=1)" not in names:
+        return {}
+    n0 = dens[..., names.index("N2+(v=0)")]
+    n1 = dens[..., names.index("N2+(v=1)")]
+    theta = CM_TO_K * float(x_level_energies_cm(2)[1])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.where((n1 > 0) & (n0 > n1), theta / np.log(n0 / n1), np.nan)
+    return {"n2plus_vibrational_temperature": (
+        (*lead_dims, "altitude"), t,
+        {"units": "K", "long_name": "N2+ vibrational temperature from the v = 1/v = 0 "
+         "ratio, (E1 - E0)/(k ln(n0/n1)), E1 - E0 = 3129 K (NaN where n1 >= n0)"})}
 
 
 def level_output_vars(model, k, dens, names, lead_dims=()):
@@ -132,4 +255,7 @@ def level_output_vars(model, k, dens, names, lead_dims=()):
         out["family_species"] = ("family_reaction", np.array([f[1] for f in fams],
                                                              dtype=object),
                                  {"long_name": "the family species whose levels react"})
+    names = list(names)
+    out.update(_loss_share_vars(model, k, dens, names, lead_dims))
+    out.update(_vibrational_temperature_var(dens, names, lead_dims))
     return out

@@ -4,8 +4,11 @@ Left panel: ``level_fraction`` of each level against altitude (log axis, so the 
 excited shares are readable); right panel: the population-weighted (effective) rate
 coefficient of each loss family divided by its v = 0 member's rate coefficient: what an
 unresolved model would have to assume at each height relative to the ground-state rate
-(families without a v = 0 member, such as relaxation, are left out). The figure reads one
-steady result dataset. Draws only; computes no chemistry.
+(families without a v = 0 member, such as relaxation, are left out). When the dataset has
+them, a third panel shows each class of process's share of the loss of v = 0 (dashed) and
+v = 1 (solid) (``level_loss_share`` summed over ``loss_process_class``), and a fourth the
+N2+ vibrational temperature from the v = 1/v = 0 ratio beside Te and Tn. The figure reads
+one steady result dataset. Draws only; computes no chemistry.
 """
 
 from __future__ import annotations
@@ -38,6 +41,48 @@ def family_members(ds, family: str) -> list[str]:
     return sorted(members, key=level)
 
 
+_CLASS_COLOURS = {"recombination": "tab:red", "electron_collision": "tab:purple",
+                  "relaxation": "tab:green", "ion_neutral": "tab:blue"}
+
+
+def _loss_share_panel(ax, ds, members):
+    """Share of the loss of v = 0 (dashed) and v = 1 (solid) by class of process."""
+    alt = ds["altitude"].values
+    share = ds["level_loss_share"]
+    flags = ds["loss_process_class"]
+    meanings = str(flags.attrs.get("flag_meanings", "")).split()
+    values = [int(x) for x in np.atleast_1d(flags.attrs.get("flag_values", []))]
+    names = dict(zip(values, meanings, strict=False))
+    classes = np.array([names.get(int(x), "") for x in flags.values])
+    for lvl, style in zip(members[:2], ("--", "-"), strict=False):
+        x = share.sel(species=lvl).values                       # (process, altitude)
+        for cls, colour in _CLASS_COLOURS.items():
+            rows = classes == cls
+            if not rows.any():
+                continue
+            y = np.nansum(x[rows], axis=0)
+            ax.plot(y, alt, ls=style, color=colour, lw=1.5,
+                    label=f"{cls.replace('_', ' ')}, {lvl}")
+    ax.set_xlim(0.0, 1.0)
+    ax.set_xlabel("share of the level's loss")
+    ax.grid(True, alpha=0.3)
+    legend_below(ax, ncol=2, fontsize=7)
+
+
+def _temperature_panel(ax, ds, family):
+    """N2+ vibrational temperature (v = 1/v = 0) beside Te and Tn."""
+    alt = ds["altitude"].values
+    if family == "N2+" and "n2plus_vibrational_temperature" in ds:
+        ax.plot(ds["n2plus_vibrational_temperature"].values, alt, color="k", lw=2.0,
+                label="N2+ vibrational (v=1/v=0)")
+    for name, colour in (("Te", "tab:orange"), ("Tn", "tab:gray")):
+        if name in ds and ds[name].dims == ("altitude",):
+            ax.plot(ds[name].values, alt, color=colour, lw=1.2, ls=":", label=name)
+    ax.set_xlabel("temperature (K)")
+    ax.grid(True, alpha=0.3)
+    legend_below(ax, ncol=1, fontsize=7)
+
+
 def plot_levels(ds, path, *, family: str = "N2+", title=None):
     """Write the level-distribution figure of ``family`` for a steady result dataset.
 
@@ -65,7 +110,11 @@ def plot_levels(ds, path, *, family: str = "N2+", title=None):
     if not members:
         raise InputError(f"no vibrational levels of {family} in the result")
     alt = ds["altitude"].values
-    fig, (ax, bx) = plt.subplots(1, 2, figsize=(10.0, 5.6), sharey=True, layout="constrained")
+    extra = "level_loss_share" in ds and "loss_process_class" in ds
+    ncol = 4 if extra else 2
+    fig, axes = plt.subplots(1, ncol, figsize=(5.0 * ncol, 5.6), sharey=True,
+                             layout="constrained")
+    ax, bx = axes[0], axes[1]
     top = max(len(members) - 1, 1)
     for i, s in enumerate(members):
         f = ds["level_fraction"].sel(species=s).values
@@ -122,6 +171,9 @@ def plot_levels(ds, path, *, family: str = "N2+", title=None):
     bx.grid(True, alpha=0.3)
     if drawn:
         legend_below(bx, ncol=len(groups), fontsize=7)
+    if extra:
+        _loss_share_panel(axes[2], ds, members)
+        _temperature_panel(axes[3], ds, family)
     fig.suptitle((title or ds.attrs.get("title", "")) + f"\nlevels of {family}", fontsize=10)
     data = _figure_bytes(fig, path)
     plt.close(fig)
