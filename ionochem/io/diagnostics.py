@@ -189,14 +189,21 @@ def _light_vars(model, out, notes):
     dark = env.dark(None)
     sources = list(getattr(env.sun, "photon_sources", ()) or ())
     night = any(src.startswith("night:") for src in sources)
-    # Only a photochemical column is "photochemistry alone": with transport the note
-    # does not apply.
-    if dark.all() and not _given_ne(model) and getattr(model, "transport", None) is None:
-        notes.append("every altitude is dark: only the scattered night-time sources ionize "
-                     "(photochemistry alone, without transport, cannot keep the night F "
-                     "layer)" if night else
-                     "every altitude is dark: photochemistry alone cannot sustain the night "
-                     "ionosphere (no transport, no night-time sources)")
+    # "Photochemistry alone" applies only to a column without transport; with transport
+    # the F layer is what diffusion and the boundary flux keep.
+    moved = getattr(model, "transport", None) is not None
+    if dark.all() and not _given_ne(model):
+        if moved:
+            notes.append("every altitude is dark: " + (
+                "only the scattered night-time sources ionize" if night else
+                "nothing ionizes (no night-time sources)")
+                + "; the F layer is what transport and the upper-boundary flux keep")
+        else:
+            notes.append("every altitude is dark: only the scattered night-time sources "
+                         "ionize (photochemistry alone, without transport, cannot keep the "
+                         "night F layer)" if night else
+                         "every altitude is dark: photochemistry alone cannot sustain the "
+                         "night ionosphere (no transport, no night-time sources)")
     out["dark"] = ("altitude", dark.astype(np.int8),
                    {"long_name": "no direct sunlight reaches the altitude",
                     "flag_values": np.array([0, 1], np.int8), "flag_meanings": "sunlit dark"})
