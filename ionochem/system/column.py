@@ -165,8 +165,23 @@ class ColumnSystem:
         if not self.coupled:
             return block_diagonal(np.asarray(blocks))
         if self._assembler is None:
-            self._assembler = ColumnJacobian(self.n_rows, len(self.unknowns), self.coupling())
+            self._assembler = self._kept_assembler()
         return self._assembler(blocks)
+
+    def _kept_assembler(self):
+        """The CSC structure of the whole Jacobian, kept by the coupling process when there
+        is one (its matrix is constant): every system that shares it — a model and its
+        changed copies on the same environment — builds the structure once."""
+        key = (self.n_rows, len(self.unknowns), self.n_columns)
+        store = None
+        if len(self.coupling_processes) == 1:
+            store = self.coupling_processes[0].kept_structures()
+            if key in store:
+                return store[key]
+        assembler = ColumnJacobian(self.n_rows, len(self.unknowns), self.coupling())
+        if store is not None:
+            store[key] = assembler
+        return assembler
 
     # ------------------------------------------------------------ solutions
     def steady(self, *, rtol, n0=None, atol=1e-30, linear=None, stats=None):

@@ -77,6 +77,12 @@ class Process:
         ``n_columns`` stacked columns (entry (b·U + i, c·U + j) = ∂f_{b,i}/∂n_{c,j})."""
         raise NotImplementedError
 
+    def kept_structures(self):
+        """Coupling process: a dict where the system keeps the assembled Jacobian's
+        structure for this (constant) coupling, shared by every system using the process's
+        operator."""
+        return self.__dict__.setdefault("_kept_structures", {})
+
     def at(self, time_s):
         """The process at a time after the scenario's (the sun moves); default itself."""
         return self

@@ -48,6 +48,10 @@ class Transport(Process):
     def coupling(self, n_columns):
         return self.operator.matrix(n_columns)
 
+    def kept_structures(self):
+        # On the operator, which the models of one environment share (species_transport).
+        return self.operator.__dict__.setdefault("_kept_structures", {})
+
 
 def species_transport(scenario, environment, species, reaction_path):
     """The transport operator of the scenario's moving species on the environment's column
@@ -61,6 +65,12 @@ def species_transport(scenario, environment, species, reaction_path):
     coef = getattr(environment, "transport", None)
     if coef is None:
         return None
+    # One operator per environment and species list: a model's changed copies share it
+    # (and the Jacobian structure kept on it).
+    key = (tuple(species), tuple(scenario.transport.species))
+    kept = environment.__dict__.setdefault("_species_transport", {})
+    if key in kept:
+        return kept[key]
     names = scenario.transport.species
     for name in names:
         if name not in species:
@@ -68,4 +78,5 @@ def species_transport(scenario, environment, species, reaction_path):
                                  f"species of {reaction_path}", file=scenario.source)
     op = transport_operator(coef.altitude_km, coef.D_cm2_s, coef.V_cm_s,
                             coef.upper_flux_cm2_s)
-    return SpeciesTransport(op, list(species).index(names[0]), len(species))
+    kept[key] = SpeciesTransport(op, list(species).index(names[0]), len(species))
+    return kept[key]
