@@ -22,6 +22,10 @@ refs = importlib.util.module_from_spec(_spec)
 _spec.loader.exec_module(refs)
 
 RTOL = 1e-10
+#: Variables that are small differences of large terms (the transport divergence, the flux
+#: between rows): their precision is the solver's, 1e-10 of the column's gross rates, so
+#: they are compared to RTOL of their own largest magnitude rather than value by value.
+DIFFERENCES = ("transport_rate", "vertical_flux")
 
 
 @pytest.fixture(scope="module")
@@ -30,10 +34,12 @@ def stored():
         return {name: z[name] for name in z.files}
 
 
-def _close(new, old):
-    """Equal to RTOL relative, values below RTOL of the array's largest magnitude being
-    noise of the same size as the largest's rounding."""
+def _close(new, old, name=""):
+    """Equal to RTOL relative, values below 1e-3 RTOL of the array's largest magnitude being
+    noise of the same size as the largest's rounding (see DIFFERENCES for the exceptions)."""
     scale = float(np.nanmax(np.abs(old), initial=0.0))
+    if name in DIFFERENCES:
+        return np.allclose(new, old, rtol=0.0, atol=RTOL * scale, equal_nan=True)
     return np.allclose(new, old, rtol=RTOL, atol=RTOL * scale * 1e-3, equal_nan=True)
 
 
@@ -49,5 +55,5 @@ def test_demo_result_equals_its_reference(path, stored):
     assert not missing, f"{path.stem}: variables gone from the result: {sorted(missing)}"
     moved = [name for name in sorted(keys)
              if new[name].shape != stored[f"{path.stem}/{name}"].shape
-             or not _close(new[name], stored[f"{path.stem}/{name}"])]
+             or not _close(new[name], stored[f"{path.stem}/{name}"], name)]
     assert not moved, f"{path.stem}: variables moved beyond {RTOL:g}: {moved}"
