@@ -18,9 +18,11 @@ Method
    start: the molecular ions hardly move, O+ relaxes to its transported profile), then a
    few geometric-mean sweeps n ← sqrt(n P/λ), λ = L/n, with transport counted in P and L,
    so species with no production go to zero and rows with none become positive.
-2. Damped Newton on the whole column: J Δn = −f solved by one sparse LU factorisation of
-   the (B·S)² Jacobian per iteration (SuperLU through ``scipy.sparse.linalg.splu``; the
-   matrix has bandwidth ≈ 2S, so the cost is linear in the number of rows) — or, from
+2. Damped Newton on the whole column: J Δn = −f solved by one LU factorisation of the
+   (B·S)² Jacobian per iteration (:func:`factorise`: LAPACK's banded ``dgbtrf`` when the
+   band is narrow, as for the demo's 12 species, else SuperLU through
+   ``scipy.sparse.linalg.splu``; the matrix has bandwidth ≈ 2S, so the cost is linear in
+   the number of rows) — or, from
    :data:`CHORD_FROM` = 10,000 unknowns, a chord Newton that keeps the LU while every step
    cuts the scaled residual norm tenfold and refactorises otherwise (see "Linear solver"
    below). The Jacobian's CSC structure is built once per column
