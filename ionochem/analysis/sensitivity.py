@@ -16,14 +16,19 @@ is proportional to it, so ∂ln r_j/∂ln F = 1 for those) and each fixed neutra
 (∂ln r_j/∂ln n_X = the count of X among the reactants). These are *local*: a neutral's
 density enters the rates at the level, not the optical depth above it.
 
-Cost: one steady solve (or a given solution), one Jacobian and one batched LU solve with
-R + 1 right-hand sides. Dark levels (no densities) get NaN.
+Cost: one steady solve (or a given solution), one Jacobian, one batched inverse of the
+levels' blocks and a few matrix products: the right-hand sides ν_j r_j share the S rows of ν,
+so each reported species' response is ((rows · J⁻¹) ν) diag(r) (see ``_level_responses``).
+Dark levels (no densities) get NaN. What depends only on the model (∂ln k/∂ln T, the factor
+columns, the output rows, the result's coordinates) is kept per model (``model.structural``).
 
-With transport the levels are coupled: the same equations hold for the whole column, with
-the sparse block-tridiagonal Jacobian of ``model.column_jacobian``, factorised once (SuperLU)
-for all R + 1 right-hand sides. The transport coefficients depend on Te and Ti through the
-plasma temperature, so the Te column adds ∂(transport)/∂ln Te, by the same central
-difference of the transport operator alone.
+With transport the levels are coupled: the same equations hold for the whole column, whose
+Jacobian (``model.column_jacobian``) couples levels only through the transported species.
+The other species are eliminated level by level (Schur complement; ``_schur_solve``) and the
+transported ones solved as one banded system for all R + F right-hand sides (one sparse LU
+of the whole column when every species is coupled). The transport coefficients
+depend on Te and Ti through the plasma temperature, so the Te column adds
+∂(transport)/∂ln Te, by the same central difference of the transport operator alone.
 """
 
 from __future__ import annotations
@@ -31,7 +36,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from ionochem.analysis.units import sum_over_units, unit_coords, unit_map
+from ionochem.analysis.units import unit_coords, unit_map
 
 TE_STEP = 1e-5
 
@@ -68,19 +73,30 @@ def environment_factors(model, dlnk_te):
     dln : ndarray (altitude, reaction, factor)
     """
     A, R = dlnk_te.shape
+    factors, varying, constant = _factor_columns(model, dlnk_te)
+    cols = [varying[..., f] for f in range(varying.shape[-1])]
+    cols += [np.broadcast_to(constant[:, f], (A, R)) for f in range(constant.shape[-1])]
+    return factors, np.stack(cols, axis=-1)
+
+
+def _factor_columns(model, dlnk_te):
+    """The factors, their altitude-dependent columns (A, R, Fv: Te, Ti, Tn) and their
+    constant columns (R, Fc: EUV, n(X)), in the order of :func:`environment_factors`."""
+    A, R = dlnk_te.shape
     factors = [("Te", "electron temperature (every Te-dependent rate)")]
-    cols = [dlnk_te]
+    varying = [dlnk_te]
     for name, what in (("Ti", "ion temperature (rates of Ti and Teff)"),
                        ("Tn", "neutral temperature (rates of Tn and Teff)")):
         d = _dlnk(model, name)
         if np.any(d != 0):
             factors.append((name, what))
-            cols.append(d)
+            varying.append(d)
+    constant = []
     photo = np.array([bool(e.variables & {"photo", "photoelectron"})
                       for e in model.rate_expressions], float)
     if photo.any():
         factors.append(("EUV", "solar photon flux (every photo and photoelectron rate)"))
-        cols.append(np.broadcast_to(photo, (A, R)))
+        constant.append(photo)
     fixed = getattr(model.environment, "neutrals", {})
     for name in fixed:
         # A prescribed rate is a given volume rate: no neutral density scales it.
@@ -91,12 +107,9 @@ def environment_factors(model, dlnk_te):
         if count.any():
             factors.append((f"n({name})", f"density of {name} where it reacts (local; not "
                                           "its optical depth)"))
-            cols.append(np.broadcast_to(count, (A, R)))
-    return factors, np.stack(cols, axis=-1)
-
-
-def _solved_matrix(model, ds):
-    return np.stack([ds["density"].sel(species=s).values for s in model.species], -1)
+            constant.append(count)
+    return (factors, np.stack(varying, axis=-1),
+            np.stack(constant, axis=-1) if constant else np.zeros((R, 0)))
 
 
 def _transport_te_column(model, n):
@@ -119,17 +132,84 @@ def _transport_te_column(model, n):
 
 
 def _column_solve(model, n, B, live):
-    """−J⁻¹ B for the live levels of a transport-coupled column: one sparse LU."""
+    """−J⁻¹ B for the live levels of a transport-coupled column.
+
+    The column Jacobian couples levels only through the transported species (the transport
+    operator acts on them alone), so the others are eliminated level by level (the Schur
+    complement, :func:`_schur_solve`): the level blocks are inverted in one batch and what
+    is left is a banded system in the transported densities (A × their number; tridiagonal
+    for one), solved once for every right-hand side. One sparse LU of the whole column (the
+    former method) remains for a column where every species is coupled, or a singular
+    level block.
+    """
+    J = model.column_jacobian(n)
+    A, S, K = B.shape
+    keep = np.repeat(live, S)
+    Jl = (J if live.all() else J[keep][:, keep]).tocsc()
+    Jl.sum_duplicates()                                 # a no-op when canonical
+    Jl = Jl.tocoo()
+    lv_r, lv_c = Jl.row // S, Jl.col // S
+    off = lv_r != lv_c
+    t = np.union1d(Jl.row[off] % S, Jl.col[off] % S)
+    if t.size == S:                                     # nothing to eliminate
+        return _sparse_solve(Jl, B)
+    D = np.zeros((A, S, S))
+    on = ~off
+    D[lv_r[on], Jl.row[on] % S, Jl.col[on] % S] = Jl.data[on]
+    tpos = np.full(S, -1)
+    tpos[t] = np.arange(t.size)
+    coupling = (lv_r[off] * t.size + tpos[Jl.row[off] % S],
+                lv_c[off] * t.size + tpos[Jl.col[off] % S], Jl.data[off])
+    try:
+        return _schur_solve(D, t, coupling, B)
+    except (np.linalg.LinAlgError, RuntimeError):
+        return _sparse_solve(Jl, B)
+
+
+def _sparse_solve(J, B):
+    """−J⁻¹ B with one sparse LU of the whole (live) column."""
     from scipy.sparse.linalg import splu
 
     from ionochem.solve.column import ORDERING
     A, S, K = B.shape
-    J = model.column_jacobian(n)
-    keep = np.repeat(live, S)
-    Jl = J[keep][:, keep].tocsc()
-    lu = splu(Jl, permc_spec=ORDERING)
-    x = lu.solve(np.ascontiguousarray(B[live].reshape(-1, K)))
-    return -x.reshape(-1, S, K)
+    lu = splu(J.tocsc(), permc_spec=ORDERING)
+    x = lu.solve(np.ascontiguousarray(B.reshape(-1, K)))
+    return -x.reshape(A, S, K)
+
+
+def _schur_solve(D, t, coupling, B):
+    """−J⁻¹ B for J = the level blocks D (A, S, S) plus ``coupling`` (rows, cols, values in
+    the transported unknowns, level-major) between the species ``t`` of different levels.
+
+    With X = D⁻¹ (one batched LU) and C the coupling, J x = B reads x = X (B − C x); its
+    transported part solves (I + X_tt C) x_t = (X B)_t, a banded system of A × len(t)
+    unknowns (tridiagonal for one species; LAPACK gbsv) for every right-hand side at once;
+    then x = X B − X_{·t} (C x_t). This is the Schur complement of the untransported
+    species."""
+    import scipy.sparse as sp
+    from scipy.linalg import solve_banded
+
+    A, S, K = B.shape
+    T = t.size
+    X = np.linalg.inv(D)
+    XB = X @ B                                          # (A, S, K)
+    Xt = X[:, :, t]                                     # (A, S, T)
+    rows, cols, vals = coupling
+    # Entries of X_tt C: row p of the block of C's row i, column j.
+    q = np.arange(T)
+    p = (rows // T * T)[:, None] + q[None, :]           # (nnz, T)
+    v = Xt[rows // T][:, t, :][np.arange(rows.size)[:, None], q[None, :], (rows % T)[:, None]]
+    v = v * vals[:, None]
+    j = np.broadcast_to(cols[:, None], p.shape)
+    lo = max(int((p - j).max(initial=0)), 0)
+    up = max(int((j - p).max(initial=0)), 0)
+    ab = np.zeros((lo + up + 1, A * T))
+    ab[up] = 1.0
+    np.add.at(ab, (up + p - j, j), v)
+    xt = solve_banded((lo, up), ab, XB[:, t].reshape(A * T, K), check_finite=False)
+    C = sp.csr_matrix((vals, (rows, cols)), shape=(A * T, A * T))
+    w = (C @ xt).reshape(A, T, K)
+    return -(XB - Xt @ w)
 
 
 def sensitivity(model, result=None):
@@ -160,73 +240,135 @@ def sensitivity(model, result=None):
 def _sensitivity(model, result):
     ds = model.solve() if result is None else result
     mech = model.mechanism
-    n = _solved_matrix(model, ds)                       # (A, S)
+    dens = ds["density"].values                         # (species, A)
+    names = tuple(str(x) for x in ds["species"].values)
+    roles = tuple(str(x) for x in ds["role"].values)
+    rows = _output_rows(model, names, roles)            # (species, S)
+    n = dens[[names.index(s) for s in model.species]].T     # (A, S)
     k = model.rate_coefficients()
     given = model.given
-    J = mech.jacobian(n, k, given)                      # (A, S, S)
-    rhs = mech.rate_sensitivity_columns(n, k, given)    # (A, S, R) = ν_j r_j
-    dlnk = _dlnk(model, "Te")
-    factors, dln = environment_factors(model, dlnk)     # dln (A, R, F), F[0] = Te
-    rhs_env = np.einsum("asr,arf->asf", rhs, dln)
-    B = np.concatenate([rhs, rhs_env], axis=-1)         # (A, S, R+F)
-    R = rhs.shape[-1]
     live = np.any(n > 0, axis=1)
-    dn = np.full(B.shape, np.nan)
-    if model.transport is not None:
-        B[..., -1] += _transport_te_column(model, n)
-        if live.any():
-            dn[live] = _column_solve(model, n, B, live)
-    elif live.any():
-        try:
-            dn[live] = -np.linalg.solve(J[live], B[live])
-        except np.linalg.LinAlgError:
-            for a in np.nonzero(live)[0]:
-                dn[a] = -np.linalg.lstsq(J[a], B[a], rcond=None)[0]
-    # Every reported species: solved, algebraic, fixed (zero) and derived totals.
-    names = list(ds["species"].values)
-    roles = ds["role"].values
-    E = mech.E                                          # (N_all + 1, S)
-    out = np.zeros((len(names), dn.shape[0], dn.shape[2]))     # (species, A, R+1)
-    for i, name in enumerate(names):
-        if name in mech.all_species and roles[i] != "fixed":
-            row = E[mech.index(name)]
-            out[i] = np.einsum("s,asp->ap", row, dn)
-    for tot in mech.derived:
-        i = names.index(tot.name)
-        out[i] = sum(out[names.index(m)] for m in tot.members)
-    dens = ds["density"].values                         # (species, A)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        norm = np.where(dens[:, :, None] > 0, out / dens[:, :, None], 0.0)
-    norm[:, ~live, :] = np.nan
-    umap = unit_map(model)
-    by_unit = sum_over_units(norm[:, :, :R], umap, axis=2)     # (species, A, U)
-    res = xr.Dataset(
-        {
-            "sensitivity": (("species", "reaction", "altitude"),
-                            np.transpose(norm[:, :, :R], (0, 2, 1)),
-                            {"units": "1", "long_name": "normalized sensitivity "
-                             "d ln n / d ln k at steady state"}),
-            "sensitivity_Te": (("species", "altitude"), norm[:, :, R],
-                               {"units": "1", "long_name": "normalized sensitivity "
-                                "d ln n / d ln Te through every Te-dependent rate"}),
-            "sensitivity_environment": (("species", "factor", "altitude"),
-                                        np.transpose(norm[:, :, R:], (0, 2, 1)),
-                                        {"units": "1", "long_name": "normalized local "
-                                         "sensitivity d ln n / d ln (environment factor)"}),
-            "sensitivity_unit": (("species", "unit", "altitude"),
-                                 np.transpose(by_unit, (0, 2, 1)),
-                                 {"units": "1", "long_name": "normalized sensitivity to one "
-                                  "common multiplier of every member of a unit, "
-                                  "d ln n / d ln lambda = sum of the members' d ln n / d ln k"}),
-            "density": ds["density"],
-        },
-        coords={"species": ds["species"], "role": ds["role"], "reaction": ds["reaction"],
-                "equation": ds["equation"], "altitude": ds["altitude"], **unit_coords(umap),
-                "factor": ("factor", np.array([f for f, _ in factors], dtype=object)),
-                "factor_description": ("factor", np.array([d for _, d in factors],
-                                                          dtype=object))},
-        attrs=dict(ds.attrs),
-    )
-    res.attrs["method"] = ("exact: one LU factorisation of the steady-state Jacobian per "
-                           "level, J dn/dln k = -nu r")
+    L = np.nonzero(live)[0]
+    factors, varying, constant = model.structural(
+        ("sensitivity", "factors"), lambda: _factor_columns(model, _dlnk(model, "Te")))
+    r = mech.rates(k[L], mech.full_densities(n[L], given[L]))     # (L, R)
+    if not L.size:                                      # all dark
+        out = np.zeros((0, len(names), r.shape[1] + len(factors)))
+    elif model.transport is not None:
+        rhs = mech.nu[None, :, :] * r[:, None, :]       # (L, S, R) = ∂f/∂ln k_j = ν_j r_j
+        B = np.concatenate([rhs, np.matmul(rhs, varying[L]), rhs @ constant], axis=-1)
+        B[..., rhs.shape[-1]] += _transport_te_column(model, n)[L]
+        out = np.matmul(rows, _column_solve(model, n, B, live))   # (L, species, R+F)
+    else:
+        out = _level_responses(mech.jacobian(n[L], k[L], given[L]), mech.nu, r, rows,
+                               varying[L], constant)
+    R = r.shape[-1]
+    d = dens[:, L].T                                    # (L, species)
+    with np.errstate(divide="ignore"):
+        out *= np.where(d > 0, 1.0 / d, 0.0)[:, :, None]
+    if L.size == dens.shape[1]:
+        norm = out
+    else:
+        norm = np.full((dens.shape[1],) + out.shape[1:], np.nan)
+        norm[L] = out
+    return _dataset(model, ds, names, roles, norm, R, factors)
+
+
+def _level_responses(J, nu, r, rows, varying, constant):
+    """Each reported species' response −rows J⁻¹ B at each (uncoupled) level, (L, species,
+    R + F), for B = ν diag(r) [I | varying | constant].
+
+    ν diag(r) has one column per reaction but only S rows, so the product is taken as
+    ((rows J⁻¹) ν) diag(r): the levels' inverses come from one batched LU
+    (``np.linalg.inv``), which at these block sizes costs a quarter of LAPACK's solve with
+    R + F right-hand sides and gives the same values (to ~1e-14 of the largest
+    sensitivity, tests/test_sensitivity_fast.py). A singular level falls back to least
+    squares on the whole right-hand side.
+    """
+    try:
+        G = np.matmul(rows, np.linalg.inv(J))           # (L, species, S)
+    except np.linalg.LinAlgError:
+        rhs = nu[None, :, :] * r[:, None, :]
+        B = np.concatenate([rhs, np.matmul(rhs, varying), rhs @ constant], axis=-1)
+        dn = np.stack([np.linalg.lstsq(J[a], B[a], rcond=None)[0] for a in range(len(J))])
+        return -np.matmul(rows, dn)
+    Lv, Nsp, S = G.shape
+    H = (G.reshape(-1, S) @ nu).reshape(Lv, Nsp, -1)
+    H *= -r[:, None, :]                                 # (L, species, R)
+    return np.concatenate([H, np.matmul(H, varying), H @ constant], axis=-1)
+
+
+def _output_rows(model, names, roles):
+    """(species, S) weights: each reported species' density change as a combination of the
+    solved ones (its row of the mechanism's affine map E; zero for fixed species; a derived
+    total the sum of its members' rows), kept per model."""
+    def build():
+        mech = model.mechanism
+        S = len(model.species)
+        W = np.zeros((len(names), S))
+        for i, name in enumerate(names):
+            if name in mech.all_species and roles[i] != "fixed":
+                W[i] = mech.E[mech.index(name), :S]
+        for tot in mech.derived:
+            W[names.index(tot.name)] = sum(W[names.index(m)] for m in tot.members)
+        W.flags.writeable = False
+        return W
+    return model.structural(("sensitivity", "rows", names, roles), build)
+
+
+def _sum_units(values, umap):
+    """``values`` (..., R) summed over each unit's members → (..., U), the members in the
+    order of the reaction list (the sums of :func:`ionochem.analysis.units.sum_over_units`)."""
+    order = np.argsort(umap.index, kind="stable")
+    starts = np.searchsorted(umap.index[order], np.arange(len(umap.names)))
+    return np.add.reduceat(values[..., order], starts, axis=-1)
+
+
+def _template(model, ds, names, roles, factors):
+    """The coordinates of a result (from the solution's, the unit map and the factors) as an
+    empty dataset, kept per model; its arrays are read-only (results share them)."""
+    def build():
+        umap = unit_map(model)
+        coords = {c: ds.coords[c].variable.copy(deep=True)
+                  for c in ("species", "role", "reaction", "equation", "altitude")}
+        coords.update(unit_coords(umap))
+        coords["factor"] = ("factor", np.array([f for f, _ in factors], dtype=object))
+        coords["factor_description"] = ("factor", np.array([d for _, d in factors],
+                                                          dtype=object))
+        tpl = xr.Dataset(coords=coords)
+        for c in tpl.coords.values():
+            if isinstance(c.values, np.ndarray):
+                c.values.flags.writeable = False
+        return umap, tpl
+    A = ds.sizes["altitude"]
+    return model.structural(("sensitivity", "template", names, roles, A), build)
+
+
+def _dataset(model, ds, names, roles, norm, R, factors):
+    """The result dataset from the normalized sensitivities (altitude, species, R + F)."""
+    umap, tpl = _template(model, ds, names, roles, factors)
+    by_unit = _sum_units(norm[:, :, :R], umap)              # (A, species, U)
+    T = (1, 2, 0)
+    res = tpl.assign({
+        "sensitivity": xr.Variable(
+            ("species", "reaction", "altitude"), norm[:, :, :R].transpose(T),
+            {"units": "1", "long_name": "normalized sensitivity d ln n / d ln k at steady "
+             "state"}),
+        "sensitivity_Te": xr.Variable(
+            ("species", "altitude"), norm[:, :, R].T,
+            {"units": "1", "long_name": "normalized sensitivity d ln n / d ln Te through "
+             "every Te-dependent rate"}),
+        "sensitivity_environment": xr.Variable(
+            ("species", "factor", "altitude"), norm[:, :, R:].transpose(T),
+            {"units": "1", "long_name": "normalized local sensitivity d ln n / d ln "
+             "(environment factor)"}),
+        "sensitivity_unit": xr.Variable(
+            ("species", "unit", "altitude"), by_unit.transpose(T),
+            {"units": "1", "long_name": "normalized sensitivity to one common multiplier of "
+             "every member of a unit, d ln n / d ln lambda = sum of the members' d ln n / "
+             "d ln k"}),
+        "density": ds["density"].variable,
+    })
+    res.attrs = {**ds.attrs, "method": "exact: one LU factorisation of the steady-state "
+                 "Jacobian per level, J dn/dln k = -nu r"}
     return res
