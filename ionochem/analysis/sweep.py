@@ -298,7 +298,7 @@ def point_dataset(spec: SweepSpec, index: int):
         else:
             ds = model.solve()
             if spec.sensitivity:
-                sens = model.sensitivity()
+                sens = model.sensitivity(result=ds)      # the point solved once
                 for name in sens.data_vars:
                     if name not in ds:
                         ds[name] = sens[name]
