@@ -127,3 +127,33 @@ def test_transported_te_sensitivity_matches_central_differences(tmp_path):
     assert err.max() < 2e-4, err.max()
     i = model.species.index("O+")
     assert np.abs(exact[:, i]).max() > 0.05      # transport makes O+ depend on Te
+
+
+def test_temperature_derivatives_shared_by_changed_models_are_their_own():
+    """Models with scaled rates, one rate switched off, or one replaced expression, on the
+    same environment, reuse the base model's ∂ln k/∂ln T columns only where they are their
+    own: equal to central differences of their own rate coefficients (h = 1e-5 in ln T,
+    numerical differentiation; equal to its rounding) for Te, Ti and Tn."""
+    from ionochem.analysis import sensitivity as S
+    base = _model(21, False)
+    R = list(base.reactions)
+    te_dep = [r for r, e in zip(R, base.rate_expressions, strict=True) if "Te" in e.variables]
+    for name in ("Te", "Ti", "Tn"):
+        S._dlnk(base, name)                               # fills the shared columns
+    models = {"scaled": base.with_changes(scale={te_dep[0]: 3.0, R[0]: 0.5}),
+              "set": base.with_changes({te_dep[1]: "2.0e-7"}),
+              "off": base.with_changes(scale={te_dep[2]: 0.0})}
+    for what, changed in models.items():
+        assert changed.environment is base.environment
+        for name in ("Te", "Ti", "Tn"):
+            got = S._dlnk(changed, name)
+            T = getattr(changed.environment, name)
+            up = changed.rate_coefficients(temperatures={name: T * np.exp(1e-5)})
+            dn = changed.rate_coefficients(temperatures={name: T * np.exp(-1e-5)})
+            with np.errstate(divide="ignore", invalid="ignore"):
+                ref = np.where((up > 0) & (dn > 0), (np.log(up) - np.log(dn)) / 2e-5, 0.0)
+            # 1e-9: the rounding of ln k (|ln k| ~ 30, 2e-16 relative) over the step 2e-5.
+            np.testing.assert_allclose(got, ref, rtol=0, atol=1e-9, err_msg=what)
+    assert np.all(S._dlnk(models["set"], "Te")[:, R.index(te_dep[1])] == 0)   # a constant
+    assert np.all(S._dlnk(models["off"], "Te")[:, R.index(te_dep[2])] == 0)   # off
+    assert np.abs(S._dlnk(models["scaled"], "Te")[:, R.index(te_dep[0])]).max() > 0.1

@@ -33,6 +33,8 @@ depend on Te and Ti through the plasma temperature, so the Te column adds
 
 from __future__ import annotations
 
+import weakref
+
 import numpy as np
 import xarray as xr
 
@@ -44,12 +46,44 @@ TE_STEP = 1e-5
 def _dlnk(model, name):
     """∂ln k/∂ln T for temperature ``name`` by a central difference, shape (A, R); computed
     once per model (it depends only on the rate laws and the column's temperatures) and
-    read-only."""
+    read-only. Models on one environment share the columns of their common rate
+    expressions (:func:`_shared_dlnk`), so a model that only scales some rates (a fit's
+    trial, ``--scale``) or replaces a few (``--set``) does not difference them again."""
     def build():
-        out = _dlnk_difference(model, name)
+        out = _shared_dlnk(model, name)
         out.flags.writeable = False
         return out
     return model.structural(("dlnk", name), build)
+
+
+#: id(environment) → {(name, id(expression), id(reaction), zero column): (expression,
+#: reaction, column)}; an entry leaves with its environment.
+_DLNK_BY_ENVIRONMENT: dict = {}
+
+
+def _shared_dlnk(model, name):
+    """:func:`_dlnk_difference` through the environment's cache of columns.
+
+    A column depends on the reaction's rate expression, the reaction (Teff uses its
+    masses, a level its v) and the environment's temperatures; a scale factor on k cancels
+    in the logarithm unless it is zero (the column is then 0), so a column that is zero at
+    every level is cached apart."""
+    env = model.environment
+    store = _DLNK_BY_ENVIRONMENT.get(id(env))
+    if store is None or store["env"]() is not env:
+        store = {"env": weakref.ref(env), "columns": {}}
+        _DLNK_BY_ENVIRONMENT[id(env)] = store
+        weakref.finalize(env, _DLNK_BY_ENVIRONMENT.pop, id(env), None)
+    zero = ~np.any(model.rate_coefficients() != 0, axis=0)
+    keys = [(name, id(e), id(r), bool(z)) for e, r, z in
+            zip(model.rate_expressions, model.reaction_objects, zero)]
+    columns = store["columns"]
+    if all(key in columns for key in keys):
+        return np.stack([columns[key][2] for key in keys], axis=-1)
+    out = _dlnk_difference(model, name)
+    for j, (key, e, r) in enumerate(zip(keys, model.rate_expressions, model.reaction_objects)):
+        columns[key] = (e, r, out[:, j].copy())
+    return out
 
 
 def _dlnk_difference(model, name):
@@ -131,8 +165,9 @@ def _transport_te_column(model, n):
     return out
 
 
-def _column_solve(model, n, B, live):
-    """−J⁻¹ B for the live levels of a transport-coupled column.
+def _column_solve(model, n, J, B, live):
+    """−J⁻¹ B for the live levels of a transport-coupled column, ``J`` the live levels'
+    chemistry blocks (L, S, S).
 
     The column Jacobian couples levels only through the transported species (the transport
     operator acts on them alone), so the others are eliminated level by level (the Schur
@@ -142,28 +177,32 @@ def _column_solve(model, n, B, live):
     former method) remains for a column where every species is coupled, or a singular
     level block.
     """
-    J = model.column_jacobian(n)
+    import scipy.sparse as sp
+
+    # The transport part of the column Jacobian (it does not depend on the rates).
+    T = model.transport.matrix(1).tocsc()
     A, S, K = B.shape
     keep = np.repeat(live, S)
-    Jl = (J if live.all() else J[keep][:, keep]).tocsc()
-    Jl.sum_duplicates()                                 # a no-op when canonical
-    Jl = Jl.tocoo()
-    lv_r, lv_c = Jl.row // S, Jl.col // S
+    T = (T if live.all() else T[keep][:, keep]).tocoo()
+    T.sum_duplicates()
+    lv_r, lv_c = T.row // S, T.col // S
     off = lv_r != lv_c
-    t = np.union1d(Jl.row[off] % S, Jl.col[off] % S)
-    if t.size == S:                                     # nothing to eliminate
-        return _sparse_solve(Jl, B)
-    D = np.zeros((A, S, S))
+    D = np.array(J, float)
     on = ~off
-    D[lv_r[on], Jl.row[on] % S, Jl.col[on] % S] = Jl.data[on]
+    np.add.at(D, (lv_r[on], T.row[on] % S, T.col[on] % S), T.data[on])
+    t = np.union1d(T.row[off] % S, T.col[off] % S)
     tpos = np.full(S, -1)
     tpos[t] = np.arange(t.size)
-    coupling = (lv_r[off] * t.size + tpos[Jl.row[off] % S],
-                lv_c[off] * t.size + tpos[Jl.col[off] % S], Jl.data[off])
-    try:
-        return _schur_solve(D, t, coupling, B)
-    except (np.linalg.LinAlgError, RuntimeError):
-        return _sparse_solve(Jl, B)
+    coupling = (lv_r[off] * t.size + tpos[T.row[off] % S],
+                lv_c[off] * t.size + tpos[T.col[off] % S], T.data[off])
+    if t.size < S:
+        try:
+            return _schur_solve(D, t, coupling, B)
+        except (np.linalg.LinAlgError, RuntimeError):
+            pass
+    whole = (sp.block_diag(list(D), format="csr")
+             + sp.csr_matrix((T.data[off], (T.row[off], T.col[off])), shape=(A * S, A * S)))
+    return _sparse_solve(whole, B)
 
 
 def _sparse_solve(J, B):
@@ -239,44 +278,90 @@ def sensitivity(model, result=None):
 
 def _sensitivity(model, result):
     ds = model.solve() if result is None else result
-    mech = model.mechanism
     dens = ds["density"].values                         # (species, A)
     names = tuple(str(x) for x in ds["species"].values)
     roles = tuple(str(x) for x in ds["role"].values)
-    rows = _output_rows(model, names, roles)            # (species, S)
     n = dens[[names.index(s) for s in model.species]].T     # (A, S)
-    k = model.rate_coefficients()
+    factors, varying, constant = model.structural(
+        ("sensitivity", "factors"), lambda: _factor_columns(model, _dlnk(model, "Te")))
+    R = len(model.reactions)
+    norm = _responses(model, n, model.rate_coefficients(), dens, names, roles, None,
+                      varying, constant, te_column=R)
+    return _dataset(model, ds, names, roles, norm, R, factors)
+
+
+def parameter_sensitivities(model, n, k=None, columns=None, te=False):
+    """Normalized sensitivities to a few parameters, without a dataset (for fits).
+
+    Parameters
+    ----------
+    model : ionochem.Model
+    n : ndarray (altitude, solved species)
+        A steady state of ``model`` with rate coefficients ``k``.
+    k : ndarray (altitude, reaction), optional
+        The rate coefficients (default the model's own): a model that differs only by
+        scaled rates is its base model with scaled ``k``.
+    columns : ndarray (reaction, P), optional
+        Each parameter as a combination of ln k (a column of ones on a family's members
+        for one common multiplier).
+    te : bool
+        Add ∂ln n/∂ln Te as the last parameter.
+
+    Returns
+    -------
+    ndarray (altitude, species, P [+ 1])
+        ∂ln n/∂θ of every species of ``model.species_table`` (NaN at dark levels).
+    """
+    from ionochem.solve.threads import single_thread_blas
+    k = model.rate_coefficients() if k is None else k
+    dens, names, roles = model.species_table(n)
+    A, R = k.shape
+    varying = (_dlnk(model, "Te") if te else np.zeros((A, R, 0))).reshape(A, R, -1)
+    columns = np.zeros((R, 0)) if columns is None else np.asarray(columns, float)
+    with single_thread_blas():
+        return _responses(model, n, k, dens.T, tuple(names), tuple(roles), columns, varying,
+                          np.zeros((R, 0)), te_column=columns.shape[1] if te else None)
+
+
+def _responses(model, n, k, dens, names, roles, columns, varying, constant, te_column):
+    """Normalized responses (altitude, species, K) of every reported species to the
+    columns: ``columns`` (R, P; None: every reaction), then the altitude-dependent
+    ``varying`` (A, R, Fv) and the constant ``constant`` (R, Fc) combinations of ln k.
+    ``te_column`` is the column of ln Te (transport adds its own Te dependence there)."""
+    mech = model.mechanism
+    rows = _output_rows(model, names, roles)            # (species, S)
     given = model.given
     live = np.any(n > 0, axis=1)
     L = np.nonzero(live)[0]
-    factors, varying, constant = model.structural(
-        ("sensitivity", "factors"), lambda: _factor_columns(model, _dlnk(model, "Te")))
-    r = mech.rates(k[L], mech.full_densities(n[L], given[L]))     # (L, R)
+    R = k.shape[1]
+    K = (R if columns is None else columns.shape[1]) + varying.shape[2] + constant.shape[1]
     if not L.size:                                      # all dark
-        out = np.zeros((0, len(names), r.shape[1] + len(factors)))
-    elif model.transport is not None:
-        rhs = mech.nu[None, :, :] * r[:, None, :]       # (L, S, R) = ∂f/∂ln k_j = ν_j r_j
-        B = np.concatenate([rhs, np.matmul(rhs, varying[L]), rhs @ constant], axis=-1)
-        B[..., rhs.shape[-1]] += _transport_te_column(model, n)[L]
-        out = np.matmul(rows, _column_solve(model, n, B, live))   # (L, species, R+F)
+        out = np.zeros((0, len(names), K))
     else:
-        out = _level_responses(mech.jacobian(n[L], k[L], given[L]), mech.nu, r, rows,
-                               varying[L], constant)
-    R = r.shape[-1]
+        r = mech.rates(k[L], mech.full_densities(n[L], given[L]))     # (L, R)
+        J = mech.jacobian(n[L], k[L], given[L])
+        if model.transport is not None:
+            rhs = mech.nu[None, :, :] * r[:, None, :]   # (L, S, R) = ∂f/∂ln k_j = ν_j r_j
+            B = np.concatenate([rhs if columns is None else rhs @ columns,
+                                np.matmul(rhs, varying[L]), rhs @ constant], axis=-1)
+            if te_column is not None:
+                B[..., te_column] += _transport_te_column(model, n)[L]
+            out = np.matmul(rows, _column_solve(model, n, J, B, live))
+        else:
+            out = _level_responses(J, mech.nu, r, rows, columns, varying[L], constant)
     d = dens[:, L].T                                    # (L, species)
     with np.errstate(divide="ignore"):
         out *= np.where(d > 0, 1.0 / d, 0.0)[:, :, None]
     if L.size == dens.shape[1]:
-        norm = out
-    else:
-        norm = np.full((dens.shape[1],) + out.shape[1:], np.nan)
-        norm[L] = out
-    return _dataset(model, ds, names, roles, norm, R, factors)
+        return out
+    norm = np.full((dens.shape[1],) + out.shape[1:], np.nan)
+    norm[L] = out
+    return norm
 
 
-def _level_responses(J, nu, r, rows, varying, constant):
+def _level_responses(J, nu, r, rows, columns, varying, constant):
     """Each reported species' response −rows J⁻¹ B at each (uncoupled) level, (L, species,
-    R + F), for B = ν diag(r) [I | varying | constant].
+    K), for B = ν diag(r) [columns | varying | constant] (columns None: the identity).
 
     ν diag(r) has one column per reaction but only S rows, so the product is taken as
     ((rows J⁻¹) ν) diag(r): the levels' inverses come from one batched LU
@@ -289,13 +374,15 @@ def _level_responses(J, nu, r, rows, varying, constant):
         G = np.matmul(rows, np.linalg.inv(J))           # (L, species, S)
     except np.linalg.LinAlgError:
         rhs = nu[None, :, :] * r[:, None, :]
-        B = np.concatenate([rhs, np.matmul(rhs, varying), rhs @ constant], axis=-1)
+        B = np.concatenate([rhs if columns is None else rhs @ columns,
+                            np.matmul(rhs, varying), rhs @ constant], axis=-1)
         dn = np.stack([np.linalg.lstsq(J[a], B[a], rcond=None)[0] for a in range(len(J))])
         return -np.matmul(rows, dn)
     Lv, Nsp, S = G.shape
     H = (G.reshape(-1, S) @ nu).reshape(Lv, Nsp, -1)
     H *= -r[:, None, :]                                 # (L, species, R)
-    return np.concatenate([H, np.matmul(H, varying), H @ constant], axis=-1)
+    return np.concatenate([H if columns is None else H @ columns, np.matmul(H, varying),
+                           H @ constant], axis=-1)
 
 
 def _output_rows(model, names, roles):
