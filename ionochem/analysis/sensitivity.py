@@ -319,12 +319,13 @@ def parameter_sensitivities(model, n, k=None, columns=None, te=False):
     varying = (_dlnk(model, "Te") if te else np.zeros((A, R, 0))).reshape(A, R, -1)
     columns = np.zeros((R, 0)) if columns is None else np.asarray(columns, float)
     with single_thread_blas():
-        return _responses(model, n, k, dens.T, tuple(names), tuple(roles), columns, varying,
-                          np.zeros((R, 0)), te_column=columns.shape[1] if te else None)
+        out = _responses(model, n, k, dens.T, tuple(names), tuple(roles), columns, varying,
+                         np.zeros((R, 0)), te_column=columns.shape[1] if te else None)
+    return out.transpose(1, 2, 0)
 
 
 def _responses(model, n, k, dens, names, roles, columns, varying, constant, te_column):
-    """Normalized responses (altitude, species, K) of every reported species to the
+    """Normalized responses (K, altitude, species) of every reported species to the
     columns: ``columns`` (R, P; None: every reaction), then the altitude-dependent
     ``varying`` (A, R, Fv) and the constant ``constant`` (R, Fc) combinations of ln k.
     ``te_column`` is the column of ln Te (transport adds its own Te dependence there)."""
@@ -335,8 +336,11 @@ def _responses(model, n, k, dens, names, roles, columns, varying, constant, te_c
     L = np.nonzero(live)[0]
     R = k.shape[1]
     K = (R if columns is None else columns.shape[1]) + varying.shape[2] + constant.shape[1]
+    d = dens[:, L].T                                    # (L, species)
+    with np.errstate(divide="ignore"):
+        inv_d = np.where(d > 0, 1.0 / d, 0.0)
     if not L.size:                                      # all dark
-        out = np.zeros((0, len(names), K))
+        out = np.zeros((K, 0, len(names)))
     else:
         r = mech.rates(k[L], mech.full_densities(n[L], given[L]))     # (L, R)
         J = mech.jacobian(n[L], k[L], given[L])
@@ -346,43 +350,59 @@ def _responses(model, n, k, dens, names, roles, columns, varying, constant, te_c
                                 np.matmul(rhs, varying[L]), rhs @ constant], axis=-1)
             if te_column is not None:
                 B[..., te_column] += _transport_te_column(model, n)[L]
-            out = np.matmul(rows, _column_solve(model, n, J, B, live))
+            dn = _column_solve(model, n, J, B, live)                    # (L, S, K)
+            S = dn.shape[1]
+            out = (dn.transpose(2, 0, 1).reshape(-1, S) @ rows.T).reshape(K, L.size, -1)
+            out *= inv_d[None]
         else:
-            out = _level_responses(J, mech.nu, r, rows, columns, varying[L], constant)
-    d = dens[:, L].T                                    # (L, species)
-    with np.errstate(divide="ignore"):
-        out *= np.where(d > 0, 1.0 / d, 0.0)[:, :, None]
+            out = _level_responses(J, mech.nu, r, rows, columns, varying[L], constant, inv_d)
     if L.size == dens.shape[1]:
         return out
-    norm = np.full((dens.shape[1],) + out.shape[1:], np.nan)
-    norm[L] = out
+    norm = np.full((K, dens.shape[1], len(names)), np.nan)
+    norm[:, L] = out
     return norm
 
 
-def _level_responses(J, nu, r, rows, columns, varying, constant):
-    """Each reported species' response −rows J⁻¹ B at each (uncoupled) level, (L, species,
-    K), for B = ν diag(r) [columns | varying | constant] (columns None: the identity).
+def _level_responses(J, nu, r, rows, columns, varying, constant, inv_d):
+    """Each reported species' normalized response −rows J⁻¹ B / n at each (uncoupled)
+    level, (K, L, species), for B = ν diag(r) [columns | varying | constant] (columns None:
+    the identity) and ``inv_d`` (L, species) = 1/n (0 where n = 0).
 
     ν diag(r) has one column per reaction but only S rows, so the product is taken as
-    ((rows J⁻¹) ν) diag(r): the levels' inverses come from one batched LU
+    ((diag(1/n) rows J⁻¹) ν) diag(r): the levels' inverses come from one batched LU
     (``np.linalg.inv``), which at these block sizes costs a quarter of LAPACK's solve with
     R + F right-hand sides and gives the same values (to ~1e-14 of the largest
-    sensitivity, tests/test_sensitivity_fast.py). A singular level falls back to least
-    squares on the whole right-hand side.
+    sensitivity, tests/test_sensitivity_fast.py); the rest are matrix products. A singular
+    level falls back to least squares on the whole right-hand side.
     """
+    Lv = J.shape[0]
+    Nsp, S = rows.shape
+    P = nu.shape[1] if columns is None else columns.shape[1]
+    Fv, Fc = varying.shape[2], constant.shape[1]
     try:
         G = np.matmul(rows, np.linalg.inv(J))           # (L, species, S)
     except np.linalg.LinAlgError:
         rhs = nu[None, :, :] * r[:, None, :]
         B = np.concatenate([rhs if columns is None else rhs @ columns,
                             np.matmul(rhs, varying), rhs @ constant], axis=-1)
-        dn = np.stack([np.linalg.lstsq(J[a], B[a], rcond=None)[0] for a in range(len(J))])
-        return -np.matmul(rows, dn)
-    Lv, Nsp, S = G.shape
-    H = (G.reshape(-1, S) @ nu).reshape(Lv, Nsp, -1)
-    H *= -r[:, None, :]                                 # (L, species, R)
-    return np.concatenate([H if columns is None else H @ columns, np.matmul(H, varying),
-                           H @ constant], axis=-1)
+        dn = np.stack([np.linalg.lstsq(J[a], B[a], rcond=None)[0] for a in range(Lv)])
+        out = (dn.transpose(2, 0, 1).reshape(-1, S) @ rows.T).reshape(-1, Lv, Nsp)
+        out *= -inv_d[None]
+        return out
+    G *= inv_d[:, :, None]
+    out = np.empty((P + Fv + Fc, Lv, Nsp))
+    # H[j, l, i] = −(rows J⁻¹ ν)[l, i, j] r[l, j] / n[l, i]: the response to ln k_j.
+    H = out[:P] if columns is None else np.empty((nu.shape[1], Lv, Nsp))
+    np.matmul(nu.T, G.reshape(-1, S).T, out=H.reshape(H.shape[0], -1))
+    H *= -r.T[:, :, None]
+    if columns is not None:
+        out[:P] = (columns.T @ H.reshape(H.shape[0], -1)).reshape(P, Lv, Nsp)
+    if Fv:
+        # Σ_j H[j, l, i] varying[l, j, f], level by level.
+        out[P:P + Fv] = np.matmul(H.transpose(1, 2, 0), varying).transpose(2, 0, 1)
+    if Fc:
+        out[P + Fv:] = (constant.T @ H.reshape(H.shape[0], -1)).reshape(Fc, Lv, Nsp)
+    return out
 
 
 def _output_rows(model, names, roles):
@@ -404,11 +424,22 @@ def _output_rows(model, names, roles):
 
 
 def _sum_units(values, umap):
-    """``values`` (..., R) summed over each unit's members → (..., U), the members in the
-    order of the reaction list (the sums of :func:`ionochem.analysis.units.sum_over_units`)."""
-    order = np.argsort(umap.index, kind="stable")
-    starts = np.searchsorted(umap.index[order], np.arange(len(umap.names)))
-    return np.add.reduceat(values[..., order], starts, axis=-1)
+    """``values`` (R, ...) summed over each unit's members → (U, ...), the members added in
+    the order of the reaction list (the sums of
+    :func:`ionochem.analysis.units.sum_over_units`): each unit starts from its first member
+    and the others are added slab by slab (few units have more than one)."""
+    index = np.asarray(umap.index)
+    first = np.full(len(umap.names), -1)
+    extra = []
+    for j, u in enumerate(index):
+        if first[u] < 0:
+            first[u] = j
+        else:
+            extra.append(j)
+    out = values[first]
+    for j in extra:
+        out[index[j]] += values[j]
+    return out
 
 
 def _template(model, ds, names, roles, factors):
@@ -432,21 +463,21 @@ def _template(model, ds, names, roles, factors):
 
 
 def _dataset(model, ds, names, roles, norm, R, factors):
-    """The result dataset from the normalized sensitivities (altitude, species, R + F)."""
+    """The result dataset from the normalized sensitivities (R + F, altitude, species)."""
     umap, tpl = _template(model, ds, names, roles, factors)
-    by_unit = _sum_units(norm[:, :, :R], umap)              # (A, species, U)
-    T = (1, 2, 0)
+    by_unit = _sum_units(norm[:R], umap)                # (U, A, species)
+    T = (2, 0, 1)
     res = tpl.assign({
         "sensitivity": xr.Variable(
-            ("species", "reaction", "altitude"), norm[:, :, :R].transpose(T),
+            ("species", "reaction", "altitude"), norm[:R].transpose(T),
             {"units": "1", "long_name": "normalized sensitivity d ln n / d ln k at steady "
              "state"}),
         "sensitivity_Te": xr.Variable(
-            ("species", "altitude"), norm[:, :, R].T,
+            ("species", "altitude"), norm[R].T,
             {"units": "1", "long_name": "normalized sensitivity d ln n / d ln Te through "
              "every Te-dependent rate"}),
         "sensitivity_environment": xr.Variable(
-            ("species", "factor", "altitude"), norm[:, :, R:].transpose(T),
+            ("species", "factor", "altitude"), norm[R:].transpose(T),
             {"units": "1", "long_name": "normalized local sensitivity d ln n / d ln "
              "(environment factor)"}),
         "sensitivity_unit": xr.Variable(
