@@ -223,16 +223,7 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
     if batch < 1:
         raise InputError("--batch must be at least 1", file="--batch")
     results = {}
-    if store is not None:
-        for a, b in store.finished():
-            z_stored, _ = store.read(a, b)
-            if b > total or not np.array_equal(z_stored, rows(a, b)):
-                raise InputError(f"stored samples {a}..{b - 1} do not match this run's random "
-                                 "streams; remove the folder to start again",
-                                 file=str(store.folder))
-        gaps = store.missing(total)
-    else:
-        gaps = [(0, total)] if total else []
+    gaps = _gaps(store, rows, total)
     todo = list(_split(gaps, batch))
     done = total - sum(b - a for a, b in gaps)
     bar = tqdm(total=total, initial=done, unit="sample", desc="samples",
@@ -252,12 +243,7 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
             on_batch(a, b, done, total)
 
     if workers == "auto":
-        level_solves = sum(b - a for a, b in todo) * kernel.altitude_km.size
-        workers = 1 if scheduler else auto_workers(level_solves)
-        if workers > 1:
-            logging.getLogger("ionochem").info(
-                "solving on %d local worker processes (--workers auto: %d level solves, "
-                "%d free CPUs)", workers, level_solves, workers)
+        workers = _auto(kernel, todo, scheduler)
     try:
         if scheduler:
             _run_dask(model, kernel, rows, todo, workers, scheduler, finish)
@@ -278,6 +264,30 @@ def run_ensemble(model, kernel, rows, total, *, batch=None, workers=1, scheduler
         raise SolverError(describe_failed(failed, total) + "; this design needs every run",
                           levels=failed.tolist())
     return z, n
+
+
+def _auto(kernel, todo, scheduler):
+    """The workers of ``--workers auto`` for the batches ``todo`` (logged when > 1)."""
+    level_solves = sum(b - a for a, b in todo) * kernel.altitude_km.size
+    workers = 1 if scheduler else auto_workers(level_solves)
+    if workers > 1:
+        logging.getLogger("ionochem").info(
+            "solving on %d local worker processes (--workers auto: %d level solves, "
+            "%d free CPUs)", workers, level_solves, workers)
+    return workers
+
+
+def _gaps(store, rows, total):
+    """The sample ranges still to solve; the stored ones must be this run's draws."""
+    if store is None:
+        return [(0, total)] if total else []
+    for a, b in store.finished():
+        z_stored, _ = store.read(a, b)
+        if b > total or not np.array_equal(z_stored, rows(a, b)):
+            raise InputError(f"stored samples {a}..{b - 1} do not match this run's random "
+                             "streams; remove the folder to start again",
+                             file=str(store.folder))
+    return store.missing(total)
 
 
 class _StoreWriter:

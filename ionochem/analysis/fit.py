@@ -231,18 +231,8 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
         with ``profile`` ``profile_log_multiplier(profile_point)`` and
         ``profile_chi2(profile_point)``. Attributes: ``warnings``, ``degenerate``, ...
     """
-    if profile is not None:
-        check_count(profile_points, 3, MAX_PROFILE_POINTS, "--profile-points", "points")
-    params = resolve_parameters(model, free)
-    if not (np.isfinite(max_factor) and max_factor > 1):
-        raise InputError("the bound on the multipliers must be a number > 1",
-                         file="--max-factor")
+    params, bound = _checked(model, free, max_factor, profile, profile_points)
     names = [p.name for p in params]
-    if profile is not None and profile not in names:
-        raise InputError(f"--profile {profile}: not a free parameter (free: "
-                         f"{', '.join(names)})", file="--profile")
-    bound = np.array([np.log(min(max_factor, TE_MAX_FACTOR)) if p.is_te
-                      else np.log(max_factor) for p in params])
     given = parse_priors({k: v for k, v in (priors or {}).items()}, params)
     prior = default_priors(model, params, observations["altitude_km"].values)
     prior.update(given)
@@ -257,16 +247,8 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
                        dict(cov=cov, sigma=sigma, corr=corr, sd=sd_full, Vd=Vd,
                             dens_fit=dens_fit, lm_fit=lm_fit, dof=dof))
     if profile is not None:
-        prof = profile_likelihood(problem, theta, names.index(profile), sigma, bound,
-                                  profile_points)
-        out["profile_log_multiplier"] = ("profile_point", prof[0], {
-            "units": "1", "long_name": f"ln multiplier of {profile} held fixed"})
-        out["profile_chi2"] = ("profile_point", prof[1], {
-            "units": "1", "long_name": "total chi-square (data and priors) minimised over "
-            "the other parameters"})
-        out.attrs["profile_parameter"] = profile
-        lo, hi = profile_interval(*prof)
-        out.attrs["profile_interval_68"] = f"{np.exp(lo):.4g} to {np.exp(hi):.4g}"
+        _add_profile(out, problem, theta, names.index(profile), profile, sigma, bound,
+                     profile_points)
     out.attrs.update({
         "analysis": "fit: least squares on ln multipliers, exact sensitivities as Jacobian",
         "observations": str(observations.attrs.get("source", "")),
@@ -284,6 +266,36 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
     r_fit = (problem.log_y - lm_fit) / problem.s
     out.attrs["bands_fitted"] = _bands_text(observations, problem.use, r_fit, lm_fit)
     return out
+
+
+def _checked(model, free, max_factor, profile, profile_points):
+    """The parameters and their bounds (ln); bad options refused before any solve."""
+    if profile is not None:
+        check_count(profile_points, 3, MAX_PROFILE_POINTS, "--profile-points", "points")
+    params = resolve_parameters(model, free)
+    if not (np.isfinite(max_factor) and max_factor > 1):
+        raise InputError("the bound on the multipliers must be a number > 1",
+                         file="--max-factor")
+    names = [p.name for p in params]
+    if profile is not None and profile not in names:
+        raise InputError(f"--profile {profile}: not a free parameter (free: "
+                         f"{', '.join(names)})", file="--profile")
+    bound = np.array([np.log(min(max_factor, TE_MAX_FACTOR)) if p.is_te
+                      else np.log(max_factor) for p in params])
+    return params, bound
+
+
+def _add_profile(out, problem, theta, p, name, sigma, bound, points):
+    """The profile likelihood of parameter ``p`` into ``out`` (variables and interval)."""
+    prof = profile_likelihood(problem, theta, p, sigma, bound, points)
+    out["profile_log_multiplier"] = ("profile_point", prof[0], {
+        "units": "1", "long_name": f"ln multiplier of {name} held fixed"})
+    out["profile_chi2"] = ("profile_point", prof[1], {
+        "units": "1", "long_name": "total chi-square (data and priors) minimised over "
+        "the other parameters"})
+    out.attrs["profile_parameter"] = name
+    lo, hi = profile_interval(*prof)
+    out.attrs["profile_interval_68"] = f"{np.exp(lo):.4g} to {np.exp(hi):.4g}"
 
 
 def _covariance(J_full):
