@@ -24,7 +24,7 @@ columns, the output rows, the result's coordinates) is kept per model (``model.s
 
 With transport the levels are coupled: the same equations hold for the whole column, whose
 Jacobian (``model.column_jacobian``) couples levels only through the transported species.
-The other species are eliminated level by level (Schur complement; ``_schur_solve``) and the
+The other species are eliminated level by level (Schur complement; ``_coupled_part``) and the
 transported ones solved as one banded system for all R + F right-hand sides (one sparse LU
 of the whole column when every species is coupled). The transport coefficients
 depend on Te and Ti through the plasma temperature, so the Te column adds
@@ -165,23 +165,16 @@ def _transport_te_column(model, n):
     return out
 
 
-def _column_solve(model, n, J, B, live):
-    """−J⁻¹ B for the live levels of a transport-coupled column, ``J`` the live levels'
-    chemistry blocks (L, S, S).
-
-    The column Jacobian couples levels only through the transported species (the transport
-    operator acts on them alone), so the others are eliminated level by level (the Schur
-    complement, :func:`_schur_solve`): the level blocks are inverted in one batch and what
-    is left is a banded system in the transported densities (A × their number; tridiagonal
-    for one), solved once for every right-hand side. One sparse LU of the whole column (the
-    former method) remains for a column where every species is coupled, or a singular
-    level block.
-    """
+def _column_blocks(model, J, live):
+    """The live column's Jacobian as level blocks D (L, S, S) (chemistry ``J`` and the
+    transport diagonal), the transported species t, their coupling between levels (rows,
+    cols, values in the transported unknowns, level-major) and a function giving the whole
+    sparse matrix."""
     import scipy.sparse as sp
 
     # The transport part of the column Jacobian (it does not depend on the rates).
     T = model.transport.matrix(1).tocsc()
-    A, S, K = B.shape
+    L, S, _ = J.shape
     keep = np.repeat(live, S)
     T = (T if live.all() else T[keep][:, keep]).tocoo()
     T.sum_duplicates()
@@ -195,14 +188,12 @@ def _column_solve(model, n, J, B, live):
     tpos[t] = np.arange(t.size)
     coupling = (lv_r[off] * t.size + tpos[T.row[off] % S],
                 lv_c[off] * t.size + tpos[T.col[off] % S], T.data[off])
-    if t.size < S:
-        try:
-            return _schur_solve(D, t, coupling, B)
-        except (np.linalg.LinAlgError, RuntimeError):
-            pass
-    whole = (sp.block_diag(list(D), format="csr")
-             + sp.csr_matrix((T.data[off], (T.row[off], T.col[off])), shape=(A * S, A * S)))
-    return _sparse_solve(whole, B)
+
+    def whole():
+        return (sp.block_diag(list(D), format="csr")
+                + sp.csr_matrix((T.data[off], (T.row[off], T.col[off])),
+                                shape=(L * S, L * S)))
+    return D, t, coupling, whole
 
 
 def _sparse_solve(J, B):
@@ -216,22 +207,18 @@ def _sparse_solve(J, B):
     return -x.reshape(A, S, K)
 
 
-def _schur_solve(D, t, coupling, B):
-    """−J⁻¹ B for J = the level blocks D (A, S, S) plus ``coupling`` (rows, cols, values in
-    the transported unknowns, level-major) between the species ``t`` of different levels.
+def _coupled_part(X, t, coupling, XB_t):
+    """w = C x_t, (A, T, K), with x_t solving (I + X_tt C) x_t = (X B)_t (``XB_t``).
 
-    With X = D⁻¹ (one batched LU) and C the coupling, J x = B reads x = X (B − C x); its
-    transported part solves (I + X_tt C) x_t = (X B)_t, a banded system of A × len(t)
-    unknowns (tridiagonal for one species; LAPACK gbsv) for every right-hand side at once;
-    then x = X B − X_{·t} (C x_t). This is the Schur complement of the untransported
-    species."""
+    With X = D⁻¹ and C the coupling of the transported species t between levels, J x = B
+    reads x = X (B − C x); its transported part solves (I + X_tt C) x_t = (X B)_t, a banded
+    system of A × len(t) unknowns (tridiagonal for one species; LAPACK gbsv) for every
+    right-hand side at once, and then x = X B − X_{·t} w: the Schur complement of the
+    untransported species."""
     import scipy.sparse as sp
     from scipy.linalg import solve_banded
 
-    A, S, K = B.shape
-    T = t.size
-    X = np.linalg.inv(D)
-    XB = X @ B                                          # (A, S, K)
+    A, T, K = XB_t.shape
     Xt = X[:, :, t]                                     # (A, S, T)
     rows, cols, vals = coupling
     # Entries of X_tt C: row p of the block of C's row i, column j.
@@ -245,10 +232,29 @@ def _schur_solve(D, t, coupling, B):
     ab = np.zeros((lo + up + 1, A * T))
     ab[up] = 1.0
     np.add.at(ab, (up + p - j, j), v)
-    xt = solve_banded((lo, up), ab, XB[:, t].reshape(A * T, K), check_finite=False)
+    xt = solve_banded((lo, up), ab, XB_t.reshape(A * T, K), check_finite=False)
     C = sp.csr_matrix((vals, (rows, cols)), shape=(A * T, A * T))
-    w = (C @ xt).reshape(A, T, K)
-    return -(XB - Xt @ w)
+    return (C @ xt).reshape(A, T, K)
+
+
+def _coupled_responses(D, t, coupling, nu, r, rows, columns, varying, constant, inv_d,
+                       te_column, te_forcing):
+    """The transported column's normalized responses (K, L, species) without forming the
+    right-hand sides: as :func:`_level_responses` with the level blocks D (chemistry and
+    the transport diagonal), then the correction Z_{·t} w of :func:`_coupled_part`
+    (Z = diag(1/n) rows D⁻¹), and ``te_forcing`` (L, S), ∂(transport)/∂ln Te, in column
+    ``te_column``."""
+    X = np.linalg.inv(D)
+    Z = np.matmul(rows, X)
+    Z *= inv_d[:, :, None]                              # (L, species, S)
+    out = _products(Z, nu, r, columns, varying, constant)              # −Z B
+    XB_t = -_products(X[:, t, :], nu, r, columns, varying, constant)   # (K, L, T)
+    if te_column is not None:
+        out[te_column] -= np.matmul(Z, te_forcing[:, :, None])[..., 0]
+        XB_t[te_column] += np.matmul(X[:, t, :], te_forcing[:, :, None])[..., 0]
+    w = _coupled_part(X, t, coupling, np.ascontiguousarray(XB_t.transpose(1, 2, 0)))
+    out += np.matmul(Z[:, :, t], w).transpose(2, 0, 1)
+    return out
 
 
 def sensitivity(model, result=None):
@@ -345,15 +351,9 @@ def _responses(model, n, k, dens, names, roles, columns, varying, constant, te_c
         r = mech.rates(k[L], mech.full_densities(n[L], given[L]))     # (L, R)
         J = mech.jacobian(n[L], k[L], given[L])
         if model.transport is not None:
-            rhs = mech.nu[None, :, :] * r[:, None, :]   # (L, S, R) = ∂f/∂ln k_j = ν_j r_j
-            B = np.concatenate([rhs if columns is None else rhs @ columns,
-                                np.matmul(rhs, varying[L]), rhs @ constant], axis=-1)
-            if te_column is not None:
-                B[..., te_column] += _transport_te_column(model, n)[L]
-            dn = _column_solve(model, n, J, B, live)                    # (L, S, K)
-            S = dn.shape[1]
-            out = (dn.transpose(2, 0, 1).reshape(-1, S) @ rows.T).reshape(K, L.size, -1)
-            out *= inv_d[None]
+            g = _transport_te_column(model, n)[L] if te_column is not None else None
+            out = _transported(model, n, J, live, r, rows, columns, varying[L], constant,
+                               inv_d, te_column, g)
         else:
             out = _level_responses(J, mech.nu, r, rows, columns, varying[L], constant, inv_d)
     if L.size == dens.shape[1]:
@@ -361,6 +361,31 @@ def _responses(model, n, k, dens, names, roles, columns, varying, constant, te_c
     norm = np.full((K, dens.shape[1], len(names)), np.nan)
     norm[:, L] = out
     return norm
+
+
+def _transported(model, n, J, live, r, rows, columns, varying, constant, inv_d, te_column,
+                 g):
+    """Responses (K, L, species) of a transport-coupled column: by the Schur complement
+    (:func:`_coupled_responses`), else (every species coupled, a singular block) from the
+    right-hand sides and one sparse LU of the whole column."""
+    D, t, coupling, whole = _column_blocks(model, J, live)
+    nu = model.mechanism.nu
+    if t.size < D.shape[1]:
+        try:
+            return _coupled_responses(D, t, coupling, nu, r, rows, columns, varying,
+                                      constant, inv_d, te_column, g)
+        except (np.linalg.LinAlgError, RuntimeError):
+            pass
+    rhs = nu[None, :, :] * r[:, None, :]                # (L, S, R) = ∂f/∂ln k_j = ν_j r_j
+    B = np.concatenate([rhs if columns is None else rhs @ columns,
+                        np.matmul(rhs, varying), rhs @ constant], axis=-1)
+    if te_column is not None:
+        B[..., te_column] += g
+    dn = _sparse_solve(whole(), B)                      # (L, S, K)
+    S = dn.shape[1]
+    out = (dn.transpose(2, 0, 1).reshape(-1, S) @ rows.T).reshape(B.shape[2], len(J), -1)
+    out *= inv_d[None]
+    return out
 
 
 def _level_responses(J, nu, r, rows, columns, varying, constant, inv_d):
@@ -377,8 +402,6 @@ def _level_responses(J, nu, r, rows, columns, varying, constant, inv_d):
     """
     Lv = J.shape[0]
     Nsp, S = rows.shape
-    P = nu.shape[1] if columns is None else columns.shape[1]
-    Fv, Fc = varying.shape[2], constant.shape[1]
     try:
         G = np.matmul(rows, np.linalg.inv(J))           # (L, species, S)
     except np.linalg.LinAlgError:
@@ -390,8 +413,17 @@ def _level_responses(J, nu, r, rows, columns, varying, constant, inv_d):
         out *= -inv_d[None]
         return out
     G *= inv_d[:, :, None]
+    return _products(G, nu, r, columns, varying, constant)
+
+
+def _products(G, nu, r, columns, varying, constant):
+    """−G B for B = ν diag(r) [columns | varying | constant] per level: (K, L, rows of G),
+    from G (L, rows, S)."""
+    Lv, Nsp, S = G.shape
+    P = nu.shape[1] if columns is None else columns.shape[1]
+    Fv, Fc = varying.shape[2], constant.shape[1]
     out = np.empty((P + Fv + Fc, Lv, Nsp))
-    # H[j, l, i] = −(rows J⁻¹ ν)[l, i, j] r[l, j] / n[l, i]: the response to ln k_j.
+    # H[j, l, i] = −(G ν)[l, i, j] r[l, j]: the response to ln k_j.
     H = out[:P] if columns is None else np.empty((nu.shape[1], Lv, Nsp))
     np.matmul(nu.T, G.reshape(-1, S).T, out=H.reshape(H.shape[0], -1))
     H *= -r.T[:, :, None]
