@@ -165,33 +165,39 @@ def _transport_te_column(model, n):
     return out
 
 
-def _column_blocks(model, J, live):
-    """The live column's Jacobian as level blocks D (L, S, S) (chemistry ``J`` and the
-    transport diagonal), the transported species t, their coupling between levels (rows,
-    cols, values in the transported unknowns, level-major) and a function giving the whole
-    sparse matrix."""
+def _column_blocks(model, n, J, live):
+    """The live column's Jacobian as level blocks D (L, S, S) (the chemistry ``J`` at the
+    caller's rates and the transport's own share), the transported species t, their
+    coupling between levels (rows, cols, values in the transported unknowns, level-major)
+    and a function giving the whole sparse matrix.
+
+    From ``model.column_jacobian(n)``: its entries between levels are the transport's, and
+    its level blocks minus the chemistry at the model's rates are the transport's diagonal.
+    """
     import scipy.sparse as sp
 
-    # The transport part of the column Jacobian (it does not depend on the rates).
-    T = model.transport.matrix(1).tocsc()
+    mech = model.mechanism
     L, S, _ = J.shape
     keep = np.repeat(live, S)
-    T = (T if live.all() else T[keep][:, keep]).tocoo()
-    T.sum_duplicates()
-    lv_r, lv_c = T.row // S, T.col // S
+    Jc = model.column_jacobian(n).tocsc()
+    Jc = (Jc if live.all() else Jc[keep][:, keep]).tocoo()
+    Jc.sum_duplicates()
+    lv_r, lv_c = Jc.row // S, Jc.col // S
     off = lv_r != lv_c
-    D = np.array(J, float)
     on = ~off
-    np.add.at(D, (lv_r[on], T.row[on] % S, T.col[on] % S), T.data[on])
-    t = np.union1d(T.row[off] % S, T.col[off] % S)
+    D = np.zeros((L, S, S))
+    D[lv_r[on], Jc.row[on] % S, Jc.col[on] % S] = Jc.data[on]
+    k_model = model.rate_coefficients()[live]
+    D += np.asarray(J, float) - mech.jacobian(n[live], k_model, model.given[live])
+    t = np.union1d(Jc.row[off] % S, Jc.col[off] % S)
     tpos = np.full(S, -1)
     tpos[t] = np.arange(t.size)
-    coupling = (lv_r[off] * t.size + tpos[T.row[off] % S],
-                lv_c[off] * t.size + tpos[T.col[off] % S], T.data[off])
+    coupling = (lv_r[off] * t.size + tpos[Jc.row[off] % S],
+                lv_c[off] * t.size + tpos[Jc.col[off] % S], Jc.data[off])
 
     def whole():
         return (sp.block_diag(list(D), format="csr")
-                + sp.csr_matrix((T.data[off], (T.row[off], T.col[off])),
+                + sp.csr_matrix((Jc.data[off], (Jc.row[off], Jc.col[off])),
                                 shape=(L * S, L * S)))
     return D, t, coupling, whole
 
@@ -368,7 +374,7 @@ def _transported(model, n, J, live, r, rows, columns, varying, constant, inv_d, 
     """Responses (K, L, species) of a transport-coupled column: by the Schur complement
     (:func:`_coupled_responses`), else (every species coupled, a singular block) from the
     right-hand sides and one sparse LU of the whole column."""
-    D, t, coupling, whole = _column_blocks(model, J, live)
+    D, t, coupling, whole = _column_blocks(model, n, J, live)
     nu = model.mechanism.nu
     if t.size < D.shape[1]:
         try:
