@@ -16,6 +16,13 @@ wall times, samples per second, the batch size, the agreement of the serial and 
 runs, and the cluster's speed-up (target: >= 1.6x on an idle machine for long runs).
 
     python benchmarks/bench_uncertainty.py [--samples 1000] [--levels 100] [--workers 2]
+
+``--cli`` (issue 25) times the whole command ``ionochem uncertainty`` (a new process: start-up,
+ensemble, summary and the output file) on the same column, ``--workers 1``, against the
+floor measured in the same run, in turn with it: the ratio is the median of the per-repeat
+ratios (target: 1000 samples x 63 levels within 6x the floor).
+
+    python benchmarks/bench_uncertainty.py --cli --levels 63 --samples 1000 --repeat 3
 """
 
 from __future__ import annotations
@@ -23,6 +30,7 @@ from __future__ import annotations
 import argparse
 import re
 import statistics
+import subprocess
 import sys
 import tempfile
 import time
@@ -98,6 +106,8 @@ def main():
     ap.add_argument("--transport", action="store_true",
                     help="keep the demo's [transport] section (coupled levels)")
     ap.add_argument("--serial-only", action="store_true", help="skip the cluster run")
+    ap.add_argument("--cli", action="store_true",
+                    help="time the ionochem uncertainty command against the floor only")
     ap.add_argument("--break-even", type=int, nargs="+", metavar="N",
                     help="only time serial against --workers for these sample counts "
                          "(cluster start included), to place ensemble.AUTO_LEVEL_SOLVES")
@@ -139,6 +149,10 @@ def main():
                 for _ in range(batches * 4):
                     np.linalg.solve(J, f)
 
+        if args.cli:
+            cli_against_floor(path, folder, args, floor)
+            return
+
         t_floor, t_ens = [], []
         n_ser = None
         for _ in range(args.repeat):
@@ -168,6 +182,25 @@ def main():
         i = int(np.argmin(np.abs(ds["altitude"].values - 200.0)))
         print(f"Ne at {ds['altitude'].values[i]:.0f} km: median {float(e[2, i]):.3e} cm-3, "
               f"68 % range x{np.sqrt(float(e[3, i] / e[1, i])):.3f}")
+
+
+def cli_against_floor(path, folder, args, floor):
+    """The uncertainty command as a whole process, in turn with the floor."""
+    cmd = [sys.executable, "-m", "ionochem", "uncertainty", str(path), "--samples",
+           str(args.samples), "--workers", "1", "--no-progress", "-o",
+           str(folder / "mc.nc")]
+    ratios, t_cli, t_floor = [], [], []
+    for _ in range(args.repeat):
+        t, _ = timed(floor, 1)
+        t_floor.append(t)
+        t0 = time.perf_counter()
+        subprocess.run(cmd, check=True, cwd=folder, stdout=subprocess.DEVNULL)
+        t_cli.append(time.perf_counter() - t0)
+        ratios.append(t_cli[-1] / t)
+    print(f"floor    : {min(t_floor):6.2f} s")
+    print(f"command  : {min(t_cli):6.2f} s (ionochem uncertainty, start-up and output "
+          f"included) = {statistics.median(ratios):.1f}x the floor (median of "
+          f"{args.repeat}; target <= 6x)")
 
 
 if __name__ == "__main__":

@@ -188,3 +188,22 @@ def test_transient_results_name_their_photon_sources_too():
     ds = ionochem.Model(scen).integrate(np.array([0.0, 60.0]))
     assert "He I 584 A" in ds.attrs["photon_sources"]
     assert "soft X-rays" in ds.attrs["photon_sources"]
+
+
+def test_exponential_integral_e2_equals_scipy_and_the_tables():
+    """E_2 written out (no scipy.special at start-up) equals ``scipy.special.expn(2, x)``
+    (Cephes) to 1e-13 relative from 1e-12 to 800, and the tabulated E_2(0.5) =
+    0.326643862 and E_2(1) = 0.148495507 (Abramowitz & Stegun 1964, Table 5.1); E_2(0) = 1,
+    E_2(inf) = 0."""
+    from scipy.special import expn
+
+    from ionochem.environment.night_sources import exponential_integral_e2
+    x = np.concatenate([np.logspace(-12, np.log10(800.0), 3000), [0.9999999, 1.0, 1.0000001]])
+    ref = expn(2, x)
+    got = exponential_integral_e2(x)
+    keep = ref > 0
+    np.testing.assert_allclose(got[keep], ref[keep], rtol=1e-13)
+    np.testing.assert_allclose(exponential_integral_e2(np.array([0.5, 1.0])),
+                               [0.326643862, 0.148495507], atol=6e-10)
+    assert exponential_integral_e2(np.array([0.0]))[0] == 1.0
+    assert exponential_integral_e2(np.array([np.inf]))[0] == 0.0

@@ -140,6 +140,23 @@ def test_sensitivity_sweep_equals_model_sensitivity(tmp_path):
                                ref["sensitivity"].values, rtol=1e-10, atol=1e-14)
 
 
+def test_sensitivity_sweep_solves_each_point_once(tmp_path, monkeypatch):
+    """--sensitivity reuses the point's steady solution: one Model.solve per point (issue
+    25; the sensitivities themselves are checked against Model.sensitivity() above)."""
+    from ionochem.model import Model
+    calls = []
+    solve = Model.solve
+
+    def counted(self):
+        calls.append(1)
+        return solve(self)
+    monkeypatch.setattr(Model, "solve", counted)
+    spec = spec_for(write_scenario(tmp_path), "sun.f107=90,210", sensitivity=True)
+    ds = point_dataset(spec, 1)
+    assert "sensitivity" in ds
+    assert len(calls) == 1
+
+
 # ----------------------------------------------------------------------------- geometry
 @pytest.fixture
 def astropy_offline():

@@ -34,9 +34,12 @@ Electron-density constraint: :func:`electron_constrained_model` turns the observ
 the scenario's ``[solve] electrons = "table"`` mode (the balance ion, O+ by default, is then
 Ne minus the other ions); electron-density rows are then constraints, not data.
 
-Uses only the public Model surface (with_changes, solve, sensitivity, uncertainty_factors,
-reactions, reaction_objects, species); for ``Te`` and the electron constraint a model is
-rebuilt on a copy of its environment.
+Modules: this one holds the parameters, the priors and the summary of a fit;
+:mod:`ionochem.analysis.fit_problem` the forward model (trials, residuals, Jacobian), the
+models on changed environments and the least-squares and profile drivers. A trial that only
+scales rates is the base model with scaled rate coefficients (no model rebuilt; only the
+fitted parameters' sensitivities computed); for ``Te`` and the electron constraint a model
+is rebuilt on a copy of its environment.
 """
 
 from __future__ import annotations
@@ -47,15 +50,17 @@ import numpy as np
 import xarray as xr
 
 from ionochem.analysis.bounds import MAX_PROFILE_POINTS, check_count
-from ionochem.analysis.misfit import (
-    band_rows,
-    interpolation_matrix,
-    log_density,
-    log_sigma,
+from ionochem.analysis.fit_problem import (  # noqa: F401 (re-exported)
+    _Problem,
+    electron_constrained_model,
+    least_squares_fit,
+    model_on,
+    profile_interval,
+    profile_likelihood,
 )
-from ionochem.errors import InputError, SolverError
+from ionochem.analysis.misfit import band_rows, log_density
+from ionochem.errors import InputError
 from ionochem.io.dataset import ALTITUDE_ATTRS
-from ionochem.io.observations import check_against_model
 
 #: A singular direction below this fraction of the largest singular value is degenerate.
 DEGENERATE_RATIO = 1e-2
@@ -189,179 +194,6 @@ def _prior_source(param, prior, given):
     return "the reaction's f, median over the observed altitudes"
 
 
-# ------------------------------------------------------------------ models
-def _extra_changes(model):
-    """The model's changes beyond its scenario's (to re-apply on a rebuilt model)."""
-    scen = model.scenario.changes
-    sets = {k: v for k, v in model.changes["set"].items() if scen.set.get(k) != v}
-    scales = {}
-    for k, v in model.changes["scale"].items():
-        base = float(scen.scale.get(k, 1.0))
-        if v != base and base != 0:
-            scales[k] = v / base
-    return sets, scales
-
-
-def model_on(model, scenario=None, **environment):
-    """The same model on a copy of its environment with some fields replaced (``Te=``,
-    ``electron_density=``), and optionally another scenario; its changes are kept."""
-    from ionochem.model import Model
-    env = dataclasses.replace(model.environment, **environment)
-    new = Model(model.scenario if scenario is None else scenario, model.reaction_list,
-                environment=env)
-    sets, scales = _extra_changes(model)
-    return new.with_changes(sets, scale=scales) if (sets or scales) else new
-
-
-def electron_constrained_model(model, obs, balance_ion="O+"):
-    """The model in ``electrons = "table"`` mode with Ne from the observations.
-
-    The observed electron densities are interpolated log-linearly in altitude onto the
-    grid; the grid must lie inside the observed range.
-
-    Raises
-    ------
-    InputError
-        No electron-density rows, or a grid level outside their altitudes.
-    """
-    src = obs.attrs.get("source")
-    sel = obs["kind"].values.astype(str) == "electron_density"
-    if not sel.any():
-        raise InputError("no electron-density rows (species e) to constrain the electrons "
-                         "with", file=src)
-    a = obs["altitude_km"].values[sel]
-    ne = obs["density_cm3"].values[sel]
-    order = np.argsort(a)
-    a, ne = a[order], ne[order]
-    grid = np.asarray(model.altitude_km, float)
-    if grid.min() < a[0] - 1e-6 or grid.max() > a[-1] + 1e-6:
-        raise InputError(f"the measured electron density covers {a[0]:g} to {a[-1]:g} km but "
-                         f"the model grid spans {grid.min():g} to {grid.max():g} km; give the "
-                         "scenario a grid inside the measured range", file=src)
-    ne_grid = np.exp(np.interp(grid, a, np.log(ne)))
-    scen = model.scenario
-    solve = dataclasses.replace(scen.solve, electrons="table", balance_ion=balance_ion,
-                                electron_table=src)
-    return model_on(model, dataclasses.replace(scen, solve=solve), electron_density=ne_grid)
-
-
-# ------------------------------------------------------------------ the fit
-class _Problem:
-    """Residuals and exact Jacobian of the misfit as functions of θ (cached per θ)."""
-
-    def __init__(self, model, obs, params, prior_log_f):
-        self.model = model
-        self.params = params
-        self.prior = np.array([np.nan if prior_log_f.get(p.name) is None
-                               else prior_log_f[p.name] for p in params])
-        self.has_prior = np.isfinite(self.prior)
-        base = model.solve()
-        self.base_ds = base
-        self.species = [str(s) for s in base["species"].values]
-        self.altitude = base["altitude"].values
-        check_against_model(obs, self.species, self.altitude)
-        self.W_all = interpolation_matrix(obs, self.species, self.altitude)
-        log_n = log_density(base)
-        # Observations usable: finite model there, and not fixed by a constraint.
-        bad = ~np.isfinite(log_n.ravel())
-        usable = ~(np.abs(self.W_all[:, bad]) > 0).any(axis=1)
-        self.notes = []
-        if (~usable).any():
-            self.notes.append(f"{int((~usable).sum())} observation(s) where the model density "
-                              "is zero (dark levels) are left out")
-        if model.scenario.solve.electrons == "table":
-            fixed = obs["kind"].values.astype(str) == "electron_density"
-            if (fixed & usable).any():
-                self.notes.append(f"{int((fixed & usable).sum())} electron-density "
-                                  "observation(s) are the electron constraint, not data: "
-                                  "left out of the misfit")
-            usable &= ~fixed
-        if not usable.any():
-            raise InputError("no observation can be compared with the model",
-                             file=obs.attrs.get("source"))
-        self.use = usable
-        self.W = self.W_all[usable]
-        self.log_y = np.log(obs["density_cm3"].values[usable])
-        self.s = log_sigma(obs)[usable]
-        self._cache = {}
-        self.M = np.zeros((len(model.reactions), len(params)))
-        for p, par in enumerate(params):
-            self.M[list(par.indices), p] = 1.0
-
-    # -- forward model
-    def model_at(self, theta):
-        m = self.model
-        te = [p for p, par in enumerate(self.params) if par.is_te]
-        if te:
-            env = m.environment
-            m = model_on(m, Te=env.Te * np.exp(theta[te[0]]))
-        scale = {par.name: float(np.exp(t)) for par, t in zip(self.params, theta)
-                 if not par.is_te}
-        return m.with_changes(scale=scale) if scale else m
-
-    def _state(self, theta):
-        """Model, solution and ln m at the observations for θ (one kept: least_squares
-        asks for the residuals and then the Jacobian at the same point)."""
-        key = tuple(np.round(np.asarray(theta, float), 14))
-        if self._cache.get("key") == key:
-            return self._cache
-        if not np.any(theta):
-            m, ds = self.model, self.base_ds
-        else:
-            m = self.model_at(np.asarray(theta, float))
-            ds = m.solve()
-        log_n = log_density(ds).ravel()
-        if not np.all(np.isfinite(log_n[np.abs(self.W).sum(axis=0) > 0])):
-            raise SolverError("a fitted model density went to zero where it is observed; "
-                              "bound the multipliers more tightly (--max-factor)")
-        self._cache = {"key": key, "model": m, "ds": ds,
-                       "lm": self.W @ np.nan_to_num(log_n)}
-        return self._cache
-
-    def evaluate(self, theta):
-        """(solution, ln m at the observations, data Jacobian ∂r/∂θ) at θ."""
-        st = self._state(theta)
-        if "J" not in st:
-            sens = st["model"].sensitivity(result=st["ds"])
-            S = sens["sensitivity"].transpose("species", "reaction", "altitude").values
-            G = np.einsum("sra,rp->psa", np.nan_to_num(S), self.M)
-            for p, par in enumerate(self.params):
-                if par.is_te:
-                    G[p] = np.nan_to_num(
-                        sens["sensitivity_Te"].transpose("species", "altitude").values)
-            st["J"] = -(self.W @ G.reshape(len(self.params), -1).T) / self.s[:, None]
-        return st["ds"], st["lm"], st["J"]
-
-    def residuals(self, theta):
-        lm = self._state(theta)["lm"]
-        r = (self.log_y - lm) / self.s
-        prior = np.asarray(theta)[self.has_prior] / self.prior[self.has_prior]
-        return np.concatenate([r, prior])
-
-    def jacobian(self, theta):
-        _, _, J = self.evaluate(theta)
-        P = np.diag(1.0 / np.where(self.has_prior, self.prior, np.inf))[self.has_prior]
-        return np.vstack([J, P])
-
-
-def _least_squares(problem, theta0, free_mask, bound):
-    from scipy.optimize import least_squares
-    theta0 = np.asarray(theta0, float)
-    idx = np.flatnonzero(free_mask)
-
-    def full(x):
-        t = theta0.copy()
-        t[idx] = x
-        return t
-
-    res = least_squares(lambda x: problem.residuals(full(x)),
-                        np.clip(theta0[idx], -bound[idx] * 0.999, bound[idx] * 0.999),
-                        jac=lambda x: problem.jacobian(full(x))[:, idx],
-                        bounds=(-bound[idx], bound[idx]), method="trf", x_scale=1.0,
-                        xtol=1e-10, ftol=1e-10, gtol=1e-10, max_nfev=100)
-    return full(res.x), res
-
-
 def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profile=None,
         profile_points=13):
     """Fit log multipliers of reactions (or families, or Te) to observations.
@@ -399,28 +231,76 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
         with ``profile`` ``profile_log_multiplier(profile_point)`` and
         ``profile_chi2(profile_point)``. Attributes: ``warnings``, ``degenerate``, ...
     """
+    params, bound = _checked(model, free, max_factor, profile, profile_points)
+    names = [p.name for p in params]
+    given = parse_priors({k: v for k, v in (priors or {}).items()}, params)
+    prior = default_priors(model, params, observations["altitude_km"].values)
+    prior.update(given)
+    problem = _Problem(model, observations, params, prior)
+    theta, res = least_squares_fit(problem, np.zeros(len(params)), np.ones(len(params), bool),
+                                   bound)
+    dens_fit, lm_fit, J_data = problem.evaluate(theta)
+    cov, sigma, corr = _covariance(problem.jacobian(theta))
+    sd_full, Vd, degenerate = _identifiability(J_data, names)
+    warnings, dof = _fit_warnings(problem, params, theta, bound, corr, res, prior, given)
+    out = _fit_dataset(problem, observations, params, theta, prior, given,
+                       dict(cov=cov, sigma=sigma, corr=corr, sd=sd_full, Vd=Vd,
+                            dens_fit=dens_fit, lm_fit=lm_fit, dof=dof))
+    if profile is not None:
+        _add_profile(out, problem, theta, names.index(profile), profile, sigma, bound,
+                     profile_points)
+    out.attrs.update({
+        "analysis": "fit: least squares on ln multipliers, exact sensitivities as Jacobian",
+        "observations": str(observations.attrs.get("source", "")),
+        "free": "; ".join(names),
+        "priors": "; ".join(f"{n}: " + ("flat" if prior[n] is None
+                                        else f"f = {np.exp(prior[n]):.3g}") for n in names),
+        "max_factor": float(max_factor),
+        "electrons": model.scenario.solve.electrons,
+        "optimizer": f"scipy.optimize.least_squares trf, {res.nfev} evaluations, "
+                     f"status {res.status}",
+        "converged": int(bool(res.success)),
+        "degenerate": "\n".join(degenerate),
+        "warnings": "\n".join(warnings),
+    })
+    r_fit = (problem.log_y - lm_fit) / problem.s
+    out.attrs["bands_fitted"] = _bands_text(observations, problem.use, r_fit, lm_fit)
+    return out
+
+
+def _checked(model, free, max_factor, profile, profile_points):
+    """The parameters and their bounds (ln); bad options refused before any solve."""
     if profile is not None:
         check_count(profile_points, 3, MAX_PROFILE_POINTS, "--profile-points", "points")
     params = resolve_parameters(model, free)
     if not (np.isfinite(max_factor) and max_factor > 1):
         raise InputError("the bound on the multipliers must be a number > 1",
                          file="--max-factor")
+    names = [p.name for p in params]
+    if profile is not None and profile not in names:
+        raise InputError(f"--profile {profile}: not a free parameter (free: "
+                         f"{', '.join(names)})", file="--profile")
     bound = np.array([np.log(min(max_factor, TE_MAX_FACTOR)) if p.is_te
                       else np.log(max_factor) for p in params])
-    given = parse_priors({k: v for k, v in (priors or {}).items()}, params)
-    prior = default_priors(model, params, observations["altitude_km"].values)
-    prior.update(given)
-    problem = _Problem(model, observations, params, prior)
-    P = len(params)
-    theta0 = np.zeros(P)
-    theta, res = _least_squares(problem, theta0, np.ones(P, bool), bound)
-    ds_fit, lm_fit, J_data = problem.evaluate(theta)
-    J_full = problem.jacobian(theta)
-    r_fit = (problem.log_y - lm_fit) / problem.s
-    lm_base = problem.W @ np.nan_to_num(log_density(problem.base_ds).ravel())
-    r_base = (problem.log_y - lm_base) / problem.s
+    return params, bound
 
-    # Covariance from the whitened Jacobian with priors; SVD so a null direction shows.
+
+def _add_profile(out, problem, theta, p, name, sigma, bound, points):
+    """The profile likelihood of parameter ``p`` into ``out`` (variables and interval)."""
+    prof = profile_likelihood(problem, theta, p, sigma, bound, points)
+    out["profile_log_multiplier"] = ("profile_point", prof[0], {
+        "units": "1", "long_name": f"ln multiplier of {name} held fixed"})
+    out["profile_chi2"] = ("profile_point", prof[1], {
+        "units": "1", "long_name": "total chi-square (data and priors) minimised over "
+        "the other parameters"})
+    out.attrs["profile_parameter"] = name
+    lo, hi = profile_interval(*prof)
+    out.attrs["profile_interval_68"] = f"{np.exp(lo):.4g} to {np.exp(hi):.4g}"
+
+
+def _covariance(J_full):
+    """Covariance (Jᵀ J)⁻¹ of θ from the whitened Jacobian with priors (by SVD, so a null
+    direction shows as infinite variance), the one-sigma errors and the correlations."""
     U, sv, Vt = np.linalg.svd(J_full, full_matrices=False)
     with np.errstate(divide="ignore"):
         inv = np.where(sv > sv.max() * 1e-12, 1.0 / sv ** 2, np.inf) if sv.size else sv
@@ -435,19 +315,31 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
     with np.errstate(invalid="ignore", divide="ignore"):
         corr = cov / np.outer(sigma, sigma)
     np.fill_diagonal(corr, 1.0)
+    return cov, sigma, corr
 
-    # Identifiability from the data alone.
+
+def _identifiability(J_data, names):
+    """Singular values (P,) and right singular vectors of the data-only Jacobian, and the
+    degenerate directions in words."""
+    P = len(names)
     _, sd, Vd = np.linalg.svd(J_data, full_matrices=True)
     sd_full = np.zeros(P)
     sd_full[:sd.size] = sd
     smax = sd_full.max() if sd_full.size else 0.0
-    warnings = list(problem.notes)
     degenerate = []
-    names = [p.name for p in params]
     for k in range(P):
         ratio = sd_full[k] / smax if smax > 0 else 0.0
         if ratio < DEGENERATE_RATIO:
             degenerate.append(_direction_text(Vd[k], names, ratio))
+    return sd_full, Vd, degenerate
+
+
+def _fit_warnings(problem, params, theta, bound, corr, res, prior, given):
+    """The fit's warnings (correlated pairs, bounds reached, convergence, flat priors, no
+    degrees of freedom) and its degrees of freedom."""
+    names = [p.name for p in params]
+    P = len(params)
+    warnings = list(problem.notes)
     for i in range(P):
         for j in range(i + 1, P):
             if np.isfinite(corr[i, j]) and abs(corr[i, j]) > CORRELATED:
@@ -472,119 +364,107 @@ def fit(model, observations, free, *, priors=None, max_factor=MAX_FACTOR, profil
     if dof <= 0:
         warnings.append(f"{n_obs} observations for {P} parameters: no degrees of freedom "
                         "left, so the priors carry the fit")
+    return warnings, dof
 
-    prof = None
-    if profile is not None:
-        if profile not in names:
-            raise InputError(f"--profile {profile}: not a free parameter (free: "
-                             f"{', '.join(names)})", file="--profile")
-        prof = _profile(problem, theta, names.index(profile), sigma, bound, profile_points)
 
-    obs = observations
+def _fit_dataset(problem, obs, params, theta, prior, given, f):
+    """The fit's dataset (without the profile and the summary attributes); ``f`` holds
+    the covariance, singular vectors and fitted densities."""
+    names = [p.name for p in params]
+    P = len(params)
+    data = _parameter_variables(problem, params, theta, prior, given, f)
+    data.update(_observation_variables(problem, obs, theta, f))
     use = problem.use
-    alt = np.asarray(problem.altitude)
-    out = xr.Dataset(
-        {
-            "log_multiplier": ("parameter", theta, {
-                "units": "1", "long_name": "fitted ln of the rate (or Te) multiplier"}),
-            "multiplier": ("parameter", np.exp(theta), {
-                "units": "1", "long_name": "fitted multiplier on the rate coefficient (or Te)"}),
-            "log_multiplier_sigma": ("parameter", sigma, {
-                "units": "1", "long_name": "one-sigma error of ln multiplier (68 % range "
-                "multiplier/exp(sigma) to multiplier*exp(sigma))"}),
-            "log_covariance": (("parameter", "parameter_b"), cov, {
-                "units": "1", "long_name": "covariance of the ln multipliers "
-                "(Gauss-Newton, priors included, not rescaled by chi2/dof)"}),
-            "correlation": (("parameter", "parameter_b"), corr, {
-                "units": "1", "long_name": "correlation of the ln multipliers"}),
-            "prior_log_sigma": ("parameter", np.array([np.nan if prior[n] is None
-                                                       else prior[n] for n in names]), {
-                "units": "1", "long_name": "one-sigma width of the log-normal prior, ln f "
-                "(NaN: flat)"}),
-            "prior_source": ("parameter", np.array([_prior_source(p, prior, given)
-                                                    for p in params], dtype=object), {
-                "long_name": "where the prior comes from"}),
-            "singular_value": ("direction", sd_full, {
-                "units": "1", "long_name": "singular values of the data-only whitened "
-                "Jacobian d residual / d ln multiplier"}),
-            "singular_vector": (("direction", "parameter"), Vd[:P], {
-                "units": "1", "long_name": "right singular vectors (combinations of ln "
-                "multipliers), one per direction"}),
-            "density_baseline": (("species", "altitude"),
-                                 problem.base_ds["density"].transpose("species",
-                                                                      "altitude").values,
-                                 {"units": "cm-3", "long_name": "number density, baseline"}),
-            "density_fitted": (("species", "altitude"),
-                               ds_fit["density"].transpose("species", "altitude").values,
-                               {"units": "cm-3", "long_name": "number density with the "
-                                "fitted multipliers"}),
-            "observed": ("observation", obs["density_cm3"].values[use], {
-                "units": "cm-3", "long_name": "measured value (ratios dimensionless)"}),
-            "observed_sigma": ("observation", obs["sigma_cm3"].values[use], {
-                "units": "cm-3", "long_name": "one-sigma error of the measurement"}),
-            "model_baseline": ("observation", np.exp(lm_base), {
-                "units": "cm-3", "long_name": "baseline model at the observation"}),
-            "model_fitted": ("observation", np.exp(lm_fit), {
-                "units": "cm-3", "long_name": "fitted model at the observation"}),
-            "residual": ("observation", r_fit, {
-                "units": "1", "long_name": "(ln observed - ln fitted) / sigma_ln"}),
-            "residual_baseline": ("observation", r_base, {
-                "units": "1", "long_name": "(ln observed - ln baseline) / sigma_ln"}),
-            "chi2": ((), float(np.sum(r_fit ** 2)), {
-                "units": "1", "long_name": "chi-square of the data at the fit"}),
-            "chi2_baseline": ((), float(np.sum(r_base ** 2)), {
-                "units": "1", "long_name": "chi-square of the data for the baseline"}),
-            "chi2_prior": ((), float(np.sum((theta[problem.has_prior]
-                                             / problem.prior[problem.has_prior]) ** 2)), {
-                "units": "1", "long_name": "chi-square of the priors at the fit"}),
-            "degrees_of_freedom": ((), dof, {
-                "units": "1", "long_name": "observations minus free parameters"}),
-        },
-        coords={
-            "parameter": ("parameter", np.array(names, dtype=object)),
-            "parameter_b": ("parameter_b", np.array(names, dtype=object)),
-            "parameter_equation": ("parameter", np.array(
-                [_equation(problem.base_ds, p) for p in params], dtype=object),
-                {"long_name": "what the parameter multiplies"}),
-            "direction": ("direction", np.arange(P), {
-                "units": "1", "long_name": "index of the singular direction"}),
-            "species": ("species", np.array(problem.species, dtype=object)),
-            "altitude": ("altitude", alt, ALTITUDE_ATTRS),
-            "observation_altitude": ("observation", obs["altitude_km"].values[use],
-                                     {"units": "km", "long_name": "altitude of the "
-                                      "observation"}),
-            "observation_species": ("observation", obs["species"].values[use]),
-            "observation_kind": ("observation", obs["kind"].values[use]),
-        },
-        attrs=dict(problem.base_ds.attrs),
-    )
+    coords = {
+        "parameter": ("parameter", np.array(names, dtype=object)),
+        "parameter_b": ("parameter_b", np.array(names, dtype=object)),
+        "parameter_equation": ("parameter", np.array(
+            [_equation(problem.base_ds, p) for p in params], dtype=object),
+            {"long_name": "what the parameter multiplies"}),
+        "direction": ("direction", np.arange(P), {
+            "units": "1", "long_name": "index of the singular direction"}),
+        "species": ("species", np.array(problem.species, dtype=object)),
+        "altitude": ("altitude", np.asarray(problem.altitude), ALTITUDE_ATTRS),
+        "observation_altitude": ("observation", obs["altitude_km"].values[use],
+                                 {"units": "km", "long_name": "altitude of the "
+                                  "observation"}),
+        "observation_species": ("observation", obs["species"].values[use]),
+        "observation_kind": ("observation", obs["kind"].values[use]),
+    }
+    out = xr.Dataset(data, coords=coords, attrs=dict(problem.base_ds.attrs))
     if "warnings" in out.attrs:
         out.attrs["model_warnings"] = out.attrs.pop("warnings")
-    if prof is not None:
-        out["profile_log_multiplier"] = ("profile_point", prof[0], {
-            "units": "1", "long_name": f"ln multiplier of {profile} held fixed"})
-        out["profile_chi2"] = ("profile_point", prof[1], {
-            "units": "1", "long_name": "total chi-square (data and priors) minimised over "
-            "the other parameters"})
-        out.attrs["profile_parameter"] = profile
-        lo, hi = _profile_interval(*prof)
-        out.attrs["profile_interval_68"] = f"{np.exp(lo):.4g} to {np.exp(hi):.4g}"
-    out.attrs.update({
-        "analysis": "fit: least squares on ln multipliers, exact sensitivities as Jacobian",
-        "observations": str(obs.attrs.get("source", "")),
-        "free": "; ".join(names),
-        "priors": "; ".join(f"{n}: " + ("flat" if prior[n] is None
-                                        else f"f = {np.exp(prior[n]):.3g}") for n in names),
-        "max_factor": float(max_factor),
-        "electrons": model.scenario.solve.electrons,
-        "optimizer": f"scipy.optimize.least_squares trf, {res.nfev} evaluations, "
-                     f"status {res.status}",
-        "converged": int(bool(res.success)),
-        "degenerate": "\n".join(degenerate),
-        "warnings": "\n".join(warnings),
-    })
-    out.attrs["bands_fitted"] = _bands_text(obs, use, r_fit, lm_fit)
     return out
+
+
+def _parameter_variables(problem, params, theta, prior, given, f):
+    """Variables along ``parameter`` and ``direction``."""
+    names = [p.name for p in params]
+    return {
+        "log_multiplier": ("parameter", theta, {
+            "units": "1", "long_name": "fitted ln of the rate (or Te) multiplier"}),
+        "multiplier": ("parameter", np.exp(theta), {
+            "units": "1", "long_name": "fitted multiplier on the rate coefficient (or Te)"}),
+        "log_multiplier_sigma": ("parameter", f["sigma"], {
+            "units": "1", "long_name": "one-sigma error of ln multiplier (68 % range "
+            "multiplier/exp(sigma) to multiplier*exp(sigma))"}),
+        "log_covariance": (("parameter", "parameter_b"), f["cov"], {
+            "units": "1", "long_name": "covariance of the ln multipliers "
+            "(Gauss-Newton, priors included, not rescaled by chi2/dof)"}),
+        "correlation": (("parameter", "parameter_b"), f["corr"], {
+            "units": "1", "long_name": "correlation of the ln multipliers"}),
+        "prior_log_sigma": ("parameter", np.array([np.nan if prior[n] is None
+                                                   else prior[n] for n in names]), {
+            "units": "1", "long_name": "one-sigma width of the log-normal prior, ln f "
+            "(NaN: flat)"}),
+        "prior_source": ("parameter", np.array([_prior_source(p, prior, given)
+                                                for p in params], dtype=object), {
+            "long_name": "where the prior comes from"}),
+        "singular_value": ("direction", f["sd"], {
+            "units": "1", "long_name": "singular values of the data-only whitened "
+            "Jacobian d residual / d ln multiplier"}),
+        "singular_vector": (("direction", "parameter"), f["Vd"][:len(params)], {
+            "units": "1", "long_name": "right singular vectors (combinations of ln "
+            "multipliers), one per direction"}),
+    }
+
+
+def _observation_variables(problem, obs, theta, f):
+    """Densities, per-observation variables and the χ² scalars."""
+    use = problem.use
+    lm_fit = f["lm_fit"]
+    r_fit = (problem.log_y - lm_fit) / problem.s
+    lm_base = problem.W @ np.nan_to_num(log_density(problem.base_ds).ravel())
+    r_base = (problem.log_y - lm_base) / problem.s
+    base = problem.base_ds["density"].transpose("species", "altitude").values
+    return {
+        "density_baseline": (("species", "altitude"), base,
+                             {"units": "cm-3", "long_name": "number density, baseline"}),
+        "density_fitted": (("species", "altitude"), f["dens_fit"],
+                           {"units": "cm-3", "long_name": "number density with the "
+                            "fitted multipliers"}),
+        "observed": ("observation", obs["density_cm3"].values[use], {
+            "units": "cm-3", "long_name": "measured value (ratios dimensionless)"}),
+        "observed_sigma": ("observation", obs["sigma_cm3"].values[use], {
+            "units": "cm-3", "long_name": "one-sigma error of the measurement"}),
+        "model_baseline": ("observation", np.exp(lm_base), {
+            "units": "cm-3", "long_name": "baseline model at the observation"}),
+        "model_fitted": ("observation", np.exp(lm_fit), {
+            "units": "cm-3", "long_name": "fitted model at the observation"}),
+        "residual": ("observation", r_fit, {
+            "units": "1", "long_name": "(ln observed - ln fitted) / sigma_ln"}),
+        "residual_baseline": ("observation", r_base, {
+            "units": "1", "long_name": "(ln observed - ln baseline) / sigma_ln"}),
+        "chi2": ((), float(np.sum(r_fit ** 2)), {
+            "units": "1", "long_name": "chi-square of the data at the fit"}),
+        "chi2_baseline": ((), float(np.sum(r_base ** 2)), {
+            "units": "1", "long_name": "chi-square of the data for the baseline"}),
+        "chi2_prior": ((), float(np.sum((theta[problem.has_prior]
+                                         / problem.prior[problem.has_prior]) ** 2)), {
+            "units": "1", "long_name": "chi-square of the priors at the fit"}),
+        "degrees_of_freedom": ((), f["dof"], {
+            "units": "1", "long_name": "observations minus free parameters"}),
+    }
 
 
 def _equation(ds, par):
@@ -625,47 +505,3 @@ def _direction_text(v, names, ratio):
             else f"the data do not constrain {involved[0]}")
     return (f"{what}: the combination {' '.join(terms)} is not constrained (relative "
             f"singular value {ratio:.1e})")
-
-
-def _profile(problem, theta, p, sigma, bound, points):
-    """Total χ² with parameter ``p`` held on a grid of values, the others refitted."""
-    points = max(3, int(points) | 1)
-    width = 3.0 * sigma[p] if np.isfinite(sigma[p]) and sigma[p] > 0 else bound[p]
-    width = min(width, bound[p])
-    grid = np.clip(theta[p] + np.linspace(-width, width, points), -bound[p] * 0.999,
-                   bound[p] * 0.999)
-    free = np.ones(theta.size, bool)
-    free[p] = False
-    chi2 = np.empty(points)
-    start = theta.copy()
-    mid = points // 2
-    order = list(range(mid, points)) + list(range(mid - 1, -1, -1))
-    for i in order:
-        if i == mid - 1:
-            start = theta.copy()
-        t0 = start.copy()
-        t0[p] = grid[i]
-        if free.any():
-            t, _ = _least_squares(problem, t0, free, bound)
-        else:
-            t = t0
-        chi2[i] = float(np.sum(problem.residuals(t) ** 2))
-        start = t
-    return grid, chi2
-
-
-def _profile_interval(grid, chi2):
-    """Where the profile χ² rises by 1 above its minimum (linear interpolation); NaN if the
-    grid does not reach it."""
-    d = chi2 - chi2.min()
-    i0 = int(np.argmin(d))
-    lo = hi = np.nan
-    for i in range(i0, 0, -1):
-        if d[i - 1] >= 1.0:
-            lo = np.interp(1.0, [d[i], d[i - 1]], [grid[i], grid[i - 1]])
-            break
-    for i in range(i0, len(d) - 1):
-        if d[i + 1] >= 1.0:
-            hi = np.interp(1.0, [d[i], d[i + 1]], [grid[i], grid[i + 1]])
-            break
-    return lo, hi
