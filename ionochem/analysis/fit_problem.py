@@ -7,7 +7,7 @@ comes from ``Model.steady_densities(k=...)`` and its sensitivities from
 parameters — no model is rebuilt, no dataset written, no environment factor or temperature
 derivative computed that the fit does not use. The scaled k equal those of
 ``Model.with_changes(scale=...)``: the model zeroes photo and photoelectron rates whose
-production is below ``PRODUCTION_FLOOR`` (ionochem/model.py), so the same floor is applied
+production is below ``PRODUCTION_FLOOR`` (ionochem/system/rates.py), so the same floor is applied
 to the scaled rates, and a trial that would raise a rate the base model zeroed is built as a
 model (exact). A free ``Te`` needs a model on a changed environment per trial.
 """
@@ -22,7 +22,7 @@ from ionochem.analysis.misfit import interpolation_matrix, log_density, log_sigm
 from ionochem.analysis.sensitivity import parameter_sensitivities
 from ionochem.errors import InputError, SolverError
 from ionochem.io.observations import check_against_model
-from ionochem.model import PRODUCTION_FLOOR
+from ionochem.system.rates import PRODUCTION_FLOOR
 
 
 # ------------------------------------------------------------------ models
@@ -83,7 +83,7 @@ def electron_constrained_model(model, obs, balance_ion="O+"):
 
 def _source_absorbers(model):
     """Columns of the photo and photoelectron reactions and their absorbers' densities
-    (A, n): what the model's floor on source rates multiplies (ionochem/model.py)."""
+    (A, n): what the model's floor on source rates multiplies (ionochem/system/rates.py)."""
     def build():
         env = model.environment
         ones = np.ones(model.altitude_km.size)
