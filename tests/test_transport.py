@@ -355,3 +355,24 @@ def test_f_layer_decays_through_the_night_with_transport(tmp_path):
     assert 1e5 <= ne.max() <= 3e5
     assert 250.0 <= z[np.argmax(ne)] <= 400.0
     assert 1e3 <= ne[z == 110.0][0] <= 4e3
+
+
+def test_column_balance_closes_with_a_downward_boundary_flux():
+    """A night-like column fed from above (upper-boundary flux −1e8 cm-2 s-1): the ion
+    budget closes — column ionization + net transport inflow = recombination, to 1e-8 of
+    the ionization — and the inflow is the divergence theorem's: the flux entering through
+    the lowest transported face less the boundary flux (both from ``vertical_flux``)."""
+    import dataclasses
+
+    from ionochem.io.scenario import Grid
+    root = Path(__file__).resolve().parents[1]
+    base = ionochem.load_scenario(root / "scenarios" / "midlatitude_equinox.toml")
+    scen = base.replace(grid=Grid(tuple(np.linspace(100.0, 600.0, 60))),
+                        transport=dataclasses.replace(base.transport,
+                                                      upper_boundary_flux_cm2_s=-1e8))
+    ds = ionochem.Model(scen).solve()
+    inflow = ds.attrs["column_transport_inflow_cm2_s"]
+    flux = ds["vertical_flux"].values
+    np.testing.assert_allclose(inflow, flux[0] - flux[-1], rtol=1e-9)
+    assert inflow > 5e7
+    assert abs(ds.attrs["column_balance"]) < 1e-8

@@ -149,9 +149,12 @@ def _print_steady_notes(ds, model):
         tail = (f"(balance {bal:.1e})" if bal is not None else
                 "(at the given electron density, which this column's ionization does not "
                 "make: no balance expected)")
+        inflow = ds.attrs.get("column_transport_inflow_cm2_s")
+        moved = (f", net transport inflow {inflow:.4e} cm-2 s-1" if inflow is not None
+                 else "")
         print(f"column ionization {ds.attrs['column_ionization_cm2_s']:.4e} cm-2 s-1, "
-              f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1 "
-              + tail)
+              f"recombination {ds.attrs['column_recombination_cm2_s']:.4e} cm-2 s-1"
+              f"{moved} " + tail)
     for note in ds.attrs.get("warnings", "").split("; "):
         if note and note not in model.warnings:
             print(f"warning: {note}", file=sys.stderr)

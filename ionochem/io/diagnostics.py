@@ -93,7 +93,7 @@ def steady_diagnostic_vars(model, dens, loss, roles, rates, species):
     notes = list(model.warnings)
     out.update(_lifetime_vars(model, dens, loss, roles, species))
     _emission_vars(model, rates, out, coords)
-    _electron_balance(model, rates, out, attrs)
+    _electron_balance(model, rates, out, attrs, dens, species)
     _light_vars(model, out, notes)
     _balance_ion_vars(model, dens, species, out, notes)
     attrs["warnings"] = "; ".join(str(n) for n in notes)
@@ -158,8 +158,10 @@ def _emission_vars(model, rates, out, coords):
                                                         dtype=object))
 
 
-def _electron_balance(model, rates, out, attrs):
-    """Ionization–recombination balance from the electron row of the stoichiometry."""
+def _electron_balance(model, rates, out, attrs, dens, species):
+    """Ionization–recombination balance from the electron row of the stoichiometry; with
+    transport, the ions the moving species brings into the column (through the upper
+    boundary, less what leaves through the bottom) close the column's budget."""
     env, mech = model.environment, model.mechanism
     if ELECTRON not in mech.all_species:
         return
@@ -171,16 +173,27 @@ def _electron_balance(model, rates, out, attrs):
     out["recombination_rate"] = ("altitude", rec, {"units": "cm-3 s-1",
                                                    "long_name": "electron loss"})
     z_cm = env.altitude_km * 1e5
-    col_ion = np.trapezoid(ion, z_cm) if ion.size > 1 else float(ion.sum())
-    col_rec = np.trapezoid(rec, z_cm) if rec.size > 1 else float(rec.sum())
-    attrs["column_ionization_cm2_s"] = float(col_ion)
-    attrs["column_recombination_cm2_s"] = float(col_rec)
+
+    def column(x):
+        # The trapezoid weights are the transport operator's cell widths, so the column of
+        # the transport rate is exactly its net boundary inflow.
+        return float(np.trapezoid(x, z_cm)) if x.size > 1 else float(x.sum())
+
+    col_ion, col_rec = column(ion), column(rec)
+    attrs["column_ionization_cm2_s"] = col_ion
+    attrs["column_recombination_cm2_s"] = col_rec
+    col_tr = 0.0
+    tr = getattr(model, "transport", None)
+    if tr is not None:
+        moving = model.species[tr.index]
+        col_tr = column(tr.operator.apply(dens[list(species).index(moving)]))
+        attrs["column_transport_inflow_cm2_s"] = col_tr
     # With a given electron density (electrons = "table") the electrons are not made by
     # this column's ionization, so ionization and recombination need not balance: their
     # ratio is no check of the solution and is not reported.
     if not _given_ne(model):
-        attrs["column_balance"] = float((col_ion - col_rec) / col_ion) if col_ion > 0 \
-            else 0.0
+        attrs["column_balance"] = float((col_ion + col_tr - col_rec) / col_ion) \
+            if col_ion > 0 else 0.0
 
 
 def _light_vars(model, out, notes):
