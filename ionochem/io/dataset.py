@@ -44,11 +44,14 @@ def species_table(model, n_solved):
         dens = np.concatenate([dens, ext], axis=1)
         names += extra
         roles += ["fixed"] * len(extra)
-    for tot in mech.derived:
-        idx = [names.index(m) for m in tot.members]
-        dens = np.concatenate([dens, dens[:, idx].sum(axis=1, keepdims=True)], axis=1)
-        names.append(tot.name)
-        roles.append("derived")
+    if mech.derived:
+        # All totals in one array (a concatenation per total copied the whole table each
+        # time: 0.19 s for an ensemble of 63,000 rows, issue 25).
+        totals = np.stack([dens[:, [names.index(m) for m in tot.members]].sum(axis=1)
+                           for tot in mech.derived], axis=1)
+        dens = np.concatenate([dens, totals], axis=1)
+        names += [tot.name for tot in mech.derived]
+        roles += ["derived"] * len(mech.derived)
     return dens.reshape(*lead, len(names)), names, roles
 
 
