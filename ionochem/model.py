@@ -35,6 +35,7 @@ from ionochem.system.assembly import (
 )
 from ionochem.system.changes import apply_changes
 from ionochem.system.rates import ColumnRates, environment_needs
+from ionochem.system.timeline import model_timeline
 from ionochem.system.transport import species_transport
 
 __all__ = ["Model", "load_mechanism", "load_reaction_list", "load_scenario"]
@@ -107,10 +108,10 @@ class Model:
         self.warnings = (list(getattr(scenario, "warnings", ())) + list(env.warnings)
                          + list_warnings(rl, env))
         self.given = given_densities(self.mechanism, env)
-        self._rates = ColumnRates(self._rxns, self._k_expr, self._scale, env,
-                                  getattr(rl, "default_f", None))
+        self._rates = self.rates_on(env)
         self.warnings += implausible_rates(self._rxns, self._rates.static)
         self.transport = species_transport(scenario, env, self.species, rl.path)
+        self.timeline = model_timeline(self)
 
     # ---------------------------------------------------------------- description
     @property
@@ -182,6 +183,19 @@ class Model:
             self.changes["set"], self.changes["scale"], "api", self._set_dirs))
 
     # ---------------------------------------------------------------- rates
+    def rates_on(self, environment):
+        """The model's rate laws (with its changes) on another environment of the same
+        grid: a :class:`~ionochem.system.rates.ColumnRates` (called with a time → k)."""
+        return ColumnRates(self._rxns, self._k_expr, self._scale, environment,
+                           getattr(self.reaction_list, "default_f", None))
+
+    def given_at(self, time_s=None):
+        """Fixed densities (altitude, given species), cm-3, at ``time_s`` (s after the
+        scenario's time; they follow time in a transient run unless frozen)."""
+        if time_s is None or self.timeline is None:
+            return self.given
+        return self.timeline.given(time_s)
+
     def rate_coefficients(self, time_s=None, *, temperatures=None):
         """Rate coefficients k, shape (altitude, reaction), in cm3 s-1 / s-1 / cm6 s-1.
 
@@ -189,6 +203,8 @@ class Model:
         ``temperatures``: replacement ``Te``, ``Ti``, ``Tn``, ``Tv`` arrays (K, (altitude,)),
         for which the rates are re-evaluated (temperature sensitivities, sampling).
         """
+        if time_s is not None and temperatures is None and self.timeline is not None:
+            return self.timeline.rate_coefficients(time_s)
         return self._rates(time_s, temperatures)
 
     def uncertainty_factors(self):

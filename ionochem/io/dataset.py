@@ -24,14 +24,19 @@ VALIDITY_NOTE = (
     "satellite operations.")
 
 
-def species_table(model, n_solved):
-    """All densities (..., N) with names and roles, from solved densities (..., A, S)."""
+def species_table(model, n_solved, given=None, neutrals=None):
+    """All densities (..., N) with names and roles, from solved densities (..., A, S).
+
+    ``given`` (..., A, G) and ``neutrals`` ({name: (..., A)}) are the fixed densities of
+    each row when they differ between the leading entries (times of a run whose neutrals
+    follow time); by default the model's own, repeated."""
     mech = model.mechanism
     lead = n_solved.shape[:-1]
     flat = n_solved.reshape(-1, n_solved.shape[-1])
     A = model.altitude_km.size
     reps = flat.shape[0] // A
-    given = np.tile(model.given, (reps, 1))
+    given = np.tile(model.given, (reps, 1)) if given is None \
+        else np.asarray(given, float).reshape(flat.shape[0], -1)
     full = mech.full_densities(flat, given)[:, :-1]
     names = [s for s in mech.all_species if s != THIRD_BODY]
     cols = [mech.index(s) for s in names]
@@ -40,7 +45,9 @@ def species_table(model, n_solved):
     # Neutrals of the environment that the mechanism does not use are reported as fixed.
     extra = [s for s in model.environment.neutrals if s not in names]
     if extra:
-        ext = np.tile(np.stack([model.environment.neutrals[s] for s in extra], -1), (reps, 1))
+        ext = (np.tile(np.stack([model.environment.neutrals[s] for s in extra], -1), (reps, 1))
+               if neutrals is None else
+               np.stack([np.asarray(neutrals[s], float).reshape(-1) for s in extra], -1))
         dens = np.concatenate([dens, ext], axis=1)
         names += extra
         roles += ["fixed"] * len(extra)
@@ -142,14 +149,20 @@ def _vibrational(temps):
     return src
 
 
-def _environment_vars(model, dims=("altitude",)):
+def _environment_vars(model, dims=("altitude",), times=None):
+    """Tn, Te, Ti, Tv on the grid; by time when the run's environment follows time."""
     env = model.environment
+    timeline = getattr(model, "timeline", None) if times is not None else None
     out = {}
-    for name, arr, long in (("Tn", env.Tn, "neutral temperature"),
-                            ("Te", env.Te, "electron temperature"),
-                            ("Ti", env.Ti, "ion temperature"),
-                            ("Tv", env.Tv, "vibrational temperature of N2")):
-        out[name] = xr.Variable(dims, arr, {"units": "K", "long_name": long})
+    for name, long in (("Tn", "neutral temperature"), ("Te", "electron temperature"),
+                       ("Ti", "ion temperature"), ("Tv", "vibrational temperature of N2")):
+        if timeline is None:
+            out[name] = xr.Variable(dims, getattr(env, name), {"units": "K",
+                                                               "long_name": long})
+        else:
+            arr = np.stack([timeline.field(float(t), lambda e, a=name: getattr(e, a))
+                            for t in times])
+            out[name] = xr.Variable(("time", *dims), arr, {"units": "K", "long_name": long})
     return out
 
 
@@ -377,7 +390,12 @@ def transient_dataset(model, times, n):
     """
     mech = model.mechanism
     n = np.maximum(n, 0.0) if n.size else n
-    dens, names, roles = species_table(model, n)
+    timeline = getattr(model, "timeline", None)
+    given_t = np.stack([model.given_at(float(t)) for t in times]) if timeline else None
+    neutrals_t = ({name: np.stack([timeline.field(float(t), lambda e, s=name: e.neutrals[s])
+                                   for t in times]) for name in model.environment.neutrals}
+                  if timeline else None)
+    dens, names, roles = species_table(model, n, given_t, neutrals_t)
     T = len(times)
     keep = [mech.index(s) for s in names if s in mech.all_species]
     A, R = model.altitude_km.size, len(model.reactions)
@@ -388,7 +406,8 @@ def transient_dataset(model, times, n):
     for i, t in enumerate(times):
         k = model.rate_coefficients(float(t))
         ks[i] = k
-        rates[i] = mech.rates(k, mech.full_densities(n[i], model.given))
+        rates[i] = mech.rates(k, mech.full_densities(
+            n[i], model.given if given_t is None else given_t[i]))
         P, L = mech.gross_rates(rates[i])
         prod[i, :, :len(keep)] = P[:, keep]
         loss[i, :, :len(keep)] = L[:, keep]
@@ -429,7 +448,7 @@ def transient_dataset(model, times, n):
         attrs=provenance(model),
     )
     ds.attrs["comment"] = TRANSIENT_NOTE
-    for name, var in _environment_vars(model).items():
+    for name, var in _environment_vars(model, times=times).items():
         ds[name] = var
     _add_level_outputs(model, ds, ks, dens, names, ("time",))
     env = model.environment
@@ -438,6 +457,11 @@ def transient_dataset(model, times, n):
                                                       for t in times], float),
                                     {"units": "degree", "long_name": "solar zenith angle"})
     ds.attrs["mode"] = "transient"
+    ds.attrs["environment"] = (
+        "follows time: neutrals, temperatures and photo rates rebuilt every "
+        f"{timeline.step_s:g} s and interpolated linearly, the sun every 60 s; transport "
+        "coefficients and prescribed production of the start" if timeline else
+        "frozen at the scenario time (the sun moves)")
     if model.transport is not None:
         ds.attrs.update(_transport_attrs(model, transient=True))
     return ds

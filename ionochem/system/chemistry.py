@@ -25,8 +25,9 @@ class Chemistry(Process):
         Rate coefficients of every row (cm3 s-1, s-1 or cm6 s-1 by order), or a function
         ``k(time_s)`` returning them (time in s after the scenario's time; ``None`` the
         scenario's time) for columns whose sun moves.
-    given : ndarray (B, G)
-        Fixed densities of each row, cm-3, in ``mechanism.given`` order.
+    given : ndarray (B, G) or callable
+        Fixed densities of each row, cm-3, in ``mechanism.given`` order, or a function
+        ``given(time_s)`` returning them (neutrals that follow time).
     """
 
     name = "chemistry"
@@ -36,7 +37,7 @@ class Chemistry(Process):
     def __init__(self, mechanism, k, given, *, time_s=None):
         self.mechanism = mechanism
         self._k = k
-        self.given = np.asarray(given, float)
+        self._given = given if callable(given) else np.asarray(given, float)
         self.time_s = time_s
         self._bound = None
 
@@ -44,6 +45,11 @@ class Chemistry(Process):
     def k(self):
         """Rate coefficients (B, R) at this process's time."""
         return self._k(self.time_s) if callable(self._k) else self._k
+
+    @property
+    def given(self):
+        """Fixed densities (B, G) at this process's time."""
+        return self._given(self.time_s) if callable(self._given) else self._given
 
     @property
     def bound(self):
@@ -56,13 +62,16 @@ class Chemistry(Process):
     def for_model(cls, model, k=None, given=None):
         """The chemistry of ``model``'s mechanism on its rows (rates following time), or on
         stacked rows with rate coefficients ``k`` (B, R) and fixed densities ``given``."""
-        rates = (lambda t: model.rate_coefficients(t)) if k is None else np.asarray(k, float)
-        return cls(model.mechanism, rates, model.given if given is None else given)
+        if k is None:
+            return cls(model.mechanism, model.rate_coefficients,
+                       model.given_at if given is None else given)
+        return cls(model.mechanism, np.asarray(k, float),
+                   model.given if given is None else given)
 
     def at(self, time_s):
-        if not callable(self._k):
+        if not callable(self._k) and not callable(self._given):
             return self
-        return Chemistry(self.mechanism, self._k, self.given, time_s=time_s)
+        return Chemistry(self.mechanism, self._k, self._given, time_s=time_s)
 
     def tendency(self, n, rows):
         return self.bound.tendency(n, rows)

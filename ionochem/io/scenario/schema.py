@@ -235,7 +235,8 @@ class SchemaValidator(ValueChecks):
     def solve(self, value) -> Solve:
         key = "solve"
         sec = self.table(value, key, ("mode", "times_s", "electrons", "electron_table",
-                                      "balance_ion", "rtol", "start", "days", "step_minutes"))
+                                      "balance_ion", "rtol", "start", "days", "step_minutes",
+                                      "freeze_environment"))
         mode = self.choice(sec.get("mode", "steady"), f"{key}.mode",
                            ("steady", "transient", "diurnal"))
         times = None
@@ -249,6 +250,14 @@ class SchemaValidator(ValueChecks):
             self.inapplicable(sec, "times_s", key, "mode = 'transient'")
             self.inapplicable(sec, "start", key, "mode = 'transient'")
             start = "zero"
+        freeze = False
+        if mode == "steady":
+            self.inapplicable(sec, "freeze_environment", key,
+                              "mode = 'transient' or 'diurnal'")
+        elif "freeze_environment" in sec:
+            freeze = sec["freeze_environment"]
+            if not isinstance(freeze, bool):
+                raise self.fail(f"{key}.freeze_environment", "must be true or false")
         if mode == "diurnal":
             days, step = self.diurnal(sec, key)
         else:
@@ -272,7 +281,7 @@ class SchemaValidator(ValueChecks):
         rtol = self.physical(sec.get("rtol", 1e-10), f"{key}.rtol")
         return Solve(mode=mode, times_s=times, electrons=electrons, electron_table=etable,
                      balance_ion=balance, rtol=rtol, start=start, days=days,
-                     step_minutes=step)
+                     step_minutes=step, freeze_environment=freeze)
 
     def diurnal(self, sec, key):
         """``days`` (whole, 1 to MAX_DIURNAL_DAYS, default 2) and ``step_minutes`` (a divisor of a

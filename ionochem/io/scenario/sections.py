@@ -159,6 +159,10 @@ class Solve:
         last one is reported).
     step_minutes : float
         Minutes between a diurnal run's outputs, a divisor of 1440 (default 15).
+    freeze_environment : bool
+        Transient and diurnal runs: hold the neutral atmosphere and the temperatures at
+        their values at ``[time] utc`` (default False: they follow time, the sun always
+        moves).
     """
 
     mode: str = "steady"
@@ -170,6 +174,7 @@ class Solve:
     start: str = "zero"
     days: int = 2
     step_minutes: float = 15.0
+    freeze_environment: bool = False
 
 
 @dataclass(frozen=True)
