@@ -53,8 +53,8 @@ def check_transient(scenario, n_species, n_reactions, *, allow_long=False):
     if span > MAX_TRANSIENT_SPAN_S and not allow_long:
         raise InputError(f"the run spans {span:g} s ({span / 86400:.3g} days), beyond the "
                          f"{MAX_TRANSIENT_SPAN_S:g} s (2 days) a transient run may take "
-                         "without --allow-long (it holds neutrals and temperatures fixed, "
-                         "so long spans are rarely meant)",
+                         "without --allow-long (the solar and geomagnetic indices stay those "
+                         "of the scenario's day, so long spans are rarely meant)",
                          file=scenario.source, key="solve.times_s")
 
 

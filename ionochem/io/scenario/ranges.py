@@ -14,7 +14,7 @@ import math
 from dataclasses import dataclass
 
 __all__ = ["RANGES", "Range", "check_range", "MAX_LEVELS", "YEAR_RANGE"]
-#: Most days a diurnal run integrates: a year; neutrals and the sun's activity are held
+#: Most days a diurnal run integrates: a year; the sun's activity indices are held
 #: fixed, so longer runs mean nothing, and two or three days reach a repeating day
 #: *(common practice)*.
 MAX_DIURNAL_DAYS = 366
