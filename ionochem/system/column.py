@@ -30,7 +30,6 @@ import numpy as np
 from ionochem.errors import SolverError
 from ionochem.solve.column import ColumnJacobian, block_diagonal, solve_column
 from ionochem.solve.steady import solve_steady
-from ionochem.solve.transient import integrate as integrate_ivp
 
 #: Relative residual of the rows' own steady state that starts the coupled Newton (a start,
 #: not an answer; the column Newton then reaches the requested tolerance).
@@ -216,6 +215,10 @@ class ColumnSystem:
     def integrate(self, times_s, n0, *, method="BDF", rtol=1e-8, atol=1e-6):
         """The state at ``times_s`` (s after the scenario's time) from ``n0`` at t = 0,
         processes evaluated at each time → ndarray (T, B, U)."""
+        # Lazy: scipy.integrate (with scipy.optimize) costs ~0.2 s at start-up, and steady
+        # runs never need it (tests/test_cli_imports.py).
+        from ionochem.solve.transient import integrate as integrate_ivp
+
         def tendency(t, n):
             return self.at(t).evaluate(n)
 
