@@ -376,3 +376,27 @@ def test_column_balance_closes_with_a_downward_boundary_flux():
     np.testing.assert_allclose(inflow, flux[0] - flux[-1], rtol=1e-9)
     assert inflow > 5e7
     assert abs(ds.attrs["column_balance"]) < 1e-8
+
+
+def test_midnight_demo_keeps_a_night_f_layer_from_its_downward_flux():
+    """The midnight demo (all dark, downward O+ flux 2e8 cm-2 s-1 through the top): an F
+    layer with NmF2 of 5e4–5e5 cm-3 at hmF2 250–400 km, the range of mid-latitude midnight
+    ionosonde values at moderate activity (foF2 2–6 MHz, hmF2 250–400 km *(from memory)*);
+    without the flux the same column keeps no F layer (NmF2 below 1e4 cm-3)."""
+    import dataclasses
+    root = Path(__file__).resolve().parents[1]
+    scen = ionochem.load_scenario(root / "scenarios" / "midlatitude_midnight.toml")
+    assert scen.transport.upper_boundary_flux_cm2_s < 0
+
+    def peak(s):
+        ds = ionochem.Model(s).solve()
+        e = ds["density"].sel(species="e").values
+        z = ds["altitude"].values
+        i = int(np.argmax(np.where(z > 150.0, e, 0.0)))
+        return e[i], z[i]
+
+    nm, hm = peak(scen)
+    assert 5e4 <= nm <= 5e5 and 250.0 <= hm <= 400.0
+    none = scen.replace(transport=dataclasses.replace(scen.transport,
+                                                      upper_boundary_flux_cm2_s=0.0))
+    assert peak(none)[0] < 1e4
