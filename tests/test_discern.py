@@ -273,7 +273,9 @@ def test_given_electron_density_is_the_baselines_in_both_models():
     at the baseline's own solved Ne (its definition), so Δ ln Ne = 0 at every level while
     the change still moves N2+."""
     from ionochem.analysis.discern import given_electron_models
-    base = ionochem.Model(ionochem.load_scenario("scenarios/midlatitude_solar_minimum.toml"))
+    # Photochemical (a given Ne fixes O+ as the balance ion, which cannot also move).
+    scen = ionochem.load_scenario("scenarios/midlatitude_solar_minimum.toml")
+    base = ionochem.Model(scen.replace(transport=None))
     changed = changed_model(base, scale={"DR_N2plus_branches": 0.5})
     ne = base.solve()["density"].sel(species="e").values
     gb, gc = given_electron_models(base, changed)
