@@ -43,7 +43,9 @@ def _close(new, old, name=""):
     return np.allclose(new, old, rtol=RTOL, atol=RTOL * scale * 1e-3, equal_nan=True)
 
 
-@pytest.mark.parametrize("path", refs.scenarios(), ids=lambda p: p.stem)
+@pytest.mark.parametrize("path", [
+    pytest.param(p, marks=pytest.mark.slow) if p.stem == "midlatitude_sunset" else p
+    for p in refs.scenarios()], ids=lambda p: p.stem)  # the sunset transient takes ~12 s
 def test_demo_result_equals_its_reference(path, stored):
     """Each numeric variable of the demo's dataset against the stored values (1e-10)."""
     if path.stem == "midlatitude_sunset":
