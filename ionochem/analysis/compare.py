@@ -23,7 +23,7 @@ from ionochem.errors import InputError
 from ionochem.mechanism.units import check_ties
 
 #: Altitude bands of the summary, km: the E region (90-150 km), F1 (150-200 km) and the
-#: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*. On a grid the
+#: lower F2 region (200-300 km) as in docs/physics.md §1 *(common practice)*. On a grid the
 #: summary uses :func:`default_bands`: these cut to the grid, with "D" below 90 km and
 #: "upper" from 300 km to the top of the grid when it reaches beyond them.
 DEFAULT_BANDS = {"E": (90.0, 150.0), "F1": (150.0, 200.0), "F2": (200.0, 300.0)}
@@ -330,7 +330,7 @@ def _effective(ds):
 
 def _add_effective_rates(out, ds_b, ds_c):
     """The population-weighted rate coefficients of the reaction families both results
-    carry (DESIGN.md §7), baseline and changed (``effective_rate_coefficient_baseline`` /
+    carry (docs/design.md §7), baseline and changed (``effective_rate_coefficient_baseline`` /
     ``_changed``, and the ``_first_order``/``_third_order`` variants, each in its own unit),
     and ``effective_rate_change`` = changed / baseline: what a per-level change does to the
     rate an unresolved model would need."""

@@ -174,7 +174,7 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
     if drift > 0 or scenario.transport is not None:
         field_T, dip_deg = _field(scenario, grid)
     if drift > 0:
-        # Only magnetised ions drift past the neutrals (SCIENCE.md §4a): the drift, and the
+        # Only magnetised ions drift past the neutrals (docs/physics.md §4a): the drift, and the
         # frictional heating with it, fade below the height where ν_in = Ω_i.
         from ionochem.environment.magnetisation import (
             DEFAULT_FIELD_T,

@@ -29,7 +29,7 @@ key                   absorber   threshold   meaning
 ====================  =========  ==========  =====================================
 
 Thresholds are the ionization (or dissociation) energies of the NIST tables as listed in
-SCIENCE.md section 4 *(from memory)*; wavelength lambda_th = 12398.42 eV angstrom / E_th.
+docs/physics.md §4 *(from memory)*; wavelength lambda_th = 12398.42 eV angstrom / E_th.
 
 Threshold rule
 --------------
@@ -171,7 +171,7 @@ class Channel:
         return HC_EV_A / self.threshold_eV
 
 
-# Thresholds: SCIENCE.md section 4 (NIST ionization energies, *(from memory)*), except
+# Thresholds: docs/physics.md §4 (NIST ionization energies, *(from memory)*), except
 # N -> N+ 14.534 eV and He -> He+ 24.587 eV (NIST atomic ionization energies, *(from memory)*)
 # and N2 -> N(4S) + N(2D) 12.14 eV = D0(N2) 9.76 eV + N(2D) excitation 2.38 eV *(from memory)*.
 CHANNELS: Mapping[str, Channel] = MappingProxyType({

@@ -3,7 +3,7 @@
 The vertical flux of O+ in a plane-stratified F region (Schunk & Nagy 2009, *Ionospheres*,
 2nd ed., Cambridge, §5.13 on ambipolar diffusion and §10.2 on the F region; Rishbeth &
 Garriott 1969, *Introduction to Ionospheric Physics*, Academic Press, ch. 3; forms as in
-SCIENCE.md §4a, *from memory*) is
+docs/physics.md §4a, *from memory*) is
 
     Φ = −D_a sin²I [dn/dz + n/H_p + (n/T_p) dT_p/dz] + n U_v,
 

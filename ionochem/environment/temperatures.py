@@ -27,7 +27,7 @@ m̄ = m_n,
     Teff = Tn + m_n² v_d²/(3 k_B (m_i+m_n)) + m_i m_n v_d²/(3 k_B (m_i+m_n))
          = Tn + m_n v_d² / (3 k_B),
 
-which is the well-known result quoted in SCIENCE.md §3. So the bulk term must be *kept*
+which is the well-known result quoted in docs/physics.md §3. So the bulk term must be *kept*
 with a heated Ti (dropping it would give Tn + m_n² v_d²/(3 k_B (m_i+m_n)), too cold); what
 must never happen twice is the *heating of Ti*: a Ti that already contains frictional
 heating (a radar or tabulated Ti, or one returned by :func:`frictional_ion_temperature`)

@@ -2,7 +2,7 @@
 
 EUVAC starts at 50 angstrom; shortward of it the Sun's soft X-rays are absorbed below about
 120 km and, with their many secondary ion pairs, supply most of the E-region ionization of N2
-and O2 below ~115 km; without them a model's NmE falls ~30 % short (SCIENCE.md section 4a).
+and O2 below ~115 km; without them a model's NmE falls ~30 % short (docs/physics.md §4a).
 
 Flux
 ----
@@ -26,7 +26,7 @@ would be wrong; the K edges are sub-bin edges.
 
 Cross sections
 --------------
-At these energies a molecule absorbs like the sum of its atoms (SCIENCE.md section 4): the
+At these energies a molecule absorbs like the sum of its atoms (docs/physics.md §4): the
 photoabsorption cross sections are those of the Elam, Ravel & Sieber (2002) tables
 (Radiat. Phys. Chem. 63, 121, *(volume and page from memory)*) carried by the PyPI
 package ``xraydb`` (``mu_elam(..., kind="photo")``, mass absorption coefficient times

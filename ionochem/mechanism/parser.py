@@ -1,4 +1,5 @@
-"""Reader of reaction lists (``*.reactions``, DESIGN.md §5; user guide docs/reaction-list.md).
+"""Reader of reaction lists (``*.reactions``, docs/design.md §5; user guide
+docs/reaction-list.md).
 
 One reaction per entry::
 
