@@ -5,7 +5,7 @@ import math
 import pytest
 from scipy import constants
 
-from ionochem.mechanism.species import (
+from ionochem.species import (
     ATOMIC_MASS_AMU,
     ELECTRON_MASS_AMU,
     format_elements,

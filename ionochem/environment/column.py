@@ -18,6 +18,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ionochem.errors import ScenarioError, safe_name
+from ionochem.species import parse_species
 
 NEUTRAL_SPECIES = ("N2", "O2", "O", "N", "NO", "He", "H", "Ar")
 
@@ -111,7 +112,6 @@ def _check_neutral_names(neutrals, file):
     A column ``O2+`` would fix that ion at the tabulated density and silently break charge
     balance, so it is refused.
     """
-    from ionochem.mechanism.species import parse_species
     for name in neutrals:
         try:
             sp = parse_species(name)

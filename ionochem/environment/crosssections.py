@@ -114,14 +114,13 @@ from types import MappingProxyType
 
 import numpy as np
 
+from ionochem.constants import HC_EV_A
 from ionochem.environment.euvac import DATA_DIR, euvac_flux
 from ionochem.errors import InputError, ScenarioError
 from ionochem.io.tables import read_csv_columns
 
 CROSS_SECTION_PATH = DATA_DIR / "cross_sections.csv"
 
-#: h c in eV angstrom (CODATA 2018 values of h, c and e).
-HC_EV_A = 12398.419843320026
 #: Unit of every ``sigma`` column in the data files, cm2 (1 megabarn).
 MEGABARN_CM2 = 1.0e-18
 

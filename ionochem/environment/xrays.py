@@ -59,8 +59,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ionochem.constants import AVOGADRO, HC_EV_A
 from ionochem.environment.crosssections import (
-    HC_EV_A,
     MEGABARN_CM2,
     Spectrum,
     euvac_cross_sections,
@@ -84,8 +84,6 @@ FACTOR_FLOOR = 0.8
 SUB_BIN_REL = 0.1
 #: K-shell edges, angstrom: N 409.9 eV and O 543.1 eV (``xraydb.xray_edges``).
 K_EDGES_A = (HC_EV_A / 409.9, HC_EV_A / 543.1)
-#: Avogadro's number, mol-1 (CODATA 2018, exact).
-AVOGADRO = 6.02214076e23
 #: Wavelength samples per sub-bin for the cross-section average.
 _SAMPLES = 41
 

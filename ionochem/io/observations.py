@@ -37,6 +37,7 @@ import xarray as xr
 
 from ionochem.errors import InputError, safe_name
 from ionochem.io.paths import MAX_STORE_BYTES, PathProblem, read_text, regular_file, resolve_path
+from ionochem.species import parse_species
 
 __all__ = ["COLUMNS", "KINDS", "OPTIONAL_COLUMNS", "check_against_model",
            "check_matrix_size", "load_observations", "observation_where", "ratio_parts"]
@@ -77,7 +78,6 @@ def ratio_parts(name):
 
 def _canonical_species(name):
     """Canonical species name (``O+(4S)`` → ``O+``); ``X(total)`` kept; ValueError if bad."""
-    from ionochem.mechanism.species import parse_species
     name = name.strip()
     if not name:
         raise ValueError("the species is empty")

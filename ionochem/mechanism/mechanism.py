@@ -20,10 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ionochem.errors import MechanismError
+from ionochem.mechanism.rows import ELECTRON, MAX_REACTANT_SLOTS, BoundRows
 
-MAX_REACTANT_SLOTS = 3
-
-ELECTRON = "e"
 THIRD_BODY = "M"
 
 
@@ -292,7 +290,6 @@ class Mechanism:
         through their affine dependence on the solved densities.
         """
         # Built with rows last by the steady solvers' evaluation (mechanism/rows.py).
-        from ionochem.mechanism.rows import BoundRows
         n = np.asarray(n, float)
         J = BoundRows(self, np.asarray(k, float), np.asarray(given, float)).jacobian(
             n, np.arange(n.shape[0]))

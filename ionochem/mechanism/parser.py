@@ -23,12 +23,12 @@ from pathlib import Path
 from ionochem.errors import ReactionListError
 from ionochem.io.paths import PathProblem, read_bounded, resolve_path
 from ionochem.mechanism.expressions import CompiledExpr, compile_expression
-from ionochem.mechanism.species import (
+from ionochem.mechanism.units import Tie, analysis_units, check_ties, parse_tie
+from ionochem.species import (
     Species,
     format_elements,
     parse_species,
 )
-from ionochem.mechanism.units import Tie, analysis_units, check_ties, parse_tie
 
 __all__ = ["Reaction", "ReactionList", "ReactionWarning", "parse_reaction_list",
            "parse_reaction_text", "MAX_LEVELS"]

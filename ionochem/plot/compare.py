@@ -1,7 +1,7 @@
 """Figure of a baseline-versus-changed comparison.
 
 Left panel: density profiles, baseline solid and changed dashed, one colour per species
-from the project's palette (:data:`ionochem.plot.profiles.STYLE`). Right panel: the change
+from the project's palette (:data:`ionochem.plot.palette.STYLE`). Right panel: the change
 from baseline, 100 (changed/baseline − 1) in %, against altitude. Both panels shade the
 altitudes where the baseline is not in photochemical equilibrium
 (:mod:`ionochem.plot.equilibrium`); the legend sits right of the panels. The figure is

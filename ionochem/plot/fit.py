@@ -1,7 +1,7 @@
 """Figure of a fit: profiles before and after, the measurements, residuals, multipliers.
 
 Left: the observed species' densities, baseline dashed and fitted solid, in the project's
-colours (:data:`ionochem.plot.profiles.STYLE`), with the measurements and their error bars
+colours (:data:`ionochem.plot.palette.STYLE`), with the measurements and their error bars
 (:mod:`ionochem.plot.observations`). Middle: normalized residuals (ln obs − ln model)/σ_ln
 against altitude, baseline hollow and fitted filled, with the ±1 band. Right: the fitted
 multipliers with their 68 % ranges on a log axis (and the prior range, grey). With a

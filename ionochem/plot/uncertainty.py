@@ -2,7 +2,7 @@
 
 Monte Carlo: the median profile of each main species with its 68 % (16–84 %) band shaded
 darker and its 90 % (5–95 %) band lighter with thin edges, in the project's colours
-(:data:`ionochem.plot.profiles.STYLE`). Sobol and Morris: one panel per species, the index
+(:data:`ionochem.plot.palette.STYLE`). Sobol and Morris: one panel per species, the index
 of each factor against altitude. Figures are rendered to memory and written atomically;
 nothing here computes chemistry.
 """
