@@ -1,6 +1,6 @@
 """Property and fuzz tests of the reaction-list reader and the expression compiler.
 
-The contract (DEVELOPERS.md, errors): every deliberate error derives from ``ionochem.Error``;
+The contract (docs/internals.md, errors): every deliberate error derives from ``ionochem.Error``;
 anything else escaping is a bug. Hypothesis feeds arbitrary text, bytes and token soup to the
 reader and the compiler; generated expression trees are checked against an evaluator written
 here.

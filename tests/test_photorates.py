@@ -390,7 +390,7 @@ def test_user_spectrum_round_trip_and_derived_n2_dissociation(tmp_path):
 ])
 def test_user_spectrum_errors_are_reported_with_the_scenario_key(tmp_path, header, row, match):
     """Malformed spectrum files are scenario errors at the key that names them
-    (DEVELOPERS.md, error conventions), never silently accepted."""
+    (docs/internals.md, errors), never silently accepted."""
     p = tmp_path / "bad.csv"
     p.write_text(header + "\n" + row + "\n")
     with pytest.raises(ScenarioError, match=match) as info:

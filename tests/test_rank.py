@@ -128,7 +128,7 @@ def test_rank_cli_prints_both_tables_and_writes_files(column, tmp_path, capsys):
     (["--top", "0"], "at least 1"),
 ])
 def test_rank_errors_are_one_line_input_errors(column, argv, message):
-    """Bad options raise ionochem.InputError with one line (DEVELOPERS.md, errors)."""
+    """Bad options raise ionochem.InputError with one line (docs/internals.md, errors)."""
     path, _ = _sens(column, CHAIN)
     with pytest.raises(ionochem.InputError, match=message) as info:
         _run(["rank", str(path), *argv])

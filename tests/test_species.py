@@ -56,7 +56,7 @@ def test_ground_terms_are_written_bare(written, canonical):
 
 
 def test_vibrational_and_electronic_state_parts():
-    """State 'electronic,v=N': base drops only the vibrational part (DEVELOPERS.md)."""
+    """State 'electronic,v=N': base drops only the vibrational part (docs/internals.md, Species)."""
     sp = parse_species("O2+(a,v=3)")
     assert (sp.electronic, sp.vib, sp.state, sp.base) == ("a", 3, "a,v=3", "O2+(a)")
     n2 = parse_species("N2+(v=1)")
