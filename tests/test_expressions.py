@@ -197,7 +197,7 @@ def test_bands_scale_the_whole_expression(power_law_table):
     ("Te,k\n300,1\n400,abc\n", "not a number"),
     ("Te,k\n300,1\n400,nan\n", "not a number"),
     ("Te,k\n300,1\n", "at least two rows"),
-    ("Te,k\n300,1,3\n400,2\n", "has 3 values"),
+    ("Te,k\n300,1,3\n400,2\n", "line 2: 3 cells but the header has 2 columns"),
     ("Te,k,k_low\n300,1,1\n400,2,1\n", "needs its partner"),
     ("Te,k,k_low,k_high\n300,1,2,3\n400,2,1,3\n", "must contain"),
     ("# only a comment\n", "no header row"),

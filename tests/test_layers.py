@@ -28,7 +28,7 @@ PACKAGE = ROOT / "ionochem"
 #: matches its dotted name (longest prefix wins); a prefix ending in "." takes a package.
 LAYERS = (
     ("base", ("ionochem", "ionochem.constants", "ionochem.errors", "ionochem.species")),
-    ("low io", ("ionochem.io", "ionochem.io.paths", "ionochem.io.tables",
+    ("low io", ("ionochem.io", "ionochem.io.paths", "ionochem.io.csvtable", "ionochem.io.tables",
                 "ionochem.io.plausibility", "ionochem.io.checks", "ionochem.io.observations",
                 "ionochem.io.netcdf", "ionochem.io.sweep_file")),
     ("scenario", ("ionochem.io.scenario", "ionochem.io.scenario.")),

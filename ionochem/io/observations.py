@@ -27,7 +27,6 @@ This module knows nothing of the chemistry: it reads, checks and labels.
 
 from __future__ import annotations
 
-import csv
 import math
 import warnings
 from pathlib import Path
@@ -36,6 +35,7 @@ import numpy as np
 import xarray as xr
 
 from ionochem.errors import InputError, safe_name
+from ionochem.io.csvtable import TableProblem, split_table
 from ionochem.io.paths import MAX_STORE_BYTES, PathProblem, read_text, regular_file, resolve_path
 from ionochem.species import parse_species
 
@@ -132,44 +132,22 @@ def _number(cell, column):
         raise ValueError(f"the cell in column {column!r} is not a number") from None
 
 
-def _rows(reader, numbered, path):
-    """The csv reader's rows, a malformed row (an over-long field) at its line."""
-    it = iter(reader)
-    for lineno, _ in numbered:
-        try:
-            yield next(it)
-        except csv.Error as exc:
-            raise InputError(f"the row is not CSV ({str(exc).split(' (')[0]})", file=path,
-                             line=lineno) from None
-
-
 def _read_csv(path):
     try:
         _, text = read_text(path)
     except PathProblem as exc:
         raise InputError(str(exc), file=path, line=exc.line) from None
-    numbered = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
-                if ln.strip() and not ln.lstrip().startswith("#")]
-    if not numbered:
-        raise InputError("no header row (the file is empty); the header is "
-                         f"{', '.join(COLUMNS)}[, kind]", file=path)
-    if len(numbered) - 1 > MAX_OBSERVATIONS:
-        raise InputError(f"{len(numbered) - 1} rows, more than the {MAX_OBSERVATIONS} "
-                         "observations a file may hold; thin or split the profile", file=path)
-    rows = csv.reader([ln for _, ln in numbered], skipinitialspace=True)
-    head_line = numbered[0][0]
     try:
-        header = [h.strip() for h in next(rows)]
-    except csv.Error as exc:
-        raise InputError(f"the header row is not CSV ({exc})", file=path,
-                         line=head_line) from None
+        table = split_table(text, max_rows=MAX_OBSERVATIONS, row_word="observations")
+    except TableProblem as exc:
+        hint = f"; the header is {', '.join(COLUMNS)}[, kind]" if exc.line is None and \
+            exc.message.startswith("no header") else ""
+        raise InputError(exc.message + hint, file=path, line=exc.line) from None
+    header, head_line = table.header, table.header_line
     for name in header:
         if name not in COLUMNS + OPTIONAL_COLUMNS:
             raise InputError(f"unknown column {safe_name(name)}; the columns are "
                              f"{', '.join(COLUMNS)} and optionally kind", file=path,
-                             line=head_line)
-        if header.count(name) > 1:
-            raise InputError(f"column {safe_name(name)} appears twice in the header", file=path,
                              line=head_line)
     missing = [c for c in COLUMNS if c not in header]
     if missing:
@@ -178,12 +156,7 @@ def _read_csv(path):
                          file=path, line=head_line)
     col = {name: j for j, name in enumerate(header)}
     records = []
-    for (lineno, _), cells in zip(numbered[1:], _rows(rows, numbered[1:], path),
-                                   strict=True):
-        if len(cells) != len(header):
-            raise InputError(f"{len(cells)} cells but the header has {len(header)} columns",
-                             file=path, line=lineno)
-        cells = [c.strip() for c in cells]
+    for lineno, cells in zip(table.lines, table.rows, strict=True):
         try:
             alt = _number(cells[col["altitude_km"]], "altitude_km")
             value = _number(cells[col["density_cm3"]], "density_cm3")

@@ -7,17 +7,14 @@ cm-3 s-1). :func:`read_profile_table` reads one and interpolates each column ont
 altitude grid; :func:`read_csv_columns` is the shared low-level reader that other tables (a
 solar spectrum, say) reuse.
 
-The CSV splitting is the standard library's :mod:`csv`; only the checks and the interpolation
-rule are written here. This module must not know what a column means beyond the ``_K``
-naming rule (temperatures in kelvin must be positive): the caller says which columns it needs
-and whether they must be non-negative.
+The commented-CSV format itself is split by :mod:`ionochem.io.csvtable` (the one reader of
+that format); only the checks and the interpolation rule are written here. This module
+must not know what a column means beyond the ``_K`` naming rule (temperatures in kelvin must
+be positive): the caller says which columns it needs and whether they must be non-negative.
 """
 
 from __future__ import annotations
 
-import csv
-import math
-import re
 import warnings
 from collections.abc import Collection, Sequence
 from pathlib import Path
@@ -25,7 +22,8 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import InputError, ScenarioError, safe_name
-from ionochem.io.paths import PathProblem, read_bounded
+from ionochem.io.csvtable import TableProblem, number_cell, split_table
+from ionochem.io.paths import PathProblem, decode_text, read_bounded
 from ionochem.io.plausibility import check_column
 
 __all__ = ["ALTITUDE_TOLERANCE_KM", "read_csv_columns", "read_profile_table"]
@@ -88,70 +86,25 @@ def read_csv_columns(path: str | Path, *, where: str | None = None,
     """
     path = Path(path)
     try:
-        text = read_bounded(path).decode("utf-8-sig")
+        text = decode_text(read_bounded(path))
     except PathProblem as exc:
-        raise _fail(f"table file {exc}", path, None, where, scenario_file) from None
-    except UnicodeDecodeError as exc:
-        raise _fail(f"not UTF-8 text ({exc.reason} at byte {exc.start})", path, None, where,
-                    scenario_file) from None
-    if "\0" in text:
-        raise _fail("contains a NUL character: not a text table", path, None, where,
-                    scenario_file)
-
-    numbered = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
-                if ln.strip() and not ln.lstrip().startswith("#")]
-    if not numbered:
-        raise _fail("no header row (the table is empty)", path, None, where, scenario_file)
-    rows = csv.reader([ln for _, ln in numbered], skipinitialspace=True)
-    header_line = numbered[0][0]
-    header = [name.strip() for name in next(rows)]
-    for j, name in enumerate(header):
-        if not name:
-            raise _fail(f"column {j + 1} of the header has no name", path, header_line,
-                        where, scenario_file)
-    seen = set()
-    for name in header:
-        if name in seen:
-            raise _fail(f"column {safe_name(name)} appears twice in the header", path,
-                        header_line, where, scenario_file)
-        seen.add(name)
-
+        raise _fail(f"table file {exc}", path, exc.line, where, scenario_file) from None
+    try:
+        table = split_table(text)
+    except TableProblem as exc:
+        raise _fail(exc.message, path, exc.line, where, scenario_file) from None
+    if not table.rows:
+        raise _fail("the table has a header but no data rows", path, table.header_line,
+                    where, scenario_file)
     values: list[list[float]] = []
-    lines: list[int] = []
-    for (lineno, _), cells in zip(numbered[1:], rows, strict=True):
-        if len(cells) != len(header):
-            raise _fail(f"{len(cells)} cells but the header has {len(header)} columns",
-                        path, lineno, where, scenario_file)
-        row = []
-        for name, cell in zip(header, cells, strict=True):
-            cell = cell.strip()
-            value = _ascii_float(cell)
-            if value is None:
-                raise _fail(f"the cell in column {safe_name(name)} is not a number "
-                            "(ASCII digits, e.g. 1.5e6)",
-                            path, lineno, where, scenario_file) from None
-            if not math.isfinite(value):
-                raise _fail(f"the cell in column {safe_name(name)} is not a finite number",
-                            path, lineno, where, scenario_file)
-            row.append(value)
-        values.append(row)
-        lines.append(lineno)
-    if not values:
-        raise _fail("the table has a header but no data rows", path, header_line, where,
-                    scenario_file)
-    return header, np.asarray(values, dtype=float), np.asarray(lines, dtype=int)
-
-
-_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
-                     r"|[+-]?(?:inf|infinity|nan)", re.IGNORECASE)
-
-
-def _ascii_float(cell: str) -> float | None:
-    """The number in ``cell`` written with ASCII digits, or None (``float`` alone would
-    accept Unicode digits such as '١' and underscores)."""
-    if not _NUMBER.fullmatch(cell):
-        return None
-    return float(cell)
+    for line, cells in zip(table.lines, table.rows, strict=True):
+        try:
+            values.append([number_cell(cell, name)
+                           for name, cell in zip(table.header, cells, strict=True)])
+        except ValueError as exc:
+            raise _fail(str(exc), path, line, where, scenario_file) from None
+    return (list(table.header), np.asarray(values, dtype=float),
+            np.asarray(table.lines, dtype=int))
 
 
 def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, *,

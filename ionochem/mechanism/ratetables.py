@@ -24,8 +24,6 @@ knows nothing about reactions beyond that file and line.
 
 from __future__ import annotations
 
-import csv
-import io
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -33,13 +31,13 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import ReactionListError, TableRangeError, safe_name
-from ionochem.io.paths import PathProblem, read_bounded, regular_file
+from ionochem.io.csvtable import TableProblem, number_cell, split_table
+from ionochem.io.paths import PathProblem, decode_text, read_bounded, regular_file
 
 __all__ = ["RateTable", "load_rate_table", "clear_cache", "TEMPERATURE_COLUMNS"]
 
 TEMPERATURE_COLUMNS = ("Te", "Ti", "Tn", "Teff")
 _TEMP_HEADER = re.compile(r"(Te|Ti|Tn|Teff)(_K)?")
-_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 _MAX_BYTES = 10_000_000
 # Relative slack when checking the range, so a temperature equal to an end point up to
 # rounding is not refused *(common practice)*.
@@ -178,15 +176,10 @@ def _fail(name, message, file, line):
 
 
 def _number(cell: str, what: str, row_line: int, name, file, line) -> float:
-    text = cell.strip()
-    if not _NUMBER.fullmatch(text):
-        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is not a number "
-                    "(ASCII digits, e.g. 1.5e-10)", file, line)
-    value = float(text)
-    if not np.isfinite(value):
-        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is too large",
-              file, line)
-    return value
+    try:
+        return number_cell(cell, what)
+    except ValueError as exc:
+        _fail(name, f"line {row_line}: {exc}", file, line)
 
 
 def where_tables(base_dir) -> str:
@@ -277,29 +270,15 @@ def _parse(path: Path, column, st, name, file, line, hint) -> _Parsed:
     except PathProblem as exc:
         _fail(name, f"{exc}; {hint}", file, line)
     try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        bad_line = data[:exc.start].count(b"\n") + 1
-        _fail(name, f"not valid UTF-8 (line {bad_line})", file, line)
-    if "\x00" in text:
-        bad_line = text[:text.index("\x00")].count("\n") + 1
-        _fail(name, f"contains a NUL byte (line {bad_line})", file, line)
-    text = text.removeprefix("\ufeff")
-    rows: list[tuple[int, list[str]]] = []
+        text = decode_text(data)
+    except PathProblem as exc:
+        _fail(name, f"{str(exc).removeprefix('is ')} (line {exc.line})", file, line)
     try:
-        for number, raw in enumerate(text.splitlines(), start=1):
-            stripped = raw.strip()
-            if not stripped or stripped.startswith("#"):
-                continue
-            cells = next(csv.reader(io.StringIO(raw)))
-            rows.append((number, [c.strip() for c in cells]))
-    except csv.Error as exc:
-        _fail(name, f"CSV error: {exc}", file, line)
-    if not rows:
-        _fail(name, "no header row", file, line)
-    header_line, header = rows[0]
-    if len(set(header)) != len(header):
-        _fail(name, "repeated column name in the header", file, line)
+        table = split_table(text)
+    except TableProblem as exc:
+        _fail(name, f"line {exc.line}: {exc.message}" if exc.line else exc.message, file, line)
+    header = list(table.header)
+    rows = list(zip(table.lines, table.rows, strict=True))
     has_v = header[0] == "v"
     if "v" in header[1:]:
         _fail(name, "the level column 'v' must be the first column (v, then the "
@@ -330,10 +309,7 @@ def _parse(path: Path, column, st, name, file, line, hint) -> _Parsed:
     cols = [t_col, idx] + ([header.index(lo_name), header.index(hi_name)] if has_lo else [])
     table = []
     levels = []
-    for row_line, cells in rows[1:]:
-        if len(cells) != len(header):
-            _fail(name, f"line {row_line} has {len(cells)} values, the header has "
-                        f"{len(header)}", file, line)
+    for row_line, cells in rows:
         if has_v:
             cell = cells[0]
             if not re.fullmatch(r"\+?[0-9]{1,3}", cell):
@@ -353,7 +329,7 @@ def _parse(path: Path, column, st, name, file, line, hint) -> _Parsed:
         _fail(name, "needs at least two rows of values", file, line)
     arr = np.array(table, dtype=float)
     T = arr[:, 0]
-    row_lines = [r[0] for r in rows[1:]]
+    row_lines = [r[0] for r in rows]
     lv = np.array(levels, dtype=int) if has_v else np.zeros(len(T), dtype=int)
     if has_v:
         seen: dict[tuple[int, float], int] = {}
