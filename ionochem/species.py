@@ -14,10 +14,11 @@ so that scenario checks and observation files can name species without the mecha
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass
 
-__all__ = ["Species", "parse_species", "ATOMIC_MASS_AMU", "ELECTRON_MASS_AMU",
+__all__ = ["Species", "parse_species", "parse_species_at", "ATOMIC_MASS_AMU", "ELECTRON_MASS_AMU",
            "ELECTRON", "THIRD_BODY", "PHOTON", "format_elements"]
 
 # One table of atomic weights and the electron mass for the whole package (re-exported).
@@ -231,3 +232,42 @@ def parse_species(text: str) -> Species:
     mass = sum(ATOMIC_MASS_AMU[s] * n for s, n in counts.items()) - charge * ELECTRON_MASS_AMU
     return Species(canonical, tuple(sorted(counts.items())), charge, state, vib, electronic,
                    base, mass)
+
+
+_ALTITUDE = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+
+
+def parse_species_at(text: str) -> tuple[str, float]:
+    """Read a ``SPECIES@KM`` request (``N2+@200``, ``O+(total)@250.5``).
+
+    The one reader of this form, for ``--budget`` and the scenario's ``[output] budget``
+    alike, so that a request is refused in the same words wherever it is written, before
+    any solve. The caller checks the species against the result and KM against the grid.
+
+    Returns
+    -------
+    (str, float)
+        The canonical species name (``O+(4S)@200`` → ``O+``) and the altitude, km.
+
+    Raises
+    ------
+    ValueError
+        No ``@``, no species, a species name :func:`parse_species` refuses, or a KM that is
+        not a finite, non-negative number written with ASCII digits.
+    """
+    species, sep, km = str(text).rpartition("@")
+    species, km = species.strip(), km.strip()
+    if not sep or not km:
+        raise ValueError(f"{text!r} is not SPECIES@KM (e.g. 'N2+@200')")
+    if not species:
+        raise ValueError(f"{text!r} names no species; give SPECIES@KM (e.g. 'N2+@200')")
+    try:
+        name = parse_species(species).name
+    except ValueError as exc:
+        raise ValueError(f"{text!r}: {exc}") from None
+    if not _ALTITUDE.fullmatch(km):
+        raise ValueError(f"{text!r}: altitude {km!r} is not a number (km, e.g. 200)")
+    value = float(km)
+    if not math.isfinite(value) or value < 0:
+        raise ValueError(f"{text!r}: altitude must be a finite, non-negative km value")
+    return name, value

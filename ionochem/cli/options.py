@@ -15,6 +15,7 @@ import sys
 from pathlib import Path
 
 from ionochem.errors import InputError
+from ionochem.species import parse_species_at
 
 #: Heights of the printed tables, km *(common practice: the E, F1 and F2 regions)*.
 DEFAULT_REPORT_KM = (100, 120, 150, 200, 250, 300, 400)
@@ -113,22 +114,12 @@ def workers_option(text):
 
 
 def parse_budget(item):
-    """``"N2+@200"`` → ``("N2+", 200.0)``."""
-    import numpy as np
-    if "@" not in item:
-        raise InputError(f"budget {item!r} must look like SPECIES@KM (N2+@200)",
-                         file="--budget")
-    name, km = item.rsplit("@", 1)
-    if not name.strip():
-        raise InputError(f"budget {item!r} names no species; it must look like SPECIES@KM "
-                         "(N2+@200)", file="--budget")
+    """``"N2+@200"`` → ``("N2+", 200.0)`` (:func:`ionochem.species.parse_species_at`, the
+    one reader of ``SPECIES@KM``), refused as ``--budget: ...``."""
     try:
-        value = float(km)
-    except ValueError:
-        raise InputError(f"budget altitude {km!r} is not a number", file="--budget") from None
-    if not np.isfinite(value):
-        raise InputError(f"budget altitude {km!r} is not a finite number", file="--budget")
-    return name.strip(), value
+        return parse_species_at(item)
+    except ValueError as exc:
+        raise InputError(f"budget {exc}", file="--budget") from None
 
 
 # ------------------------------------------------------------------ output targets
