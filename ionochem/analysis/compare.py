@@ -88,7 +88,7 @@ def merge_replacements(baseline_list, replacements):
     missing = [i for i in new if i not in have]
     if missing:
         raise InputError(f"replacement entries name reactions not in the baseline list: "
-                         f"{', '.join(missing)} (to add new reactions use --add FILE)",
+                         f"{', '.join(missing)} (new reactions belong in `additions`)",
                          file=str(replacements.path))
     reactions = tuple(new.get(r.id, r) for r in baseline_list.reactions)
     return _merged(baseline_list, replacements, reactions, dict(baseline_list.families))
@@ -104,7 +104,7 @@ def merge_additions(baseline_list, additions):
     clash = [r.id for r in additions.reactions if r.id in have]
     if clash:
         raise InputError(f"added entries repeat ids of the baseline list: {', '.join(clash)} "
-                         "(to replace reactions use --reactions FILE)",
+                         "(replacements of baseline entries belong in `replacements`)",
                          file=str(additions.path))
     families = dict(baseline_list.families)
     families.update(additions.families)
@@ -395,13 +395,13 @@ def parse_bands(text):
             lo_f, hi_f = float(lo), float(hi)
         except ValueError:
             raise InputError(f"band {item!r} must look like NAME=LOW_KM:HIGH_KM (E=90:150)",
-                             file="--bands") from None
+                             file="bands") from None
         if not (np.isfinite(lo_f) and np.isfinite(hi_f)) or hi_f <= lo_f:
             raise InputError(f"band {item!r}: the upper altitude must exceed the lower",
-                             file="--bands")
+                             file="bands")
         bands[name.strip()] = (lo_f, hi_f)
     if not bands:
-        raise InputError("no altitude band given", file="--bands")
+        raise InputError("no altitude band given", file="bands")
     return bands
 
 

@@ -111,7 +111,7 @@ class Uncertain:
     member_correlation: float = 1.0
 
 
-def parse_observables(items, species, *, where="--observable"):
+def parse_observables(items, species, *, where="observables"):
     """``["N2+", "N2+/O+"]`` → Observables; every species must be one of ``species``."""
     out = []
     for item in items:
@@ -131,7 +131,7 @@ def parse_observables(items, species, *, where="--observable"):
     return out
 
 
-def parse_error(text, *, where="--error"):
+def parse_error(text, *, where="error"):
     """``"0.25"`` or ``"0.25:100"`` → MeasurementError(relative, absolute); both ≥ 0."""
     rel, sep, ab = str(text).partition(":")
     try:
@@ -145,7 +145,7 @@ def parse_error(text, *, where="--error"):
     return MeasurementError(r, a)
 
 
-def parse_environment(text, *, where="--environment"):
+def parse_environment(text, *, where="environment"):
     """``"EUV=1.3,n(O)=1.1,Tn=1.05"`` (or ``none``) → (spreads over the defaults, the names
     given).
 
@@ -188,7 +188,7 @@ def check_spreads(spreads, model, named=()):
     for name in named:
         if name not in known:
             raise InputError(f"no environment factor {name!r} in this model (factors: "
-                             f"{', '.join(known)})", file="--environment")
+                             f"{', '.join(known)})", file="environment")
     return {k: v for k, v in spreads.items() if k in known}
 
 

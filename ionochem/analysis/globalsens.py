@@ -71,7 +71,7 @@ def nearest_levels(altitude_km, wanted_km=None):
         a = float(a)
         if not (alt.min() - 1e-9 <= a <= alt.max() + 1e-9):
             raise InputError(f"altitude {a:g} km is outside the grid "
-                             f"({alt.min():g}..{alt.max():g} km)", file="--altitudes")
+                             f"({alt.min():g}..{alt.max():g} km)", file="altitudes_km")
         i = int(np.argmin(np.abs(alt - a)))
         if i not in out:
             out.append(i)
@@ -183,15 +183,15 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         ``variance_share_linear`` of the same factors for comparison.
     """
     if method not in METHODS:
-        raise InputError(f"unknown method {method!r} (sobol or morris)", file="--method")
+        raise InputError(f"unknown method {method!r} (sobol or morris)", file="method")
     samples = int(samples)
     if samples < 2:
-        raise InputError("--samples must be at least 2", file="--samples")
+        raise InputError(f"must be at least 2, not {samples}", file="samples")
     if int(top) < 1:
-        raise InputError("--top must be at least 1", file="--top")
+        raise InputError(f"must be at least 1, not {top}", file="top")
     if members and member_correlation != 0:
         raise InputError("ranking the members of a unit apart needs independent members: "
-                         "give --member-correlation 0", file="--members")
+                         "give `member_correlation` 0", file="members")
     kernel = SampleKernel(model, environment, member_correlation)
     central = model.solve()
     names = list(central["species"].values)
@@ -199,7 +199,7 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     unknown = [s for s in species if s not in names]
     if unknown or not species:
         raise InputError(f"unknown species {', '.join(unknown) or '(none)'}; the column has "
-                         f"{', '.join(names)}", file="--species")
+                         f"{', '.join(names)}", file="species")
     sp_idx = [names.index(s) for s in species]
     lv_idx = nearest_levels(model.altitude_km, altitudes_km)
     factor_names, columns, groups, lin_sel = _choose_factors(
@@ -279,7 +279,7 @@ def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=
     groups += list(env_cols)
     if not columns:
         raise InputError("no uncertain reaction or environment factor to analyse (every f "
-                         "is 1)", file="--method")
+                         "is 1)", file="method")
     lin_all = np.concatenate([lin_r[:, chosen], lin_e], axis=1)       # (Nsp, F, A)
     return factor_names, columns, groups, lin_all[sp_idx][:, :, lv_idx]
 
@@ -340,7 +340,7 @@ def _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, l
         attrs=provenance(model))
     ds.attrs.update({
         "factors": ", ".join(factor_names),
-        "factor_definition": "a unit of analysis (or a reaction with --members): its "
+        "factor_definition": "a unit of analysis (or a reaction, members apart): its "
                              "members' ln k_j = ln k_j + eps_j ln f_j(altitude) with eps_j = "
                              "sqrt(rho) z_unit + sqrt(1 - rho) z_j, z standard normals shared "
                              "by every altitude; the z of one factor form one SALib group; "

@@ -65,10 +65,10 @@ def parse_altitude_range(text):
         lo_f, hi_f = float(lo), float(hi)
     except ValueError:
         raise InputError(f"altitude range {text!r} must look like LOW_KM:HIGH_KM (150:300)",
-                         file="--altitudes") from None
+                         file="altitude_range") from None
     if not (np.isfinite(lo_f) and np.isfinite(hi_f)) or hi_f < lo_f:
         raise InputError(f"altitude range {text!r}: the upper altitude is below the lower",
-                         file="--altitudes")
+                         file="altitude_range")
     return lo_f, hi_f
 
 
@@ -80,7 +80,7 @@ def _levels(sens_ds, altitude_range):
     inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
     if not inside.any():
         raise InputError(f"no level of the grid ({alt.min():g}-{alt.max():g} km) lies in "
-                         f"{lo:g}-{hi:g} km", file="--altitudes")
+                         f"{lo:g}-{hi:g} km", file="altitude_range")
     return inside
 
 
@@ -113,7 +113,7 @@ def sensitivity_matrix(sens_ds, species, altitude_range=None, *, members=False):
     names = list(sens_ds["species"].values)
     if species not in names:
         raise InputError(f"no species {species!r} in the result (species: "
-                         f"{', '.join(names)})", file="--species")
+                         f"{', '.join(names)})", file="species")
     inside = _levels(sens_ds, altitude_range)
     if members:
         S = sens_ds["sensitivity"].sel(species=species).values[:, inside]  # (R, level)
@@ -188,7 +188,7 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max",
     if by not in ("max", "mean"):
         raise ValueError(f"by must be 'max' or 'mean', not {by!r}")
     if top is not None and int(top) < 1:
-        raise InputError("--top must be at least 1", file="--top")
+        raise InputError(f"must be at least 1, not {top}", file="top")
     species = [species] if isinstance(species, str) else list(species)
     rows = []
     for s in species:

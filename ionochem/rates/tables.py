@@ -250,7 +250,7 @@ def band_f_expression(bands):
     return text
 
 
-def check_ref(text, flag="--ref"):
+def check_ref(text, flag="ref"):
     """A reference for a reaction-list entry: one line, no ``|`` (the field separator)."""
     if text is None:
         return None
