@@ -19,7 +19,9 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
-from ionochem.errors import InputError
+from ionochem import Model
+from ionochem.analysis.changes import given_entries, resolve_changes
+from ionochem.errors import InputError, MechanismError
 from ionochem.mechanism.units import check_ties
 
 #: Altitude bands of the summary, km: the E region (90-150 km), F1 (150-200 km) and the
@@ -167,7 +169,6 @@ def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), addit
     -------
     ionochem.Model
     """
-    from ionochem.analysis.changes import given_entries, resolve_changes
     final = baseline.reaction_list if alternative is None else alternative
     for rl in replacements:
         final = merge_replacements(final, rl)
@@ -185,8 +186,6 @@ def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), addit
 def _model_with(baseline, reaction_list, plan):
     """A model of ``reaction_list`` with ``plan``'s changes on the baseline's column (its
     environment reused unless the new list or expressions need more)."""
-    from ionochem import Model
-    from ionochem.errors import MechanismError
     changes = (plan.set, plan.scale, "api", plan.dirs)
     scen = baseline.scenario
     try:

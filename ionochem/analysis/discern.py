@@ -51,6 +51,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ionochem.analysis.fit import model_on
+from ionochem.analysis.sensitivity import environment_factors
+from ionochem.analysis.units import unit_map
 from ionochem.errors import InputError
 
 #: Default one-sigma multiplicative spreads of the environment factors *(common practice:
@@ -181,7 +184,6 @@ def check_spreads(spreads, model, named=()):
     """The spreads of the factors the model has: a default of a factor it lacks is dropped,
     a factor the user ``named`` that it lacks (``n(Ar)`` when Ar reacts nowhere, ``Ti``
     when no rate reads it) is refused."""
-    from ionochem.analysis.sensitivity import environment_factors
     # Te is always a factor; only the names are wanted, not the derivatives.
     dlnk_te = np.zeros((len(model.altitude_km), len(model.reactions)))
     known = [f for f, _ in environment_factors(model, dlnk_te)[0]]
@@ -252,7 +254,6 @@ def factor_columns(model, sens, observables, uncertain, exclude):
 
     Also returns the labels of the K columns (unit names, then environment factors).
     """
-    from ionochem.analysis.units import unit_map
     lny, gr, ge = observable_arrays(sens, observables)
     gr, ge = np.nan_to_num(gr), np.nan_to_num(ge)
     sigma = _log_sigma(model)                             # (A, R)
@@ -406,7 +407,6 @@ def given_electron_models(baseline, changed, balance_ion="O+"):
     ``[solve] electrons = "table"`` with Ne on the grid, ``balance_ion`` the rest."""
     import dataclasses
 
-    from ionochem.analysis.fit import model_on
     res = baseline.solve()
     ne = np.nan_to_num(res["density"].sel(species="e").values)
     out = []

@@ -33,6 +33,7 @@ import warnings
 import numpy as np
 import xarray as xr
 
+from ionochem.analysis.sensitivity import sensitivity
 from ionochem.analysis.uncertainty import (
     SampleKernel,
     linear_variance_shares,
@@ -42,6 +43,7 @@ from ionochem.analysis.uncertainty import (
     species_samples,
 )
 from ionochem.errors import InputError
+from ionochem.io.dataset import ALTITUDE_ATTRS, provenance
 
 MAIN_SPECIES = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
 DEFAULT_ALTITUDES_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
@@ -251,7 +253,6 @@ def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=
     (factor) of each, and the first-order shares (species, factor, level) of the factors at
     the chosen levels.
     """
-    from ionochem.analysis.sensitivity import sensitivity
     sens = sensitivity(model, central)
     lin_r, lin_e = linear_variance_shares(model, kernel, sens, units=not members)
     sens_names = list(sens["species"].values)
@@ -320,7 +321,6 @@ LONG_NAMES = {
 def _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, lv_idx,
                     factor_names):
     """The result dataset of :func:`global_sensitivity` (without the method attributes)."""
-    from ionochem.io.dataset import ALTITUDE_ATTRS, provenance
     data = {key: (("species", "factor", "altitude"), val,
                   {"units": "1", "long_name": LONG_NAMES[key]})
             for key, val in indices.items()}

@@ -22,7 +22,7 @@ import numpy as np
 import xarray as xr
 
 from ionochem.analysis.compare import main_species
-from ionochem.analysis.units import sum_over_units, unit_map_from_dataset
+from ionochem.analysis.units import sum_over_units, unit_coords, unit_map_from_dataset
 from ionochem.errors import InputError
 
 TE_NAME = "Te"
@@ -293,7 +293,6 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
 def _unit_measures(out, sens_ds, names, altitude_range, min_share, specs):
     """The four measures over (species, unit), suffix ``_unit``, and the unit coordinates
     (plus ``sensitivity_unit`` for files written before units existed)."""
-    from ionochem.analysis.units import unit_coords
     umap = unit_map_from_dataset(sens_ds)
     if "sensitivity_unit" not in out:
         out = out.assign_coords({k: v for k, v in unit_coords(umap).items()})

@@ -4,6 +4,13 @@
 Every :class:`ionochem.Error` becomes one line on stderr (``file:line: message``, or
 ``file: key: message`` for scenarios) and exit status 2; a traceback means a bug (exit 1).
 Nothing below the command layer imports it.
+
+Lazy imports, for start-up speed: building the parser imports every command module, so a
+command module imports the library (the model, analyses, plots, rate toolkit, anything that
+loads numpy, scipy, xarray or matplotlib) inside its command function, where only the
+command that runs pays for it. Such imports are the documented exception to "imports at
+module top" (docs/style.md); ``tests/test_cli_imports.py`` guards what ``--help``,
+``check`` and ``run`` load. Imports between command modules stay at module top.
 """
 
 from __future__ import annotations

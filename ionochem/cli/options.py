@@ -14,6 +14,7 @@ import stat
 import sys
 from pathlib import Path
 
+from ionochem.cli.steady_at import analysis_scenario
 from ionochem.errors import InputError
 from ionochem.species import parse_species_at
 
@@ -265,7 +266,6 @@ def load_model(args, *, command=None, replacements=(), additions=(), log=None):
     if command is None:
         scen = ionochem.load_scenario(args.scenario)
     else:
-        from ionochem.cli.steady_at import analysis_scenario
         scen = analysis_scenario(args, command)
     model = ionochem.Model(scen)
     sets = parse_assignments(getattr(args, "set", None), "set")

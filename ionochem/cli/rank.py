@@ -9,6 +9,7 @@ from __future__ import annotations
 from ionochem.cli.compare import baseline_model
 from ionochem.cli.options import (
     MEMBERS_HELP,
+    Table,
     check_output,
     check_outputs,
     result_species,
@@ -114,7 +115,6 @@ def refuse_fixed(roles, species):
 
 
 def ranking_table(rows, by, by_members=False):
-    from ionochem.cli.options import Table
     table = Table(["#", "reaction" if by_members else "unit", "S at max", "at km",
                    "mean |S|", "equation"],
                   align=[">", "<", ">", ">", ">", "<"])
@@ -127,7 +127,6 @@ def ranking_table(rows, by, by_members=False):
 
 def _extend(acc, species, table):
     """One CSV table over every species (a leading species column)."""
-    from ionochem.cli.options import Table
     if acc is None:
         acc = Table(["species", *table.header])
     for row in table.rows:
@@ -147,7 +146,6 @@ def _print_effective(model, sens, species, rng, top):
 
     from ionochem.analysis.levels import effective_rate_sensitivity
     from ionochem.analysis.units import sum_over_units, unit_map
-    from ionochem.cli.options import Table
     totals = {s.split("(v=")[0] if "(v=" in s else s for s in species}
     eff = effective_rate_sensitivity(model, sens)
     if eff is None:

@@ -17,10 +17,26 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ionochem.environment.diffusion import oplus_face_coefficients
+from ionochem.environment.geometry import solar_zenith_angle_deg
+from ionochem.environment.magnetic import FieldModelRangeError, geomagnetic_field
+from ionochem.environment.magnetisation import (
+    DEFAULT_FIELD_T,
+    magnetisation_height_km,
+    magnetised_drift,
+)
+from ionochem.environment.n2_vibrational import vibrational_temperature
+from ionochem.environment.neutral_source import msis_column
+from ionochem.environment.sun import SunColumn
+from ionochem.environment.temperatures import (
+    check_tabulated_ti,
+    frictional_ion_temperature,
+    mean_neutral_mass_amu,
+    parametric_profile,
+)
 from ionochem.errors import ScenarioError, safe_name
+from ionochem.io.tables import read_profile_table
 from ionochem.species import parse_species
-
-NEUTRAL_SPECIES = ("N2", "O2", "O", "N", "NO", "He", "H", "Ar")
 
 
 @dataclass
@@ -135,7 +151,6 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         What the mechanism asks for: channel keys ``"photo:…"``/``"photoelectron:…"``,
         ``"prescribed:ID"`` for prescribed reactions, species names it uses.
     """
-    from ionochem.io.tables import read_profile_table
 
     grid = np.asarray(scenario.altitude_km, float)
     file = scenario.source
@@ -153,7 +168,6 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         _check_neutral_names(neutrals, file)
         profile_source = None
     else:
-        from ionochem.environment.neutral_source import msis_column
         neutrals, Tn, profile_source = msis_column(scenario, grid, needs)
 
     temps = scenario.temperatures
@@ -176,11 +190,6 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
     if drift > 0:
         # Only magnetised ions drift past the neutrals (docs/physics.md §4a): the drift, and the
         # frictional heating with it, fade below the height where ν_in = Ω_i.
-        from ionochem.environment.magnetisation import (
-            DEFAULT_FIELD_T,
-            magnetisation_height_km,
-            magnetised_drift,
-        )
         if field_T is None:
             field_T = np.full(grid.shape, DEFAULT_FIELD_T)
             messages.append(f"{file}: temperatures.ion_drift_m_s: no [location] and [time] "
@@ -205,17 +214,11 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
     else:
         Ti = None
     if Te is None or Ti is None:
-        from ionochem.environment.temperatures import parametric_profile
         day = _day_factor(scenario)
         Te_p, Ti_p = parametric_profile(grid, Tn, daytime=day, **_profile_kwargs(temps))
         Te = Te_p if Te is None else Te
         Ti = Ti_p if Ti is None else Ti
     if np.any(drift > 0):
-        from ionochem.environment.temperatures import (
-            check_tabulated_ti,
-            frictional_ion_temperature,
-            mean_neutral_mass_amu,
-        )
         m_n = mean_neutral_mass_amu(neutrals)
         if temps.ion == "table":
             cold = check_tabulated_ti(Ti, Tn, drift, m_n, altitude_km=grid)
@@ -234,7 +237,6 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
     if getattr(temps, "vibrational", "neutral") == "table":
         Tv = ttable["Tv_K"]
     elif getattr(temps, "vibrational", "neutral") == "electron":
-        from ionochem.environment.n2_vibrational import vibrational_temperature
         Tv = vibrational_temperature(Tn, Te, temps.vibrational_coupling)
     else:
         Tv = Tn.copy()
@@ -267,7 +269,6 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                       prescribed=prescribed, electron_density=ne, warnings=messages,
                       info=info, transport=transport, field_T=field_T)
     if any(n.startswith(("photo:", "photoelectron:")) for n in needs):
-        from ionochem.environment.sun import SunColumn
         env.sun = SunColumn(scenario, env, needs, profile_source)
         env.warnings.extend(env.sun.warnings)
     for m in messages:
@@ -283,7 +284,6 @@ def _field(scenario, grid):
     """
     if scenario.location is None or scenario.time is None:
         return None, None
-    from ionochem.environment.magnetic import FieldModelRangeError, geomagnetic_field
     loc = scenario.location
     try:
         B, _ = geomagnetic_field(loc.latitude_deg, loc.longitude_deg, grid, scenario.time.utc)
@@ -296,7 +296,6 @@ def _field(scenario, grid):
 
 def _transport(scenario, grid, neutrals, Te, Ti, Tn, igrf_dip, messages):
     """Face coefficients of O+ transport for the scenario's [transport] section."""
-    from ionochem.environment.diffusion import oplus_face_coefficients
     tr = scenario.transport
     file = scenario.source
     dip = tr.dip_deg if tr.dip_deg is not None else igrf_dip
@@ -326,7 +325,6 @@ def _day_factor(scenario):
     """Cosine of the zenith angle clipped at 0, or 1 when the scenario has no sun."""
     if scenario.location is None or scenario.time is None:
         return 1.0
-    from ionochem.environment.geometry import solar_zenith_angle_deg
     chi = float(solar_zenith_angle_deg(np.datetime64(scenario.time.utc.replace(tzinfo=None)),
                                        scenario.location.latitude_deg,
                                        scenario.location.longitude_deg))

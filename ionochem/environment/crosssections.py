@@ -116,6 +116,7 @@ import numpy as np
 
 from ionochem.constants import HC_EV_A
 from ionochem.environment.euvac import DATA_DIR, euvac_flux
+from ionochem.environment.lyman_alpha import lyman_alpha_flux
 from ionochem.errors import InputError, ScenarioError
 from ionochem.io.tables import read_csv_columns
 
@@ -479,7 +480,6 @@ def solar_spectrum(f107, f107a, *, lyman_alpha_photons_cm2_s=None) -> Spectrum:
     """
     bins = euvac_flux(f107, f107a)
     if lyman_alpha_photons_cm2_s is None:
-        from ionochem.environment.lyman_alpha import lyman_alpha_flux
         lyman_alpha_photons_cm2_s = lyman_alpha_flux(f107, f107a)
     lya = np.asarray(lyman_alpha_photons_cm2_s, dtype=float)
     if not np.all(np.isfinite(lya)) or np.any(lya < 0):

@@ -13,7 +13,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from ionochem.environment.neutrals import msis_neutrals_extended
 from ionochem.errors import ScenarioError
+from ionochem.io.tables import read_profile_table
 
 MSIS_MODELS = {"msis2.1": "2.1", "msis2.0": "2.0", "msis00": "00"}
 
@@ -30,8 +32,6 @@ def msis_column(scenario, grid_km, needs):
     profile : NeutralProfile
         The same model on the extended profile (``profile.altitude_km``) for slant columns.
     """
-    from ionochem.environment.neutrals import msis_neutrals_extended
-    from ionochem.io.tables import read_profile_table
     version = MSIS_MODELS[scenario.neutrals.model]
     reason = f"the neutral model {scenario.neutrals.model}"
     scenario.require("location", "time", "sun", "geomagnetic", reason=reason)

@@ -33,7 +33,7 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["NeutralProfile", "msis_neutrals", "msis_neutrals_extended", "extended_grid_km",
-           "SPECIES", "MSIS_VERSIONS"]
+           "SPECIES", "MSIS_VERSIONS", "NEUTRAL_SPECIES"]
 
 #: Species returned (cm-3), in this order, and the pymsis output column of each
 #: (pymsis.msis.Variable: N2=1, O2=2, O=3, HE=4, H=5, AR=6, N=7, ANOMALOUS_O=8, NO=9,
@@ -41,6 +41,10 @@ __all__ = ["NeutralProfile", "msis_neutrals", "msis_neutrals_extended", "extende
 _COLUMNS = {"N2": 1, "O2": 2, "O": 3, "N": 7, "NO": 9, "He": 4, "H": 5, "Ar": 6}
 _TEMPERATURE = 10
 SPECIES = tuple(_COLUMNS)
+
+#: Neutrals a column may hold fixed (from the neutral model or a table): the species a
+#: reaction list may use without solving them.
+NEUTRAL_SPECIES = ("N2", "O2", "O", "N", "NO", "He", "H", "Ar")
 
 #: Scenario version names → pymsis version numbers.
 MSIS_VERSIONS = {"2.1": 2.1, "2.0": 2.0, "00": 0}

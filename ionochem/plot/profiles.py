@@ -13,6 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ionochem.environment.slant import EARTH_RADIUS_KM
 from ionochem.errors import InputError
 from ionochem.io.netcdf import atomic_write_bytes
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
@@ -298,7 +299,6 @@ def _top_time_axis(ax, t_h, local_h, sza):
 
 def _mark_sunset(ax, t_h, sza, altitude_km):
     """Dotted line where the zenith angle passes the shadow limit of the altitude."""
-    from ionochem.environment.slant import EARTH_RADIUS_KM
     limit = 90.0 + np.degrees(np.arccos(EARTH_RADIUS_KM / (EARTH_RADIUS_KM + altitude_km)))
     above = np.asarray(sza, float) > limit
     cross = np.flatnonzero(~above[:-1] & above[1:])
