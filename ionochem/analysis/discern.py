@@ -9,9 +9,9 @@ linearised). What else is uncertain enters through the exact sensitivities g = �
 (:func:`ionochem.analysis.sensitivity.sensitivity`; a ratio's is the difference of its two
 species'):
 
-- the rate list's own one-sigma factors σ_j = ln f_j at each level (a tabulated band: its
+- the rate list's own one-sigma factors σ_j = ln f_j at each altitude (a tabulated band: its
   symmetric half-width, as in :class:`~ionochem.analysis.sampling.SampleKernel`), one
-  multiplier per reaction shared by every level, the members of a unit of analysis
+  multiplier per reaction shared by every altitude, the members of a unit of analysis
   (family, tie) correlated with ρ (``member_correlation``), units independent. The reactions
   the change touches (their whole units) are **excluded**: their uncertainty is the
   question, not noise;
@@ -34,9 +34,9 @@ model's when the change is small. Then
 
 - ``separation`` = |Δ| / sqrt(C_pp + var_meas,p) at each point p (observable, altitude);
 - ``separation_profile`` = sqrt(Δᵀ (C + D)⁻¹ Δ) over the chosen altitudes of one observable
-  (D the diagonal measurement noise): the factors are shared by every level, so C is
-  strongly correlated across altitudes and the levels are **not** independent;
-- ``separation_band`` the same over the levels of each altitude band, and
+  (D the diagonal measurement noise): the factors are shared by every altitude, so C is
+  strongly correlated across altitudes and the altitude rows are **not** independent;
+- ``separation_band`` the same over the altitude rows of each band, and
   ``separation_combined`` over every observable and chosen altitude at once.
 
 (C + D)⁻¹ is applied through the Woodbury identity with D diagonal and V of a few hundred
@@ -358,7 +358,7 @@ def separate(baseline, changed, observables, errors, uncertain, *, altitude_rang
         Observable name → MeasurementError (missing: the default).
     uncertain : Uncertain
     altitude_range : (lo, hi) km, optional
-        Levels combined in ``profile`` and ``combined`` (default all).
+        Altitude rows combined in ``profile`` and ``combined`` (default all).
     bands : dict name → (lo, hi) km
     sens_baseline, sens_changed : xarray.Dataset, optional
         Their sensitivities, if already computed.

@@ -4,7 +4,7 @@ Morris screening, with SALib, on the batched solver of :mod:`ionochem.analysis.u
 Factors
 -------
 The inputs are the same standard normals ε_j as in the Monte Carlo (ln k_j = ln k_j +
-ε_j ln f_j, one draw per reaction shared by every level), for the ``top`` reactions with the
+ε_j ln f_j, one draw per reaction shared by every altitude row), for the ``top`` reactions with the
 largest first-order variance share S_ij² ln² f_j / Σ (its mean over the chosen species
 and altitudes), plus any varied environment factor (``euv``, ``Te``, a fixed neutral).
 Every other rate stays at its central value.
@@ -60,9 +60,9 @@ def default_species(names):
     return out
 
 
-def nearest_levels(altitude_km, wanted_km=None):
-    """Indices of the grid levels nearest to ``wanted_km`` (default a standard set inside
-    the grid; the bottom, middle and top level if none falls inside)."""
+def nearest_rows(altitude_km, wanted_km=None):
+    """Indices of the altitude rows nearest to ``wanted_km`` (default a standard set inside
+    the grid; the bottom, middle and top row if none falls inside)."""
     alt = np.asarray(altitude_km, float)
     if wanted_km is None:
         wanted_km = [a for a in DEFAULT_ALTITUDES_KM if alt.min() <= a <= alt.max()]
@@ -80,15 +80,15 @@ def nearest_levels(altitude_km, wanted_km=None):
     return sorted(out)
 
 
-def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=None):
+def select_top_reactions(linear_share, species_idx, row_idx, top, candidates=None):
     """The ``top`` reactions with the largest mean first-order variance share.
 
     Parameters
     ----------
     linear_share : ndarray (species, R, A)
         From :func:`~ionochem.analysis.uncertainty.linear_variance_shares`.
-    species_idx, level_idx : sequence of int
-        The species and altitude levels that count.
+    species_idx, row_idx : sequence of int
+        The species and altitude rows that count.
     top : int
     candidates : sequence of int, optional
         Reactions allowed (the varied ones).
@@ -99,9 +99,9 @@ def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=N
         Reaction indices, largest share first.
     """
     sub = np.nan_to_num(linear_share[np.ix_(list(species_idx), np.arange(linear_share.shape[1]),
-                                            list(level_idx))])
-    # The mean share over the chosen species and levels: a reaction that carries a large part
-    # of the variance over a wide height range outranks one that dominates a single level.
+                                            list(row_idx))])
+    # The mean share over the chosen species and altitude rows: a reaction that carries a large part
+    # of the variance over a wide height range outranks one that dominates a single altitude.
     score = sub.mean(axis=(0, 2))
     allowed = np.arange(score.size) if candidates is None else np.asarray(candidates, int)
     allowed = allowed[score[allowed] > 0]
@@ -166,7 +166,7 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     seed : int
         Seed of the SALib design and of its bootstrap.
     altitudes_km : sequence of float, optional
-        Altitudes analysed (nearest levels; default a standard set inside the grid).
+        Altitudes analysed (nearest altitude rows; default a standard set inside the grid).
     species : sequence of str, optional
         Species analysed (default N2+, O2+, NO+, O+(total) or O+, e).
     environment : dict, optional
@@ -203,7 +203,7 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         raise InputError(f"unknown species {', '.join(unknown) or '(none)'}; the column has "
                          f"{', '.join(names)}", file="species")
     sp_idx = [names.index(s) for s in species]
-    lv_idx = nearest_levels(model.altitude_km, altitudes_km)
+    lv_idx = nearest_rows(model.altitude_km, altitudes_km)
     factor_names, columns, groups, lin_sel = _choose_factors(
         model, kernel, central, names, sp_idx, lv_idx, top, members)
     column_names = [kernel.factor_names[c] for c in columns]
@@ -250,8 +250,8 @@ def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=
     the varied environment.
 
     Returns the factor names, the columns of the draws that SALib varies with the group
-    (factor) of each, and the first-order shares (species, factor, level) of the factors at
-    the chosen levels.
+    (factor) of each, and the first-order shares (species, factor, altitude) of the factors at
+    the chosen altitude rows.
     """
     sens = sensitivity(model, central)
     lin_r, lin_e = linear_variance_shares(model, kernel, sens, units=not members)
@@ -286,7 +286,7 @@ def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=
 
 
 def _indices(problem, X, Y, method, seed, num_resamples, n_factors):
-    """SALib indices of ln n, {key: (species, factor, level)}; NaN where ln n is flat."""
+    """SALib indices of ln n, {key: (species, factor, altitude)}; NaN where ln n is flat."""
     keys = (("S1", "S1_conf", "ST", "ST_conf") if method == "sobol"
             else ("mu_star", "mu_star_conf", "mu", "sigma"))
     L, Ns = Y.shape[1], Y.shape[2]

@@ -335,7 +335,7 @@ def print_warnings(warnings, prefix="warning"):
 
 
 # ------------------------------------------------------------------ tables
-def report_levels(altitude_km, wanted=DEFAULT_REPORT_KM):
+def report_altitudes(altitude_km, wanted=DEFAULT_REPORT_KM):
     """Grid altitudes nearest the ``wanted`` heights inside the grid (km, sorted)."""
     import numpy as np
     alt = np.asarray(altitude_km, float)
@@ -344,6 +344,10 @@ def report_levels(altitude_km, wanted=DEFAULT_REPORT_KM):
     if not rows:
         rows = sorted({float(alt[0]), float(alt[len(alt) // 2]), float(alt[-1])})
     return rows
+
+
+#: The old name, still imported by cli/run.py (the lead's file).
+report_levels = report_altitudes
 
 
 def fmt_value(v, width=11):

@@ -31,8 +31,8 @@ def register(subparsers):
                         "O+(total) or O+, e)")
     r.add_argument("--altitudes", metavar="LO:HI", help="altitude range, km (default: all)")
     r.add_argument("--min-share", type=float, default=None, metavar="F",
-                   help="rank over the levels where the species is at least F of its own "
-                        "peak density in the range (default 0.01; 0: every level)")
+                   help="rank over the altitudes where the species is at least F of its own "
+                        "peak density in the range (default 0.01; 0: every altitude)")
     r.add_argument("--top", type=int, default=10, metavar="N",
                    help="reactions listed per species (default 10)")
     r.add_argument("--members", action="store_true", help=MEMBERS_HELP)
@@ -72,7 +72,7 @@ def cmd_rank(args):
     print(sens.attrs.get("title", ""))
     alt = sens["altitude"].values
     lo, hi = rng if rng is not None else (alt.min(), alt.max())
-    print(f"normalized sensitivities S = d ln n / d ln k over {lo:g}-{hi:g} km, at the levels "
+    print(f"normalized sensitivities S = d ln n / d ln k over {lo:g}-{hi:g} km, at the altitudes "
           f"where each species is at least {share:g} of its peak (factors other than "
           "reactions: d ln n / d ln factor)")
     print("rows are reactions one by one (family levels apart)" if args.members else

@@ -54,7 +54,7 @@ def register(subparsers):
     par.add_argument("--scheduler", metavar="ADDRESS",
                      help="solve on an existing dask scheduler (tcp://host:port)")
     u.add_argument("--batch", type=int, metavar="B",
-                   help="samples per batch (default: about 1000 rows of samples x levels)")
+                   help="samples per batch (default: about 1000 rows of samples x altitudes)")
     u.add_argument("--resume", action="store_true",
                    help="continue an interrupted run from OUT.nc.samples")
     u.add_argument("--restart", action="store_true",

@@ -116,7 +116,7 @@ class Environment:
         return self.sun.zenith_deg(time_s)
 
     def dark(self, time_s=None) -> np.ndarray:
-        """Levels where no sunlight arrives (the ray to the sun meets the solid Earth)."""
+        """Altitude rows where no sunlight arrives (the ray to the sun meets the solid Earth)."""
         if self.sun is None:
             return np.zeros(self.altitude_km.size, bool)
         return self.sun.dark(time_s)
@@ -226,7 +226,7 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                 messages.append(
                     f"{file}: temperatures.table: tabulated Ti is colder than frictional "
                     f"heating by a {temps.ion_drift_m_s:g} m/s drift implies at {len(cold)} "
-                    "level(s) "
+                    "altitude(s) "
                     f"({_span(cold)} km); the drift term is still applied once in Teff")
         else:
             Ti = frictional_ion_temperature(Ti, drift, m_n)
@@ -316,9 +316,9 @@ def _transport(scenario, grid, neutrals, Te, Ti, Tn, igrf_dip, messages):
                                    upper_flux_cm2_s=tr.upper_boundary_flux_cm2_s)
 
 
-def _span(levels):
-    levels = np.asarray(levels)
-    return f"{levels.min():g}–{levels.max():g}"
+def _span(altitudes):
+    altitudes = np.asarray(altitudes)
+    return f"{altitudes.min():g}–{altitudes.max():g}"
 
 
 def _day_factor(scenario):

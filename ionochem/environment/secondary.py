@@ -14,7 +14,7 @@ of hundreds of eV and more where W = 35 eV holds; between 15 and ~100 eV this li
 an approximation *(common practice)*, the place to improve with the published
 secondary-to-primary ratios per bin (Richards & Torr 1988, J. Geophys. Res. 93, 4060).
 
-The secondary ion pairs at a level,
+The secondary ion pairs at an altitude,
 
     P_sec(z) = sum_channels sum_bins n_absorber(z) J_c,bin(z) Y(E_c,bin)   (cm-3 s-1),
 

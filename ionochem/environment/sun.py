@@ -48,7 +48,7 @@ LATTICE_S = 60.0
 MAX_CACHED_NODES = 512
 #: Photo and photoelectron frequencies below this (s-1 per molecule) are set to zero: they
 #: make less than one ion per cm3 in 1e70 years, and along grazing rays (the hard soft X-ray
-#: bins reach levels the EUV cannot) the densities they imply, ~1e-135 cm-3, underflow
+#: bins reach altitudes the EUV cannot) the densities they imply, ~1e-135 cm-3, underflow
 #: double precision in the solver's products (a numerical choice).
 NEGLIGIBLE_RATE_S = 1e-100
 
@@ -152,7 +152,7 @@ class SunColumn:
                     f"{scenario.source}: neutrals.table: no {', '.join(lacking)} column; "
                     "these absorbers are left out of the optical depth")
             alt, dens = _extend_down(alt, dens)
-        # Columns on a fixed node grid: cost linear in levels (slant.column_nodes).
+        # Columns on a fixed node grid: cost linear in altitude rows (slant.column_nodes).
         alt, dens = column_nodes(alt, dens, extended_grid_km(bottom_km=alt[0], top_km=alt[-1]))
         self.profile_alt = alt
         self.profile = dens
@@ -218,7 +218,7 @@ class SunColumn:
         chi = self.zenith_deg(t)
         top = self.grid.max()
         if chi > 90.0 and (EARTH_RADIUS_KM + top) * np.sin(np.radians(chi)) < EARTH_RADIUS_KM:
-            # The Earth's shadow covers the whole column: no ray reaches any level.
+            # The Earth's shadow covers the whole column: no ray reaches any altitude.
             zero = np.zeros(self.grid.size)
             out = {f"photo:{k}": zero for k in self.photo_channels}
             out.update({f"photoelectron:{k}": zero for k in self.pe_channels})
@@ -279,6 +279,6 @@ class SunColumn:
         return self._at(time_s)[0]
 
     def dark(self, time_s=None):
-        """True at levels the direct sunlight does not reach."""
+        """True at altitudes the direct sunlight does not reach."""
         return self._at(time_s)[1]
 

@@ -51,12 +51,12 @@ KINDS = ("density", "electron_density", "ratio")
 
 #: Most observations one file may hold: a rocket or radar profile has hundreds to a few
 #: thousand points; the bound keeps the interpolation matrix of a fit (observations ×
-#: species × levels) in memory *(common practice)*.
+#: species × altitude rows) in memory *(common practice)*.
 MAX_OBSERVATIONS = 100_000
 #: Smallest one-sigma error relative to the value: below it the misfit's weight 1/σ² in log
 #: density overflows or means nothing *(common practice: no density is measured to 1e-9)*.
 MIN_RELATIVE_SIGMA = 1e-9
-#: Largest interpolation matrix (observations × species × levels entries, float64) a
+#: Largest interpolation matrix (observations × species × altitude rows entries, float64) a
 #: comparison with a model may build: 2.5e8 entries are 2 GB *(common practice)*.
 MAX_MATRIX_ENTRIES = 250_000_000
 
@@ -327,12 +327,12 @@ def check_against_model(obs, species, altitude_km):
                              "km", file=file, line=line, key=key)
 
 
-def check_matrix_size(n_obs, n_species, n_levels, *, source=None):
+def check_matrix_size(n_obs, n_species, n_rows, *, source=None):
     """Refuse a comparison whose interpolation matrix would exceed
-    :data:`MAX_MATRIX_ENTRIES` (observations × species × levels), before it is built."""
-    entries = int(n_obs) * int(n_species) * int(n_levels)
+    :data:`MAX_MATRIX_ENTRIES` (observations × species × altitude rows), before it is built."""
+    entries = int(n_obs) * int(n_species) * int(n_rows)
     if entries > MAX_MATRIX_ENTRIES:
-        raise InputError(f"{n_obs} observations against {n_species} species on {n_levels} "
-                         f"levels need a {entries * 8 / 1024 ** 3:.1f} GiB interpolation "
+        raise InputError(f"{n_obs} observations against {n_species} species on {n_rows} "
+                         f"altitude rows need a {entries * 8 / 1024 ** 3:.1f} GiB interpolation "
                          f"matrix, above the {MAX_MATRIX_ENTRIES * 8 / 1024 ** 3:.0f} GiB "
-                         "bound; thin the observations or use fewer levels", file=source)
+                         "bound; thin the observations or use fewer altitude rows", file=source)

@@ -5,11 +5,11 @@ which are fixed (taken from the neutral source), which are algebraic (electrons 
 neutrality, or the balance ion when the electron density is given), the net stoichiometry
 of every reaction, and the reactant slots of every rate law. With those, the tendency
 ``f = ν · r(n)`` and its Jacobian are a handful of vectorised numpy operations over any
-number of columns ("levels", possibly levels of many samples stacked).
+number of columns (altitude rows, possibly the rows of many samples stacked).
 
 It knows nothing of the atmosphere: rate coefficients and fixed densities come in as arrays.
 
-Shapes: ``B`` columns (altitude levels, or sample × altitude flattened), ``S`` solved
+Shapes: ``B`` columns (altitude rows, or sample × altitude flattened), ``S`` solved
 species, ``R`` reactions, ``F`` fixed species.
 """
 
@@ -134,7 +134,7 @@ class Mechanism:
         self.E = E
         self._n_given = len(self.given)
         # Jacobian kernel: J[b, i, j] = Σ_m Σ_r ∂r_r/∂n_slot(m) · ν[i, r] · E[slot(m, r), j],
-        # stored as G[(m, r), (i, j)] so the Jacobian of every level is one matrix product.
+        # stored as G[(m, r), (i, j)] so the Jacobian of every altitude row is one matrix product.
         G = np.zeros((MAX_REACTANT_SLOTS, R, S, S))
         for m in range(MAX_REACTANT_SLOTS):
             G[m] = self.nu.T[:, :, None] * E[slots[:, m]][:, None, :]

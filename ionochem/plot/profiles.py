@@ -110,7 +110,7 @@ def profiles_figure(ds, *, species=None, title=None, observed=None):
     ``observed`` (from :func:`ionochem.load_observations`) adds the measurements of the
     species shown, with error bars (:mod:`ionochem.plot.observations`).
 
-    Levels where a drawn species is not in photochemical equilibrium (``pce_doubtful``) are
+    Altitudes where a drawn species is not in photochemical equilibrium (``pce_doubtful``) are
     shaded and its curve is faded there (:mod:`ionochem.plot.equilibrium`); the legend sits
     right of the axes, clear of the curves.
     """
@@ -156,12 +156,12 @@ def plot_profiles(ds, path, *, species=None, title=None, observed=None):
 
 
 def chosen_altitudes(ds, altitudes_km):
-    """Grid levels nearest to the requested altitudes (km), sorted, without repeats.
+    """Grid altitudes nearest to the requested altitudes (km), sorted, without repeats.
 
     Raises
     ------
     InputError
-        An altitude outside the grid (by more than one level spacing), or none given.
+        An altitude outside the grid (by more than one grid spacing), or none given.
     """
     alt = np.asarray(ds["altitude"].values, float)
     wanted = np.atleast_1d(np.asarray(altitudes_km, float))
@@ -187,7 +187,7 @@ def time_series_figure(ds, *, altitudes_km=(120.0, 200.0, 300.0), species=None,
     path : str or Path
         Output figure (PNG, PDF or SVG, from the suffix).
     altitudes_km : sequence of float
-        One panel per altitude, at the nearest grid level.
+        One panel per altitude, at the nearest grid altitude.
     species : sequence of str, optional
     title : str, optional
 

@@ -3,7 +3,7 @@
 One row of panels per species: on the left, S = ∂ln n/∂ln k of its top N reactions (and
 ∂ln n/∂ln x of the environment factors x ranked beside them: Te, EUV, neutral densities…)
 against altitude on a diverging colour map centred at zero (red raises the density, blue
-lowers it), with the levels left out of the ranking (the species below ``min_share`` of its
+lowers it), with the altitudes left out of the ranking (the species below ``min_share`` of its
 peak) hatched; on the right, the same rows as bars named by reaction: the value of S where
 |S| is largest (filled, labelled with that altitude) and the altitude-mean |S| (outlined).
 The ranking comes from :mod:`ionochem.analysis.rank`; nothing here computes chemistry.
@@ -49,8 +49,8 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
     by : {"max", "mean"}
         Order by the largest |S| or by the altitude-mean |S|.
     min_share : float
-        Rank over the levels where the species is at least this share of its peak density;
-        the other levels are hatched on the heat map.
+        Rank over the altitudes where the species is at least this share of its peak density;
+        the other altitudes are hatched on the heat map.
     members : bool
         Rows are reactions one by one (family levels apart) instead of units of analysis.
 
@@ -71,7 +71,7 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
         if rows:
             panels.append((s, rows))
     if not panels:
-        raise InputError("no sensitivities to plot: every level in the range is dark",
+        raise InputError("no sensitivities to plot: every altitude in the range is dark",
                          file="--plot")
     height = max(2.6, 0.32 * max(len(r) for _, r in panels) + 1.2)
     fig, axes = plt.subplots(len(panels), 2, figsize=(12.0, height * len(panels)),
@@ -82,7 +82,7 @@ def sensitivity_figure(sens_ds, *, species=None, altitude_range=None, top=10,
         ids, _, S, alt = sensitivity_matrix(sens_ds, s, altitude_range, members=members)
         matters = where_it_matters(sens_ds, s, altitude_range, min_share)
         pick = [ids.index(r.reaction) for r in rows]
-        M = S[pick]                                        # (top, level)
+        M = S[pick]                                        # (top, altitude)
         lim = np.nanmax(np.abs(M)) if np.isfinite(M).any() else 1.0
         lim = lim if lim > 0 else 1.0
         edges = _edges(alt)
@@ -168,7 +168,7 @@ def plot_sensitivity(sens_ds, path, *, species=None, altitude_range=None, top=10
 
 
 def _edges(alt):
-    """Cell edges around level altitudes (km) for pcolormesh, shape (level + 1,)."""
+    """Cell edges around the grid altitudes (km) for pcolormesh, shape (altitude + 1,)."""
     alt = np.asarray(alt, float)
     if alt.size == 1:
         return np.array([alt[0] - 0.5, alt[0] + 0.5])

@@ -30,7 +30,7 @@ TEMPERATURE_SOURCES = ("table", "neutral", "profile")
 
 @dataclass(frozen=True)
 class Grid:
-    """``[grid]``: the altitude levels of the column.
+    """``[grid]``: the altitudes of the column.
 
     Attributes
     ----------
