@@ -27,8 +27,9 @@ Inside a family member (``level`` given), ``table()`` of a level-row table (one 
 column, see :mod:`ionochem.mechanism.ratetables`) reads the rows of that level only.
 
 Tokens and the parser live in :mod:`ionochem.mechanism.expression_syntax`; this module folds,
-type-checks and compiles the tree. It must not know about reactions or the atmosphere: it sees text, a file and line for
-messages, the folder table paths resolve against, and (for a family member) its level.
+type-checks and compiles the tree. It must not know about reactions or the atmosphere: it sees
+text, a file and line for messages, the folder table paths resolve against, and (for a family
+member) its level.
 """
 
 from __future__ import annotations
