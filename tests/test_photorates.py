@@ -18,7 +18,6 @@ from ionochem.environment.crosssections import (
     O2_DISSOCIATIVE_SHARE_50_100A,
     Spectrum,
     euvac_cross_sections,
-    load_user_spectrum,
     solar_spectrum,
     verner_cross_section_cm2,
 )
@@ -34,6 +33,7 @@ from ionochem.environment.photorates import (
     photoelectron_energies_eV,
     unattenuated_frequencies,
 )
+from ionochem.environment.user_spectrum import load_user_spectrum
 from ionochem.errors import InputError, ScenarioError
 
 HC = 12398.42  # eV angstrom

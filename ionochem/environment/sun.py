@@ -19,7 +19,7 @@ import collections
 
 import numpy as np
 
-from ionochem.environment.crosssections import load_user_spectrum, solar_spectrum
+from ionochem.environment.crosssections import solar_spectrum
 from ionochem.environment.geometry import flux_distance_factor, solar_zenith_angle_deg
 from ionochem.environment.n2plus_levels import (
     electron_impact_split,
@@ -37,6 +37,7 @@ from ionochem.environment.night_sources import (
 from ionochem.environment.photorates import photo_frequencies
 from ionochem.environment.secondary import secondary_frequencies
 from ionochem.environment.slant import EARTH_RADIUS_KM, column_nodes, slant_columns
+from ionochem.environment.user_spectrum import load_user_spectrum
 from ionochem.environment.xrays import soft_xray_spectrum
 from ionochem.errors import ScenarioError
 
