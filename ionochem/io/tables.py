@@ -157,6 +157,31 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
         return _fail(message, path, line, where, scenario_file)
 
     header, data, lines = read_csv_columns(path, where=where, scenario_file=scenario_file)
+    data, lines = _ascending(header, data, lines, fail)
+    alt = data[:, 0]
+    index = {name: j for j, name in enumerate(header)}
+    wanted = _wanted_columns(header, columns, fail)
+    if nonnegative is True:
+        must_be_nonneg = set(wanted)
+    elif nonnegative is False:
+        must_be_nonneg = set()
+    else:
+        must_be_nonneg = set(nonnegative)
+    x = _grid_inside(grid_km, alt, fail)
+    out: dict[str, np.ndarray] = {}
+    for name in wanted:
+        col = data[:, index[name]]
+        _check_values(name, col, alt, lines, name in must_be_nonneg, where, path, fail)
+        if np.all(col > 0):
+            out[name] = np.exp(np.interp(x, alt, np.log(col)))
+        else:
+            out[name] = np.interp(x, alt, col)
+    return out
+
+
+def _ascending(header, data, lines, fail):
+    """The rows in increasing altitude: the first column must be ``altitude_km``, strictly
+    increasing or strictly decreasing (a decreasing table is reversed)."""
     if header[0] != "altitude_km":
         raise fail(f"the first column must be 'altitude_km', not {safe_name(header[0])}")
     if len(header) < 2:
@@ -173,25 +198,26 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
                        "(altitudes must be strictly increasing or strictly decreasing)",
                        int(lines[i]))
         if sign < 0:
-            data, lines, alt = data[::-1], lines[::-1], alt[::-1]
+            data, lines = data[::-1], lines[::-1]
+    return data, lines
 
-    index = {name: j for j, name in enumerate(header)}
+
+def _wanted_columns(header, columns, fail):
+    """The columns to return: ``columns`` (each must be present) or all but the first."""
     if columns is None:
-        wanted = header[1:]
-    else:
-        wanted = list(columns)
-        missing = [name for name in wanted if name not in index]
-        if missing:
-            raise fail(f"missing column{'s' if len(missing) > 1 else ''} "
-                       f"{', '.join(missing)}; the table has: "
-                       f"{', '.join(safe_name(h, quote=False) for h in header)}")
-    if nonnegative is True:
-        must_be_nonneg = set(wanted)
-    elif nonnegative is False:
-        must_be_nonneg = set()
-    else:
-        must_be_nonneg = set(nonnegative)
+        return header[1:]
+    wanted = list(columns)
+    missing = [name for name in wanted if name not in header]
+    if missing:
+        raise fail(f"missing column{'s' if len(missing) > 1 else ''} "
+                   f"{', '.join(missing)}; the table has: "
+                   f"{', '.join(safe_name(h, quote=False) for h in header)}")
+    return wanted
 
+
+def _grid_inside(grid_km, alt, fail):
+    """The grid (km), refused when a point lies outside the table's altitudes by more than
+    :data:`ALTITUDE_TOLERANCE_KM`, clipped onto them."""
     grid = np.asarray(grid_km, dtype=float).reshape(-1)
     if not np.all(np.isfinite(grid)):
         raise fail("the altitude grid has non-finite values")
@@ -204,25 +230,21 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
         more = f" (and {n_more} more grid point{'s' if n_more > 1 else ''})" if n_more else ""
         raise fail(f"grid altitude {first:g} km is outside the table's altitude range "
                    f"{lo:g} to {hi:g} km{more}")
-    x = np.clip(grid, lo, hi)
+    return np.clip(grid, lo, hi)
 
-    out: dict[str, np.ndarray] = {}
-    for name in wanted:
-        col = data[:, index[name]]
-        if name in must_be_nonneg or name.endswith("_K"):
-            bad = np.flatnonzero(col <= 0 if name.endswith("_K") else col < 0)
-            if bad.size:
-                i = bad[0]
-                need = "a positive temperature" if name.endswith("_K") else "non-negative"
-                raise fail(f"column {safe_name(name)} has {col[i]:g}; it must be {need}",
-                           int(lines[i]))
-        bad, error, warning = check_column(safe_name(name, quote=False), where, col, alt)
-        if error:
-            raise fail(error, int(lines[bad]))
-        if warning:
-            warnings.warn(f"{path.name}: {warning}", stacklevel=2)
-        if np.all(col > 0):
-            out[name] = np.exp(np.interp(x, alt, np.log(col)))
-        else:
-            out[name] = np.interp(x, alt, col)
-    return out
+
+def _check_values(name, col, alt, lines, nonneg, where, path, fail):
+    """A temperature column (``_K``) positive, a non-negative column not negative, and the
+    plausibility bounds of :func:`ionochem.io.plausibility.check_column`."""
+    if nonneg or name.endswith("_K"):
+        bad = np.flatnonzero(col <= 0 if name.endswith("_K") else col < 0)
+        if bad.size:
+            i = bad[0]
+            need = "a positive temperature" if name.endswith("_K") else "non-negative"
+            raise fail(f"column {safe_name(name)} has {col[i]:g}; it must be {need}",
+                       int(lines[i]))
+    bad, error, warning = check_column(safe_name(name, quote=False), where, col, alt)
+    if error:
+        raise fail(error, int(lines[bad]))
+    if warning:
+        warnings.warn(f"{path.name}: {warning}", stacklevel=3)
