@@ -315,7 +315,7 @@ def _fit_on(form, T, k, sigma):
 def cmd_beam(args):
     import numpy as np
 
-    from ionochem.rates import beam_populations, beam_rate
+    from ionochem.rates import beam_rate
     from ionochem.rates.tables import write_csv
     for flag, v in (("--kt-perp", args.kt_perp), ("--kt-par", args.kt_par)):
         if not np.isfinite(v) or v <= 0:
@@ -346,33 +346,8 @@ def cmd_beam(args):
     print(f"{args.sigma}: merged-beam rate coefficients (cm3 s-1), kT_perp = "
           f"{args.kt_perp:g} eV, kT_par = {args.kt_par:g} eV, {Ed.size} detunings")
     _print_detuning(Ed, {c: curve[:, i] for i, c in enumerate(main)})
-    total = None
-    if measured is not None:
-        mE, mk, ms = measured
-        if len(main) == 1:
-            total = at_measured[:, 0]
-        else:
-            if ms is None:
-                raise InputError("fitting the level mix needs a sigma_cm3_s column",
-                                 file=args.measured)
-            try:
-                res = beam_populations(E, S, mE, mk, ms, args.kt_perp, args.kt_par)
-            except InputError as exc:
-                raise relabel(exc, args.measured) from None
-            total = at_measured @ (res.populations * res.scale)
-            levels = column_levels(table, main)
-            t = Table(["column", "v", "population", "error"])
-            for c, v, cells in zip(main, levels, population_cells(res)):
-                t.add(c, v, *cells)
-            print("level mix fitted to the measured curve (non-negative, normalised; "
-                  f"scale {res.scale:.4g}):")
-            print(t.text())
-        if ms is not None:
-            chi2 = float(np.sum(((mk - total) / ms) ** 2))
-            print(f"measured vs theory: chi2 = {chi2:.4g} for {mk.size} points")
-        else:
-            ratio = mk[total > 0] / total[total > 0]
-            print(f"measured/theory: median {np.median(ratio):.4g} over {ratio.size} points")
+    total = None if measured is None else _against_measured(args, E, S, main, table,
+                                                              measured, at_measured)
     if args.output:
         header = ["detuning_eV", *[f"rate_{c}" for c in main]]
         cols = [Ed, *[curve[:, i] for i in range(len(main))]]
@@ -395,6 +370,40 @@ def cmd_beam(args):
                               f"kT$_\\parallel$ = {args.kt_par:g} eV")
         print(f"wrote {args.plot}")
     return 0
+
+
+def _against_measured(args, E, S, main, table, measured, at_measured):
+    """Print how the theory compares with the measured curve (fitting the level mix when
+    the file has several levels); returns the theory at the measured detunings."""
+    import numpy as np
+
+    from ionochem.rates import beam_populations
+    mE, mk, ms = measured
+    if len(main) == 1:
+        total = at_measured[:, 0]
+    else:
+        if ms is None:
+            raise InputError("fitting the level mix needs a sigma_cm3_s column",
+                             file=args.measured)
+        try:
+            res = beam_populations(E, S, mE, mk, ms, args.kt_perp, args.kt_par)
+        except InputError as exc:
+            raise relabel(exc, args.measured) from None
+        total = at_measured @ (res.populations * res.scale)
+        levels = column_levels(table, main)
+        t = Table(["column", "v", "population", "error"])
+        for c, v, cells in zip(main, levels, population_cells(res)):
+            t.add(c, v, *cells)
+        print("level mix fitted to the measured curve (non-negative, normalised; "
+              f"scale {res.scale:.4g}):")
+        print(t.text())
+    if ms is not None:
+        chi2 = float(np.sum(((mk - total) / ms) ** 2))
+        print(f"measured vs theory: chi2 = {chi2:.4g} for {mk.size} points")
+    else:
+        ratio = mk[total > 0] / total[total > 0]
+        print(f"measured/theory: median {np.median(ratio):.4g} over {ratio.size} points")
+    return total
 
 
 def _print_detuning(Ed, curves, rows=8):
