@@ -11,6 +11,7 @@ import tempfile
 from pathlib import Path
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, assume, event, given, settings
 from hypothesis import strategies as st
 
@@ -207,6 +208,7 @@ power_trees = st.recursive(
 ).flatmap(lambda t: st.sampled_from([t, ("neg", t)]))
 
 
+@pytest.mark.slow  # about 5 s (1500 examples); the full suite runs it
 @settings(max_examples=1500, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(trees, st.randoms(use_true_random=False))
 def test_generated_expressions_match_a_tree_evaluation(tree, rnd):
