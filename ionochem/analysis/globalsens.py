@@ -184,25 +184,11 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         or ``mu_star``, ``mu_star_conf``, ``mu``, ``sigma`` (morris), and
         ``variance_share_linear`` of the same factors for comparison.
     """
-    if method not in METHODS:
-        raise InputError(f"unknown method {method!r} (sobol or morris)", file="method")
-    samples = int(samples)
-    if samples < 2:
-        raise InputError(f"must be at least 2, not {samples}", file="samples")
-    if int(top) < 1:
-        raise InputError(f"must be at least 1, not {top}", file="top")
-    if members and member_correlation != 0:
-        raise InputError("ranking the members of a unit apart needs independent members: "
-                         "give `member_correlation` 0", file="members")
+    samples = _check_arguments(method, samples, top, members, member_correlation)
     kernel = SampleKernel(model, environment, member_correlation)
     central = model.solve()
     names = list(central["species"].values)
-    species = list(species) if species else default_species(names)
-    unknown = [s for s in species if s not in names]
-    if unknown or not species:
-        raise InputError(f"unknown species {', '.join(unknown) or '(none)'}; the column has "
-                         f"{', '.join(names)}", file="species")
-    sp_idx = [names.index(s) for s in species]
+    species, sp_idx = _species_of(species, names)
     lv_idx = nearest_rows(model.altitude_km, altitudes_km)
     factor_names, columns, groups, lin_sel = _choose_factors(
         model, kernel, central, names, sp_idx, lv_idx, top, members)
@@ -214,17 +200,8 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     store = open_store(output, manifest_for(model, kernel, method, samples, seed,
                                             factors=factor_names, runs=runs),
                        resume=resume)
-
-    def rows(a, b):
-        return Z[a:b]
-
-    try:
-        z, n = run_ensemble(model, kernel, rows, runs, batch=batch, workers=workers,
-                            scheduler=scheduler, store=store, progress=progress,
-                            on_batch=on_batch)
-    finally:
-        if store is not None:
-            store.close()
+    z, n = _solve_design(model, kernel, Z, store, batch=batch, workers=workers,
+                         scheduler=scheduler, progress=progress, on_batch=on_batch)
     dens, _, _ = species_samples(model, kernel, z, n)                 # (runs, A, Nsp)
     sub = dens[:, lv_idx][:, :, sp_idx]                               # (runs, L, Ns)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -243,6 +220,44 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
                                      f"{MORRIS_RANGE[0]:g}..{MORRIS_RANGE[1]:g}; effects "
                                      "divided by the range, i.e. per unit eps")
     return ds
+
+
+def _solve_design(model, kernel, Z, store, **ensemble):
+    """Solve every run of the design ``Z`` (runs, factor columns) as one ensemble, stored
+    in ``store`` (closed afterwards) when there is one."""
+    def rows(a, b):
+        return Z[a:b]
+
+    try:
+        return run_ensemble(model, kernel, rows, Z.shape[0], store=store, **ensemble)
+    finally:
+        if store is not None:
+            store.close()
+
+
+def _species_of(species, names):
+    """The species asked for (default the main ones) and their indices in ``names``."""
+    species = list(species) if species else default_species(names)
+    unknown = [s for s in species if s not in names]
+    if unknown or not species:
+        raise InputError(f"unknown species {', '.join(unknown) or '(none)'}; the column has "
+                         f"{', '.join(names)}", file="species")
+    return species, [names.index(s) for s in species]
+
+
+def _check_arguments(method, samples, top, members, member_correlation):
+    """Refuse bad arguments before any solve; returns ``samples`` as an int."""
+    if method not in METHODS:
+        raise InputError(f"unknown method {method!r} (sobol or morris)", file="method")
+    samples = int(samples)
+    if samples < 2:
+        raise InputError(f"must be at least 2, not {samples}", file="samples")
+    if int(top) < 1:
+        raise InputError(f"must be at least 1, not {top}", file="top")
+    if members and member_correlation != 0:
+        raise InputError("ranking the members of a unit apart needs independent members: "
+                         "give `member_correlation` 0", file="members")
+    return samples
 
 
 def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=False):
