@@ -19,6 +19,18 @@ E_CHARGE_C = 1.602176634e-19
 ELECTRON_MASS_AMU = 5.48579909065e-4
 #: Standard acceleration of gravity, m s-2 (3rd CGPM, 1901; exact by definition).
 G0_M_S2 = 9.80665
+#: Planck constant, J s (exact in the SI since 2019; CODATA 2018).
+PLANCK_J_S = 6.62607015e-34
+#: Speed of light in vacuum, cm s-1 (exact by definition of the metre).
+SPEED_OF_LIGHT_CM_S = 2.99792458e10
+#: h c / e in eV cm: the energy (eV) of one wavenumber (cm-1), from the exact CODATA 2018 h,
+#: c and e.
+HC_EV_CM = 1.239841984e-4
+#: Avogadro constant, mol-1 (exact in the SI since 2019; CODATA 2018).
+AVOGADRO = 6.02214076e23
+#: h c in eV angstrom, from the CODATA 2018 values of h, c and e (all three exact in the SI):
+#: 6.62607015e-34 J s × 299792458 m s-1 / 1.602176634e-19 C × 1e10 angstrom m-1.
+HC_EV_A = 12398.419843320026
 #: Mean radius of the Earth, km (IUGG mean radius R1 = 6371.0088 km, Moritz 1980, Bull.
 #: Géodésique 54, 395, rounded) *(from memory)*.
 EARTH_RADIUS_KM = 6371.0
@@ -40,7 +52,7 @@ def formula_mass_amu(formula: str) -> float:
     parentheses does not change the mass at this precision).
 
     Raises ``ValueError`` for text that is not a formula of known elements. Species names of
-    reaction lists (charges, levels) are read by :mod:`ionochem.mechanism.species`.
+    reaction lists (charges, levels) are read by :mod:`ionochem.species`.
     """
     body = formula.split("(", 1)[0]
     parts = _ELEMENT.findall(body)

@@ -64,7 +64,7 @@ def make_column(tmp_path):
 # not its subprocesses), which the load of other processes barely changes. The limits leave
 # room for a slower CI machine and for BLAS threads that spin on a many-core one: about
 # five times the CPU time measured when they were last set (about 170 s for the session and
-# 25 s for the slowest test, December 2026; DEVELOPERS.md, "Time budget");
+# 25 s for the slowest test, December 2026; docs/internals.md, "Time budget");
 # IONOCHEM_TIME_BUDGET=off switches the check off (e.g. under a mutation-testing tool), and
 # IONOCHEM_TIME_BUDGET=2.5 multiplies both limits (a slower machine).
 

@@ -5,7 +5,7 @@ linear separation written out here, and the exact moments of ln n under a log-no
 Gauss–Hermite quadrature, numpy.polynomial.hermite_e); an independent numpy computation of
 Δᵀ C⁻¹ Δ with the full covariance matrix built member by member; the physics of N2+ loss
 (dissociative recombination's share of N2+ loss grows with altitude as the molecular
-neutrals fall off faster than the electrons: SCIENCE.md §1).
+neutrals fall off faster than the electrons: docs/physics.md §1).
 """
 
 from __future__ import annotations

@@ -61,14 +61,15 @@ def test_constant_is_broadcast_to_the_variable_shape():
 
 
 def test_family_level_is_bound_at_compile_time():
-    """With level=3, v is the constant 3: evaluation needs no v (DEVELOPERS.md)."""
+    """With level=3, v is the constant 3: evaluation needs no v (docs/internals.md, Expressions)."""
     expr = compile_expression("1e-7*(1 + v)", file="t", line=1, base_dir=".", level=3)
     assert "v" in expr.variables
     assert expr.evaluate({"Te": np.ones(2)}) == pytest.approx(4e-7)
 
 
 def test_variables_and_source_attributes():
-    """variables lists what is read; source names the rate source (DEVELOPERS.md)."""
+    """variables lists what is read; source names the rate source (docs/internals.md,
+    Expressions)."""
     e = compile_expression("1e-10*(300/Teff)^0.5*exp(-Tv/1000)", file="t", line=1)
     assert e.variables == {"Teff", "Tv"} and e.source is None
     p = compile_expression("0.5*photo", file="t", line=1)
@@ -153,7 +154,7 @@ def test_log_log_interpolation_reproduces_a_power_law(power_law_table):
 
 def test_table_outside_range_raises_at_referring_line(power_law_table):
     """Temperatures outside the table are a TableRangeError at the reaction's file:line,
-    naming the table and the temperature (DEVELOPERS.md, Expressions)."""
+    naming the table and the temperature (docs/internals.md, Expressions)."""
     expr = compile_expression('table("dr.csv", "k")', file="r.reactions", line=9,
                               base_dir=power_law_table)
     with pytest.raises(TableRangeError) as info:
@@ -196,7 +197,7 @@ def test_bands_scale_the_whole_expression(power_law_table):
     ("Te,k\n300,1\n400,abc\n", "not a number"),
     ("Te,k\n300,1\n400,nan\n", "not a number"),
     ("Te,k\n300,1\n", "at least two rows"),
-    ("Te,k\n300,1,3\n400,2\n", "has 3 values"),
+    ("Te,k\n300,1,3\n400,2\n", "line 2: 3 cells but the header has 2 columns"),
     ("Te,k,k_low\n300,1,1\n400,2,1\n", "needs its partner"),
     ("Te,k,k_low,k_high\n300,1,2,3\n400,2,1,3\n", "must contain"),
     ("# only a comment\n", "no header row"),

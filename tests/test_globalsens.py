@@ -113,7 +113,7 @@ def test_global_run_resumes_to_the_uninterrupted_indices(model, tmp_path):
 
 def test_bad_global_options_are_input_errors(model):
     """Unknown species, altitudes outside the grid and an unknown method are
-    ionochem.InputError (DEVELOPERS.md, errors), raised before any sample is solved."""
+    ionochem.InputError (docs/internals.md, errors), raised before any sample is solved."""
     with pytest.raises(InputError, match="species"):
         G.global_sensitivity(model, 8, method="morris", species=["N2+"])
     with pytest.raises(InputError, match="outside the grid"):

@@ -43,7 +43,7 @@ def test_drift_is_the_mobility_magnitude_across_the_transition():
 
 def test_auroral_demo_heats_ions_only_above_the_magnetisation_height():
     """In the high-latitude demo (1 km/s) the ions are magnetised above ~120–130 km
-    (ν_in = Ω_i; SCIENCE.md §4a; Kelley 2009, *The Earth's Ionosphere*, ch. 2, *from
+    (ν_in = Ω_i; docs/physics.md §4a; Kelley 2009, *The Earth's Ionosphere*, ch. 2, *from
     memory*): Ti is barely heated at 100 km and fully (m_n v²/3k, St.-Maurice & Torr 1978)
     above 200 km, and O+ at 100–106 km no longer reacts to the drift."""
     scen = ionochem.load_scenario(AURORAL)

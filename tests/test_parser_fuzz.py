@@ -1,6 +1,6 @@
 """Property and fuzz tests of the reaction-list reader and the expression compiler.
 
-The contract (DEVELOPERS.md, errors): every deliberate error derives from ``ionochem.Error``;
+The contract (docs/internals.md, errors): every deliberate error derives from ``ionochem.Error``;
 anything else escaping is a bug. Hypothesis feeds arbitrary text, bytes and token soup to the
 reader and the compiler; generated expression trees are checked against an evaluator written
 here.
@@ -11,6 +11,7 @@ import tempfile
 from pathlib import Path
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, assume, event, given, settings
 from hypothesis import strategies as st
 
@@ -207,6 +208,7 @@ power_trees = st.recursive(
 ).flatmap(lambda t: st.sampled_from([t, ("neg", t)]))
 
 
+@pytest.mark.slow  # about 5 s (1500 examples); the full suite runs it
 @settings(max_examples=1500, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(trees, st.randoms(use_true_random=False))
 def test_generated_expressions_match_a_tree_evaluation(tree, rnd):

@@ -18,7 +18,6 @@ from ionochem.environment.crosssections import (
     O2_DISSOCIATIVE_SHARE_50_100A,
     Spectrum,
     euvac_cross_sections,
-    load_user_spectrum,
     solar_spectrum,
     verner_cross_section_cm2,
 )
@@ -34,6 +33,7 @@ from ionochem.environment.photorates import (
     photoelectron_energies_eV,
     unattenuated_frequencies,
 )
+from ionochem.environment.user_spectrum import load_user_spectrum
 from ionochem.errors import InputError, ScenarioError
 
 HC = 12398.42  # eV angstrom
@@ -390,7 +390,7 @@ def test_user_spectrum_round_trip_and_derived_n2_dissociation(tmp_path):
 ])
 def test_user_spectrum_errors_are_reported_with_the_scenario_key(tmp_path, header, row, match):
     """Malformed spectrum files are scenario errors at the key that names them
-    (DEVELOPERS.md, error conventions), never silently accepted."""
+    (docs/internals.md, errors), never silently accepted."""
     p = tmp_path / "bad.csv"
     p.write_text(header + "\n" + row + "\n")
     with pytest.raises(ScenarioError, match=match) as info:

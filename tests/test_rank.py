@@ -124,11 +124,11 @@ def test_rank_cli_prints_both_tables_and_writes_files(column, tmp_path, capsys):
 @pytest.mark.parametrize("argv, message", [
     (["--species", "Xe+"], "no species Xe\\+"),
     (["--altitudes", "300"], "LOW_KM:HIGH_KM"),
-    (["--altitudes", "500:600"], "no level"),
+    (["--altitudes", "500:600"], "no altitude of the grid"),
     (["--top", "0"], "at least 1"),
 ])
 def test_rank_errors_are_one_line_input_errors(column, argv, message):
-    """Bad options raise ionochem.InputError with one line (DEVELOPERS.md, errors)."""
+    """Bad options raise ionochem.InputError with one line (docs/internals.md, errors)."""
     path, _ = _sens(column, CHAIN)
     with pytest.raises(ionochem.InputError, match=message) as info:
         _run(["rank", str(path), *argv])

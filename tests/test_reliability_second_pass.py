@@ -268,7 +268,7 @@ def test_library_applies_the_same_bounds(n):
     from ionochem.analysis.fit import fit
     from ionochem.analysis.uncertainty import monte_carlo
     from ionochem.rates.populations import level_populations
-    with pytest.raises(InputError, match="--bootstrap"):
+    with pytest.raises(InputError, match="n_boot"):
         level_populations(np.eye(2), np.ones(2), 0.1, method="bootstrap", n_boot=n)
     with pytest.raises(InputError, match="--profile-points"):
         fit(None, None, ["R1"], profile="R1", profile_points=n * 1000 if n > 1 else n)

@@ -198,7 +198,8 @@ def test_sha256_is_that_of_the_file_bytes(tmp_path, base):
 
 
 def test_scenario_is_frozen_and_replace_makes_a_changed_copy(base, tmp_path):
-    """DEVELOPERS.md, 'Scenario': a frozen dataclass with a dataclasses.replace-friendly design."""
+    """docs/internals.md, 'Scenario': a frozen dataclass with a dataclasses.replace-friendly
+    design."""
     s = scenario_from_dict(base, path="s.toml", base_dir=tmp_path)
     with pytest.raises(dataclasses.FrozenInstanceError):
         s.title = "other"

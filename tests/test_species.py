@@ -5,11 +5,15 @@ import math
 import pytest
 from scipy import constants
 
-from ionochem.mechanism.species import (
+from ionochem.cli.options import parse_budget as option_budget
+from ionochem.errors import InputError
+from ionochem.io.scenario import parse_budget as scenario_budget
+from ionochem.species import (
     ATOMIC_MASS_AMU,
     ELECTRON_MASS_AMU,
     format_elements,
     parse_species,
+    parse_species_at,
 )
 
 
@@ -56,7 +60,7 @@ def test_ground_terms_are_written_bare(written, canonical):
 
 
 def test_vibrational_and_electronic_state_parts():
-    """State 'electronic,v=N': base drops only the vibrational part (DEVELOPERS.md)."""
+    """State 'electronic,v=N': base drops only the vibrational part (docs/internals.md, Species)."""
     sp = parse_species("O2+(a,v=3)")
     assert (sp.electronic, sp.vib, sp.state, sp.base) == ("a", 3, "a,v=3", "O2+(a)")
     n2 = parse_species("N2+(v=1)")
@@ -101,3 +105,30 @@ def test_format_elements_sorts_and_drops_unit_counts():
     """Element totals read like a formula: N2 O (sorted, count 1 omitted)."""
     assert format_elements({"O": 1, "N": 2}) == "N2 O"
     assert format_elements({}) == "nothing"
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("N2+@200", ("N2+", 200.0)), ("O+(4S)@150.5", ("O+", 150.5)),
+    (" O+(total) @ 250 ", ("O+(total)", 250.0)), ("N2+(v=1)@2e2", ("N2+(v=1)", 200.0)),
+])
+def test_species_at_reads_the_canonical_name_and_the_height(text, expected):
+    """docs/scenario.md and docs/commands.md: SPECIES@KM, species written as in reaction
+    lists (docs/reaction-list.md, 'Species names': O+(4S) is written O+)."""
+    assert parse_species_at(text) == expected
+
+
+@pytest.mark.parametrize("bad, words", [
+    ("N2+", "is not SPECIES@KM"), ("N2+@", "is not SPECIES@KM"), ("@200", "names no species"),
+    ("Xq@200", "Xq"), ("N2+@high", "is not a number"), ("N2+@1_0", "is not a number"),
+    ("N2+@-5", "non-negative"), ("N2+@inf", "is not a number"),
+])
+def test_species_at_refuses_in_the_same_words_for_option_and_scenario(bad, words):
+    """One reader: `--budget` and the scenario's [output] budget give the same message."""
+    with pytest.raises(ValueError, match=words) as direct:
+        parse_species_at(bad)
+    with pytest.raises(ValueError) as scen:
+        scenario_budget(bad)
+    with pytest.raises(InputError) as opt:
+        option_budget(bad)
+    assert str(scen.value) == str(direct.value)
+    assert opt.value.file == "--budget" and opt.value.message == f"budget {direct.value}"

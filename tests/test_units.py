@@ -205,7 +205,7 @@ def test_sobol_on_units_of_the_demo_list(column):
     ds = global_sensitivity(model, 8, method="sobol", top=2, species=["O+"],
                             altitudes_km=[200.0])
     assert set(ds["factor"].values) == {"R(v)", "P1"}
-    with pytest.raises(InputError, match="member-correlation 0"):
+    with pytest.raises(InputError, match="`member_correlation` 0"):
         global_sensitivity(model, 8, method="sobol", top=2, members=True)
 
 

@@ -28,10 +28,13 @@ __all__ = ["MAX_BOOTSTRAP", "MAX_PROFILE_POINTS", "MAX_SEED", "check_count", "co
 def check_count(value, lo, hi, option, what="value"):
     """``value`` as an int, refused unless a whole number ``lo ≤ value ≤ hi``.
 
+    ``option`` names the caller's argument (``n_boot``); the command layer shows it as its
+    option (:mod:`ionochem.cli.wording`).
+
     Raises
     ------
     InputError
-        ``OPTION: …`` naming the bound.
+        ``ARGUMENT: …`` naming the bound.
     """
     try:
         ok = not isinstance(value, bool) and float(value).is_integer()

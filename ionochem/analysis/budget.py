@@ -38,16 +38,16 @@ def budget_table(ds, species: str, altitude_km: float, *, members: bool = False)
     figures are what ``members`` shows.
     """
     if "time" in ds["density"].dims:
-        raise InputError("budget: the result has a time axis; select one time first "
-                         "(ds.isel(time=-1))", file="--budget")
+        raise InputError("the result has a time axis; select one time first "
+                         "(ds.isel(time=-1))", file="ds")
     names = list(ds["species"].values)
     if species not in names:
-        raise InputError(f"budget: no species {species!r} in the result "
-                         f"(species: {', '.join(names)})", file="--budget")
+        raise InputError(f"no species {species!r} in the result "
+                         f"(species: {', '.join(names)})", file="species")
     alt = ds["altitude"].values
     if not alt.min() - 1e-9 <= altitude_km <= alt.max() + 1e-9:
-        raise InputError(f"budget: {altitude_km:g} km is outside the grid "
-                         f"{alt.min():g}-{alt.max():g} km", file="--budget")
+        raise InputError(f"{altitude_km:g} km is outside the grid "
+                         f"{alt.min():g}-{alt.max():g} km", file="altitude_km")
     a = int(np.argmin(np.abs(alt - altitude_km)))
     nu = ds["net_stoichiometry"].sel(species=species).values
     rate = ds["reaction_rate"].values[:, a]

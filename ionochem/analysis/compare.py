@@ -19,11 +19,13 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
-from ionochem.errors import InputError
+from ionochem import Model
+from ionochem.analysis.changes import given_entries, resolve_changes
+from ionochem.errors import InputError, MechanismError
 from ionochem.mechanism.units import check_ties
 
 #: Altitude bands of the summary, km: the E region (90-150 km), F1 (150-200 km) and the
-#: lower F2 region (200-300 km) as in SCIENCE.md §1 *(common practice)*. On a grid the
+#: lower F2 region (200-300 km) as in docs/physics.md §1 *(common practice)*. On a grid the
 #: summary uses :func:`default_bands`: these cut to the grid, with "D" below 90 km and
 #: "upper" from 300 km to the top of the grid when it reaches beyond them.
 DEFAULT_BANDS = {"E": (90.0, 150.0), "F1": (150.0, 200.0), "F2": (200.0, 300.0)}
@@ -88,7 +90,7 @@ def merge_replacements(baseline_list, replacements):
     missing = [i for i in new if i not in have]
     if missing:
         raise InputError(f"replacement entries name reactions not in the baseline list: "
-                         f"{', '.join(missing)} (to add new reactions use --add FILE)",
+                         f"{', '.join(missing)} (new reactions belong in `additions`)",
                          file=str(replacements.path))
     reactions = tuple(new.get(r.id, r) for r in baseline_list.reactions)
     return _merged(baseline_list, replacements, reactions, dict(baseline_list.families))
@@ -104,7 +106,7 @@ def merge_additions(baseline_list, additions):
     clash = [r.id for r in additions.reactions if r.id in have]
     if clash:
         raise InputError(f"added entries repeat ids of the baseline list: {', '.join(clash)} "
-                         "(to replace reactions use --reactions FILE)",
+                         "(replacements of baseline entries belong in `replacements`)",
                          file=str(additions.path))
     families = dict(baseline_list.families)
     families.update(additions.families)
@@ -167,7 +169,6 @@ def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), addit
     -------
     ionochem.Model
     """
-    from ionochem.analysis.changes import given_entries, resolve_changes
     final = baseline.reaction_list if alternative is None else alternative
     for rl in replacements:
         final = merge_replacements(final, rl)
@@ -185,8 +186,6 @@ def changed_model(baseline, *, set_dict=None, scale=None, replacements=(), addit
 def _model_with(baseline, reaction_list, plan):
     """A model of ``reaction_list`` with ``plan``'s changes on the baseline's column (its
     environment reused unless the new list or expressions need more)."""
-    from ionochem import Model
-    from ionochem.errors import MechanismError
     changes = (plan.set, plan.scale, "api", plan.dirs)
     scen = baseline.scenario
     try:
@@ -330,7 +329,7 @@ def _effective(ds):
 
 def _add_effective_rates(out, ds_b, ds_c):
     """The population-weighted rate coefficients of the reaction families both results
-    carry (DESIGN.md §7), baseline and changed (``effective_rate_coefficient_baseline`` /
+    carry (docs/design.md §7), baseline and changed (``effective_rate_coefficient_baseline`` /
     ``_changed``, and the ``_first_order``/``_third_order`` variants, each in its own unit),
     and ``effective_rate_change`` = changed / baseline: what a per-level change does to the
     rate an unresolved model would need."""
@@ -395,13 +394,13 @@ def parse_bands(text):
             lo_f, hi_f = float(lo), float(hi)
         except ValueError:
             raise InputError(f"band {item!r} must look like NAME=LOW_KM:HIGH_KM (E=90:150)",
-                             file="--bands") from None
+                             file="bands") from None
         if not (np.isfinite(lo_f) and np.isfinite(hi_f)) or hi_f <= lo_f:
             raise InputError(f"band {item!r}: the upper altitude must exceed the lower",
-                             file="--bands")
+                             file="bands")
         bands[name.strip()] = (lo_f, hi_f)
     if not bands:
-        raise InputError("no altitude band given", file="--bands")
+        raise InputError("no altitude band given", file="bands")
     return bands
 
 

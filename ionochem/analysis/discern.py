@@ -9,9 +9,9 @@ linearised). What else is uncertain enters through the exact sensitivities g = �
 (:func:`ionochem.analysis.sensitivity.sensitivity`; a ratio's is the difference of its two
 species'):
 
-- the rate list's own one-sigma factors σ_j = ln f_j at each level (a tabulated band: its
+- the rate list's own one-sigma factors σ_j = ln f_j at each altitude (a tabulated band: its
   symmetric half-width, as in :class:`~ionochem.analysis.sampling.SampleKernel`), one
-  multiplier per reaction shared by every level, the members of a unit of analysis
+  multiplier per reaction shared by every altitude, the members of a unit of analysis
   (family, tie) correlated with ρ (``member_correlation``), units independent. The reactions
   the change touches (their whole units) are **excluded**: their uncertainty is the
   question, not noise;
@@ -34,9 +34,9 @@ model's when the change is small. Then
 
 - ``separation`` = |Δ| / sqrt(C_pp + var_meas,p) at each point p (observable, altitude);
 - ``separation_profile`` = sqrt(Δᵀ (C + D)⁻¹ Δ) over the chosen altitudes of one observable
-  (D the diagonal measurement noise): the factors are shared by every level, so C is
-  strongly correlated across altitudes and the levels are **not** independent;
-- ``separation_band`` the same over the levels of each altitude band, and
+  (D the diagonal measurement noise): the factors are shared by every altitude, so C is
+  strongly correlated across altitudes and the altitude rows are **not** independent;
+- ``separation_band`` the same over the altitude rows of each band, and
   ``separation_combined`` over every observable and chosen altitude at once.
 
 (C + D)⁻¹ is applied through the Woodbury identity with D diagonal and V of a few hundred
@@ -51,6 +51,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ionochem.analysis.fit import model_on
+from ionochem.analysis.sensitivity import environment_factors
+from ionochem.analysis.units import unit_map
 from ionochem.errors import InputError
 
 #: Default one-sigma multiplicative spreads of the environment factors *(common practice:
@@ -111,7 +114,7 @@ class Uncertain:
     member_correlation: float = 1.0
 
 
-def parse_observables(items, species, *, where="--observable"):
+def parse_observables(items, species, *, where="observables"):
     """``["N2+", "N2+/O+"]`` → Observables; every species must be one of ``species``."""
     out = []
     for item in items:
@@ -131,7 +134,7 @@ def parse_observables(items, species, *, where="--observable"):
     return out
 
 
-def parse_error(text, *, where="--error"):
+def parse_error(text, *, where="error"):
     """``"0.25"`` or ``"0.25:100"`` → MeasurementError(relative, absolute); both ≥ 0."""
     rel, sep, ab = str(text).partition(":")
     try:
@@ -145,7 +148,7 @@ def parse_error(text, *, where="--error"):
     return MeasurementError(r, a)
 
 
-def parse_environment(text, *, where="--environment"):
+def parse_environment(text, *, where="environment"):
     """``"EUV=1.3,n(O)=1.1,Tn=1.05"`` (or ``none``) → (spreads over the defaults, the names
     given).
 
@@ -181,14 +184,13 @@ def check_spreads(spreads, model, named=()):
     """The spreads of the factors the model has: a default of a factor it lacks is dropped,
     a factor the user ``named`` that it lacks (``n(Ar)`` when Ar reacts nowhere, ``Ti``
     when no rate reads it) is refused."""
-    from ionochem.analysis.sensitivity import environment_factors
     # Te is always a factor; only the names are wanted, not the derivatives.
     dlnk_te = np.zeros((len(model.altitude_km), len(model.reactions)))
     known = [f for f, _ in environment_factors(model, dlnk_te)[0]]
     for name in named:
         if name not in known:
             raise InputError(f"no environment factor {name!r} in this model (factors: "
-                             f"{', '.join(known)})", file="--environment")
+                             f"{', '.join(known)})", file="environment")
     return {k: v for k, v in spreads.items() if k in known}
 
 
@@ -252,7 +254,6 @@ def factor_columns(model, sens, observables, uncertain, exclude):
 
     Also returns the labels of the K columns (unit names, then environment factors).
     """
-    from ionochem.analysis.units import unit_map
     lny, gr, ge = observable_arrays(sens, observables)
     gr, ge = np.nan_to_num(gr), np.nan_to_num(ge)
     sigma = _log_sigma(model)                             # (A, R)
@@ -357,7 +358,7 @@ def separate(baseline, changed, observables, errors, uncertain, *, altitude_rang
         Observable name → MeasurementError (missing: the default).
     uncertain : Uncertain
     altitude_range : (lo, hi) km, optional
-        Levels combined in ``profile`` and ``combined`` (default all).
+        Altitude rows combined in ``profile`` and ``combined`` (default all).
     bands : dict name → (lo, hi) km
     sens_baseline, sens_changed : xarray.Dataset, optional
         Their sensitivities, if already computed.
@@ -406,7 +407,6 @@ def given_electron_models(baseline, changed, balance_ion="O+"):
     ``[solve] electrons = "table"`` with Ne on the grid, ``balance_ion`` the rest."""
     import dataclasses
 
-    from ionochem.analysis.fit import model_on
     res = baseline.solve()
     ne = np.nan_to_num(res["density"].sel(species="e").values)
     out = []

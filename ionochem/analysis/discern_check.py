@@ -20,8 +20,12 @@ from __future__ import annotations
 
 import numpy as np
 
+from ionochem.analysis.discern import separate
+from ionochem.analysis.discern_sweep import no_fill_on_coordinates, point_models
 from ionochem.analysis.ensemble import run_ensemble
 from ionochem.analysis.sampling import ENV_EUV, ENV_TE, SampleKernel, draw_normals
+from ionochem.analysis.sweep import point_scenario
+from ionochem.analysis.sweep_axes import point_values
 from ionochem.analysis.uncertainty import species_samples
 
 #: Bootstrap resamples of the sampling error *(common practice: 200 give the standard error
@@ -122,10 +126,6 @@ def add_checks(ds, spec, points, make_changed, observables, errors, uncertain, s
     """Run :func:`monte_carlo_check` at sweep points ``points`` (indices) and add
     ``separation_montecarlo``, ``separation_montecarlo_stderr`` and
     ``separation_check_linear`` (check_point, observable, altitude) to ``ds``."""
-    from ionochem.analysis.discern import separate
-    from ionochem.analysis.discern_sweep import no_fill_on_coordinates, point_models
-    from ionochem.analysis.sweep import point_scenario
-    from ionochem.analysis.sweep_axes import point_values
     mc, se, lin, skipped = [], [], [], set()
     for i in points:
         values = point_values(spec.axes, i)

@@ -22,15 +22,16 @@ from ionochem.analysis.discern import (
     given_electron_models,
     separate,
 )
+from ionochem.analysis.sweep import point_scenario
 from ionochem.analysis.sweep_axes import AXIS_ATTRS, grid_shape, point_count, point_values
 from ionochem.io.dataset import provenance
+from ionochem.model import Model
 
 SEPARATION_UNITS = "1"
 
 
 def point_models(scenario, reaction_list, make_changed, electrons_given=False):
     """Baseline and changed models of one scenario."""
-    from ionochem.model import Model
     base = Model(scenario, reaction_list=reaction_list)
     changed = make_changed(base)
     if electrons_given:
@@ -54,7 +55,6 @@ def discern(spec, make_changed, observables, errors, uncertain, *, electrons_giv
         ``combined_log_std`` (sqrt of the averaged model variance plus the measurement's),
         ``linear_doubtful`` (flag).
     """
-    from ionochem.analysis.sweep import point_scenario
     bands = dict(DISCERN_BANDS if bands is None else bands)
     shape = grid_shape(spec.axes)
     total = point_count(spec.axes)

@@ -4,7 +4,7 @@ Morris screening, with SALib, on the batched solver of :mod:`ionochem.analysis.u
 Factors
 -------
 The inputs are the same standard normals ε_j as in the Monte Carlo (ln k_j = ln k_j +
-ε_j ln f_j, one draw per reaction shared by every level), for the ``top`` reactions with the
+ε_j ln f_j, one draw per reaction shared by every altitude row), for the ``top`` reactions with the
 largest first-order variance share S_ij² ln² f_j / Σ (its mean over the chosen species
 and altitudes), plus any varied environment factor (``euv``, ``Te``, a fixed neutral).
 Every other rate stays at its central value.
@@ -33,6 +33,7 @@ import warnings
 import numpy as np
 import xarray as xr
 
+from ionochem.analysis.sensitivity import sensitivity
 from ionochem.analysis.uncertainty import (
     SampleKernel,
     linear_variance_shares,
@@ -42,6 +43,7 @@ from ionochem.analysis.uncertainty import (
     species_samples,
 )
 from ionochem.errors import InputError
+from ionochem.io.dataset import ALTITUDE_ATTRS, provenance
 
 MAIN_SPECIES = ("N2+", "O2+", "NO+", "O+(total)", "O+", "e")
 DEFAULT_ALTITUDES_KM = (100.0, 120.0, 150.0, 200.0, 250.0, 300.0, 400.0)
@@ -58,9 +60,9 @@ def default_species(names):
     return out
 
 
-def nearest_levels(altitude_km, wanted_km=None):
-    """Indices of the grid levels nearest to ``wanted_km`` (default a standard set inside
-    the grid; the bottom, middle and top level if none falls inside)."""
+def nearest_rows(altitude_km, wanted_km=None):
+    """Indices of the altitude rows nearest to ``wanted_km`` (default a standard set inside
+    the grid; the bottom, middle and top row if none falls inside)."""
     alt = np.asarray(altitude_km, float)
     if wanted_km is None:
         wanted_km = [a for a in DEFAULT_ALTITUDES_KM if alt.min() <= a <= alt.max()]
@@ -71,22 +73,22 @@ def nearest_levels(altitude_km, wanted_km=None):
         a = float(a)
         if not (alt.min() - 1e-9 <= a <= alt.max() + 1e-9):
             raise InputError(f"altitude {a:g} km is outside the grid "
-                             f"({alt.min():g}..{alt.max():g} km)", file="--altitudes")
+                             f"({alt.min():g}..{alt.max():g} km)", file="altitudes_km")
         i = int(np.argmin(np.abs(alt - a)))
         if i not in out:
             out.append(i)
     return sorted(out)
 
 
-def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=None):
+def select_top_reactions(linear_share, species_idx, row_idx, top, candidates=None):
     """The ``top`` reactions with the largest mean first-order variance share.
 
     Parameters
     ----------
     linear_share : ndarray (species, R, A)
         From :func:`~ionochem.analysis.uncertainty.linear_variance_shares`.
-    species_idx, level_idx : sequence of int
-        The species and altitude levels that count.
+    species_idx, row_idx : sequence of int
+        The species and altitude rows that count.
     top : int
     candidates : sequence of int, optional
         Reactions allowed (the varied ones).
@@ -97,9 +99,9 @@ def select_top_reactions(linear_share, species_idx, level_idx, top, candidates=N
         Reaction indices, largest share first.
     """
     sub = np.nan_to_num(linear_share[np.ix_(list(species_idx), np.arange(linear_share.shape[1]),
-                                            list(level_idx))])
-    # The mean share over the chosen species and levels: a reaction that carries a large part
-    # of the variance over a wide height range outranks one that dominates a single level.
+                                            list(row_idx))])
+    # The mean share over the chosen species and altitude rows: a reaction that carries a large part
+    # of the variance over a wide height range outranks one that dominates a single altitude.
     score = sub.mean(axis=(0, 2))
     allowed = np.arange(score.size) if candidates is None else np.asarray(candidates, int)
     allowed = allowed[score[allowed] > 0]
@@ -164,7 +166,7 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     seed : int
         Seed of the SALib design and of its bootstrap.
     altitudes_km : sequence of float, optional
-        Altitudes analysed (nearest levels; default a standard set inside the grid).
+        Altitudes analysed (nearest altitude rows; default a standard set inside the grid).
     species : sequence of str, optional
         Species analysed (default N2+, O2+, NO+, O+(total) or O+, e).
     environment : dict, optional
@@ -182,26 +184,12 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
         or ``mu_star``, ``mu_star_conf``, ``mu``, ``sigma`` (morris), and
         ``variance_share_linear`` of the same factors for comparison.
     """
-    if method not in METHODS:
-        raise InputError(f"unknown method {method!r} (sobol or morris)", file="--method")
-    samples = int(samples)
-    if samples < 2:
-        raise InputError("--samples must be at least 2", file="--samples")
-    if int(top) < 1:
-        raise InputError("--top must be at least 1", file="--top")
-    if members and member_correlation != 0:
-        raise InputError("ranking the members of a unit apart needs independent members: "
-                         "give --member-correlation 0", file="--members")
+    samples = _check_arguments(method, samples, top, members, member_correlation)
     kernel = SampleKernel(model, environment, member_correlation)
     central = model.solve()
     names = list(central["species"].values)
-    species = list(species) if species else default_species(names)
-    unknown = [s for s in species if s not in names]
-    if unknown or not species:
-        raise InputError(f"unknown species {', '.join(unknown) or '(none)'}; the column has "
-                         f"{', '.join(names)}", file="--species")
-    sp_idx = [names.index(s) for s in species]
-    lv_idx = nearest_levels(model.altitude_km, altitudes_km)
+    species, sp_idx = _species_of(species, names)
+    lv_idx = nearest_rows(model.altitude_km, altitudes_km)
     factor_names, columns, groups, lin_sel = _choose_factors(
         model, kernel, central, names, sp_idx, lv_idx, top, members)
     column_names = [kernel.factor_names[c] for c in columns]
@@ -212,17 +200,8 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     store = open_store(output, manifest_for(model, kernel, method, samples, seed,
                                             factors=factor_names, runs=runs),
                        resume=resume)
-
-    def rows(a, b):
-        return Z[a:b]
-
-    try:
-        z, n = run_ensemble(model, kernel, rows, runs, batch=batch, workers=workers,
-                            scheduler=scheduler, store=store, progress=progress,
-                            on_batch=on_batch)
-    finally:
-        if store is not None:
-            store.close()
+    z, n = _solve_design(model, kernel, Z, store, batch=batch, workers=workers,
+                         scheduler=scheduler, progress=progress, on_batch=on_batch)
     dens, _, _ = species_samples(model, kernel, z, n)                 # (runs, A, Nsp)
     sub = dens[:, lv_idx][:, :, sp_idx]                               # (runs, L, Ns)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -243,15 +222,52 @@ def global_sensitivity(model, samples, *, method="sobol", top=10, seed=0, altitu
     return ds
 
 
+def _solve_design(model, kernel, Z, store, **ensemble):
+    """Solve every run of the design ``Z`` (runs, factor columns) as one ensemble, stored
+    in ``store`` (closed afterwards) when there is one."""
+    def rows(a, b):
+        return Z[a:b]
+
+    try:
+        return run_ensemble(model, kernel, rows, Z.shape[0], store=store, **ensemble)
+    finally:
+        if store is not None:
+            store.close()
+
+
+def _species_of(species, names):
+    """The species asked for (default the main ones) and their indices in ``names``."""
+    species = list(species) if species else default_species(names)
+    unknown = [s for s in species if s not in names]
+    if unknown or not species:
+        raise InputError(f"unknown species {', '.join(unknown) or '(none)'}; the column has "
+                         f"{', '.join(names)}", file="species")
+    return species, [names.index(s) for s in species]
+
+
+def _check_arguments(method, samples, top, members, member_correlation):
+    """Refuse bad arguments before any solve; returns ``samples`` as an int."""
+    if method not in METHODS:
+        raise InputError(f"unknown method {method!r} (sobol or morris)", file="method")
+    samples = int(samples)
+    if samples < 2:
+        raise InputError(f"must be at least 2, not {samples}", file="samples")
+    if int(top) < 1:
+        raise InputError(f"must be at least 1, not {top}", file="top")
+    if members and member_correlation != 0:
+        raise InputError("ranking the members of a unit apart needs independent members: "
+                         "give `member_correlation` 0", file="members")
+    return samples
+
+
 def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=False):
     """The ``top`` units (reactions with ``members``) by first-order variance share, plus
     the varied environment.
 
     Returns the factor names, the columns of the draws that SALib varies with the group
-    (factor) of each, and the first-order shares (species, factor, level) of the factors at
-    the chosen levels.
+    (factor) of each, and the first-order shares (species, factor, altitude) of the factors at
+    the chosen altitude rows.
     """
-    from ionochem.analysis.sensitivity import sensitivity
     sens = sensitivity(model, central)
     lin_r, lin_e = linear_variance_shares(model, kernel, sens, units=not members)
     sens_names = list(sens["species"].values)
@@ -279,13 +295,13 @@ def _choose_factors(model, kernel, central, names, sp_idx, lv_idx, top, members=
     groups += list(env_cols)
     if not columns:
         raise InputError("no uncertain reaction or environment factor to analyse (every f "
-                         "is 1)", file="--method")
+                         "is 1)", file="method")
     lin_all = np.concatenate([lin_r[:, chosen], lin_e], axis=1)       # (Nsp, F, A)
     return factor_names, columns, groups, lin_all[sp_idx][:, :, lv_idx]
 
 
 def _indices(problem, X, Y, method, seed, num_resamples, n_factors):
-    """SALib indices of ln n, {key: (species, factor, level)}; NaN where ln n is flat."""
+    """SALib indices of ln n, {key: (species, factor, altitude)}; NaN where ln n is flat."""
     keys = (("S1", "S1_conf", "ST", "ST_conf") if method == "sobol"
             else ("mu_star", "mu_star_conf", "mu", "sigma"))
     L, Ns = Y.shape[1], Y.shape[2]
@@ -320,7 +336,6 @@ LONG_NAMES = {
 def _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, lv_idx,
                     factor_names):
     """The result dataset of :func:`global_sensitivity` (without the method attributes)."""
-    from ionochem.io.dataset import ALTITUDE_ATTRS, provenance
     data = {key: (("species", "factor", "altitude"), val,
                   {"units": "1", "long_name": LONG_NAMES[key]})
             for key, val in indices.items()}
@@ -340,7 +355,7 @@ def _global_dataset(model, kernel, central, indices, lin_sel, species, sp_idx, l
         attrs=provenance(model))
     ds.attrs.update({
         "factors": ", ".join(factor_names),
-        "factor_definition": "a unit of analysis (or a reaction with --members): its "
+        "factor_definition": "a unit of analysis (or a reaction, members apart): its "
                              "members' ln k_j = ln k_j + eps_j ln f_j(altitude) with eps_j = "
                              "sqrt(rho) z_unit + sqrt(1 - rho) z_j, z standard normals shared "
                              "by every altitude; the z of one factor form one SALib group; "

@@ -6,7 +6,7 @@ Input is a sensitivity dataset (:func:`ionochem.analysis.sensitivity.sensitivity
 EUV flux, fixed neutral densities; older files carry only ``sensitivity_Te``). The
 environment factors enter the ranking as pseudo-reactions named ``Te``, ``EUV``, ``n(O)``….
 Two measures over an altitude range: the largest |S| (with its sign and the altitude where
-it occurs) and the mean |S| over the levels in the range, counting only the levels where the
+it occurs) and the mean |S| over the altitude rows in the range, counting only the rows where the
 species is at least a share of its own peak (:data:`DEFAULT_MIN_SHARE`).
 A reaction that matters strongly in a thin layer ranks high on the first, one that matters
 everywhere on the second.
@@ -22,14 +22,14 @@ import numpy as np
 import xarray as xr
 
 from ionochem.analysis.compare import main_species
-from ionochem.analysis.units import sum_over_units, unit_map_from_dataset
+from ionochem.analysis.units import sum_over_units, unit_coords, unit_map_from_dataset
 from ionochem.errors import InputError
 
 TE_NAME = "Te"
 
-#: Levels where a species is below this share of its own peak density (in the altitude
+#: Altitude rows where a species is below this share of its own peak density (in the altitude
 #: range) are left out of its ranking: a sensitivity where the ion is a trace (O+ at 90 km)
-#: says nothing a user needs *(common practice)*. ``min_share=0`` ranks over every level.
+#: says nothing a user needs *(common practice)*. ``min_share=0`` ranks over every altitude row.
 DEFAULT_MIN_SHARE = 0.01
 def default_species(names):
     """N2+, O2+, NO+, O+(total) (or O+ without metastables), e — those present."""
@@ -41,7 +41,7 @@ class RankRow:
     """One reaction's influence on one species over an altitude range.
 
     ``max_abs`` is the largest |S|, ``signed_at_max`` the value of S there (with its sign)
-    at ``altitude_km``; ``mean_abs`` the mean |S| over the levels of the range;
+    at ``altitude_km``; ``mean_abs`` the mean |S| over the altitude rows of the range;
     ``rank_max`` and ``rank_mean`` the 1-based places by each measure.
     """
 
@@ -65,22 +65,22 @@ def parse_altitude_range(text):
         lo_f, hi_f = float(lo), float(hi)
     except ValueError:
         raise InputError(f"altitude range {text!r} must look like LOW_KM:HIGH_KM (150:300)",
-                         file="--altitudes") from None
+                         file="altitude_range") from None
     if not (np.isfinite(lo_f) and np.isfinite(hi_f)) or hi_f < lo_f:
         raise InputError(f"altitude range {text!r}: the upper altitude is below the lower",
-                         file="--altitudes")
+                         file="altitude_range")
     return lo_f, hi_f
 
 
-def _levels(sens_ds, altitude_range):
+def _rows_in_range(sens_ds, altitude_range):
     alt = sens_ds["altitude"].values
     if altitude_range is None:
         return np.ones(alt.size, bool)
     lo, hi = altitude_range
     inside = (alt >= lo - 1e-9) & (alt <= hi + 1e-9)
     if not inside.any():
-        raise InputError(f"no level of the grid ({alt.min():g}-{alt.max():g} km) lies in "
-                         f"{lo:g}-{hi:g} km", file="--altitudes")
+        raise InputError(f"no altitude of the grid ({alt.min():g}-{alt.max():g} km) lies in "
+                         f"{lo:g}-{hi:g} km", file="altitude_range")
     return inside
 
 
@@ -106,23 +106,23 @@ def sensitivity_matrix(sens_ds, species, altitude_range=None, *, members=False):
     names : list of str
         Unit names (reaction ids with ``members``), then the factors (``"Te"``, …).
     equations : list of str
-    S : ndarray (unit + factor, level)
-        Dimensionless; NaN at dark levels.
-    altitude_km : ndarray (level,)
+    S : ndarray (unit + factor, altitude)
+        Dimensionless; NaN at dark altitude rows.
+    altitude_km : ndarray (altitude,)
     """
     names = list(sens_ds["species"].values)
     if species not in names:
         raise InputError(f"no species {species!r} in the result (species: "
-                         f"{', '.join(names)})", file="--species")
-    inside = _levels(sens_ds, altitude_range)
+                         f"{', '.join(names)})", file="species")
+    inside = _rows_in_range(sens_ds, altitude_range)
     if members:
-        S = sens_ds["sensitivity"].sel(species=species).values[:, inside]  # (R, level)
+        S = sens_ds["sensitivity"].sel(species=species).values[:, inside]  # (R, altitude)
         ids = [str(r) for r in sens_ds["reaction"].values]
         eqs = ([str(e) for e in sens_ds["equation"].values] if "equation" in sens_ds.coords
                else [""] * len(ids))
     else:
         ids, eqs, S_all = unit_sensitivity(sens_ds)
-        S = S_all[names.index(species)][:, inside]                       # (U, level)
+        S = S_all[names.index(species)][:, inside]                       # (U, altitude)
     names, descr, S_env = environment_rows(sens_ds, species)
     return (ids + names, eqs + descr, np.vstack([S, S_env[:, inside]]),
             sens_ds["altitude"].values[inside])
@@ -141,11 +141,11 @@ def environment_rows(sens_ds, species):
 
 
 def where_it_matters(sens_ds, species, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
-    """Levels of the range where ``species`` is at least ``min_share`` of its peak there.
+    """Altitude rows of the range where ``species`` is at least ``min_share`` of its peak there.
 
-    Returns a boolean array over the levels of the range (all True without densities).
+    Returns a boolean array over the altitude rows of the range (all True without densities).
     """
-    inside = _levels(sens_ds, altitude_range)
+    inside = _rows_in_range(sens_ds, altitude_range)
     if "density" not in sens_ds or not min_share:
         return np.ones(int(inside.sum()), bool)
     n = np.asarray(sens_ds["density"].sel(species=species).values, float)[inside]
@@ -176,8 +176,8 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max",
     by : {"max", "mean"}
         Order by the largest |S| or by the altitude-mean |S|.
     min_share : float
-        Rank over the levels where the species is at least this share of its own peak
-        density in the range (:func:`where_it_matters`; 0: every level).
+        Rank over the altitude rows where the species is at least this share of its own peak
+        density in the range (:func:`where_it_matters`; 0: every row).
 
     Returns
     -------
@@ -188,7 +188,7 @@ def rank_reactions(sens_ds, species, altitude_range=None, top=10, *, by="max",
     if by not in ("max", "mean"):
         raise ValueError(f"by must be 'max' or 'mean', not {by!r}")
     if top is not None and int(top) < 1:
-        raise InputError("--top must be at least 1", file="--top")
+        raise InputError(f"must be at least 1, not {top}", file="top")
     species = [species] if isinstance(species, str) else list(species)
     rows = []
     for s in species:
@@ -246,7 +246,7 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
 
     Adds ``max_abs_sensitivity``, ``signed_sensitivity_at_max``,
     ``altitude_of_max_sensitivity`` and ``mean_abs_sensitivity`` over (species, reaction),
-    and the same for Te with the suffix ``_Te`` over (species), for the levels in
+    and the same for Te with the suffix ``_Te`` over (species), for the altitude rows in
     ``altitude_range`` (km, stored as the attribute ``ranking_altitude_range_km``).
     """
     out = sens_ds.copy()
@@ -267,7 +267,7 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
     specs = (("max_abs_sensitivity", mx, "1", "largest |d ln n / d ln k| over the range"),
              ("signed_sensitivity_at_max", sg, "1", "d ln n / d ln k where |S| is largest"),
              ("altitude_of_max_sensitivity", at, "km", "altitude of the largest |S|"),
-             ("mean_abs_sensitivity", mean, "1", "mean |d ln n / d ln k| over the levels "
+             ("mean_abs_sensitivity", mean, "1", "mean |d ln n / d ln k| over the altitude rows "
               "of the range"))
     for name, arr, units, long in specs:
         out[name] = xr.Variable(("species", "reaction"), arr[:, :R],
@@ -293,7 +293,6 @@ def ranking_dataset(sens_ds, altitude_range=None, min_share=DEFAULT_MIN_SHARE):
 def _unit_measures(out, sens_ds, names, altitude_range, min_share, specs):
     """The four measures over (species, unit), suffix ``_unit``, and the unit coordinates
     (plus ``sensitivity_unit`` for files written before units existed)."""
-    from ionochem.analysis.units import unit_coords
     umap = unit_map_from_dataset(sens_ds)
     if "sensitivity_unit" not in out:
         out = out.assign_coords({k: v for k, v in unit_coords(umap).items()})

@@ -14,6 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ionochem.io.dataset import unit_coordinates
+
 __all__ = ["UnitMap", "unit_map", "unit_map_from_dataset", "unit_coords", "sum_over_units"]
 
 _LEVEL = re.compile(r"\(v=-?[0-9]+\)$")
@@ -65,7 +67,6 @@ def unit_map(model) -> UnitMap:
     """The unit map of a model's reactions (``model.units``)."""
     import xarray as xr
 
-    from ionochem.io.dataset import unit_coordinates
     coords = dict(unit_coordinates(model))
     coords["reaction"] = ("reaction", np.array(model.reactions, dtype=object))
     return unit_map_from_dataset(xr.Dataset(coords=coords))

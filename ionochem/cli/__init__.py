@@ -4,6 +4,13 @@
 Every :class:`ionochem.Error` becomes one line on stderr (``file:line: message``, or
 ``file: key: message`` for scenarios) and exit status 2; a traceback means a bug (exit 1).
 Nothing below the command layer imports it.
+
+Lazy imports, for start-up speed: building the parser imports every command module, so a
+command module imports the library (the model, analyses, plots, rate toolkit, anything that
+loads numpy, scipy, xarray or matplotlib) inside its command function, where only the
+command that runs pays for it. Such imports are the documented exception to "imports at
+module top" (docs/style.md); ``tests/test_cli_imports.py`` guards what ``--help``,
+``check`` and ``run`` load. Imports between command modules stay at module top.
 """
 
 from __future__ import annotations
@@ -15,6 +22,7 @@ import importlib
 import os
 import sys
 
+from ionochem.cli.wording import option_flags, worded
 from ionochem.errors import Error
 
 #: Subcommand modules of this package, in the order ``ionochem --help`` lists them; each
@@ -34,7 +42,24 @@ def build_parser():
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for name in COMMANDS:
         importlib.import_module(f"ionochem.cli.{name}").register(sub)
+    _word_errors(p, {}, set())
     return p
+
+
+def _word_errors(parser, inherited, seen):
+    """Wrap the command function of ``parser`` and of its subcommands so that library errors
+    name options (:mod:`ionochem.cli.wording`)."""
+    if id(parser) in seen:
+        return
+    seen.add(id(parser))
+    flags = {**inherited, **option_flags(parser)}
+    func = parser.get_default("func")
+    if func is not None:
+        parser.set_defaults(func=worded(func, flags))
+    for action in parser._actions:      # argparse keeps no public list of subparsers
+        if isinstance(action, argparse._SubParsersAction):
+            for child in action.choices.values():
+                _word_errors(child, flags, seen)
 
 
 #: Commands that never use dask: they run with its import blocked (see _WithoutDask).

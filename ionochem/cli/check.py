@@ -21,7 +21,7 @@ def plural(n, word, many=None):
 
 
 def cmd_check(args):
-    from ionochem.environment.column import NEUTRAL_SPECIES
+    from ionochem.environment.neutrals import NEUTRAL_SPECIES
     from ionochem.mechanism.mechanism import Mechanism
     from ionochem.mechanism.parser import parse_reaction_list
     rl = parse_reaction_list(args.file)

@@ -5,7 +5,7 @@ A transient run over ``times_s = [0, 1e9]`` would integrate for days and an ense
 estimate both and refuse, naming the option and the bound, unless ``--allow-long`` is given.
 Memory has a ceiling that ``--allow-long`` does not lift. The bounds (docs/scenario.md, "Long
 runs") are round numbers *(common practice)*: a transient run of two simulated days takes a
-few minutes on one core for a 200-level column, an ensemble of two million level solves a
+few minutes on one core for a 200-row column, an ensemble of two million altitude-row solves a
 few minutes as well.
 """
 
@@ -15,8 +15,10 @@ from ionochem.errors import InputError
 
 #: Longest simulated span of a transient run without --allow-long (s): two days.
 MAX_TRANSIENT_SPAN_S = 2 * 86400.0
-#: Most level solves (samples × model runs per sample × levels) without --allow-long.
-MAX_LEVEL_SOLVES = 2_000_000
+#: Most altitude-row solves (samples × model runs per sample × rows) without --allow-long.
+MAX_ROW_SOLVES = 2_000_000
+#: The old name, still imported by cli/sweep.py (issue 25 renames its use).
+MAX_LEVEL_SOLVES = MAX_ROW_SOLVES
 #: Ceiling of the estimated memory of the results (bytes), --allow-long or not.
 MAX_RESULT_BYTES = 4 * 1024 ** 3
 
@@ -41,14 +43,14 @@ def check_transient(scenario, n_species, n_reactions, *, allow_long=False):
     if not times:
         return
     span = float(times[-1])
-    levels = len(scenario.grid.altitude_km)
+    rows = len(scenario.grid.altitude_km)
     # density, production, loss (species) and rate coefficients and rates (reactions),
-    # float64, per output time and level; times three for the copies made while writing.
-    nbytes = 3 * 8 * len(times) * levels * (3 * n_species + 2 * n_reactions)
+    # float64, per output time and altitude row; times three for the copies made while writing.
+    nbytes = 3 * 8 * len(times) * rows * (3 * n_species + 2 * n_reactions)
     if nbytes > MAX_RESULT_BYTES:
-        raise InputError(f"{len(times)} output times × {levels} levels would need about "
+        raise InputError(f"{len(times)} output times × {rows} altitude rows would need about "
                          f"{_gib(nbytes)} of memory, above the {_gib(MAX_RESULT_BYTES)} "
-                         "ceiling; give fewer output times or levels",
+                         "ceiling; give fewer output times or altitude rows",
                          file=scenario.source, key="solve.times_s")
     if span > MAX_TRANSIENT_SPAN_S and not allow_long:
         raise InputError(f"the run spans {span:g} s ({span / 86400:.3g} days), beyond the "
@@ -58,18 +60,19 @@ def check_transient(scenario, n_species, n_reactions, *, allow_long=False):
                          file=scenario.source, key="solve.times_s")
 
 
-def check_ensemble(samples, runs_per_sample, levels, n_species, n_reactions, *,
+def check_ensemble(samples, runs_per_sample, rows, n_species, n_reactions, *,
                    allow_long=False):
     """Refuse an ensemble whose work or memory is beyond the bounds (``--samples``)."""
-    solves = samples * runs_per_sample * levels
-    nbytes = 8 * samples * runs_per_sample * levels * (n_species + n_reactions)
+    solves = samples * runs_per_sample * rows
+    nbytes = 8 * samples * runs_per_sample * rows * (n_species + n_reactions)
     if nbytes > MAX_RESULT_BYTES:
         raise InputError(f"{samples} samples would need about {_gib(nbytes)} of memory, above "
-                         f"the {_gib(MAX_RESULT_BYTES)} ceiling; use fewer samples or levels",
+                         f"the {_gib(MAX_RESULT_BYTES)} ceiling; use fewer samples or "
+                         "altitude rows",
                          file="--samples")
-    if solves > MAX_LEVEL_SOLVES and not allow_long:
-        raise InputError(f"{samples} samples mean {solves:.3g} level solves, beyond the "
-                         f"{MAX_LEVEL_SOLVES:.0e} allowed without --allow-long; use fewer "
+    if solves > MAX_ROW_SOLVES and not allow_long:
+        raise InputError(f"{samples} samples mean {solves:.3g} altitude-row solves, beyond the "
+                         f"{MAX_ROW_SOLVES:.0e} allowed without --allow-long; use fewer "
                          "samples or add --allow-long", file="--samples")
 
 

@@ -14,7 +14,9 @@ import stat
 import sys
 from pathlib import Path
 
+from ionochem.cli.steady_at import analysis_scenario
 from ionochem.errors import InputError
+from ionochem.species import parse_species_at
 
 #: Heights of the printed tables, km *(common practice: the E, F1 and F2 regions)*.
 DEFAULT_REPORT_KM = (100, 120, 150, 200, 250, 300, 400)
@@ -113,22 +115,12 @@ def workers_option(text):
 
 
 def parse_budget(item):
-    """``"N2+@200"`` → ``("N2+", 200.0)``."""
-    import numpy as np
-    if "@" not in item:
-        raise InputError(f"budget {item!r} must look like SPECIES@KM (N2+@200)",
-                         file="--budget")
-    name, km = item.rsplit("@", 1)
-    if not name.strip():
-        raise InputError(f"budget {item!r} names no species; it must look like SPECIES@KM "
-                         "(N2+@200)", file="--budget")
+    """``"N2+@200"`` → ``("N2+", 200.0)`` (:func:`ionochem.species.parse_species_at`, the
+    one reader of ``SPECIES@KM``), refused as ``--budget: ...``."""
     try:
-        value = float(km)
-    except ValueError:
-        raise InputError(f"budget altitude {km!r} is not a number", file="--budget") from None
-    if not np.isfinite(value):
-        raise InputError(f"budget altitude {km!r} is not a finite number", file="--budget")
-    return name.strip(), value
+        return parse_species_at(item)
+    except ValueError as exc:
+        raise InputError(f"budget {exc}", file="--budget") from None
 
 
 # ------------------------------------------------------------------ output targets
@@ -274,7 +266,6 @@ def load_model(args, *, command=None, replacements=(), additions=(), log=None):
     if command is None:
         scen = ionochem.load_scenario(args.scenario)
     else:
-        from ionochem.cli.steady_at import analysis_scenario
         scen = analysis_scenario(args, command)
     model = ionochem.Model(scen)
     sets = parse_assignments(getattr(args, "set", None), "set")
@@ -344,7 +335,7 @@ def print_warnings(warnings, prefix="warning"):
 
 
 # ------------------------------------------------------------------ tables
-def report_levels(altitude_km, wanted=DEFAULT_REPORT_KM):
+def report_altitudes(altitude_km, wanted=DEFAULT_REPORT_KM):
     """Grid altitudes nearest the ``wanted`` heights inside the grid (km, sorted)."""
     import numpy as np
     alt = np.asarray(altitude_km, float)
@@ -353,6 +344,10 @@ def report_levels(altitude_km, wanted=DEFAULT_REPORT_KM):
     if not rows:
         rows = sorted({float(alt[0]), float(alt[len(alt) // 2]), float(alt[-1])})
     return rows
+
+
+#: The old name, still imported by cli/run.py (the lead's file).
+report_levels = report_altitudes
 
 
 def fmt_value(v, width=11):

@@ -9,6 +9,7 @@ from __future__ import annotations
 from ionochem.cli.compare import baseline_model
 from ionochem.cli.options import (
     MEMBERS_HELP,
+    Table,
     check_output,
     check_outputs,
     result_species,
@@ -30,8 +31,8 @@ def register(subparsers):
                         "O+(total) or O+, e)")
     r.add_argument("--altitudes", metavar="LO:HI", help="altitude range, km (default: all)")
     r.add_argument("--min-share", type=float, default=None, metavar="F",
-                   help="rank over the levels where the species is at least F of its own "
-                        "peak density in the range (default 0.01; 0: every level)")
+                   help="rank over the altitudes where the species is at least F of its own "
+                        "peak density in the range (default 0.01; 0: every altitude)")
     r.add_argument("--top", type=int, default=10, metavar="N",
                    help="reactions listed per species (default 10)")
     r.add_argument("--members", action="store_true", help=MEMBERS_HELP)
@@ -71,7 +72,7 @@ def cmd_rank(args):
     print(sens.attrs.get("title", ""))
     alt = sens["altitude"].values
     lo, hi = rng if rng is not None else (alt.min(), alt.max())
-    print(f"normalized sensitivities S = d ln n / d ln k over {lo:g}-{hi:g} km, at the levels "
+    print(f"normalized sensitivities S = d ln n / d ln k over {lo:g}-{hi:g} km, at the altitudes "
           f"where each species is at least {share:g} of its peak (factors other than "
           "reactions: d ln n / d ln factor)")
     print("rows are reactions one by one (family levels apart)" if args.members else
@@ -114,7 +115,6 @@ def refuse_fixed(roles, species):
 
 
 def ranking_table(rows, by, by_members=False):
-    from ionochem.cli.options import Table
     table = Table(["#", "reaction" if by_members else "unit", "S at max", "at km",
                    "mean |S|", "equation"],
                   align=[">", "<", ">", ">", ">", "<"])
@@ -127,7 +127,6 @@ def ranking_table(rows, by, by_members=False):
 
 def _extend(acc, species, table):
     """One CSV table over every species (a leading species column)."""
-    from ionochem.cli.options import Table
     if acc is None:
         acc = Table(["species", *table.header])
     for row in table.rows:
@@ -147,7 +146,6 @@ def _print_effective(model, sens, species, rng, top):
 
     from ionochem.analysis.levels import effective_rate_sensitivity
     from ionochem.analysis.units import sum_over_units, unit_map
-    from ionochem.cli.options import Table
     totals = {s.split("(v=")[0] if "(v=" in s else s for s in species}
     eff = effective_rate_sensitivity(model, sens)
     if eff is None:

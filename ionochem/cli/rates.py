@@ -18,22 +18,31 @@ writes outputs. A bad file is reported as ``file:line: message`` (exit 2).
 
 from __future__ import annotations
 
-import re
 import sys
 import warnings
 from pathlib import Path
 
 from ionochem.analysis.bounds import MAX_BOOTSTRAP, MAX_SEED, count_option
 from ionochem.cli.options import Table, check_output
+from ionochem.cli.rates_inputs import (
+    channels_of,
+    check_fit_outputs,
+    check_non_negative,
+    column_levels,
+    parse_detuning,
+    parse_temperatures,
+    read_measured,
+    read_rates,
+    read_sigma,
+    relabel,
+    table_target,
+)
 from ionochem.cli.rates_table import add_entry_options, emit_entries, entry_ref
 from ionochem.cli.rates_table import register as register_table
 from ionochem.errors import InputError
 
 FORMS = ("power", "broken", "arrhenius")
 DEFAULT_TEMPERATURES = "100:6000:100"
-_TEMP_HEADER = re.compile(r"(Te|Ti|Tn|Teff|T)(_K)?")
-_MAX_POINTS = 1_000_000
-IGNORED_COLUMNS = ("missing_weight",)
 TEMPERATURE_LABELS = {"Te_K": "electron temperature T$_e$ (K)",
                       "Ti_K": "ion temperature T$_i$ (K)",
                       "Tn_K": "neutral temperature T$_n$ (K)",
@@ -110,134 +119,23 @@ def _fit_options(p, *, form_flag, required):
 
 
 # ------------------------------------------------------------------ option parsing
-def _triple(text, flag):
-    import numpy as np
-    parts = str(text).split(":")
-    if len(parts) != 3:
-        raise InputError(f"{text!r} must look like LO:HI:{'N' if flag == '--detuning' else 'STEP'}",
-                         file=flag)
-    try:
-        vals = [float(p) for p in parts]
-    except ValueError:
-        raise InputError(f"{text!r}: every part must be a number", file=flag) from None
-    if not np.isfinite(vals).all():
-        raise InputError(f"{text!r}: every part must be a finite number", file=flag)
-    return vals
 
 
-def parse_temperatures(text, flag="--temperatures"):
-    """``LO:HI:STEP`` → temperatures (K) from LO to HI inclusive; (HI-LO)/STEP whole."""
-    import numpy as np
-    lo, hi, step = _triple(text, flag)
-    if lo <= 0 or hi < lo or step <= 0:
-        raise InputError(f"{text!r}: need 0 < LO <= HI and STEP > 0 (K)", file=flag)
-    n = (hi - lo) / step
-    if n > _MAX_POINTS:
-        raise InputError(f"{text!r} gives more than {_MAX_POINTS} temperatures", file=flag)
-    if abs(n - round(n)) > 1e-6 * max(1.0, n):
-        raise InputError(f"{text!r}: (HI - LO)/STEP must be a whole number", file=flag)
-    return lo + step * np.arange(int(round(n)) + 1)
 
 
-def parse_detuning(text, log=False):
-    """``LO:HI:N`` → N detuning energies (eV), evenly (or logarithmically) spaced."""
-    import numpy as np
-    lo, hi, n = _triple(text, "--detuning")
-    if n != int(n) or n < 1 or n > _MAX_POINTS:
-        raise InputError(f"{text!r}: N must be a whole number from 1 to {_MAX_POINTS}",
-                         file="--detuning")
-    if lo < 0 or hi < lo:
-        raise InputError(f"{text!r}: need 0 <= LO <= HI (eV)", file="--detuning")
-    if log:
-        if lo <= 0:
-            raise InputError(f"{text!r}: --log needs LO > 0", file="--detuning")
-        return np.geomspace(lo, hi, int(n))
-    return np.linspace(lo, hi, int(n))
 
 
 # ------------------------------------------------------------------ reading files
-def _columns(table, skip=()):
-    """Main columns of a table (after the first) and their band / error partners."""
-    names = [h for h in table.header[1:] if h not in skip]
-    suffixes = ("_low", "_high", "_sigma")
-    main = [h for h in names if not h.endswith(suffixes)]
-    bands, errors = {}, {}
-    for h in names:
-        for suf in suffixes:
-            if h.endswith(suf):
-                base = h[: -len(suf)]
-                if base not in main:
-                    table.fail(f"column '{h}' has no column '{base}' to go with")
-    for c in main:
-        has_lo, has_hi = f"{c}_low" in names, f"{c}_high" in names
-        if has_lo != has_hi:
-            table.fail(f"column '{c}_{'low' if has_lo else 'high'}' needs its partner "
-                       f"'{c}_{'high' if has_lo else 'low'}'")
-        if has_lo:
-            bands[c] = (table[f"{c}_low"], table[f"{c}_high"])
-        if f"{c}_sigma" in names:
-            errors[c] = table[f"{c}_sigma"]
-    if not main:
-        table.fail("no data column after the first")
-    return main, bands, errors
 
 
-def _levels(table, names):
-    """Level number of each column: from its name (v0, sigma_v1, v=2), or 0 for a single
-    unnamed column."""
-    from ionochem.rates.tables import level_of_column
-    levels = [level_of_column(n) for n in names]
-    if all(v is None for v in levels):
-        if len(names) == 1:
-            return [0]
-        table.fail("several columns without a level in their name; name them v0, v1, ... "
-                   "(or sigma_v0, ...)")
-    if any(v is None for v in levels):
-        bad = names[levels.index(None)]
-        table.fail(f"column '{bad}' carries no level (name it v<N>) while others do")
-    if len(set(levels)) != len(levels):
-        table.fail("two columns name the same level")
-    return levels
 
 
-def _increasing(table, col, what):
-    import numpy as np
-    x = table[col]
-    steps = np.diff(x)
-    if (steps <= 0).any():
-        i = int(np.argmax(steps <= 0)) + 1
-        table.fail(f"{what} must be strictly increasing ({x[i]:g} after {x[i - 1]:g})", row=i)
 
 
-def _non_negative(table, cols, positive=False):
-    import numpy as np
-    for c in cols:
-        bad = (table[c] <= 0) if positive else (table[c] < 0)
-        if bad.any():
-            i = int(np.argmax(bad))
-            word = "positive" if positive else "non-negative"
-            table.fail(f"{c} = {table[c][i]:g} must be {word}", row=i)
 
 
-def read_sigma(path):
-    """SIGMA.csv → (energies, main column names, {name: sigma}, {name: (low, high)}, table)."""
-    import numpy as np
-
-    from ionochem.rates.tables import read_numeric_csv
-    t = read_numeric_csv(path, first="energy_eV", min_rows=2)
-    main, bands, _ = _columns(t)
-    _increasing(t, "energy_eV", "energies")
-    _non_negative(t, t.header)
-    for c, (lo, hi) in bands.items():
-        wrong = (lo > t[c]) | (hi < t[c])
-        if wrong.any():
-            t.fail(f"the band {c}_low .. {c}_high must contain {c}", row=int(np.argmax(wrong)))
-    return t["energy_eV"], main, {c: t[c] for c in main}, bands, t
 
 
-def _relabel(exc, path):
-    """A library InputError (no file) re-raised at the input file."""
-    return InputError(exc.message, file=exc.file or path, line=exc.line)
 
 
 # ------------------------------------------------------------------ maxwellian
@@ -247,11 +145,11 @@ def cmd_maxwellian(args):
     from ionochem.rates import maxwellian_rate
     from ionochem.rates.tables import write_csv
     T = parse_temperatures(args.temperatures)
-    _check_fit_outputs(args, inputs=[args.sigma])
+    check_fit_outputs(args, inputs=[args.sigma])
     check_output(args.output, "-o", inputs=[args.sigma])
     check_output(args.plot, "--plot", figure=True, inputs=[args.sigma])
     E, main, sig, bands, table = read_sigma(args.sigma)
-    levels = _levels(table, main) if args.form else None
+    levels = column_levels(table, main) if args.form else None
     cols, names = [], []
     for c in main:
         cols.append(sig[c])
@@ -265,7 +163,7 @@ def cmd_maxwellian(args):
             k, miss = maxwellian_rate(E, np.column_stack(cols), T, uncovered="warn",
                                       return_coverage=True)
         except InputError as exc:
-            raise _relabel(exc, args.sigma) from None
+            raise relabel(exc, args.sigma) from None
     for w in caught:
         print(f"warning: {args.sigma}: {w.message}", file=sys.stderr)
     rates = {n: k[:, i] for i, n in enumerate(names)}
@@ -311,75 +209,12 @@ def _print_curves(T, curves, miss=None, rows=8):
 
 
 # ------------------------------------------------------------------ fit
-def _check_fit_outputs(args, inputs):
-    if not args.form:
-        for flag in ("table", "entry", "reaction", "fraction", "write_entry"):
-            if getattr(args, flag, None):
-                raise InputError(f"--{flag.replace('_', '-')} needs --fit FORM",
-                                 file=f"--{flag.replace('_', '-')}")
-        return
-    _entries(args)
-    target = _table_target(args)
-    check_output(target, "--table", inputs=inputs)
-    check_output(args.write_entry, "--write-entry", inputs=inputs)
-    if args.write_entry and not args.reaction:
-        raise InputError("--write-entry needs --reaction TEXT (the reaction of the entry)",
-                         file="--write-entry")
-    if args.write_entry and not target:
-        raise InputError("--write-entry needs a table to refer to (--table or -o)",
-                         file="--write-entry")
 
 
-def _entries(args):
-    """[(id, reaction, fraction or None)] of the entries to print, from the options."""
-    import numpy as np
-    ids = args.entry or ["NEW"]
-    reactions = args.reaction or ["REACTANTS(v) -> PRODUCTS"] * len(ids)
-    if len(reactions) != len(ids):
-        raise InputError(f"{len(ids)} --entry but {len(reactions)} --reaction; give one "
-                         "reaction per entry", file="--reaction")
-    fractions = args.fraction or [None] * len(ids)
-    if len(fractions) != len(ids):
-        raise InputError(f"{len(ids)} --entry but {len(fractions)} --fraction; give one "
-                         "fraction per entry", file="--fraction")
-    for f in fractions:
-        if f is not None and not (np.isfinite(f) and 0 < f <= 1):
-            raise InputError(f"branching fraction {f!r} must be in (0, 1]", file="--fraction")
-    if len(set(ids)) != len(ids):
-        raise InputError("the same id is given twice", file="--entry")
-    if args.reaction:
-        for rid, reaction in zip(ids, reactions):
-            _check_entry(rid, reaction)
-    return list(zip(ids, reactions, fractions))
 
 
-def _check_entry(rid, reaction):
-    """Refuse an --entry/--reaction pair the reaction-list parser would refuse, before work:
-    the entry is parsed as a family line with a constant rate (the table it will read is
-    written later), so ``--reaction 'garbage ->'`` never reaches a file."""
-    from ionochem.mechanism.parser import parse_reaction_text
-    if any(c in reaction for c in "|\n#"):
-        raise InputError("the reaction must not contain '|', '#' or a line break",
-                         file="--reaction")
-    try:
-        parse_reaction_text(f"{rid}(v): {reaction} | k = 1e-7 | levels v = 1..2\n",
-                            path="--reaction")
-    except InputError as exc:
-        message = exc.message.split(": ", 1)[-1] if exc.message.startswith("line") else \
-            exc.message
-        raise InputError(f"{rid}(v): {reaction!r} is not a valid family entry: {message}",
-                         file="--reaction") from None
 
 
-def _table_target(args):
-    if getattr(args, "table", None):
-        return args.table
-    if getattr(args, "rates_command", None) == "fit":
-        return args.output
-    if args.output:
-        p = Path(args.output)
-        return str(p.with_name(p.stem + "_table" + (p.suffix or ".csv")))
-    return None
 
 
 def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column, *, source,
@@ -421,7 +256,7 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
         worst = float(np.max(np.abs(res(T_data) / k - 1.0)))
         t.add(c, levels[c], text, f"{res.chi2:.3g}/{res.dof}", f"{100 * worst:.2g} %")
     print(t.text())
-    target = _table_target(args)
+    target = table_target(args)
     if not target:
         print("note: give --table FILE (or -o) to write the level-row rate table and its entry")
         return out
@@ -443,27 +278,13 @@ def _fit_and_write(args, T_out, rates, errors, bands, levels, temperature_column
     return out
 
 
-def read_rates(path):
-    """RATES.csv → (T, temperature column name for tables, main, rates, errors, bands, table)."""
-    from ionochem.rates.tables import read_numeric_csv
-    t = read_numeric_csv(path, min_rows=2)
-    m = _TEMP_HEADER.fullmatch(t.header[0])
-    if not m:
-        t.fail(f"the first column must be the temperature (Te_K, Ti_K, Tn_K, Teff_K or "
-               f"T_K), found '{t.header[0]}'")
-    var = "Te" if m.group(1) == "T" else m.group(1)
-    main, bands, errors = _columns(t, skip=IGNORED_COLUMNS)
-    _increasing(t, t.header[0], "temperatures")
-    _non_negative(t, [t.header[0], *main, *[f"{c}_{s}" for c in bands for s in ("low", "high")],
-                      *[f"{c}_sigma" for c in errors]], positive=True)
-    return t[t.header[0]], f"{var}_K", main, {c: t[c] for c in main}, errors, bands, t
 
 
 def cmd_fit(args):
     T, tcol, main, rates, errors, bands, table = read_rates(args.rates)
-    levels = _levels(table, main)
+    levels = column_levels(table, main)
     T_out = parse_temperatures(args.temperatures) if args.temperatures else T
-    _check_fit_outputs(args, inputs=[args.rates])
+    check_fit_outputs(args, inputs=[args.rates])
     check_output(args.plot, "--plot", figure=True, inputs=[args.rates])
     print(f"{args.rates}: {len(main)} column{'s' if len(main) != 1 else ''}, {T.size} "
           f"temperatures {T[0]:g}..{T[-1]:g} K")
@@ -489,23 +310,12 @@ def _fit_on(form, T, k, sigma):
 
 
 # ------------------------------------------------------------------ beam
-def read_measured(path):
-    """CURVE.csv → (detuning_eV, rate_cm3_s, sigma_cm3_s or None)."""
-    from ionochem.rates.tables import read_numeric_csv
-    t = read_numeric_csv(path, first="detuning_eV", required=("rate_cm3_s",), min_rows=1)
-    _non_negative(t, ["detuning_eV"])
-    _non_negative(t, ["rate_cm3_s"])
-    s = None
-    if "sigma_cm3_s" in t.header:
-        _non_negative(t, ["sigma_cm3_s"], positive=True)
-        s = t["sigma_cm3_s"]
-    return t["detuning_eV"], t["rate_cm3_s"], s
 
 
 def cmd_beam(args):
     import numpy as np
 
-    from ionochem.rates import beam_populations, beam_rate
+    from ionochem.rates import beam_rate
     from ionochem.rates.tables import write_csv
     for flag, v in (("--kt-perp", args.kt_perp), ("--kt-par", args.kt_par)):
         if not np.isfinite(v) or v <= 0:
@@ -525,7 +335,7 @@ def cmd_beam(args):
         try:
             return beam_rate(E, S, det, args.kt_perp, args.kt_par)
         except InputError as exc:
-            raise _relabel(exc, where) from None
+            raise relabel(exc, where) from None
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", RuntimeWarning)
@@ -536,33 +346,8 @@ def cmd_beam(args):
     print(f"{args.sigma}: merged-beam rate coefficients (cm3 s-1), kT_perp = "
           f"{args.kt_perp:g} eV, kT_par = {args.kt_par:g} eV, {Ed.size} detunings")
     _print_detuning(Ed, {c: curve[:, i] for i, c in enumerate(main)})
-    total = None
-    if measured is not None:
-        mE, mk, ms = measured
-        if len(main) == 1:
-            total = at_measured[:, 0]
-        else:
-            if ms is None:
-                raise InputError("fitting the level mix needs a sigma_cm3_s column",
-                                 file=args.measured)
-            try:
-                res = beam_populations(E, S, mE, mk, ms, args.kt_perp, args.kt_par)
-            except InputError as exc:
-                raise _relabel(exc, args.measured) from None
-            total = at_measured @ (res.populations * res.scale)
-            levels = _levels(table, main)
-            t = Table(["column", "v", "population", "error"])
-            for c, v, cells in zip(main, levels, population_cells(res)):
-                t.add(c, v, *cells)
-            print("level mix fitted to the measured curve (non-negative, normalised; "
-                  f"scale {res.scale:.4g}):")
-            print(t.text())
-        if ms is not None:
-            chi2 = float(np.sum(((mk - total) / ms) ** 2))
-            print(f"measured vs theory: chi2 = {chi2:.4g} for {mk.size} points")
-        else:
-            ratio = mk[total > 0] / total[total > 0]
-            print(f"measured/theory: median {np.median(ratio):.4g} over {ratio.size} points")
+    total = None if measured is None else _against_measured(args, E, S, main, table,
+                                                              measured, at_measured)
     if args.output:
         header = ["detuning_eV", *[f"rate_{c}" for c in main]]
         cols = [Ed, *[curve[:, i] for i in range(len(main))]]
@@ -585,6 +370,40 @@ def cmd_beam(args):
                               f"kT$_\\parallel$ = {args.kt_par:g} eV")
         print(f"wrote {args.plot}")
     return 0
+
+
+def _against_measured(args, E, S, main, table, measured, at_measured):
+    """Print how the theory compares with the measured curve (fitting the level mix when
+    the file has several levels); returns the theory at the measured detunings."""
+    import numpy as np
+
+    from ionochem.rates import beam_populations
+    mE, mk, ms = measured
+    if len(main) == 1:
+        total = at_measured[:, 0]
+    else:
+        if ms is None:
+            raise InputError("fitting the level mix needs a sigma_cm3_s column",
+                             file=args.measured)
+        try:
+            res = beam_populations(E, S, mE, mk, ms, args.kt_perp, args.kt_par)
+        except InputError as exc:
+            raise relabel(exc, args.measured) from None
+        total = at_measured @ (res.populations * res.scale)
+        levels = column_levels(table, main)
+        t = Table(["column", "v", "population", "error"])
+        for c, v, cells in zip(main, levels, population_cells(res)):
+            t.add(c, v, *cells)
+        print("level mix fitted to the measured curve (non-negative, normalised; "
+              f"scale {res.scale:.4g}):")
+        print(t.text())
+    if ms is not None:
+        chi2 = float(np.sum(((mk - total) / ms) ** 2))
+        print(f"measured vs theory: chi2 = {chi2:.4g} for {mk.size} points")
+    else:
+        ratio = mk[total > 0] / total[total > 0]
+        print(f"measured/theory: median {np.median(ratio):.4g} over {ratio.size} points")
+    return total
 
 
 def _print_detuning(Ed, curves, rows=8):
@@ -613,17 +432,6 @@ def population_cells(res):
     return out
 
 
-def _channels(table):
-    import numpy as np
-    ch = table["channel"]
-    if (ch != np.round(ch)).any():
-        i = int(np.argmax(ch != np.round(ch)))
-        table.fail(f"channel {ch[i]:g} is not a whole number", row=i)
-    _, first = np.unique(ch, return_index=True)
-    if first.size != ch.size:
-        dup = sorted(set(range(ch.size)) - set(first))[0]
-        table.fail(f"channel {int(ch[dup])} appears twice", row=dup)
-    return ch.astype(int)
 
 
 def cmd_populations(args):
@@ -637,13 +445,13 @@ def cmd_populations(args):
                          file="--bootstrap")
     sig = read_numeric_csv(args.signals, first="channel", required=("signal", "sigma"))
     des = read_numeric_csv(args.design, first="channel")
-    _non_negative(sig, ["sigma"], positive=True)
-    ch_s, ch_d = _channels(sig), _channels(des)
+    check_non_negative(sig, ["sigma"], positive=True)
+    ch_s, ch_d = channels_of(sig), channels_of(des)
     level_cols = [h for h in des.header[1:]]
     if not level_cols:
         des.fail("no level columns after 'channel'")
-    levels = _levels(des, level_cols)
-    _non_negative(des, level_cols)
+    levels = column_levels(des, level_cols)
+    check_non_negative(des, level_cols)
     index = {c: i for i, c in enumerate(ch_d)}
     for i, c in enumerate(ch_s):
         if c not in index:
@@ -655,7 +463,7 @@ def cmd_populations(args):
         res = level_populations(A, sig["signal"], sig["sigma"], method=method,
                                 n_boot=args.bootstrap or 1000, seed=args.seed)
     except InputError as exc:
-        raise _relabel(exc, args.signals) from None
+        raise relabel(exc, args.signals) from None
     print(f"{args.signals}: {len(ch_s)} channels, {len(levels)} levels; non-negative least "
           f"squares, errors by {'parametric bootstrap' if args.bootstrap else 'linearisation'}")
     t = Table(["v", "population", "error"])

@@ -25,6 +25,14 @@ import sys
 from pathlib import Path
 
 from ionochem.cli.options import check_output
+from ionochem.cli.rates_inputs import (
+    TEMP_HEADER,
+    check_fit_outputs,
+    check_non_negative,
+    column_levels,
+    entry_specs,
+    read_rates,
+)
 from ionochem.errors import InputError
 
 
@@ -74,8 +82,7 @@ def _long(table):
     """Per-level data of a long (level-row) table."""
     import numpy as np
 
-    from ionochem.cli.rates import _TEMP_HEADER, _non_negative
-    if len(table.header) < 3 or not _TEMP_HEADER.fullmatch(table.header[1]):
+    if len(table.header) < 3 or not TEMP_HEADER.fullmatch(table.header[1]):
         table.fail("a long table has the columns v, a temperature (Te_K, Ti_K, Tn_K, Teff_K "
                    "or T_K), then the rate k")
     tcol = table.header[1]
@@ -94,7 +101,7 @@ def _long(table):
     if bad.any():
         table.fail(f"v = {v[bad][0]:g} is not a whole level number ≥ 0",
                    row=int(np.argmax(bad)))
-    _non_negative(table, [tcol, col] + [h for h in rest if h != col], positive=True)
+    check_non_negative(table, [tcol, col] + [h for h in rest if h != col], positive=True)
     data = {}
     for level in sorted({int(x) for x in v}):
         rows = np.flatnonzero(v == level)
@@ -117,9 +124,8 @@ def _wide(path):
     """Per-level data of a wide table (the layout ``rates fit`` reads)."""
     import numpy as np
 
-    from ionochem.cli.rates import _levels, read_rates
     T, tcol, main, rates, errors, bands, table = read_rates(path)
-    levels = _levels(table, main)
+    levels = column_levels(table, main)
     data = {}
     for c, level in zip(main, levels):
         low, high = bands.get(c, (None, None))
@@ -183,10 +189,9 @@ def entry_ref(user_ref, what):
 
 def emit_entries(args, target, levels, *, ref, f):
     """Print the family entries reading ``target`` (and write them with --write-entry)."""
-    from ionochem.cli.rates import _entries
     from ionochem.io.netcdf import atomic_write_bytes
     from ionochem.rates.tables import family_entry
-    entries = _entries(args)
+    entries = entry_specs(args)
     given = [x for _, _, x in entries if x is not None]
     if given and abs(sum(given) - 1.0) > 1e-6:
         print(f"note: the branching fractions sum to {sum(given):.6g}, not 1", file=sys.stderr)
@@ -223,10 +228,9 @@ def cmd_table(args):
     """``ionochem rates table``: returns 0."""
     import numpy as np
 
-    from ionochem.cli.rates import _check_fit_outputs
     from ionochem.rates.tables import band_f_expression, check_ref
     args.form, args.table, args.source = "table", args.output, args.rates
-    _check_fit_outputs(args, inputs=[args.rates])
+    check_fit_outputs(args, inputs=[args.rates])
     ref = check_ref(args.ref)
     tcol, _, data = read_level_rates(args.rates)
     banded = all(d["low"] is not None for d in data.values())

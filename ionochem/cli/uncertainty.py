@@ -11,6 +11,7 @@ import sys
 
 from ionochem.analysis.bounds import MAX_SEED, count_option
 from ionochem.cli.compare import print_change_log
+from ionochem.cli.limits import check_ensemble, sample_warnings
 from ionochem.cli.observed import add_observed_option, load_observed, print_misfit
 from ionochem.cli.options import (
     MEMBERS_HELP,
@@ -53,7 +54,7 @@ def register(subparsers):
     par.add_argument("--scheduler", metavar="ADDRESS",
                      help="solve on an existing dask scheduler (tcp://host:port)")
     u.add_argument("--batch", type=int, metavar="B",
-                   help="samples per batch (default: about 1000 rows of samples x levels)")
+                   help="samples per batch (default: about 1000 rows of samples x altitudes)")
     u.add_argument("--resume", action="store_true",
                    help="continue an interrupted run from OUT.nc.samples")
     u.add_argument("--restart", action="store_true",
@@ -145,7 +146,6 @@ def cmd_uncertainty(args):
     files = [*(args.reactions or []), *(args.add or [])]
     check_output(args.csv, "--csv", inputs=[args.scenario, *files])
     spreads = parse_spreads(args.vary_environment)
-    from ionochem.cli.limits import sample_warnings
     for text in sample_warnings(args.method, args.samples, spreads):
         print(f"warning: {text}", file=sys.stderr)
     altitudes = _parse_altitudes(args.altitudes)
@@ -159,7 +159,6 @@ def cmd_uncertainty(args):
     check_outputs(args, inputs=scenario_inputs(scen) + files)
     check_observed(observed, model)
     print_change_log(log)
-    from ionochem.cli.limits import check_ensemble
     runs = 1 if args.method == "montecarlo" else args.top + len(spreads or ()) + 2
     check_ensemble(args.samples, runs, model.altitude_km.size, len(model.species),
                    len(model.reactions), allow_long=args.allow_long)

@@ -17,9 +17,26 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ionochem.environment.diffusion import oplus_face_coefficients
+from ionochem.environment.geometry import solar_zenith_angle_deg
+from ionochem.environment.magnetic import FieldModelRangeError, geomagnetic_field
+from ionochem.environment.magnetisation import (
+    DEFAULT_FIELD_T,
+    magnetisation_height_km,
+    magnetised_drift,
+)
+from ionochem.environment.n2_vibrational import vibrational_temperature
+from ionochem.environment.neutral_source import msis_column
+from ionochem.environment.sun import SunColumn
+from ionochem.environment.temperatures import (
+    check_tabulated_ti,
+    frictional_ion_temperature,
+    mean_neutral_mass_amu,
+    parametric_profile,
+)
 from ionochem.errors import ScenarioError, safe_name
-
-NEUTRAL_SPECIES = ("N2", "O2", "O", "N", "NO", "He", "H", "Ar")
+from ionochem.io.tables import read_profile_table
+from ionochem.species import parse_species
 
 
 @dataclass
@@ -99,7 +116,7 @@ class Environment:
         return self.sun.zenith_deg(time_s)
 
     def dark(self, time_s=None) -> np.ndarray:
-        """Levels where no sunlight arrives (the ray to the sun meets the solid Earth)."""
+        """Altitude rows where no sunlight arrives (the ray to the sun meets the solid Earth)."""
         if self.sun is None:
             return np.zeros(self.altitude_km.size, bool)
         return self.sun.dark(time_s)
@@ -111,7 +128,6 @@ def _check_neutral_names(neutrals, file):
     A column ``O2+`` would fix that ion at the tabulated density and silently break charge
     balance, so it is refused.
     """
-    from ionochem.mechanism.species import parse_species
     for name in neutrals:
         try:
             sp = parse_species(name)
@@ -135,52 +151,70 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         What the mechanism asks for: channel keys ``"photo:…"``/``"photoelectron:…"``,
         ``"prescribed:ID"`` for prescribed reactions, species names it uses.
     """
-    from ionochem.io.tables import read_profile_table
-
     grid = np.asarray(scenario.altitude_km, float)
     file = scenario.source
     messages = []
-    neutrals_cfg = scenario.neutrals
-    if neutrals_cfg.model == "table":
-        table = read_profile_table(neutrals_cfg.table, grid, columns=None,
-                                   where="neutrals.table", scenario_file=file,
-                                   nonnegative=True)
-        if "Tn_K" not in table:
-            raise ScenarioError("the neutral table has no Tn_K column", file=file,
-                                key="neutrals.table")
-        Tn = table.pop("Tn_K")
-        neutrals = {k: v for k, v in table.items() if k != "altitude_km"}
-        _check_neutral_names(neutrals, file)
-        profile_source = None
-    else:
-        from ionochem.environment.neutral_source import msis_column
-        neutrals, Tn, profile_source = msis_column(scenario, grid, needs)
-
-    temps = scenario.temperatures
-    ttable = None
-    want_cols = []
-    if temps.electron == "table":
-        want_cols.append("Te_K")
-    if temps.ion == "table":
-        want_cols.append("Ti_K")
-    if getattr(temps, "vibrational", "neutral") == "table":
-        want_cols.append("Tv_K")
-    if want_cols:
-        ttable = read_profile_table(temps.table, grid, columns=want_cols,
-                                    where="temperatures.table", scenario_file=file)
-    drift = float(temps.ion_drift_m_s)
     info = {}
+    neutrals, Tn, profile_source = _neutral_column(scenario, grid, needs)
+    ttable = _temperature_table(scenario, grid)
+    drift, field_T, dip_deg = _ion_drift(scenario, grid, neutrals, messages, info)
+    Te, Ti, Tv = _temperatures(scenario, grid, Tn, ttable, neutrals, drift, messages)
+    prescribed = _prescribed(scenario, grid, needs)
+    ne = None
+    if scenario.solve.electrons == "table":
+        t = read_profile_table(scenario.solve.electron_table, grid, columns=["Ne"],
+                               where="solve.electron_table", scenario_file=file,
+                               nonnegative=True)
+        ne = t["Ne"]
+    transport = None
+    if scenario.transport is not None:
+        transport = _transport(scenario, grid, neutrals, Te, Ti, Tn, dip_deg, messages)
+        info["dip_deg"] = transport.dip_deg
+    # The Ti the chemistry sees always contains the frictional heating exactly once (see
+    # _temperatures); Teff then adds the pair's own reduced-mass drift term.
+    env = Environment(altitude_km=grid, neutrals=neutrals, Tn=Tn, Te=Te, Ti=Ti, Tv=Tv,
+                      ion_drift_m_s=drift, ti_includes_drift=True,
+                      prescribed=prescribed, electron_density=ne, warnings=messages,
+                      info=info, transport=transport, field_T=field_T)
+    if any(n.startswith(("photo:", "photoelectron:")) for n in needs):
+        env.sun = SunColumn(scenario, env, needs, profile_source)
+        env.warnings.extend(env.sun.warnings)
+    for m in messages:
+        warnings.warn(m, stacklevel=2)
+    return env
+
+
+def _neutral_column(scenario, grid, needs):
+    """Neutral densities (cm-3) and Tn (K) on the grid, from the table or from NRLMSIS, and
+    the extended profile the slant columns use (None for a table)."""
+    file = scenario.source
+    neutrals_cfg = scenario.neutrals
+    if neutrals_cfg.model != "table":
+        return msis_column(scenario, grid, needs)
+    table = read_profile_table(neutrals_cfg.table, grid, columns=None,
+                               where="neutrals.table", scenario_file=file,
+                               nonnegative=True)
+    if "Tn_K" not in table:
+        raise ScenarioError("the neutral table has no Tn_K column", file=file,
+                            key="neutrals.table")
+    Tn = table.pop("Tn_K")
+    neutrals = {k: v for k, v in table.items() if k != "altitude_km"}
+    _check_neutral_names(neutrals, file)
+    return neutrals, Tn, None
+
+
+def _ion_drift(scenario, grid, neutrals, messages, info):
+    """The ion–neutral drift on the grid (m s-1), the field strength (T) and the dip (deg).
+
+    Only magnetised ions drift past the neutrals (docs/physics.md §4a): the drift, and the
+    frictional heating with it, fade below the height where ν_in = Ω_i.
+    """
+    file = scenario.source
+    drift = float(scenario.temperatures.ion_drift_m_s)
     field_T = dip_deg = None
     if drift > 0 or scenario.transport is not None:
         field_T, dip_deg = _field(scenario, grid)
     if drift > 0:
-        # Only magnetised ions drift past the neutrals (SCIENCE.md §4a): the drift, and the
-        # frictional heating with it, fade below the height where ν_in = Ω_i.
-        from ionochem.environment.magnetisation import (
-            DEFAULT_FIELD_T,
-            magnetisation_height_km,
-            magnetised_drift,
-        )
         if field_T is None:
             field_T = np.full(grid.shape, DEFAULT_FIELD_T)
             messages.append(f"{file}: temperatures.ion_drift_m_s: no [location] and [time] "
@@ -188,34 +222,40 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                             f"{DEFAULT_FIELD_T:g} T field")
         drift, kappa = magnetised_drift(drift, neutrals, field_T)
         info["magnetisation_height_km"] = magnetisation_height_km(grid, kappa)
-    # The Ti the chemistry sees always contains the frictional heating exactly once: a
-    # tabulated Ti is taken as the real (measured) ion temperature, a modelled one is heated
-    # here; Teff then adds the pair's own reduced-mass drift term (St.-Maurice & Torr 1978).
-    ti_includes_drift = True
-    if temps.electron == "table":
-        Te = ttable["Te_K"]
-    elif temps.electron == "neutral":
-        Te = Tn.copy()
-    else:
-        Te = None
-    if temps.ion == "table":
-        Ti = ttable["Ti_K"]
-    elif temps.ion == "neutral":
-        Ti = Tn.copy()
-    else:
-        Ti = None
+    return drift, field_T, dip_deg
+
+
+def _temperature_table(scenario, grid):
+    """The columns of the temperature table the scenario uses, on the grid (or None)."""
+    temps = scenario.temperatures
+    want_cols = [c for c, on in (("Te_K", temps.electron == "table"),
+                                 ("Ti_K", temps.ion == "table"),
+                                 ("Tv_K", getattr(temps, "vibrational", "neutral") == "table"))
+                 if on]
+    if not want_cols:
+        return None
+    return read_profile_table(temps.table, grid, columns=want_cols,
+                              where="temperatures.table", scenario_file=scenario.source)
+
+
+def _temperatures(scenario, grid, Tn, ttable, neutrals, drift, messages):
+    """Te, Ti and Tv (K) on the grid.
+
+    The Ti the chemistry sees always contains the frictional heating exactly once: a
+    tabulated Ti is taken as the real (measured) ion temperature, a modelled one is heated
+    here (St.-Maurice & Torr 1978).
+    """
+    temps = scenario.temperatures
+    file = scenario.source
+    vibrational = getattr(temps, "vibrational", "neutral")
+    Te = _temperature_of(temps.electron, "Te_K", ttable, Tn)
+    Ti = _temperature_of(temps.ion, "Ti_K", ttable, Tn)
     if Te is None or Ti is None:
-        from ionochem.environment.temperatures import parametric_profile
         day = _day_factor(scenario)
         Te_p, Ti_p = parametric_profile(grid, Tn, daytime=day, **_profile_kwargs(temps))
         Te = Te_p if Te is None else Te
         Ti = Ti_p if Ti is None else Ti
     if np.any(drift > 0):
-        from ionochem.environment.temperatures import (
-            check_tabulated_ti,
-            frictional_ion_temperature,
-            mean_neutral_mass_amu,
-        )
         m_n = mean_neutral_mass_amu(neutrals)
         if temps.ion == "table":
             cold = check_tabulated_ti(Ti, Tn, drift, m_n, altitude_km=grid)
@@ -223,7 +263,7 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
                 messages.append(
                     f"{file}: temperatures.table: tabulated Ti is colder than frictional "
                     f"heating by a {temps.ion_drift_m_s:g} m/s drift implies at {len(cold)} "
-                    "level(s) "
+                    "altitude(s) "
                     f"({_span(cold)} km); the drift term is still applied once in Teff")
         else:
             Ti = frictional_ion_temperature(Ti, drift, m_n)
@@ -231,48 +271,36 @@ def build_environment(scenario, needs=frozenset()) -> Environment:
         if np.any(~np.isfinite(arr)) or np.any(arr <= 0):
             raise ScenarioError(f"{name} must be positive and finite on the grid",
                                 file=file, key="temperatures")
-    if getattr(temps, "vibrational", "neutral") == "table":
+    if vibrational == "table":
         Tv = ttable["Tv_K"]
-    elif getattr(temps, "vibrational", "neutral") == "electron":
-        from ionochem.environment.n2_vibrational import vibrational_temperature
+    elif vibrational == "electron":
         Tv = vibrational_temperature(Tn, Te, temps.vibrational_coupling)
     else:
         Tv = Tn.copy()
+    return Te, Ti, Tv
 
-    prescribed = {}
+
+def _temperature_of(choice, column, ttable, Tn):
+    """A temperature the scenario fixes (its table column, or Tn), or None (parametric)."""
+    if choice == "table":
+        return ttable[column]
+    if choice == "neutral":
+        return Tn.copy()
+    return None
+
+
+def _prescribed(scenario, grid, needs):
+    """Volume rates (cm-3 s-1) of the ``k = prescribed`` reactions, by reaction id."""
     wanted = sorted(n.split(":", 1)[1] for n in needs if n.startswith("prescribed:"))
-    if wanted:
-        if scenario.production.table is None:
-            raise ScenarioError(
-                f"reactions {', '.join(wanted)} use k = prescribed but the scenario has no "
-                "[production] table", file=file, key="production.table")
-        prescribed = read_profile_table(scenario.production.table, grid, columns=wanted,
-                                        where="production.table", scenario_file=file,
-                                        nonnegative=True)
-
-    ne = None
-    if scenario.solve.electrons == "table":
-        t = read_profile_table(scenario.solve.electron_table, grid, columns=["Ne"],
-                               where="solve.electron_table", scenario_file=file,
-                               nonnegative=True)
-        ne = t["Ne"]
-
-    transport = None
-    if scenario.transport is not None:
-        transport = _transport(scenario, grid, neutrals, Te, Ti, Tn, dip_deg, messages)
-        info["dip_deg"] = transport.dip_deg
-
-    env = Environment(altitude_km=grid, neutrals=neutrals, Tn=Tn, Te=Te, Ti=Ti, Tv=Tv,
-                      ion_drift_m_s=drift, ti_includes_drift=ti_includes_drift,
-                      prescribed=prescribed, electron_density=ne, warnings=messages,
-                      info=info, transport=transport, field_T=field_T)
-    if any(n.startswith(("photo:", "photoelectron:")) for n in needs):
-        from ionochem.environment.sun import SunColumn
-        env.sun = SunColumn(scenario, env, needs, profile_source)
-        env.warnings.extend(env.sun.warnings)
-    for m in messages:
-        warnings.warn(m, stacklevel=2)
-    return env
+    if not wanted:
+        return {}
+    if scenario.production.table is None:
+        raise ScenarioError(
+            f"reactions {', '.join(wanted)} use k = prescribed but the scenario has no "
+            "[production] table", file=scenario.source, key="production.table")
+    return read_profile_table(scenario.production.table, grid, columns=wanted,
+                              where="production.table", scenario_file=scenario.source,
+                              nonnegative=True)
 
 
 def _field(scenario, grid):
@@ -283,7 +311,6 @@ def _field(scenario, grid):
     """
     if scenario.location is None or scenario.time is None:
         return None, None
-    from ionochem.environment.magnetic import FieldModelRangeError, geomagnetic_field
     loc = scenario.location
     try:
         B, _ = geomagnetic_field(loc.latitude_deg, loc.longitude_deg, grid, scenario.time.utc)
@@ -296,7 +323,6 @@ def _field(scenario, grid):
 
 def _transport(scenario, grid, neutrals, Te, Ti, Tn, igrf_dip, messages):
     """Face coefficients of O+ transport for the scenario's [transport] section."""
-    from ionochem.environment.diffusion import oplus_face_coefficients
     tr = scenario.transport
     file = scenario.source
     dip = tr.dip_deg if tr.dip_deg is not None else igrf_dip
@@ -317,16 +343,15 @@ def _transport(scenario, grid, neutrals, Te, Ti, Tn, igrf_dip, messages):
                                    upper_flux_cm2_s=tr.upper_boundary_flux_cm2_s)
 
 
-def _span(levels):
-    levels = np.asarray(levels)
-    return f"{levels.min():g}–{levels.max():g}"
+def _span(altitudes):
+    altitudes = np.asarray(altitudes)
+    return f"{altitudes.min():g}–{altitudes.max():g}"
 
 
 def _day_factor(scenario):
     """Cosine of the zenith angle clipped at 0, or 1 when the scenario has no sun."""
     if scenario.location is None or scenario.time is None:
         return 1.0
-    from ionochem.environment.geometry import solar_zenith_angle_deg
     chi = float(solar_zenith_angle_deg(np.datetime64(scenario.time.utc.replace(tzinfo=None)),
                                        scenario.location.latitude_deg,
                                        scenario.location.longitude_deg))

@@ -4,9 +4,9 @@ A :class:`Spectrum` is the whole photon input of the photo-rate calculation: wav
 (ranges or single lines), the photon flux in each bin at the top of the atmosphere, the
 absorption cross section of every absorber and the cross section of every photo channel on
 those bins. :func:`solar_spectrum` builds the default one (EUVAC flux, Fennelly & Torr cross
-sections, Lyman alpha for NO); :func:`load_user_spectrum` reads one from a CSV file, e.g. to
-add soft X-rays, which EUVAC leaves out (below 50 angstrom; without them the lower E region is
-under-produced).
+sections, Lyman alpha for NO); :func:`ionochem.environment.user_spectrum.load_user_spectrum`
+reads one from a CSV file, e.g. to add soft X-rays, which EUVAC leaves out (below 50
+angstrom; without them the lower E region is under-produced).
 
 Channels
 --------
@@ -29,7 +29,7 @@ key                   absorber   threshold   meaning
 ====================  =========  ==========  =====================================
 
 Thresholds are the ionization (or dissociation) energies of the NIST tables as listed in
-SCIENCE.md section 4 *(from memory)*; wavelength lambda_th = 12398.42 eV angstrom / E_th.
+docs/physics.md §4 *(from memory)*; wavelength lambda_th = 12398.42 eV angstrom / E_th.
 
 Threshold rule
 --------------
@@ -75,30 +75,8 @@ Other choices, each with its source
 - Lyman alpha (1215.67 angstrom) is absorbed by O2 with sigma = 1.0e-20 cm2 (the O2 window;
   Watanabe 1958, Adv. Geophys. 5, 153 *(from memory)*); N2 and O do not absorb it.
 
-User spectrum files
--------------------
-:func:`load_user_spectrum` reads a CSV file (``#`` comments allowed, one header row, numeric
-rows; nothing in the file is executed). Columns:
-
-- ``wl_lo_A``, ``wl_hi_A`` (required): bin edges in angstrom, ``wl_lo_A <= wl_hi_A``; equal
-  edges make a single line.
-- ``photons_cm2_s`` (required): photon flux in the bin at 1 AU, photons cm-2 s-1 (not per
-  angstrom).
-- ``sigma_abs_<ABSORBER>``: absorption cross section of that absorber, e.g. ``sigma_abs_O``,
-  ``sigma_abs_N2``; absorbers without a column do not attenuate.
-- ``sigma_ion_<CHANNEL KEY>``: ionization cross section of one channel, the key written as
-  in the table above, e.g. ``sigma_ion_O->O+``, ``sigma_ion_O->O+(2D)``, ``sigma_ion_N2->N+``.
-  Other keys of the form ``ABSORBER->PRODUCTS`` are accepted and passed through (their
-  threshold cannot be checked).
-- ``sigma_dis_N2->N(2D)+N``: N2 dissociation cross section; when absent and both
-  ``sigma_abs_N2`` and some N2 ionization columns are given, it is derived as absorption minus
-  ionization (never below zero).
-
-Every ``sigma_`` column is in units of 1e-18 cm2 (megabarn), as in the packaged table. Every
-channel's absorber must also have a ``sigma_abs_`` column, and each channel cross section
-must not exceed its absorber's absorption. The file's spectrum replaces the default one; to
-add soft X-rays to EUVAC, give only the new bins and combine with
-``solar_spectrum(...).concatenate(load_user_spectrum(path))``.
+User spectrum files (a CSV file with its own cross sections) are read by
+:mod:`ionochem.environment.user_spectrum`, which documents their columns.
 
 What this module must not do: it does not attenuate, integrate over altitude, or know about
 reactions; fluxes are at 1 AU until the caller scales them (:meth:`Spectrum.scaled`).
@@ -109,19 +87,18 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass
 from functools import lru_cache
-from pathlib import Path
 from types import MappingProxyType
 
 import numpy as np
 
+from ionochem.constants import HC_EV_A
 from ionochem.environment.euvac import DATA_DIR, euvac_flux
+from ionochem.environment.lyman_alpha import lyman_alpha_flux
 from ionochem.errors import InputError, ScenarioError
 from ionochem.io.tables import read_csv_columns
 
 CROSS_SECTION_PATH = DATA_DIR / "cross_sections.csv"
 
-#: h c in eV angstrom (CODATA 2018 values of h, c and e).
-HC_EV_A = 12398.419843320026
 #: Unit of every ``sigma`` column in the data files, cm2 (1 megabarn).
 MEGABARN_CM2 = 1.0e-18
 
@@ -171,7 +148,7 @@ class Channel:
         return HC_EV_A / self.threshold_eV
 
 
-# Thresholds: SCIENCE.md section 4 (NIST ionization energies, *(from memory)*), except
+# Thresholds: docs/physics.md §4 (NIST ionization energies, *(from memory)*), except
 # N -> N+ 14.534 eV and He -> He+ 24.587 eV (NIST atomic ionization energies, *(from memory)*)
 # and N2 -> N(4S) + N(2D) 12.14 eV = D0(N2) 9.76 eV + N(2D) excitation 2.38 eV *(from memory)*.
 CHANNELS: Mapping[str, Channel] = MappingProxyType({
@@ -480,7 +457,6 @@ def solar_spectrum(f107, f107a, *, lyman_alpha_photons_cm2_s=None) -> Spectrum:
     """
     bins = euvac_flux(f107, f107a)
     if lyman_alpha_photons_cm2_s is None:
-        from ionochem.environment.lyman_alpha import lyman_alpha_flux
         lyman_alpha_photons_cm2_s = lyman_alpha_flux(f107, f107a)
     lya = np.asarray(lyman_alpha_photons_cm2_s, dtype=float)
     if not np.all(np.isfinite(lya)) or np.any(lya < 0):
@@ -499,108 +475,4 @@ def solar_spectrum(f107, f107a, *, lyman_alpha_photons_cm2_s=None) -> Spectrum:
                         "EUVAC (Richards et al. 1994) with Fennelly & Torr (1992) cross "
                         "sections, plus Lyman alpha")
     check_thresholds(spectrum)
-    return spectrum
-
-
-def load_user_spectrum(path, *, where: str | None = None,
-                       scenario_file=None) -> Spectrum:
-    """Read a photon spectrum with its own cross sections from a CSV file.
-
-    The column naming is given in the module docstring (``wl_lo_A``, ``wl_hi_A``,
-    ``photons_cm2_s``, ``sigma_abs_<ABSORBER>``, ``sigma_ion_<CHANNEL>``,
-    ``sigma_dis_N2->N(2D)+N``; cross sections in 1e-18 cm2).
-
-    Parameters
-    ----------
-    path : str or Path
-        The CSV file.
-    where : str, optional
-        Scenario key that names the file (``"photons.spectrum"``); errors are then
-        :class:`~ionochem.errors.ScenarioError` at that key.
-    scenario_file : str or Path, optional
-        The scenario file, for errors with ``where``.
-
-    Returns
-    -------
-    Spectrum
-        Fluxes at 1 AU, cross sections in cm2.
-
-    Raises
-    ------
-    InputError or ScenarioError
-        Unreadable file, missing or unknown columns, negative values, bins with
-        ``wl_lo_A > wl_hi_A`` or non-positive wavelengths, a channel without its absorber's
-        absorption column or larger than it, or a cross section beyond its channel's
-        threshold.
-    """
-    path = Path(path)
-    header, data, lines = read_csv_columns(path, where=where, scenario_file=scenario_file)
-
-    def fail(msg, line=None):
-        if where is not None:
-            place = path.name if line is None else f"{path.name} line {line}"
-            return ScenarioError(f"{place}: {msg}", file=scenario_file or path, key=where)
-        return InputError(msg, file=path, line=line)
-
-    cols = dict(zip(header, data.T, strict=True))
-    for name in ("wl_lo_A", "wl_hi_A", "photons_cm2_s"):
-        if name not in cols:
-            raise fail(f"required column {name!r} is missing (columns: {', '.join(header)})")
-    lo, hi, flux = cols["wl_lo_A"], cols["wl_hi_A"], cols["photons_cm2_s"]
-    for i in range(lo.size):
-        if not 0 < lo[i] <= hi[i]:
-            raise fail(f"bin edges must satisfy 0 < wl_lo_A <= wl_hi_A, got {lo[i]:g} and "
-                       f"{hi[i]:g}", lines[i])
-    sigma_abs: dict[str, np.ndarray] = {}
-    sigma_chan: dict[str, np.ndarray] = {}
-    for name in header:
-        if name in ("wl_lo_A", "wl_hi_A", "photons_cm2_s"):
-            continue
-        values = cols[name]
-        neg = np.flatnonzero(values < 0)
-        if neg.size:
-            raise fail(f"column {name!r} has a negative value", lines[neg[0]])
-        if name.startswith("sigma_abs_") and len(name) > len("sigma_abs_"):
-            sigma_abs[name[len("sigma_abs_"):]] = values * MEGABARN_CM2
-        elif name.startswith("sigma_ion_") or name.startswith("sigma_dis_"):
-            key = name[len("sigma_ion_"):]
-            try:
-                channel_absorber(key)
-            except InputError as exc:
-                raise fail(f"column {name!r}: {exc.message}") from None
-            if key in CHANNELS and CHANNELS[key].ionizing != name.startswith("sigma_ion_"):
-                kind = "sigma_ion_" if CHANNELS[key].ionizing else "sigma_dis_"
-                raise fail(f"column {name!r}: channel {key!r} must be written {kind}{key}")
-            sigma_chan[key] = values * MEGABARN_CM2
-        else:
-            raise fail(f"unknown column {name!r}: expected wl_lo_A, wl_hi_A, photons_cm2_s, "
-                       "sigma_abs_<ABSORBER>, sigma_ion_<CHANNEL> or sigma_dis_<CHANNEL>")
-    neg = np.flatnonzero(flux < 0)
-    if neg.size:
-        raise fail("column 'photons_cm2_s' has a negative value", lines[neg[0]])
-
-    dis = "N2->N(2D)+N"
-    n2_ion = [k for k in sigma_chan if channel_absorber(k) == "N2" and k != dis]
-    if dis not in sigma_chan and "N2" in sigma_abs and n2_ion:
-        sigma_chan[dis] = np.maximum(sigma_abs["N2"] - sum(sigma_chan[k] for k in n2_ion), 0.0)
-
-    by_absorber: dict[str, np.ndarray] = {}
-    for key, sigma in sigma_chan.items():
-        absorber = channel_absorber(key)
-        if absorber not in sigma_abs:
-            raise fail(f"channel {key!r} has no absorption column 'sigma_abs_{absorber}'")
-        by_absorber[absorber] = by_absorber.get(absorber, 0.0) + sigma
-    for absorber, total in by_absorber.items():
-        over = np.flatnonzero(total > sigma_abs[absorber] * (1 + 1e-6) + 1e-30)
-        if over.size:
-            raise fail(f"the channels of {absorber} add up to more than its absorption "
-                       f"'sigma_abs_{absorber}'", lines[over[0]])
-
-    spectrum = Spectrum(lo, hi, flux, sigma_abs, sigma_chan, f"user spectrum {path.name}")
-    bad = threshold_violations(spectrum)
-    if bad:
-        key, i = bad[0]
-        raise fail(f"column 'sigma_{'ion' if CHANNELS[key].ionizing else 'dis'}_{key}' is "
-                   f"non-zero in a bin wholly longward of the channel's threshold "
-                   f"{CHANNELS[key].threshold_A:.1f} angstrom", lines[i])
     return spectrum

@@ -3,7 +3,7 @@
 The vertical flux of O+ in a plane-stratified F region (Schunk & Nagy 2009, *Ionospheres*,
 2nd ed., Cambridge, §5.13 on ambipolar diffusion and §10.2 on the F region; Rishbeth &
 Garriott 1969, *Introduction to Ionospheric Physics*, Academic Press, ch. 3; forms as in
-SCIENCE.md §4a, *from memory*) is
+docs/physics.md §4a, *from memory*) is
 
     Φ = −D_a sin²I [dn/dz + n/H_p + (n/T_p) dT_p/dz] + n U_v,
 
@@ -12,7 +12,7 @@ height, D_a = 2 k T_p/(m_i ν_in) the ambipolar diffusion coefficient, I the dip
 U_v = −U sin I cos I the vertical drift a meridional wind U (positive northward) induces
 along the field (an equatorward wind lifts the layer in either hemisphere).
 
-Written as Φ = −D dn/dz + V n this module returns, on the faces between grid levels,
+Written as Φ = −D dn/dz + V n this module returns, on the faces between altitude rows,
 D = D_a sin²I and V = U_v − D (1/H_p + d ln T_p/dz): the diffusion coefficient and the
 velocity the operator in ``ionochem.solve.transport`` needs. It also gives the diffusion
 time used by the photochemical-equilibrium flag.
@@ -114,12 +114,12 @@ def diffusion_time_s(altitude_km, neutrals, Te, Ti, Tn, dip_deg=90.0):
 
 @dataclass
 class FaceCoefficients:
-    """Vertical transport coefficients of one species on the faces between levels.
+    """Vertical transport coefficients of one species on the faces between altitude rows.
 
     Attributes
     ----------
     altitude_km : ndarray (altitude,)
-        The levels.
+        The altitude rows.
     D_cm2_s : ndarray (altitude - 1,)
         Vertical diffusion coefficient D_a sin²I on the faces, cm2 s-1.
     V_cm_s : ndarray (altitude - 1,)
@@ -143,16 +143,16 @@ class FaceCoefficients:
 
 def oplus_face_coefficients(altitude_km, neutrals, Te, Ti, Tn, *, dip_deg,
                             meridional_wind_m_s=0.0, upper_flux_cm2_s=0.0):
-    """D and V of the O+ flux Φ = −D dn/dz + V n on the faces between levels.
+    """D and V of the O+ flux Φ = −D dn/dz + V n on the faces between altitude rows.
 
-    Face values: D is the geometric mean of the level values (it varies exponentially with
+    Face values: D is the geometric mean of the row values (it varies exponentially with
     height), 1/H_p is taken at the face's height and mean plasma temperature, and
-    d ln T_p/dz is the difference between the two levels.
+    d ln T_p/dz is the difference between the two rows.
 
     Parameters
     ----------
     altitude_km : ndarray (altitude,)
-        Strictly increasing levels, km (at least two).
+        Strictly increasing altitudes, km (at least two).
     neutrals : dict[str, ndarray]
         Neutral densities, cm-3.
     Te, Ti, Tn : ndarray (altitude,)

@@ -54,7 +54,7 @@ def ion_neutral_collision_frequency_s(neutrals):
 
 
 def magnetised_drift(drift_m_s, neutrals, B_T):
-    """Ion–neutral drift speed at each level, m s-1, and the height index where κ = 1.
+    """Ion–neutral drift speed at each altitude, m s-1, and the height index where κ = 1.
 
     Parameters
     ----------

@@ -1,8 +1,8 @@
 """Vibrational temperature Tv of neutral N2 linked to the electron temperature.
 
 Electron impact excites N2 vibration efficiently (the 2Pi_g shape resonance near 2 eV), so
-where electrons are hot the N2 vibrational temperature rises above Tn toward Te (SCIENCE.md
-section 4b; modelled in detail by, e.g., Pavlov 1998, Ann. Geophys. 16, 176 *(from
+where electrons are hot the N2 vibrational temperature rises above Tn toward Te (docs/physics.md
+§4b; modelled in detail by, e.g., Pavlov 1998, Ann. Geophys. 16, 176 *(from
 memory)*). Without a vibrational-kinetics model of N2 the column offers a documented
 parametric link,
 

@@ -1,8 +1,8 @@
 """Neutral densities for a scenario from NRLMSIS, on the grid and on an extended profile.
 
-One pymsis call on a profile that holds the model levels plus a fine grid from the ground to
+One pymsis call on a profile that holds the model altitudes plus a fine grid from the ground to
 well above the top (rays past 90° zenith angle pass below the grid; above it the column
-continues upward). The model levels are then taken from that profile, so the slant columns
+continues upward). The model altitudes are then taken from that profile, so the slant columns
 and the chemistry see the same atmosphere.
 
 NO: only NRLMSIS 2.1 gives it (Emmert et al. 2022, JGR Space Physics). With 2.0 or 00 a
@@ -13,7 +13,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from ionochem.environment.neutrals import msis_neutrals_extended
 from ionochem.errors import ScenarioError
+from ionochem.io.tables import read_profile_table
 
 MSIS_MODELS = {"msis2.1": "2.1", "msis2.0": "2.0", "msis00": "00"}
 
@@ -30,8 +32,6 @@ def msis_column(scenario, grid_km, needs):
     profile : NeutralProfile
         The same model on the extended profile (``profile.altitude_km``) for slant columns.
     """
-    from ionochem.environment.neutrals import msis_neutrals_extended
-    from ionochem.io.tables import read_profile_table
     version = MSIS_MODELS[scenario.neutrals.model]
     reason = f"the neutral model {scenario.neutrals.model}"
     scenario.require("location", "time", "sun", "geomagnetic", reason=reason)
@@ -44,7 +44,7 @@ def msis_column(scenario, grid_km, needs):
     idx = np.searchsorted(alt, grid_km)
     idx = np.clip(idx, 0, alt.size - 1)
     if not np.allclose(alt[idx], grid_km, rtol=0, atol=1e-9):
-        raise RuntimeError("extended neutral profile does not contain the model levels")
+        raise RuntimeError("extended neutral profile does not contain the model altitudes")
     neutrals = {k: np.asarray(v)[idx] for k, v in profile.items() if k != "Tn"}
     Tn = np.asarray(profile["Tn"])[idx]
     if "NO" not in neutrals:

@@ -20,7 +20,7 @@ units and makes the output safe for the chemistry:
   Those NaN are replaced by 0: O, H and N below these heights are small next to N2 and O2
   (mixing ratios far below 1e-3 there, *(common practice)*), which makes
   zero the right value for column absorption, where they are dominated by N2 and O2.
-  Levels so filled are listed in ``NeutralProfile.undefined`` so the caller can refuse to
+  Altitudes so filled are listed in ``NeutralProfile.undefined`` so the caller can refuse to
   solve chemistry on them. A NaN anywhere else (a major species, the temperature, or a
   minor species above its lower boundary) raises ``ValueError``: it would be a bug.
 
@@ -33,7 +33,7 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["NeutralProfile", "msis_neutrals", "msis_neutrals_extended", "extended_grid_km",
-           "SPECIES", "MSIS_VERSIONS"]
+           "SPECIES", "MSIS_VERSIONS", "NEUTRAL_SPECIES"]
 
 #: Species returned (cm-3), in this order, and the pymsis output column of each
 #: (pymsis.msis.Variable: N2=1, O2=2, O=3, HE=4, H=5, AR=6, N=7, ANOMALOUS_O=8, NO=9,
@@ -41,6 +41,10 @@ __all__ = ["NeutralProfile", "msis_neutrals", "msis_neutrals_extended", "extende
 _COLUMNS = {"N2": 1, "O2": 2, "O": 3, "N": 7, "NO": 9, "He": 4, "H": 5, "Ar": 6}
 _TEMPERATURE = 10
 SPECIES = tuple(_COLUMNS)
+
+#: Neutrals a column may hold fixed (from the neutral model or a table): the species a
+#: reaction list may use without solving them.
+NEUTRAL_SPECIES = ("N2", "O2", "O", "N", "NO", "He", "H", "Ar")
 
 #: Scenario version names → pymsis version numbers.
 MSIS_VERSIONS = {"2.1": 2.1, "2.0": 2.0, "00": 0}
@@ -66,7 +70,7 @@ class NeutralProfile(dict):
     Attributes
     ----------
     undefined : dict[str, ndarray of bool]
-        For each species, the levels where NRLMSIS does not model it and 0 was put in
+        For each species, the altitudes where NRLMSIS does not model it and 0 was put in
         place of pymsis's NaN (all False where the species is defined everywhere).
     altitude_km : ndarray
         The altitudes of the profile (km).
@@ -180,12 +184,12 @@ def extended_grid_km(altitude_km=None, *, bottom_km: float = 0.0,
     Steps are 1 km up to 150 km, 2.5 km to 400 km and 10 km above (finer than every
     neutral scale height there, so piecewise-exponential interpolation between nodes is
     close to NRLMSIS itself). The grid reaches from ``bottom_km`` to at least ``top_km``
-    and at least 50 km above the highest model level.
+    and at least 50 km above the highest model altitude.
 
     Parameters
     ----------
     altitude_km : array_like, optional
-        Model grid levels to include as nodes (km).
+        Model grid altitudes to include as nodes (km).
     bottom_km, top_km : float
         Lower and upper end of the profile (km).
 
@@ -203,9 +207,9 @@ def extended_grid_km(altitude_km=None, *, bottom_km: float = 0.0,
         return np.unique(default[default >= bottom])
     alt = np.unique(np.asarray(altitude_km, dtype=float).ravel())
     if alt.min() < bottom:
-        raise ValueError(f"model levels below the profile bottom {bottom} km")
+        raise ValueError(f"model altitudes below the profile bottom {bottom} km")
     default = np.concatenate([default, np.arange(top + 10.0, alt.max() + 60.0, 10.0)])
-    # Default nodes closer than 0.1 km to a model level give way to the model level.
+    # Default nodes closer than 0.1 km to a model altitude give way to the model altitude.
     near = np.abs(default[:, None] - alt[None, :]).min(axis=1) < 0.1
     return np.unique(np.concatenate([default[~near], alt]))
 
@@ -216,7 +220,7 @@ def msis_neutrals_extended(utc, latitude_deg, longitude_deg, *, f107, f107a, ap,
     """NRLMSIS on an extended grid for slant columns (rays below and above the model grid).
 
     Same inputs as :func:`msis_neutrals`; the grid is :func:`extended_grid_km` (which
-    contains the model levels ``altitude_km`` when given). The profile's altitudes are in
+    contains the model altitudes ``altitude_km`` when given). The profile's altitudes are in
     the ``altitude_km`` attribute of the result. Species undefined low down are 0 there
     (see the module docstring), which is what a column integral needs.
 

@@ -1,6 +1,6 @@
 """Photo frequencies (s-1 per absorber molecule) from a spectrum and slant columns.
 
-Given the slant column N_s (cm-2) of each absorber toward the Sun at every level and a
+Given the slant column N_s (cm-2) of each absorber toward the Sun at every altitude and a
 :class:`~ionochem.environment.crosssections.Spectrum` (top-of-atmosphere fluxes, already
 scaled by (1 AU / r)^2 by the caller):
 
@@ -9,13 +9,13 @@ scaled by (1 AU / r)^2 by the caller):
     J_c(z)         = sum_lambda sigma_c(lambda) I(lambda, z)
 
 J_c is the frequency of channel c per molecule of its absorber; the volume rate is
-n_absorber(z) J_c(z). Everything is vectorised over levels, bins and any leading axes
+n_absorber(z) J_c(z). Everything is vectorised over altitude rows, bins and any leading axes
 (time, sample) of the slant columns and fluxes.
 
 Conventions
 -----------
 - Slant columns are a dict species -> array shaped (..., altitude) in cm-2; ``numpy.inf``
-  marks a level whose ray meets the solid body: that level is dark in every bin (even in a
+  marks an altitude whose ray meets the solid body: that altitude is dark in every bin (even in a
   bin where no absorber of the spectrum has a cross section), so all its frequencies are 0.
 - Species in the slant columns that the spectrum does not know absorb nothing; absorbers of
   the spectrum missing from the slant columns do not attenuate (column zero).
@@ -59,7 +59,7 @@ def optical_depth(spectrum: Spectrum, slant_columns: Mapping[str, np.ndarray]) -
     Returns
     -------
     ndarray, shape (..., altitude, bin)
-        Optical depth; ``inf`` at dark levels (a column is ``inf``).
+        Optical depth; ``inf`` at dark altitudes (a column is ``inf``).
     """
     cols = _columns(slant_columns)
     shape = np.broadcast_shapes(*(c.shape for c in cols.values()))
@@ -77,7 +77,7 @@ def optical_depth(spectrum: Spectrum, slant_columns: Mapping[str, np.ndarray]) -
 
 
 def attenuated_flux(spectrum: Spectrum, slant_columns: Mapping[str, np.ndarray]) -> np.ndarray:
-    """Photon flux I(lambda, z) = I_inf exp(-tau) at every level.
+    """Photon flux I(lambda, z) = I_inf exp(-tau) at every altitude.
 
     Parameters
     ----------
@@ -89,7 +89,7 @@ def attenuated_flux(spectrum: Spectrum, slant_columns: Mapping[str, np.ndarray])
     Returns
     -------
     ndarray, shape (..., altitude, bin)
-        Photons cm-2 s-1; zero at dark levels. Leading axes are the broadcast of those of
+        Photons cm-2 s-1; zero at dark altitudes. Leading axes are the broadcast of those of
         the fluxes and the columns.
     """
     tau = optical_depth(spectrum, slant_columns)
@@ -111,7 +111,7 @@ def _sigma_matrix(spectrum: Spectrum, channels: Iterable[str] | None) -> tuple[l
 def photo_frequencies(spectrum: Spectrum, slant_columns: Mapping[str, np.ndarray], *,
                       channels: Iterable[str] | None = None,
                       per_bin: bool = False) -> dict[str, np.ndarray]:
-    """Photo frequency of every channel at every level.
+    """Photo frequency of every channel at every altitude.
 
     Parameters
     ----------

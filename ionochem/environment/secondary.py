@@ -8,13 +8,13 @@ gas, it makes Y(E) further ion pairs. The yield used here is
 
 with W = 35 eV per ion pair (Rees 1989, Physics and Chemistry of the Upper Atmosphere,
 Cambridge, *(common practice)*) and E0 = 15 eV, the bottom of the 15-20 eV region below which
-a photoelectron makes no further ion pair at all (SCIENCE.md section 4; a 584 angstrom photon
+a photoelectron makes no further ion pair at all (docs/physics.md §4; a 584 angstrom photon
 on O gives a 7.6 eV electron and nothing more). Y(E) tends to E/W at high energy, the regime
 of hundreds of eV and more where W = 35 eV holds; between 15 and ~100 eV this linear form is
 an approximation *(common practice)*, the place to improve with the published
 secondary-to-primary ratios per bin (Richards & Torr 1988, J. Geophys. Res. 93, 4060).
 
-The secondary ion pairs at a level,
+The secondary ion pairs at an altitude,
 
     P_sec(z) = sum_channels sum_bins n_absorber(z) J_c,bin(z) Y(E_c,bin)   (cm-3 s-1),
 
@@ -46,7 +46,7 @@ from ionochem.errors import InputError
 
 #: Mean energy per ion pair at high electron energy, eV (Rees 1989, *(common practice)*).
 W_EV = 35.0
-#: Energy below which a photoelectron makes no further ion pair, eV (SCIENCE.md section 4:
+#: Energy below which a photoelectron makes no further ion pair, eV (docs/physics.md §4:
 #: "about 15-20 eV"; the lower end is used, *(common practice)*).
 YIELD_THRESHOLD_EV = 15.0
 
@@ -75,7 +75,7 @@ class SecondaryParameters:
     impact_cross_sections_cm2 : Mapping[str, float]
         Target -> total electron-impact ionization cross section used for the sharing.
     n2_to_n_plus : float
-        Fraction of N2 ionizations that give N+ + N: 0.2 (SCIENCE.md section 4; partial
+        Fraction of N2 ionizations that give N+ + N: 0.2 (docs/physics.md §4; partial
         cross sections near 100 eV, Itikawa 2006, *(from memory)*).
     o2_to_o_plus : float
         Fraction of O2 ionizations that give O+ + O: 0.25 (partial cross sections near

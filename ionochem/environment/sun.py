@@ -19,7 +19,26 @@ import collections
 
 import numpy as np
 
-from ionochem.environment.slant import EARTH_RADIUS_KM
+from ionochem.environment.crosssections import solar_spectrum
+from ionochem.environment.geometry import flux_distance_factor, solar_zenith_angle_deg
+from ionochem.environment.n2plus_levels import (
+    electron_impact_split,
+    level_requests,
+    level_sources,
+    photoionization_split,
+)
+from ionochem.environment.neutrals import extended_grid_km
+from ionochem.environment.night_sources import (
+    describe,
+    night_frequencies,
+    night_rates,
+    night_spectrum,
+)
+from ionochem.environment.photorates import photo_frequencies
+from ionochem.environment.secondary import secondary_frequencies
+from ionochem.environment.slant import EARTH_RADIUS_KM, column_nodes, slant_columns
+from ionochem.environment.user_spectrum import load_user_spectrum
+from ionochem.environment.xrays import soft_xray_spectrum
 from ionochem.errors import ScenarioError
 
 #: Spacing of the time lattice of photo rates in transient runs, s (a choice: the zenith
@@ -30,7 +49,7 @@ LATTICE_S = 60.0
 MAX_CACHED_NODES = 512
 #: Photo and photoelectron frequencies below this (s-1 per molecule) are set to zero: they
 #: make less than one ion per cm3 in 1e70 years, and along grazing rays (the hard soft X-ray
-#: bins reach levels the EUV cannot) the densities they imply, ~1e-135 cm-3, underflow
+#: bins reach altitudes the EUV cannot) the densities they imply, ~1e-135 cm-3, underflow
 #: double precision in the solver's products (a numerical choice).
 NEGLIGIBLE_RATE_S = 1e-100
 
@@ -70,7 +89,6 @@ class SunColumn:
     """
 
     def __init__(self, scenario, env, needs, profile=None):
-        from ionochem.environment.crosssections import load_user_spectrum, solar_spectrum
         scenario.require("location", "time", reason="photo rates (k = photo reactions)")
         self.scenario = scenario
         self.warnings = []
@@ -89,7 +107,6 @@ class SunColumn:
                 kw["lyman_alpha_photons_cm2_s"] = photons.lyman_alpha_photons_cm2_s
             spectrum = solar_spectrum(scenario.sun.f107, scenario.sun.f107a, **kw)
             if photons.soft_xrays:
-                from ionochem.environment.xrays import soft_xray_spectrum
                 spectrum = spectrum.concatenate(soft_xray_spectrum(scenario.sun.f107,
                                                                    scenario.sun.f107a))
             if photons.extra_spectrum is not None:
@@ -103,7 +120,6 @@ class SunColumn:
                         "counted twice unless one of them is switched off")
                 spectrum = spectrum.concatenate(extra)
         self.spectrum = spectrum
-        from ionochem.environment.n2plus_levels import level_requests
         # Per-level N2+ channels ("photo:N2->N2+(v=1)") are split from their totals.
         self.level_requests = level_requests(needs)
         plain = [n for n in needs if "(v=" not in n]
@@ -123,7 +139,6 @@ class SunColumn:
         if photons.night_sources:
             # The night lines are attenuated by their own absorbers, whatever the solar
             # spectrum (a user spectrum may lack some).
-            from ionochem.environment.night_sources import night_spectrum
             absorbers |= set(night_spectrum().sigma_abs_cm2)
         absorbers = sorted(absorbers)
         if profile is not None:
@@ -138,9 +153,7 @@ class SunColumn:
                     f"{scenario.source}: neutrals.table: no {', '.join(lacking)} column; "
                     "these absorbers are left out of the optical depth")
             alt, dens = _extend_down(alt, dens)
-        # Columns on a fixed node grid: cost linear in levels (slant.column_nodes).
-        from ionochem.environment.neutrals import extended_grid_km
-        from ionochem.environment.slant import column_nodes
+        # Columns on a fixed node grid: cost linear in altitude rows (slant.column_nodes).
         alt, dens = column_nodes(alt, dens, extended_grid_km(bottom_km=alt[0], top_km=alt[-1]))
         self.profile_alt = alt
         self.profile = dens
@@ -157,8 +170,6 @@ class SunColumn:
 
     def _init_night(self):
         """Constant night-time (scattered) rates on the grid (``night_sources.py``)."""
-        from ionochem.environment.night_sources import describe, night_rates
-        from ionochem.environment.slant import slant_columns
         cols = slant_columns(self.grid, 0.0, self.profile_alt, self.profile)
         photo, pe = night_rates(cols, self.local, secondary=self.secondary)
         self.night = {f"photo:{k}": v for k, v in photo.items()}
@@ -169,11 +180,6 @@ class SunColumn:
     def _night_levels(self, cols):
         """Per-level N2+ keys of the night rates, split as the solar ones are
         (``n2plus_levels``): photons line by line, photoelectrons by the impact split."""
-        from ionochem.environment.n2plus_levels import (
-            electron_impact_split,
-            photoionization_split,
-        )
-        from ionochem.environment.night_sources import night_frequencies, night_spectrum
         out = {}
         spec = night_spectrum()
         for base, levels in self.level_requests.items():
@@ -200,7 +206,6 @@ class SunColumn:
 
     def zenith_deg(self, time_s=None):
         """Geometric solar zenith angle (degrees) at ``time_s`` after the scenario time."""
-        from ionochem.environment.geometry import solar_zenith_angle_deg
         return float(solar_zenith_angle_deg(self._utc(time_s), self.lat, self.lon))
 
     # ------------------------------------------------------------------ rates
@@ -211,13 +216,10 @@ class SunColumn:
             return self._cache[t]
         while len(self._cache) >= MAX_CACHED_NODES:
             self._cache.popitem(last=False)
-        from ionochem.environment.geometry import flux_distance_factor
-        from ionochem.environment.photorates import photo_frequencies
-        from ionochem.environment.slant import slant_columns
         chi = self.zenith_deg(t)
         top = self.grid.max()
         if chi > 90.0 and (EARTH_RADIUS_KM + top) * np.sin(np.radians(chi)) < EARTH_RADIUS_KM:
-            # The Earth's shadow covers the whole column: no ray reaches any level.
+            # The Earth's shadow covers the whole column: no ray reaches any altitude.
             zero = np.zeros(self.grid.size)
             out = {f"photo:{k}": zero for k in self.photo_channels}
             out.update({f"photoelectron:{k}": zero for k in self.pe_channels})
@@ -243,14 +245,12 @@ class SunColumn:
                         f"{', '.join(sorted(pe))})", file=self.scenario.source, key="photons")
                 out[f"photoelectron:{key}"] = np.where(dark, 0.0, pe[key])
         if self.level_requests:
-            from ionochem.environment.n2plus_levels import level_sources
             for key, val in level_sources(spectrum, cols, out, self.level_requests).items():
                 out[key] = np.where(dark, 0.0, val)
         self._cache[t] = (self._with_night(out), dark)
         return self._cache[t]
 
     def _photoelectron(self, spectrum, cols):
-        from ionochem.environment.secondary import secondary_frequencies
         return secondary_frequencies(spectrum, cols, self.local, enabled=self.secondary)
 
     def nodes(self, time_s=None):
@@ -280,6 +280,6 @@ class SunColumn:
         return self._at(time_s)[0]
 
     def dark(self, time_s=None):
-        """True at levels the direct sunlight does not reach."""
+        """True at altitudes the direct sunlight does not reach."""
         return self._at(time_s)[1]
 

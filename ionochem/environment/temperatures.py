@@ -27,7 +27,7 @@ m̄ = m_n,
     Teff = Tn + m_n² v_d²/(3 k_B (m_i+m_n)) + m_i m_n v_d²/(3 k_B (m_i+m_n))
          = Tn + m_n v_d² / (3 k_B),
 
-which is the well-known result quoted in SCIENCE.md §3. So the bulk term must be *kept*
+which is the well-known result quoted in docs/physics.md §3. So the bulk term must be *kept*
 with a heated Ti (dropping it would give Tn + m_n² v_d²/(3 k_B (m_i+m_n)), too cold); what
 must never happen twice is the *heating of Ti*: a Ti that already contains frictional
 heating (a radar or tabulated Ti, or one returned by :func:`frictional_ion_temperature`)
@@ -215,11 +215,11 @@ def effective_temperature(m_ion_amu, m_neutral_amu, Ti, Tn, drift_m_s, *,
 
 def check_tabulated_ti(Ti, Tn, drift_m_s, m_neutral_amu, *, altitude_km=None,
                        tolerance_K: float = 0.0) -> list:
-    """Levels where a tabulated Ti is colder than frictional heating implies.
+    """Altitude rows where a tabulated Ti is colder than frictional heating implies.
 
     Where the drift is non-zero, friction alone makes Ti >= Tn + m_n v_d²/(3 k_B)
     (:func:`frictional_ion_temperature`). A table colder than that probably left the
-    heating out; the caller warns (it does not change the table). Levels with no drift
+    heating out; the caller warns (it does not change the table). Altitude rows with no drift
     are not checked.
 
     Parameters
@@ -231,14 +231,14 @@ def check_tabulated_ti(Ti, Tn, drift_m_s, m_neutral_amu, *, altitude_km=None,
     m_neutral_amu : float or array_like
         (Mean) neutral mass (amu).
     altitude_km : array_like, shape (altitude,), optional
-        Altitudes to report; without it, level indices are reported.
+        Altitudes to report; without it, row indices are reported.
     tolerance_K : float
-        Ti may fall this much below the frictional value before a level is reported.
+        Ti may fall this much below the frictional value before an altitude is reported.
 
     Returns
     -------
     list
-        Altitudes (km) — or indices — of the offending levels, bottom first.
+        Altitudes (km) — or indices — of the offending altitude rows, bottom first.
     """
     ti = np.atleast_1d(np.asarray(Ti, dtype=float))
     v = np.broadcast_to(np.asarray(drift_m_s, dtype=float), ti.shape)

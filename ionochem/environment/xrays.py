@@ -2,7 +2,7 @@
 
 EUVAC starts at 50 angstrom; shortward of it the Sun's soft X-rays are absorbed below about
 120 km and, with their many secondary ion pairs, supply most of the E-region ionization of N2
-and O2 below ~115 km; without them a model's NmE falls ~30 % short (SCIENCE.md section 4a).
+and O2 below ~115 km; without them a model's NmE falls ~30 % short (docs/physics.md §4a).
 
 Flux
 ----
@@ -26,7 +26,7 @@ would be wrong; the K edges are sub-bin edges.
 
 Cross sections
 --------------
-At these energies a molecule absorbs like the sum of its atoms (SCIENCE.md section 4): the
+At these energies a molecule absorbs like the sum of its atoms (docs/physics.md §4): the
 photoabsorption cross sections are those of the Elam, Ravel & Sieber (2002) tables
 (Radiat. Phys. Chem. 63, 121, *(volume and page from memory)*) carried by the PyPI
 package ``xraydb`` (``mu_elam(..., kind="photo")``, mass absorption coefficient times
@@ -59,8 +59,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ionochem.constants import AVOGADRO, HC_EV_A
 from ionochem.environment.crosssections import (
-    HC_EV_A,
     MEGABARN_CM2,
     Spectrum,
     euvac_cross_sections,
@@ -84,8 +84,6 @@ FACTOR_FLOOR = 0.8
 SUB_BIN_REL = 0.1
 #: K-shell edges, angstrom: N 409.9 eV and O 543.1 eV (``xraydb.xray_edges``).
 K_EDGES_A = (HC_EV_A / 409.9, HC_EV_A / 543.1)
-#: Avogadro's number, mol-1 (CODATA 2018, exact).
-AVOGADRO = 6.02214076e23
 #: Wavelength samples per sub-bin for the cross-section average.
 _SAMPLES = 41
 

@@ -8,6 +8,8 @@ scenario, ``--option`` on the command line.
 
 from __future__ import annotations
 
+from ionochem.species import parse_species
+
 __all__ = ["balance_ion_problem"]
 
 
@@ -28,7 +30,6 @@ def balance_ion_problem(name, species=None) -> str | None:
         the electron ``e``, a neutral (``N2``), an anion, a name that is no species, an ion
         the reaction list does not have (``Xe+``).
     """
-    from ionochem.mechanism.species import parse_species
     text = str(name).strip()
     try:
         sp = parse_species(text)

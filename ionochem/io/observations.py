@@ -27,7 +27,6 @@ This module knows nothing of the chemistry: it reads, checks and labels.
 
 from __future__ import annotations
 
-import csv
 import math
 import warnings
 from pathlib import Path
@@ -36,7 +35,9 @@ import numpy as np
 import xarray as xr
 
 from ionochem.errors import InputError, safe_name
+from ionochem.io.csvtable import TableProblem, split_table
 from ionochem.io.paths import MAX_STORE_BYTES, PathProblem, read_text, regular_file, resolve_path
+from ionochem.species import parse_species
 
 __all__ = ["COLUMNS", "KINDS", "OPTIONAL_COLUMNS", "check_against_model",
            "check_matrix_size", "load_observations", "observation_where", "ratio_parts"]
@@ -50,12 +51,12 @@ KINDS = ("density", "electron_density", "ratio")
 
 #: Most observations one file may hold: a rocket or radar profile has hundreds to a few
 #: thousand points; the bound keeps the interpolation matrix of a fit (observations ×
-#: species × levels) in memory *(common practice)*.
+#: species × altitude rows) in memory *(common practice)*.
 MAX_OBSERVATIONS = 100_000
 #: Smallest one-sigma error relative to the value: below it the misfit's weight 1/σ² in log
 #: density overflows or means nothing *(common practice: no density is measured to 1e-9)*.
 MIN_RELATIVE_SIGMA = 1e-9
-#: Largest interpolation matrix (observations × species × levels entries, float64) a
+#: Largest interpolation matrix (observations × species × altitude rows entries, float64) a
 #: comparison with a model may build: 2.5e8 entries are 2 GB *(common practice)*.
 MAX_MATRIX_ENTRIES = 250_000_000
 
@@ -77,7 +78,6 @@ def ratio_parts(name):
 
 def _canonical_species(name):
     """Canonical species name (``O+(4S)`` → ``O+``); ``X(total)`` kept; ValueError if bad."""
-    from ionochem.mechanism.species import parse_species
     name = name.strip()
     if not name:
         raise ValueError("the species is empty")
@@ -132,44 +132,22 @@ def _number(cell, column):
         raise ValueError(f"the cell in column {column!r} is not a number") from None
 
 
-def _rows(reader, numbered, path):
-    """The csv reader's rows, a malformed row (an over-long field) at its line."""
-    it = iter(reader)
-    for lineno, _ in numbered:
-        try:
-            yield next(it)
-        except csv.Error as exc:
-            raise InputError(f"the row is not CSV ({str(exc).split(' (')[0]})", file=path,
-                             line=lineno) from None
-
-
 def _read_csv(path):
     try:
         _, text = read_text(path)
     except PathProblem as exc:
         raise InputError(str(exc), file=path, line=exc.line) from None
-    numbered = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
-                if ln.strip() and not ln.lstrip().startswith("#")]
-    if not numbered:
-        raise InputError("no header row (the file is empty); the header is "
-                         f"{', '.join(COLUMNS)}[, kind]", file=path)
-    if len(numbered) - 1 > MAX_OBSERVATIONS:
-        raise InputError(f"{len(numbered) - 1} rows, more than the {MAX_OBSERVATIONS} "
-                         "observations a file may hold; thin or split the profile", file=path)
-    rows = csv.reader([ln for _, ln in numbered], skipinitialspace=True)
-    head_line = numbered[0][0]
     try:
-        header = [h.strip() for h in next(rows)]
-    except csv.Error as exc:
-        raise InputError(f"the header row is not CSV ({exc})", file=path,
-                         line=head_line) from None
+        table = split_table(text, max_rows=MAX_OBSERVATIONS, row_word="observations")
+    except TableProblem as exc:
+        hint = f"; the header is {', '.join(COLUMNS)}[, kind]" if exc.line is None and \
+            exc.message.startswith("no header") else ""
+        raise InputError(exc.message + hint, file=path, line=exc.line) from None
+    header, head_line = table.header, table.header_line
     for name in header:
         if name not in COLUMNS + OPTIONAL_COLUMNS:
             raise InputError(f"unknown column {safe_name(name)}; the columns are "
                              f"{', '.join(COLUMNS)} and optionally kind", file=path,
-                             line=head_line)
-        if header.count(name) > 1:
-            raise InputError(f"column {safe_name(name)} appears twice in the header", file=path,
                              line=head_line)
     missing = [c for c in COLUMNS if c not in header]
     if missing:
@@ -178,12 +156,7 @@ def _read_csv(path):
                          file=path, line=head_line)
     col = {name: j for j, name in enumerate(header)}
     records = []
-    for (lineno, _), cells in zip(numbered[1:], _rows(rows, numbered[1:], path),
-                                   strict=True):
-        if len(cells) != len(header):
-            raise InputError(f"{len(cells)} cells but the header has {len(header)} columns",
-                             file=path, line=lineno)
-        cells = [c.strip() for c in cells]
+    for lineno, cells in zip(table.lines, table.rows, strict=True):
         try:
             alt = _number(cells[col["altitude_km"]], "altitude_km")
             value = _number(cells[col["density_cm3"]], "density_cm3")
@@ -354,12 +327,12 @@ def check_against_model(obs, species, altitude_km):
                              "km", file=file, line=line, key=key)
 
 
-def check_matrix_size(n_obs, n_species, n_levels, *, source=None):
+def check_matrix_size(n_obs, n_species, n_rows, *, source=None):
     """Refuse a comparison whose interpolation matrix would exceed
-    :data:`MAX_MATRIX_ENTRIES` (observations × species × levels), before it is built."""
-    entries = int(n_obs) * int(n_species) * int(n_levels)
+    :data:`MAX_MATRIX_ENTRIES` (observations × species × altitude rows), before it is built."""
+    entries = int(n_obs) * int(n_species) * int(n_rows)
     if entries > MAX_MATRIX_ENTRIES:
-        raise InputError(f"{n_obs} observations against {n_species} species on {n_levels} "
-                         f"levels need a {entries * 8 / 1024 ** 3:.1f} GiB interpolation "
+        raise InputError(f"{n_obs} observations against {n_species} species on {n_rows} "
+                         f"altitude rows need a {entries * 8 / 1024 ** 3:.1f} GiB interpolation "
                          f"matrix, above the {MAX_MATRIX_ENTRIES * 8 / 1024 ** 3:.0f} GiB "
-                         "bound; thin the observations or use fewer levels", file=source)
+                         "bound; thin the observations or use fewer altitude rows", file=source)

@@ -22,8 +22,8 @@ import os
 import stat
 from pathlib import Path
 
-__all__ = ["MAX_INPUT_BYTES", "MAX_STORE_BYTES", "PathProblem", "file_digest", "read_bounded",
-           "read_text", "regular_file", "resolve_path"]
+__all__ = ["MAX_INPUT_BYTES", "MAX_STORE_BYTES", "PathProblem", "decode_text", "file_digest",
+           "read_bounded", "read_text", "regular_file", "resolve_path"]
 
 #: Largest input file read (bytes). The largest packaged table is below 1 MB; a reaction list,
 #: scenario or profile table of ten times the packaged ones is still far below this
@@ -166,16 +166,26 @@ def read_text(name, base=None, limit: int = MAX_INPUT_BYTES) -> tuple[Path, str]
         character (``line`` says where).
     """
     path = resolve_path(name, base)
-    data = read_bounded(path, limit)
+    return path, decode_text(read_bounded(path, limit))
+
+
+def decode_text(data: bytes) -> str:
+    """``data`` as UTF-8 text, a leading byte-order mark dropped.
+
+    Raises
+    ------
+    PathProblem
+        Bytes that are not UTF-8, or a NUL character (``line`` says where).
+    """
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as exc:
-        raise PathProblem("is not UTF-8 text (a binary file?)",
+        raise PathProblem("is not valid UTF-8 text (a binary file?)",
                           line=data[:exc.start].count(b"\n") + 1) from None
     if "\0" in text:
-        raise PathProblem("contains a NUL character (a binary file?)",
+        raise PathProblem("contains a NUL byte (a binary file?)",
                           line=text[:text.index("\0")].count("\n") + 1)
-    return path, text.removeprefix("\ufeff")
+    return text.removeprefix("\ufeff")
 
 
 def file_digest(path, limit: int = MAX_STORE_BYTES) -> str:

@@ -31,6 +31,7 @@ import numpy as np
 import xarray as xr
 
 from ionochem.errors import InputError
+from ionochem.io.netcdf import _encodable, atomic_path, cf_dimension_order
 
 #: Variables that describe the reaction list rather than a column: stored once.
 STATIC_VARIABLES = ("reaction_order", "net_stoichiometry")
@@ -265,7 +266,6 @@ def _write_netcdf(path, skel, layout, batches, var_attrs):
     recommends, the UTC and position of the points as coordinates of every variable)."""
     import netCDF4
 
-    from ionochem.io.netcdf import _encodable, atomic_path
     dims = sweep_dims(skel)
     shape = tuple(skel.sizes[d] for d in dims)
     ready = _encodable(skel)
@@ -299,7 +299,6 @@ def _write_netcdf(path, skel, layout, batches, var_attrs):
 def _create(nc, ready, e, dims, shape):
     """The netCDF variable of one per-column entry, its dimensions in CF order; returns
     (variable, dimension order)."""
-    from ionochem.io.netcdf import cf_dimension_order
     natural = (*dims, *e.dims)
     order = cf_dimension_order(ready, natural)
     size = dict(zip(natural, (*shape, *e.shape)))

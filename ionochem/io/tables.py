@@ -7,17 +7,14 @@ cm-3 s-1). :func:`read_profile_table` reads one and interpolates each column ont
 altitude grid; :func:`read_csv_columns` is the shared low-level reader that other tables (a
 solar spectrum, say) reuse.
 
-The CSV splitting is the standard library's :mod:`csv`; only the checks and the interpolation
-rule are written here. This module must not know what a column means beyond the ``_K``
-naming rule (temperatures in kelvin must be positive): the caller says which columns it needs
-and whether they must be non-negative.
+The commented-CSV format itself is split by :mod:`ionochem.io.csvtable` (the one reader of
+that format); only the checks and the interpolation rule are written here. This module
+must not know what a column means beyond the ``_K`` naming rule (temperatures in kelvin must
+be positive): the caller says which columns it needs and whether they must be non-negative.
 """
 
 from __future__ import annotations
 
-import csv
-import math
-import re
 import warnings
 from collections.abc import Collection, Sequence
 from pathlib import Path
@@ -25,7 +22,8 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import InputError, ScenarioError, safe_name
-from ionochem.io.paths import PathProblem, read_bounded
+from ionochem.io.csvtable import TableProblem, number_cell, split_table
+from ionochem.io.paths import PathProblem, decode_text, read_bounded
 from ionochem.io.plausibility import check_column
 
 __all__ = ["ALTITUDE_TOLERANCE_KM", "read_csv_columns", "read_profile_table"]
@@ -88,70 +86,25 @@ def read_csv_columns(path: str | Path, *, where: str | None = None,
     """
     path = Path(path)
     try:
-        text = read_bounded(path).decode("utf-8-sig")
+        text = decode_text(read_bounded(path))
     except PathProblem as exc:
-        raise _fail(f"table file {exc}", path, None, where, scenario_file) from None
-    except UnicodeDecodeError as exc:
-        raise _fail(f"not UTF-8 text ({exc.reason} at byte {exc.start})", path, None, where,
-                    scenario_file) from None
-    if "\0" in text:
-        raise _fail("contains a NUL character: not a text table", path, None, where,
-                    scenario_file)
-
-    numbered = [(i, ln) for i, ln in enumerate(text.splitlines(), start=1)
-                if ln.strip() and not ln.lstrip().startswith("#")]
-    if not numbered:
-        raise _fail("no header row (the table is empty)", path, None, where, scenario_file)
-    rows = csv.reader([ln for _, ln in numbered], skipinitialspace=True)
-    header_line = numbered[0][0]
-    header = [name.strip() for name in next(rows)]
-    for j, name in enumerate(header):
-        if not name:
-            raise _fail(f"column {j + 1} of the header has no name", path, header_line,
-                        where, scenario_file)
-    seen = set()
-    for name in header:
-        if name in seen:
-            raise _fail(f"column {safe_name(name)} appears twice in the header", path,
-                        header_line, where, scenario_file)
-        seen.add(name)
-
+        raise _fail(f"table file {exc}", path, exc.line, where, scenario_file) from None
+    try:
+        table = split_table(text)
+    except TableProblem as exc:
+        raise _fail(exc.message, path, exc.line, where, scenario_file) from None
+    if not table.rows:
+        raise _fail("the table has a header but no data rows", path, table.header_line,
+                    where, scenario_file)
     values: list[list[float]] = []
-    lines: list[int] = []
-    for (lineno, _), cells in zip(numbered[1:], rows, strict=True):
-        if len(cells) != len(header):
-            raise _fail(f"{len(cells)} cells but the header has {len(header)} columns",
-                        path, lineno, where, scenario_file)
-        row = []
-        for name, cell in zip(header, cells, strict=True):
-            cell = cell.strip()
-            value = _ascii_float(cell)
-            if value is None:
-                raise _fail(f"the cell in column {safe_name(name)} is not a number "
-                            "(ASCII digits, e.g. 1.5e6)",
-                            path, lineno, where, scenario_file) from None
-            if not math.isfinite(value):
-                raise _fail(f"the cell in column {safe_name(name)} is not a finite number",
-                            path, lineno, where, scenario_file)
-            row.append(value)
-        values.append(row)
-        lines.append(lineno)
-    if not values:
-        raise _fail("the table has a header but no data rows", path, header_line, where,
-                    scenario_file)
-    return header, np.asarray(values, dtype=float), np.asarray(lines, dtype=int)
-
-
-_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
-                     r"|[+-]?(?:inf|infinity|nan)", re.IGNORECASE)
-
-
-def _ascii_float(cell: str) -> float | None:
-    """The number in ``cell`` written with ASCII digits, or None (``float`` alone would
-    accept Unicode digits such as '١' and underscores)."""
-    if not _NUMBER.fullmatch(cell):
-        return None
-    return float(cell)
+    for line, cells in zip(table.lines, table.rows, strict=True):
+        try:
+            values.append([number_cell(cell, name)
+                           for name, cell in zip(table.header, cells, strict=True)])
+        except ValueError as exc:
+            raise _fail(str(exc), path, line, where, scenario_file) from None
+    return (list(table.header), np.asarray(values, dtype=float),
+            np.asarray(table.lines, dtype=int))
 
 
 def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, *,
@@ -204,6 +157,31 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
         return _fail(message, path, line, where, scenario_file)
 
     header, data, lines = read_csv_columns(path, where=where, scenario_file=scenario_file)
+    data, lines = _ascending(header, data, lines, fail)
+    alt = data[:, 0]
+    index = {name: j for j, name in enumerate(header)}
+    wanted = _wanted_columns(header, columns, fail)
+    if nonnegative is True:
+        must_be_nonneg = set(wanted)
+    elif nonnegative is False:
+        must_be_nonneg = set()
+    else:
+        must_be_nonneg = set(nonnegative)
+    x = _grid_inside(grid_km, alt, fail)
+    out: dict[str, np.ndarray] = {}
+    for name in wanted:
+        col = data[:, index[name]]
+        _check_values(name, col, alt, lines, name in must_be_nonneg, where, path, fail)
+        if np.all(col > 0):
+            out[name] = np.exp(np.interp(x, alt, np.log(col)))
+        else:
+            out[name] = np.interp(x, alt, col)
+    return out
+
+
+def _ascending(header, data, lines, fail):
+    """The rows in increasing altitude: the first column must be ``altitude_km``, strictly
+    increasing or strictly decreasing (a decreasing table is reversed)."""
     if header[0] != "altitude_km":
         raise fail(f"the first column must be 'altitude_km', not {safe_name(header[0])}")
     if len(header) < 2:
@@ -220,25 +198,26 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
                        "(altitudes must be strictly increasing or strictly decreasing)",
                        int(lines[i]))
         if sign < 0:
-            data, lines, alt = data[::-1], lines[::-1], alt[::-1]
+            data, lines = data[::-1], lines[::-1]
+    return data, lines
 
-    index = {name: j for j, name in enumerate(header)}
+
+def _wanted_columns(header, columns, fail):
+    """The columns to return: ``columns`` (each must be present) or all but the first."""
     if columns is None:
-        wanted = header[1:]
-    else:
-        wanted = list(columns)
-        missing = [name for name in wanted if name not in index]
-        if missing:
-            raise fail(f"missing column{'s' if len(missing) > 1 else ''} "
-                       f"{', '.join(missing)}; the table has: "
-                       f"{', '.join(safe_name(h, quote=False) for h in header)}")
-    if nonnegative is True:
-        must_be_nonneg = set(wanted)
-    elif nonnegative is False:
-        must_be_nonneg = set()
-    else:
-        must_be_nonneg = set(nonnegative)
+        return header[1:]
+    wanted = list(columns)
+    missing = [name for name in wanted if name not in header]
+    if missing:
+        raise fail(f"missing column{'s' if len(missing) > 1 else ''} "
+                   f"{', '.join(missing)}; the table has: "
+                   f"{', '.join(safe_name(h, quote=False) for h in header)}")
+    return wanted
 
+
+def _grid_inside(grid_km, alt, fail):
+    """The grid (km), refused when a point lies outside the table's altitudes by more than
+    :data:`ALTITUDE_TOLERANCE_KM`, clipped onto them."""
     grid = np.asarray(grid_km, dtype=float).reshape(-1)
     if not np.all(np.isfinite(grid)):
         raise fail("the altitude grid has non-finite values")
@@ -251,25 +230,21 @@ def read_profile_table(path: str | Path, grid_km: Sequence[float] | np.ndarray, 
         more = f" (and {n_more} more grid point{'s' if n_more > 1 else ''})" if n_more else ""
         raise fail(f"grid altitude {first:g} km is outside the table's altitude range "
                    f"{lo:g} to {hi:g} km{more}")
-    x = np.clip(grid, lo, hi)
+    return np.clip(grid, lo, hi)
 
-    out: dict[str, np.ndarray] = {}
-    for name in wanted:
-        col = data[:, index[name]]
-        if name in must_be_nonneg or name.endswith("_K"):
-            bad = np.flatnonzero(col <= 0 if name.endswith("_K") else col < 0)
-            if bad.size:
-                i = bad[0]
-                need = "a positive temperature" if name.endswith("_K") else "non-negative"
-                raise fail(f"column {safe_name(name)} has {col[i]:g}; it must be {need}",
-                           int(lines[i]))
-        bad, error, warning = check_column(safe_name(name, quote=False), where, col, alt)
-        if error:
-            raise fail(error, int(lines[bad]))
-        if warning:
-            warnings.warn(f"{path.name}: {warning}", stacklevel=2)
-        if np.all(col > 0):
-            out[name] = np.exp(np.interp(x, alt, np.log(col)))
-        else:
-            out[name] = np.interp(x, alt, col)
-    return out
+
+def _check_values(name, col, alt, lines, nonneg, where, path, fail):
+    """A temperature column (``_K``) positive, a non-negative column not negative, and the
+    plausibility bounds of :func:`ionochem.io.plausibility.check_column`."""
+    if nonneg or name.endswith("_K"):
+        bad = np.flatnonzero(col <= 0 if name.endswith("_K") else col < 0)
+        if bad.size:
+            i = bad[0]
+            need = "a positive temperature" if name.endswith("_K") else "non-negative"
+            raise fail(f"column {safe_name(name)} has {col[i]:g}; it must be {need}",
+                       int(lines[i]))
+    bad, error, warning = check_column(safe_name(name, quote=False), where, col, alt)
+    if error:
+        raise fail(error, int(lines[bad]))
+    if warning:
+        warnings.warn(f"{path.name}: {warning}", stacklevel=3)

@@ -5,11 +5,11 @@ which are fixed (taken from the neutral source), which are algebraic (electrons 
 neutrality, or the balance ion when the electron density is given), the net stoichiometry
 of every reaction, and the reactant slots of every rate law. With those, the tendency
 ``f = ν · r(n)`` and its Jacobian are a handful of vectorised numpy operations over any
-number of columns ("levels", possibly levels of many samples stacked).
+number of columns (altitude rows, possibly the rows of many samples stacked).
 
 It knows nothing of the atmosphere: rate coefficients and fixed densities come in as arrays.
 
-Shapes: ``B`` columns (altitude levels, or sample × altitude flattened), ``S`` solved
+Shapes: ``B`` columns (altitude rows, or sample × altitude flattened), ``S`` solved
 species, ``R`` reactions, ``F`` fixed species.
 """
 
@@ -20,10 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ionochem.errors import MechanismError
+from ionochem.mechanism.rows import ELECTRON, MAX_REACTANT_SLOTS, BoundRows
 
-MAX_REACTANT_SLOTS = 3
-
-ELECTRON = "e"
 THIRD_BODY = "M"
 
 
@@ -136,7 +134,7 @@ class Mechanism:
         self.E = E
         self._n_given = len(self.given)
         # Jacobian kernel: J[b, i, j] = Σ_m Σ_r ∂r_r/∂n_slot(m) · ν[i, r] · E[slot(m, r), j],
-        # stored as G[(m, r), (i, j)] so the Jacobian of every level is one matrix product.
+        # stored as G[(m, r), (i, j)] so the Jacobian of every altitude row is one matrix product.
         G = np.zeros((MAX_REACTANT_SLOTS, R, S, S))
         for m in range(MAX_REACTANT_SLOTS):
             G[m] = self.nu.T[:, :, None] * E[slots[:, m]][:, None, :]
@@ -292,7 +290,6 @@ class Mechanism:
         through their affine dependence on the solved densities.
         """
         # Built with rows last by the steady solvers' evaluation (mechanism/rows.py).
-        from ionochem.mechanism.rows import BoundRows
         n = np.asarray(n, float)
         J = BoundRows(self, np.asarray(k, float), np.asarray(given, float)).jacobian(
             n, np.arange(n.shape[0]))

@@ -24,8 +24,6 @@ knows nothing about reactions beyond that file and line.
 
 from __future__ import annotations
 
-import csv
-import io
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -33,13 +31,13 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import ReactionListError, TableRangeError, safe_name
-from ionochem.io.paths import PathProblem, read_bounded, regular_file
+from ionochem.io.csvtable import TableProblem, number_cell, split_table
+from ionochem.io.paths import PathProblem, decode_text, read_bounded, regular_file
 
 __all__ = ["RateTable", "load_rate_table", "clear_cache", "TEMPERATURE_COLUMNS"]
 
 TEMPERATURE_COLUMNS = ("Te", "Ti", "Tn", "Teff")
 _TEMP_HEADER = re.compile(r"(Te|Ti|Tn|Teff)(_K)?")
-_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
 _MAX_BYTES = 10_000_000
 # Relative slack when checking the range, so a temperature equal to an end point up to
 # rounding is not refused *(common practice)*.
@@ -178,15 +176,10 @@ def _fail(name, message, file, line):
 
 
 def _number(cell: str, what: str, row_line: int, name, file, line) -> float:
-    text = cell.strip()
-    if not _NUMBER.fullmatch(text):
-        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is not a number "
-                    "(ASCII digits, e.g. 1.5e-10)", file, line)
-    value = float(text)
-    if not np.isfinite(value):
-        _fail(name, f"line {row_line}: the value in column {safe_name(what)} is too large",
-              file, line)
-    return value
+    try:
+        return number_cell(cell, what)
+    except ValueError as exc:
+        _fail(name, f"line {row_line}: {exc}", file, line)
 
 
 def where_tables(base_dir) -> str:
@@ -272,96 +265,114 @@ def _select(p: _Parsed, name, level, file, line) -> RateTable:
 
 
 def _parse(path: Path, column, st, name, file, line, hint) -> _Parsed:
+    def fail(message):
+        _fail(name, message, file, line)
+
+    table = _split(path, hint, fail)
+    header = list(table.header)
+    rows = list(zip(table.lines, table.rows, strict=True))
+    has_v, t_col, variable, cols = _layout(header, column, fail)
+    arr, levels = _values(rows, header, cols, has_v, name, file, line, fail)
+    T = arr[:, 0]
+    row_lines = [r[0] for r in rows]
+    lv = np.array(levels, dtype=int) if has_v else np.zeros(len(T), dtype=int)
+    _check_temperatures(T, lv, has_v, header[t_col], row_lines, fail)
+    values = arr[:, 1]
+    low = high = None
+    if len(cols) == 4:
+        low, high = arr[:, 2], arr[:, 3]
+        wrong = (low > values) | (high < values)
+        if wrong.any():
+            i = int(np.argmax(wrong))
+            fail(f"line {row_lines[i]}: the band {column}_low .. {column}_high must "
+                 f"contain {column}")
+    for a in (T, values, low, high):
+        if a is not None:
+            a.setflags(write=False)
+    return _Parsed(path, column, variable, T, values, low, high, lv if has_v else None)
+
+
+def _split(path, hint, fail):
+    """The table's text (bounded, UTF-8) split by :func:`ionochem.io.csvtable.split_table`."""
     try:
         data = read_bounded(path, _MAX_BYTES)
     except PathProblem as exc:
-        _fail(name, f"{exc}; {hint}", file, line)
+        fail(f"{exc}; {hint}")
     try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        bad_line = data[:exc.start].count(b"\n") + 1
-        _fail(name, f"not valid UTF-8 (line {bad_line})", file, line)
-    if "\x00" in text:
-        bad_line = text[:text.index("\x00")].count("\n") + 1
-        _fail(name, f"contains a NUL byte (line {bad_line})", file, line)
-    text = text.removeprefix("\ufeff")
-    rows: list[tuple[int, list[str]]] = []
+        text = decode_text(data)
+    except PathProblem as exc:
+        fail(f"{str(exc).removeprefix('is ')} (line {exc.line})")
     try:
-        for number, raw in enumerate(text.splitlines(), start=1):
-            stripped = raw.strip()
-            if not stripped or stripped.startswith("#"):
-                continue
-            cells = next(csv.reader(io.StringIO(raw)))
-            rows.append((number, [c.strip() for c in cells]))
-    except csv.Error as exc:
-        _fail(name, f"CSV error: {exc}", file, line)
-    if not rows:
-        _fail(name, "no header row", file, line)
-    header_line, header = rows[0]
-    if len(set(header)) != len(header):
-        _fail(name, "repeated column name in the header", file, line)
+        return split_table(text)
+    except TableProblem as exc:
+        fail(f"line {exc.line}: {exc.message}" if exc.line else exc.message)
+
+
+def _layout(header, column, fail):
+    """(has a ``v`` column, index of the temperature column, its variable, the indices of
+    the temperature, ``column`` and its band columns)."""
     has_v = header[0] == "v"
     if "v" in header[1:]:
-        _fail(name, "the level column 'v' must be the first column (v, then the "
-                    "temperature)", file, line)
+        fail("the level column 'v' must be the first column (v, then the temperature)")
     t_col = 1 if has_v else 0
     if len(header) <= t_col:
-        _fail(name, "the header has no temperature column after 'v'", file, line)
+        fail("the header has no temperature column after 'v'")
     m = _TEMP_HEADER.fullmatch(header[t_col])
     if not m:
         where = "the column after 'v'" if has_v else "the first column"
-        _fail(name, f"{where} must be the temperature (Te, Ti, Tn or Teff, "
-                    f"optionally with _K), found {safe_name(header[t_col])}", file, line)
-    variable = m.group(1)
+        fail(f"{where} must be the temperature (Te, Ti, Tn or Teff, "
+             f"optionally with _K), found {safe_name(header[t_col])}")
     if column == header[t_col]:
-        _fail(name, f"column '{column}' is the temperature column", file, line)
+        fail(f"column '{column}' is the temperature column")
     if has_v and column == "v":
-        _fail(name, "column 'v' is the level column", file, line)
+        fail("column 'v' is the level column")
     if column not in header:
-        _fail(name, f"no column '{column}' (columns: "
-                    f"{', '.join(safe_name(h, quote=False) for h in header[t_col + 1:])})",
-              file, line)
-    idx = header.index(column)
+        fail(f"no column '{column}' (columns: "
+             f"{', '.join(safe_name(h, quote=False) for h in header[t_col + 1:])})")
     lo_name, hi_name = f"{column}_low", f"{column}_high"
     has_lo, has_hi = lo_name in header, hi_name in header
     if has_lo != has_hi:
-        _fail(name, f"column '{lo_name if has_lo else hi_name}' needs its partner "
-                    f"'{hi_name if has_lo else lo_name}'", file, line)
-    cols = [t_col, idx] + ([header.index(lo_name), header.index(hi_name)] if has_lo else [])
+        fail(f"column '{lo_name if has_lo else hi_name}' needs its partner "
+             f"'{hi_name if has_lo else lo_name}'")
+    cols = [t_col, header.index(column)]
+    if has_lo:
+        cols += [header.index(lo_name), header.index(hi_name)]
+    return has_v, t_col, m.group(1), cols
+
+
+def _values(rows, header, cols, has_v, name, file, line, fail):
+    """The numbers of ``cols`` in each row, all positive, and the level of each row."""
     table = []
     levels = []
-    for row_line, cells in rows[1:]:
-        if len(cells) != len(header):
-            _fail(name, f"line {row_line} has {len(cells)} values, the header has "
-                        f"{len(header)}", file, line)
+    for row_line, cells in rows:
         if has_v:
             cell = cells[0]
             if not re.fullmatch(r"\+?[0-9]{1,3}", cell):
-                _fail(name, f"line {row_line}: the level v is not a whole number "
-                            "from 0 to 999 (ASCII digits)", file, line)
+                fail(f"line {row_line}: the level v is not a whole number "
+                     "from 0 to 999 (ASCII digits)")
             levels.append(int(cell))
         vals = [_number(cells[c], header[c], row_line, name, file, line) for c in cols]
         if vals[0] <= 0:
-            _fail(name, f"line {row_line}: temperature {vals[0]:g} K is not positive",
-                  file, line)
+            fail(f"line {row_line}: temperature {vals[0]:g} K is not positive")
         for c, v in zip(cols[1:], vals[1:], strict=True):
             if v <= 0:
-                _fail(name, f"line {row_line}: {header[c]} = {v:g} is not positive "
-                            "(rates are interpolated in log k)", file, line)
+                fail(f"line {row_line}: {header[c]} = {v:g} is not positive "
+                     "(rates are interpolated in log k)")
         table.append(vals)
     if len(table) < 2:
-        _fail(name, "needs at least two rows of values", file, line)
-    arr = np.array(table, dtype=float)
-    T = arr[:, 0]
-    row_lines = [r[0] for r in rows[1:]]
-    lv = np.array(levels, dtype=int) if has_v else np.zeros(len(T), dtype=int)
+        fail("needs at least two rows of values")
+    return np.array(table, dtype=float), levels
+
+
+def _check_temperatures(T, lv, has_v, t_name, row_lines, fail):
+    """No repeated (v, T) row; temperatures strictly increasing within each level."""
     if has_v:
         seen: dict[tuple[int, float], int] = {}
         for i, (v, t) in enumerate(zip(lv, T, strict=True)):
             first = seen.setdefault((int(v), float(t)), row_lines[i])
             if first != row_lines[i]:
-                _fail(name, f"duplicate row for v = {int(v)}, {header[t_col]} = {t:g} "
-                            f"(lines {first} and {row_lines[i]})", file, line)
+                fail(f"duplicate row for v = {int(v)}, {t_name} = {t:g} "
+                     f"(lines {first} and {row_lines[i]})")
     for v in np.unique(lv):
         idx_v = np.nonzero(lv == v)[0]
         steps = np.diff(T[idx_v])
@@ -369,19 +380,5 @@ def _parse(path: Path, column, st, name, file, line, hint) -> _Parsed:
             i = idx_v[int(np.argmax(steps <= 0)) + 1]
             j = idx_v[int(np.argmax(steps <= 0))]
             within = f" within level v = {int(v)}" if has_v else ""
-            _fail(name, f"temperatures must be strictly increasing{within} "
-                        f"({header[t_col]} = {T[i]:g} after {T[j]:g}, line {row_lines[i]})",
-                  file, line)
-    values = arr[:, 1]
-    low = high = None
-    if has_lo:
-        low, high = arr[:, 2], arr[:, 3]
-        wrong = (low > values) | (high < values)
-        if wrong.any():
-            i = int(np.argmax(wrong))
-            _fail(name, f"line {row_lines[i]}: the band {lo_name} .. {hi_name} must "
-                        f"contain {column}", file, line)
-    for a in (T, values, low, high):
-        if a is not None:
-            a.setflags(write=False)
-    return _Parsed(path, column, variable, T, values, low, high, lv if has_v else None)
+            fail(f"temperatures must be strictly increasing{within} "
+                 f"({t_name} = {T[i]:g} after {T[j]:g}, line {row_lines[i]})")

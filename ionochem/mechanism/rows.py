@@ -13,14 +13,19 @@ gross rates come from one sparse matrix product. The numbers are those of
 :meth:`Mechanism.tendency`, :meth:`Mechanism.solved_production_loss` and
 :meth:`Mechanism.jacobian` to rounding (the factors are multiplied in another order;
 tests/test_engine.py checks it against hand-written equations).
+
+This module sits below :mod:`ionochem.mechanism.mechanism` (which imports it, never the
+other way round): it reads a Mechanism's public arrays by attribute.
 """
 
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
 
-from ionochem.mechanism.mechanism import ELECTRON, MAX_REACTANT_SLOTS
+#: Most reactants a reaction may have (three-body reactions); the Mechanism refuses more.
+MAX_REACTANT_SLOTS = 3
+#: Name of the electron in a Mechanism's species lists.
+ELECTRON = "e"
 
 
 def _tables(m, R):
@@ -60,6 +65,9 @@ def _tables(m, R):
     # the same sum, in the same order, in the three matrices, so the tendency and gross
     # rates equal those of ``out`` bitwise.
     stacked = np.concatenate([m.nu, pos.T, neg.T], axis=0)[:, order]
+    # Lazy: `ionochem check` builds a Mechanism but never binds rows, and must start
+    # without scipy (tests/test_cli_imports.py).
+    import scipy.sparse as sp
     t["out"] = sp.csr_matrix(stacked)
     t["nu"] = sp.csr_matrix(stacked[:S])
     t["gross_out"] = sp.csr_matrix(stacked[S:])

@@ -1,7 +1,7 @@
 """Figure of a baseline-versus-changed comparison.
 
 Left panel: density profiles, baseline solid and changed dashed, one colour per species
-from the project's palette (:data:`ionochem.plot.profiles.STYLE`). Right panel: the change
+from the project's palette (:data:`ionochem.plot.palette.STYLE`). Right panel: the change
 from baseline, 100 (changed/baseline − 1) in %, against altitude. Both panels shade the
 altitudes where the baseline is not in photochemical equilibrium
 (:mod:`ionochem.plot.equilibrium`); the legend sits right of the panels. The figure is
@@ -14,6 +14,7 @@ import numpy as np
 
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right
+from ionochem.plot.observations import overlay_observations
 from ionochem.plot.profiles import label_levels, save_figure, style_density_axes, style_of
 
 COMPARE_SPECIES = ("e", "O+(total)", "O+", "O2+", "NO+", "N2+")
@@ -79,7 +80,6 @@ def compare_figure(ds, *, species=None, title=None, observed=None):
     ax_r.axvline(0.0, color="0.5", lw=0.8)
     ax_r.set_xlabel("change from baseline (%)")
     ax_r.grid(True, alpha=0.3)
-    from ionochem.plot.observations import overlay_observations
     overlay_observations(ax_n, observed, names)
     handles, labels = ax_n.get_legend_handles_labels()
     handles += [Line2D([], [], color="0.3", ls="-"), Line2D([], [], color="0.3", ls="--")]

@@ -4,7 +4,7 @@ One panel per observable (at most six). Without a sweep: the separation against 
 (x: combined standard deviations, y: altitude), with dotted lines at 1, 2 and 3 σ and the
 Monte Carlo check's points with their error bars when it ran. With a sweep: a map of the
 separation, altitude against the first swept key (other swept dimensions at the condition
-where the separation is largest, said in the title), contours at 1, 2 and 3 σ. Levels where
+where the separation is largest, said in the title), contours at 1, 2 and 3 σ. Altitudes where
 linear propagation is doubtful (``linear_doubtful``) are hatched in both. Legends and notes
 sit outside the data. Nothing here computes chemistry; the figure is written atomically.
 """

@@ -1,6 +1,6 @@
 """Marks on profile figures where a species is not in photochemical equilibrium.
 
-A result dataset flags, per species and level, where the chemical lifetime n/L is longer than
+A result dataset flags, per species and altitude, where the chemical lifetime n/L is longer than
 the O+ ambipolar diffusion time (``pce_doubtful``, see
 :mod:`ionochem.analysis.diagnostics`): there a chemistry-only column misrepresents the
 species. Every profile and comparison figure shows it the same way, per species: each curve is
@@ -21,7 +21,7 @@ ONSET_MARKER = dict(marker="o", ms=5.5, mfc="white", mew=1.3, ls="none", zorder=
 
 
 def doubtful_mask(ds, species, var="pce_doubtful"):
-    """Levels where ``species`` is flagged, bool (altitude,); all False without the flag.
+    """Altitudes where ``species`` is flagged, bool (altitude,); all False without the flag.
 
     Parameters
     ----------
@@ -95,7 +95,7 @@ def shade_doubtful(ax, alt, masks, *, vertical=True):
     alt : ndarray (altitude,)
         km, increasing.
     masks : dict of str to ndarray of bool (altitude,)
-        Per drawn species, the flagged levels.
+        Per drawn species, the flagged altitudes.
     vertical : bool
         Unused (kept for the callers).
 

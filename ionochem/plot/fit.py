@@ -1,7 +1,7 @@
 """Figure of a fit: profiles before and after, the measurements, residuals, multipliers.
 
 Left: the observed species' densities, baseline dashed and fitted solid, in the project's
-colours (:data:`ionochem.plot.profiles.STYLE`), with the measurements and their error bars
+colours (:data:`ionochem.plot.palette.STYLE`), with the measurements and their error bars
 (:mod:`ionochem.plot.observations`). Middle: normalized residuals (ln obs − ln model)/σ_ln
 against altitude, baseline hollow and fitted filled, with the ±1 band. Right: the fitted
 multipliers with their 68 % ranges on a log axis (and the prior range, grey). With a
@@ -44,6 +44,18 @@ def plot_fit(ds, path, *, title=None):
         fig, axes = plt.subplots(1, 3, figsize=(10.5, 5.6), layout="constrained",
                                  gridspec_kw={"width_ratios": [1.4, 1.0, 1.0]})
     ax_n, ax_r, ax_m = axes[:3]
+    _densities(ax_n, ds, obs, names)
+    _residuals(ax_r, ds)
+    _multipliers(ax_m, ds)
+    if has_profile:
+        _profile(axes[3], ds)
+    fig.suptitle((title or ds.attrs.get("title", ""))
+                 + f"\nfit to {Path(ds.attrs.get('observations', '')).name}", fontsize=10)
+    return save_figure(fig, path)
+
+
+def _densities(ax_n, ds, obs, names):
+    """Fitted (solid) and baseline (dashed) densities with the observations."""
     alt = ds["altitude"].values
     curves = []
     for s in names:
@@ -60,6 +72,9 @@ def plot_fit(ds, path, *, title=None):
     overlay_observations(ax_n, obs, names)
     legend_below(ax_n, bbox_to_anchor=(0.5, -0.11), ncol=2)
 
+
+def _residuals(ax_r, ds):
+    """Residuals in standard deviations of ln n, fitted (filled) and baseline (hollow)."""
     oalt = ds["observation_altitude"].values
     ospec = ds["observation_species"].values.astype(str)
     for s in dict.fromkeys(ospec):
@@ -77,6 +92,9 @@ def plot_fit(ds, path, *, title=None):
     ax_r.grid(True, alpha=0.3)
     legend_below(ax_r, bbox_to_anchor=(0.5, -0.11), ncol=3)
 
+
+def _multipliers(ax_m, ds):
+    """Fitted multipliers with their 68 % range, the prior's range in grey."""
     params = list(ds["parameter"].values)
     y = np.arange(len(params))
     m = ds["multiplier"].values
@@ -100,20 +118,19 @@ def plot_fit(ds, path, *, title=None):
     ax_m.invert_yaxis()
     ax_m.set_xlabel("multiplier (68 %; grey: prior)")
     ax_m.grid(True, axis="x", which="both", alpha=0.3)
-    if has_profile:
-        ax_p = axes[3]
-        chi2 = ds["profile_chi2"].values
-        ax_p.plot(np.exp(ds["profile_log_multiplier"].values), chi2 - np.nanmin(chi2), "o-",
-                  color="black", ms=3)
-        ax_p.axhline(1.0, color="0.5", ls="--", lw=0.8)
-        ax_p.set_xscale("log")
-        _plain_log_ticks(ax_p)
-        ax_p.set_xlabel(f"multiplier of {ds.attrs.get('profile_parameter', '')}")
-        ax_p.set_ylabel("Δχ² (others refitted)")
-        ax_p.grid(True, alpha=0.3)
-    fig.suptitle((title or ds.attrs.get("title", ""))
-                 + f"\nfit to {Path(ds.attrs.get('observations', '')).name}", fontsize=10)
-    return save_figure(fig, path)
+
+
+def _profile(ax_p, ds):
+    """Δχ² along the profiled parameter (the others refitted)."""
+    chi2 = ds["profile_chi2"].values
+    ax_p.plot(np.exp(ds["profile_log_multiplier"].values), chi2 - np.nanmin(chi2), "o-",
+              color="black", ms=3)
+    ax_p.axhline(1.0, color="0.5", ls="--", lw=0.8)
+    ax_p.set_xscale("log")
+    _plain_log_ticks(ax_p)
+    ax_p.set_xlabel(f"multiplier of {ds.attrs.get('profile_parameter', '')}")
+    ax_p.set_ylabel("Δχ² (others refitted)")
+    ax_p.grid(True, alpha=0.3)
 
 
 def _plain_log_ticks(ax):

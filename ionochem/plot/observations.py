@@ -2,7 +2,7 @@
 
 One helper, :func:`overlay_observations`, that every profile figure calls with its axes
 and the species it shows: each measured density of those species becomes a marker in the
-species' colour (:data:`ionochem.plot.profiles.STYLE`) with a horizontal error bar, and the
+species' colour (:data:`ionochem.plot.palette.STYLE`) with a horizontal error bar, and the
 density axis is widened to hold them. Ratios are not densities and are not drawn here.
 Nothing here computes chemistry.
 """
@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ionochem.plot.profiles import STYLE
+from ionochem.plot.palette import STYLE
 
 MARKERS = ("o", "s", "^", "D", "v", "P", "X")
 

@@ -13,61 +13,20 @@ from pathlib import Path
 
 import numpy as np
 
+from ionochem.environment.slant import EARTH_RADIUS_KM
 from ionochem.errors import InputError
 from ionochem.io.netcdf import atomic_write_bytes
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right, legend_right
-
-# The project's palette (its own choice; colour-blind-distinguishable hues). Only electrons
-# are dashed; the two O+ metastables differ in colour and pattern (dotted, solid thin) so
-# that they can be told apart in print.
-STYLE = {
-    "O+(total)": dict(color="#1b7f5b", lw=2.4, ls="-"),
-    "O+": dict(color="#1b7f5b", lw=2.4, ls="-"),
-    "O2+": dict(color="#c0392b", lw=2.0, ls="-"),
-    "NO+": dict(color="#2c5aa0", lw=2.0, ls="-"),
-    "N2+": dict(color="#d68910", lw=2.0, ls="-"),
-    "N+": dict(color="#7d3c98", lw=1.6, ls="-."),
-    "O+(2D)": dict(color="#0097a7", lw=1.5, ls=(0, (1, 1.5))),
-    "O+(2P)": dict(color="#d81b60", lw=1.1, ls="-"),
-    "N(2D)": dict(color="#8d6e63", lw=1.2, ls=(0, (5, 2, 1, 2))),
-    # Electrons on top of the ion they equal (NO+ after sunset, O+ high up).
-    "e": dict(color="black", lw=1.8, ls="--", zorder=3),
-}
-# Colours for species outside the palette, chosen apart from its hues.
-EXTRA_COLOURS = ("#6b8e23", "#5d6d7e", "#b7950b", "#a04000", "#117a65", "#884ea0")
-# Vibrational levels: a sequential map (cividis, dark blue to olive yellow, monotonic in
-# lightness and readable by colour-blind readers) over this range, v = 0 darkest; the top
-# stays dark enough to read on white. Every level curve is also labelled at its end.
-LEVEL_MAP = ("cividis", 0.0, 0.78)
-#: Highest level the map spreads over (a higher one takes the last colour).
-LEVEL_SPAN = 4
-
-
-def style_of(name, others=()):
-    """Line style of a species: the palette's, a level's shade of its family's colour, or
-    the next of :data:`EXTRA_COLOURS` (``others``: the names drawn before it).
-
-    Returns
-    -------
-    dict
-        Matplotlib line properties (``color``, ``lw`` and, for palette species, ``ls``).
-    """
-    if name in STYLE:
-        return dict(STYLE[name])
-    m = re.fullmatch(r"(.+)\(v=(\d+)\)", str(name))
-    if m:
-        return dict(color=level_colour(int(m.group(2))), lw=1.4)
-    unknown = [o for o in others if o not in STYLE and not re.fullmatch(r".+\(v=\d+\)", o)]
-    return dict(color=EXTRA_COLOURS[len(unknown) % len(EXTRA_COLOURS)], lw=1.2)
-
-
-def level_colour(v, top=LEVEL_SPAN):
-    """Colour of vibrational level ``v`` (0 … ``top``) on :data:`LEVEL_MAP`, RGB tuple."""
-    from matplotlib import colormaps
-    name, lo, hi = LEVEL_MAP
-    t = lo + (hi - lo) * min(max(int(v), 0), top) / max(top, 1)
-    return tuple(float(c) for c in colormaps[name](t)[:3])
+from ionochem.plot.observations import overlay_observations
+from ionochem.plot.palette import (  # noqa: F401 (re-exported: figures import them from here)
+    EXTRA_COLOURS,
+    LEVEL_MAP,
+    LEVEL_SPAN,
+    STYLE,
+    level_colour,
+    style_of,
+)
 
 
 def label_levels(ax, lines, *, vertical=True):
@@ -151,7 +110,7 @@ def profiles_figure(ds, *, species=None, title=None, observed=None):
     ``observed`` (from :func:`ionochem.load_observations`) adds the measurements of the
     species shown, with error bars (:mod:`ionochem.plot.observations`).
 
-    Levels where a drawn species is not in photochemical equilibrium (``pce_doubtful``) are
+    Altitudes where a drawn species is not in photochemical equilibrium (``pce_doubtful``) are
     shaded and its curve is faded there (:mod:`ionochem.plot.equilibrium`); the legend sits
     right of the axes, clear of the curves.
     """
@@ -168,7 +127,6 @@ def profiles_figure(ds, *, species=None, title=None, observed=None):
                     **style_of(s, names[:names.index(s)]))
     style_density_axes(ax, alt, [ds["density"].sel(species=s).values for s in names])
     label_levels(ax, ax.get_lines())
-    from ionochem.plot.observations import overlay_observations
     overlay_observations(ax, observed, names)
     handles, labels = ax.get_legend_handles_labels()
     shade = shade_doubtful(ax, alt, masks)
@@ -198,12 +156,12 @@ def plot_profiles(ds, path, *, species=None, title=None, observed=None):
 
 
 def chosen_altitudes(ds, altitudes_km):
-    """Grid levels nearest to the requested altitudes (km), sorted, without repeats.
+    """Grid altitudes nearest to the requested altitudes (km), sorted, without repeats.
 
     Raises
     ------
     InputError
-        An altitude outside the grid (by more than one level spacing), or none given.
+        An altitude outside the grid (by more than one grid spacing), or none given.
     """
     alt = np.asarray(ds["altitude"].values, float)
     wanted = np.atleast_1d(np.asarray(altitudes_km, float))
@@ -229,7 +187,7 @@ def time_series_figure(ds, *, altitudes_km=(120.0, 200.0, 300.0), species=None,
     path : str or Path
         Output figure (PNG, PDF or SVG, from the suffix).
     altitudes_km : sequence of float
-        One panel per altitude, at the nearest grid level.
+        One panel per altitude, at the nearest grid altitude.
     species : sequence of str, optional
     title : str, optional
 
@@ -341,7 +299,6 @@ def _top_time_axis(ax, t_h, local_h, sza):
 
 def _mark_sunset(ax, t_h, sza, altitude_km):
     """Dotted line where the zenith angle passes the shadow limit of the altitude."""
-    from ionochem.environment.slant import EARTH_RADIUS_KM
     limit = 90.0 + np.degrees(np.arccos(EARTH_RADIUS_KM / (EARTH_RADIUS_KM + altitude_km)))
     above = np.asarray(sza, float) > limit
     cross = np.flatnonzero(~above[:-1] & above[1:])

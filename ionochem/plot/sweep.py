@@ -67,7 +67,6 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-    from matplotlib.colors import TwoSlopeNorm
     dims = _axes_of(ds)
     if not dims:
         raise InputError("the sweep has no swept dimension to map", file="--plot")
@@ -88,29 +87,7 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
         var = var.isel(time=-1)
     label_held = ", ".join(f"{d} = {_text(ds[d].values[0])}" for d in held)
     if sens:
-        rids = [str(r) for r in ds["reaction"].values]
-        if reaction is None and "sensitivity_unit" in ds and "reaction_unit" in ds.coords:
-            # The unit of analysis (a whole family, a tie) with the largest |S| on the map.
-            uvar = ds["sensitivity_unit"].sel(species=species).isel(held)
-            uvar = uvar.isel(time=-1) if "time" in uvar.dims else uvar
-            units = [str(u) for u in ds["unit"].values]
-            big = np.abs(uvar.transpose("unit", ...).values).reshape(len(units), -1)
-            reaction = units[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
-            members = [r for r, u in zip(rids, ds["reaction_unit"].values) if u == reaction]
-        elif reaction is None:
-            big = np.abs(var.transpose("reaction", ...).values).reshape(len(rids), -1)
-            reaction = rids[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
-        members = list(members) if members else [reaction]
-        missing = [m for m in members if m not in rids]
-        if missing:
-            raise InputError(f"reaction {missing[0]!r} is not in the sweep",
-                             file="--map-reaction")
-        z = var.sel(reaction=members).sum("reaction", skipna=False) \
-            .transpose("altitude", axis).values
-        label = f"S = ∂ln n({species}) / ∂ln k({reaction})"
-        eq = _equation(ds, members)
-        if eq:
-            label += f"\n{reaction}: {eq}"
+        z, label = _sensitivity_map(ds, var, species, reaction, members, held, axis)
     else:
         z = var.transpose("altitude", axis).values
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -122,21 +99,7 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
     numeric = x.dtype.kind in "fiu"
     xs = x if numeric else np.arange(x.size)
     if sens:
-        lim = float(np.nanmax(np.abs(z))) if np.any(np.isfinite(z)) else 1.0
-        lim = lim or 1.0
-        if np.nanmin(z) >= 0.0:
-            mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP_POSITIVE, shading="nearest",
-                                 vmin=0.0, vmax=lim)
-        elif np.nanmax(z) <= 0.0:
-            mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP_NEGATIVE, shading="nearest",
-                                 vmin=-lim, vmax=0.0)
-        else:
-            mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP, shading="nearest",
-                                 norm=TwoSlopeNorm(0.0, -lim, lim))
-        if z.shape[1] > 1 and z.shape[0] > 1:
-            cs = ax.contour(xs, alt, np.abs(z), levels=[v for v in LEVELS if v < lim],
-                            colors="k", linewidths=[0.6, 1.2][:len(LEVELS)])
-            ax.clabel(cs, fmt=lambda v: f"|S|={v:g}", fontsize=7)
+        mesh = _draw_sensitivity(ax, xs, alt, z)
     else:
         mesh = ax.pcolormesh(xs, alt, z, cmap="viridis", shading="nearest")
     cbar = fig.colorbar(mesh, ax=ax)
@@ -151,6 +114,58 @@ def plot_sweep_map(ds, path, *, species=None, reaction=None, members=None, axis=
     data = _figure_bytes(fig, path)
     plt.close(fig)
     return atomic_write_bytes(path, data)
+
+
+def _sensitivity_map(ds, var, species, reaction, members, held, axis):
+    """(z on (altitude, axis), colour-bar label) of the sensitivity of ``species`` to
+    ``reaction`` (default: the unit, or reaction, with the largest |S| on the map), summed
+    over ``members``."""
+    rids = [str(r) for r in ds["reaction"].values]
+    if reaction is None and "sensitivity_unit" in ds and "reaction_unit" in ds.coords:
+        # The unit of analysis (a whole family, a tie) with the largest |S| on the map.
+        uvar = ds["sensitivity_unit"].sel(species=species).isel(held)
+        uvar = uvar.isel(time=-1) if "time" in uvar.dims else uvar
+        units = [str(u) for u in ds["unit"].values]
+        big = np.abs(uvar.transpose("unit", ...).values).reshape(len(units), -1)
+        reaction = units[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
+        members = [r for r, u in zip(rids, ds["reaction_unit"].values) if u == reaction]
+    elif reaction is None:
+        big = np.abs(var.transpose("reaction", ...).values).reshape(len(rids), -1)
+        reaction = rids[int(np.nanargmax(np.nanmax(np.nan_to_num(big), axis=1)))]
+    members = list(members) if members else [reaction]
+    missing = [m for m in members if m not in rids]
+    if missing:
+        raise InputError(f"reaction {missing[0]!r} is not in the sweep",
+                         file="--map-reaction")
+    z = var.sel(reaction=members).sum("reaction", skipna=False) \
+        .transpose("altitude", axis).values
+    label = f"S = ∂ln n({species}) / ∂ln k({reaction})"
+    eq = _equation(ds, members)
+    if eq:
+        label += f"\n{reaction}: {eq}"
+    return z, label
+
+
+def _draw_sensitivity(ax, xs, alt, z):
+    """The sensitivity map: one-sided colours when S keeps one sign, diverging around 0
+    otherwise, with |S| contours; returns the mesh."""
+    from matplotlib.colors import TwoSlopeNorm
+    lim = float(np.nanmax(np.abs(z))) if np.any(np.isfinite(z)) else 1.0
+    lim = lim or 1.0
+    if np.nanmin(z) >= 0.0:
+        mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP_POSITIVE, shading="nearest",
+                             vmin=0.0, vmax=lim)
+    elif np.nanmax(z) <= 0.0:
+        mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP_NEGATIVE, shading="nearest",
+                             vmin=-lim, vmax=0.0)
+    else:
+        mesh = ax.pcolormesh(xs, alt, z, cmap=CMAP, shading="nearest",
+                             norm=TwoSlopeNorm(0.0, -lim, lim))
+    if z.shape[1] > 1 and z.shape[0] > 1:
+        cs = ax.contour(xs, alt, np.abs(z), levels=[v for v in LEVELS if v < lim],
+                        colors="k", linewidths=[0.6, 1.2][:len(LEVELS)])
+        ax.clabel(cs, fmt=lambda v: f"|S|={v:g}", fontsize=7)
+    return mesh
 
 
 #: Readable names of the swept keys on the x axis (units from the coordinate).

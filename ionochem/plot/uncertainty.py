@@ -2,7 +2,7 @@
 
 Monte Carlo: the median profile of each main species with its 68 % (16–84 %) band shaded
 darker and its 90 % (5–95 %) band lighter with thin edges, in the project's colours
-(:data:`ionochem.plot.profiles.STYLE`). Sobol and Morris: one panel per species, the index
+(:data:`ionochem.plot.palette.STYLE`). Sobol and Morris: one panel per species, the index
 of each factor against altitude. Figures are rendered to memory and written atomically;
 nothing here computes chemistry.
 """
@@ -13,6 +13,7 @@ import numpy as np
 
 from ionochem.plot.equilibrium import doubtful_mask, plot_marked, shade_doubtful
 from ionochem.plot.legend import legend_figure_right
+from ionochem.plot.observations import overlay_observations
 from ionochem.plot.profiles import (
     _species_to_draw,
     save_figure,
@@ -62,7 +63,6 @@ def bands_figure(ds, *, species=None, title=None, observed=None):
     fig, axes = plt.subplots(nrows, ncols, figsize=(3.5 * ncols, 4.2 * nrows), sharey=True,
                              squeeze=False, layout="constrained")
     masks = {s: doubtful_mask(ds, s) for s in names}
-    from ionochem.plot.observations import overlay_observations
     for ax, s in zip(axes.ravel(), names):
         style = style_of(s, names[:names.index(s)])
         colour = style.get("color", "grey")

@@ -151,7 +151,7 @@ def level_populations(design, signals, sigma, *, method="linear", n_boot=1000, s
         G = (np.eye(L) - n[:, None]) / total
         C = G @ Cp @ G.T
     else:
-        check_count(n_boot, 2, MAX_BOOTSTRAP, "--bootstrap", "n_boot")
+        check_count(n_boot, 2, MAX_BOOTSTRAP, "n_boot", "the number of refits")
         rng = np.random.default_rng(seed)
         model = A @ p
         draws = np.empty((int(n_boot), L))

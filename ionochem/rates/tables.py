@@ -21,7 +21,6 @@ This module knows nothing of the column; it only writes files the reaction-list 
 
 from __future__ import annotations
 
-import csv
 import io
 import re
 from dataclasses import dataclass
@@ -30,6 +29,7 @@ from pathlib import Path
 import numpy as np
 
 from ionochem.errors import InputError, safe_name
+from ionochem.io.csvtable import TableProblem, number_cell, split_table
 from ionochem.io.netcdf import atomic_path
 from ionochem.io.paths import PathProblem, read_text
 
@@ -38,7 +38,6 @@ __all__ = ["NumericTable", "read_numeric_csv", "write_level_table", "write_csv",
            "check_ref"]
 
 LEVEL_COLUMN = "v"
-_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 _LEVEL_NAME = re.compile(r"(?:.*[_ ])?v=?(\d+)")
 _MAX_BYTES = 50_000_000
 
@@ -96,22 +95,11 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
         _, text = read_text(path, limit=_MAX_BYTES)
     except PathProblem as exc:
         raise InputError(str(exc), file=name, line=exc.line) from None
-    rows = []
-    for number, raw in enumerate(text.splitlines(), start=1):
-        stripped = raw.strip()
-        if not stripped or stripped.startswith("#"):
-            continue
-        try:
-            cells = next(csv.reader(io.StringIO(raw)))
-        except csv.Error as exc:
-            raise InputError(f"not a CSV row ({str(exc).split(' (')[0]})", file=name,
-                             line=number) from None
-        rows.append((number, [c.strip() for c in cells]))
-    if not rows:
-        raise InputError("no header row", file=name)
-    header_line, header = rows[0]
-    if any(not h for h in header):
-        raise InputError("empty column name in the header", file=name, line=header_line)
+    try:
+        table = split_table(text)
+    except TableProblem as exc:
+        raise InputError(exc.message, file=name, line=exc.line) from None
+    header, header_line = table.header, table.header_line
     for i, h in enumerate(header, start=1):
         # Every later message may quote a column name; a header cell that is not one (a
         # line of some other file, a spreadsheet formula) is refused without quoting it.
@@ -119,10 +107,6 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
             raise InputError(f"header cell {i} is not a column name (letters, digits and "
                              "_+-()=,. only, starting with a letter)", file=name,
                              line=header_line)
-    if len(set(header)) != len(header):
-        dup = next(h for h in header if header.count(h) > 1)
-        raise InputError(f"column {safe_name(dup)} appears twice in the header", file=name,
-                         line=header_line)
     if first is not None and header[0] != first:
         raise InputError(f"the first column must be '{first}', found {safe_name(header[0])}",
                          file=name, line=header_line)
@@ -132,29 +116,17 @@ def read_numeric_csv(path, *, required=(), first=None, min_rows=1):
                              f"{', '.join(safe_name(h, quote=False) for h in header)})", file=name,
                              line=header_line)
     values = []
-    lines = []
-    for number, cells in rows[1:]:
-        if len(cells) != len(header):
-            raise InputError(f"{len(cells)} values, the header has {len(header)}", file=name,
-                             line=number)
-        row = []
-        for col, cell in zip(header, cells):
-            if not _NUMBER.fullmatch(cell):
-                raise InputError(f"the cell in column {safe_name(col)} is not a number (plain "
-                                 "decimal)", file=name, line=number)
-            value = float(cell)
-            if not np.isfinite(value):
-                raise InputError(f"the cell in column {safe_name(col)} is too large",
-                                 file=name, line=number)
-            row.append(value)
-        values.append(row)
-        lines.append(number)
+    for number, cells in zip(table.lines, table.rows, strict=True):
+        try:
+            values.append([number_cell(cell, col) for col, cell in zip(header, cells)])
+        except ValueError as exc:
+            raise InputError(str(exc), file=name, line=number) from None
     if len(values) < min_rows:
         raise InputError(f"needs at least {min_rows} rows of values, found {len(values)}",
                          file=name, line=header_line)
     arr = np.array(values, dtype=float).reshape(len(values), len(header))
     cols = {h: arr[:, i] for i, h in enumerate(header)}
-    return NumericTable(name, tuple(header), cols, np.array(lines, dtype=int), header_line)
+    return NumericTable(name, tuple(header), cols, np.array(table.lines, dtype=int), header_line)
 
 
 def level_of_column(name):
@@ -278,7 +250,7 @@ def band_f_expression(bands):
     return text
 
 
-def check_ref(text, flag="--ref"):
+def check_ref(text, flag="ref"):
     """A reference for a reaction-list entry: one line, no ``|`` (the field separator)."""
     if text is None:
         return None

@@ -13,7 +13,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-__all__ = ["RANGES", "Range", "check_range", "MAX_LEVELS", "YEAR_RANGE"]
+__all__ = ["RANGES", "Range", "check_range", "MAX_DIURNAL_DAYS", "MAX_GRID_ROWS",
+           "YEAR_RANGE"]
 #: Most days a diurnal run integrates: a year; the sun's activity indices are held
 #: fixed, so longer runs mean nothing, and two or three days reach a repeating day
 #: *(common practice)*.
@@ -53,9 +54,9 @@ class Range:
 #: 1901–2099 *(from memory)*.
 YEAR_RANGE = (1901, 2099)
 
-#: Most altitude levels a grid may have: memory grows as levels × species² (Jacobians), and
-#: 20 000 levels is a 0.05 km grid over 1000 km *(common practice: a bound, not a need)*.
-MAX_LEVELS = 20_000
+#: Most altitude rows a grid may have: memory grows as rows × species² (Jacobians), and
+#: 20 000 rows is a 0.05 km grid over 1000 km *(common practice: a bound, not a need)*.
+MAX_GRID_ROWS = 20_000
 
 _SFU = ("observed daily F10.7 since 1947 lies between about 60 and 460 sfu (Tapping 2013, "
         "Space Weather 11, 394) *(from memory)*; the hard range keeps NRLMSIS and EUVAC "

@@ -15,7 +15,7 @@ import numpy as np
 from ionochem.io.checks import balance_ion_problem
 from ionochem.io.scenario.ranges import (
     MAX_DIURNAL_DAYS,
-    MAX_LEVELS,
+    MAX_GRID_ROWS,
     YEAR_RANGE,
     check_range,
 )
@@ -126,24 +126,24 @@ class SchemaValidator(ValueChecks):
         step = self.number(spec["step"], f"{key}.step", low=0, low_open=True)
         if not stop > start:
             raise self.fail(key, f"stop ({stop:g}) must be above start ({start:g}); for a "
-                                 "single level give a list")
+                                 "single altitude give a list")
         n = (stop - start) / step
         whole = round(n)
         if abs(n - whole) > GRID_TOLERANCE * max(1.0, abs(n)):
             raise self.fail(key, f"(stop - start)/step = {n:.10g} is not a whole number: "
                                  f"step {step:g} km does not divide {start:g}..{stop:g} km")
-        if whole + 1 > MAX_LEVELS:
-            raise self.fail(key, f"{whole + 1} levels: a grid has at most {MAX_LEVELS} "
-                                 "levels (give a coarser step)")
-        levels = start + step * np.arange(whole + 1, dtype=float)
-        levels[-1] = stop
-        return self._grid_range(Grid(tuple(float(x) for x in levels)), key)
+        if whole + 1 > MAX_GRID_ROWS:
+            raise self.fail(key, f"{whole + 1} altitudes: a grid has at most {MAX_GRID_ROWS} "
+                                 "altitudes (give a coarser step)")
+        rows = start + step * np.arange(whole + 1, dtype=float)
+        rows[-1] = stop
+        return self._grid_range(Grid(tuple(float(x) for x in rows)), key)
 
     def _grid_range(self, grid: Grid, key: str) -> Grid:
-        """The grid's ends inside the altitude range, its size inside the level bound."""
-        if len(grid.altitude_km) > MAX_LEVELS:
-            raise self.fail(key, f"{len(grid.altitude_km)} levels: a grid has at most "
-                                 f"{MAX_LEVELS} levels")
+        """The grid's ends inside the altitude range, its size inside the row bound."""
+        if len(grid.altitude_km) > MAX_GRID_ROWS:
+            raise self.fail(key, f"{len(grid.altitude_km)} altitudes: a grid has at most "
+                                 f"{MAX_GRID_ROWS} altitudes")
         lo, hi = grid.altitude_km[0], grid.altitude_km[-1]
         for end in (lo, hi):
             error, _ = check_range(key, end)
@@ -437,7 +437,7 @@ class SchemaValidator(ValueChecks):
                                   "'table' (Ne minus the other ions), so it cannot also be "
                                   "transported")
         if len(grid.altitude_km) < 3:
-            raise self.fail(key, "transport needs a grid of at least three levels")
+            raise self.fail(key, "transport needs a grid of at least three altitudes")
         flux = self.physical(sec.get("upper_boundary_flux_cm2_s", 0.0),
                              f"{key}.upper_boundary_flux_cm2_s")
         dip = None

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
-import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -18,6 +17,7 @@ import numpy as np
 
 from ionochem.errors import ScenarioError
 from ionochem.io.tables import read_profile_table
+from ionochem.species import parse_species_at
 
 #: Relative tolerance for ``(stop - start) / step`` to count as a whole number.
 GRID_TOLERANCE = 1e-9
@@ -30,7 +30,7 @@ TEMPERATURE_SOURCES = ("table", "neutral", "profile")
 
 @dataclass(frozen=True)
 class Grid:
-    """``[grid]``: the altitude levels of the column.
+    """``[grid]``: the altitudes of the column.
 
     Attributes
     ----------
@@ -534,32 +534,7 @@ class Scenario:
 
 
 def parse_budget(text: str) -> tuple[str, float]:
-    """Split a ``SPECIES@KM`` budget request.
-
-    Parameters
-    ----------
-    text : str
-        E.g. ``"N2+@200"``.
-
-    Returns
-    -------
-    (str, float)
-        Species name and altitude (km).
-
-    Raises
-    ------
-    ValueError
-        When the text is not ``SPECIES@KM`` with a finite, non-negative KM.
-    """
-    species, sep, km = str(text).rpartition("@")
-    species, km = species.strip(), km.strip()
-    if not sep or not species or not km:
-        raise ValueError(f"{text!r} is not SPECIES@KM (e.g. 'N2+@200')")
-    try:
-        value = float(km)
-    except ValueError:
-        raise ValueError(f"{text!r}: altitude {km!r} is not a number") from None
-    if not math.isfinite(value) or value < 0:
-        raise ValueError(f"{text!r}: altitude must be a finite, non-negative km value")
-    return species, value
+    """Split a ``SPECIES@KM`` budget request: :func:`ionochem.species.parse_species_at`
+    (the one reader of that form), ``(canonical species, km)`` or ValueError."""
+    return parse_species_at(text)
 
