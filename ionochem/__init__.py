@@ -1,6 +1,6 @@
 """ionochem: photochemistry of one ionospheric altitude column from a plain-text reaction list.
 
-The public names (DESIGN.md §4) are imported on first use, so that the command line starts
+The public names (docs/design.md §4) are imported on first use, so that the command line starts
 without loading numpy, xarray and the model for ``ionochem --help`` or a bad option.
 """
 

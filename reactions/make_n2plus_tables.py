@@ -37,8 +37,8 @@ def dr_v0_determinations(te):
       abstract); the quoted error bars enter as two more curves.
     - merged beam / storage ring (review): Sheehan & St.-Maurice 2004, JGR 109, A03302,
       2.2e-7 (Te/300)^-0.39 below 1200 K and 1.95e-7 (Te/300)^-0.57 above (the two-piece
-      form as printed in a compiled rate table, not re-read in the paper; shared/SOURCES.md
-      section 3).
+      form as printed in a compiled rate table, not re-read in the paper; docs/physics.md
+      §9.2).
     - afterglow: Mehr & Biondi 1969, Phys. Rev. 181, 264, 1.8e-7 at 300 K, Te^-0.39 (abstract
       checked; reactions/README.md, key MB69).
     """
@@ -114,7 +114,7 @@ def dr_previous_table(te=TE_K):
 #: upper level, with a one-sigma band k/F .. k F. *(From memory, order of magnitude)*: the
 #: MQDT thermal rate coefficients of Abdoulanziz et al. (arXiv:2202.12096; v = 0..5,
 #: 100-5000 K, abstract read) could not be read; vibrational de-excitation of diatomic ions
-#: by slow electrons is of order 1e-8 to 1e-7 cm3 s-1 near 300 K (shared/SOURCES.md section 3,
+#: by slow electrons is of order 1e-8 to 1e-7 cm3 s-1 near 300 K (docs/physics.md §9.2,
 #: from memory), Delta v = 2 weaker. The Te^-1/2 law is that of a cross section falling as
 #: 1/E (exoergic process, Wigner threshold law) *(common practice)*. The level independence
 #: is an assumption. F = 3.3 makes the band 1e-8 .. 1e-7 at 300 K for Delta v = 1.

@@ -29,8 +29,10 @@ FLAG_WORDING_LEFT = {
     "ionochem/analysis/ensemble.py": "issue 25 (performance)",
     "ionochem/analysis/ensemble_store.py": "issue 25 (performance)",
     "ionochem/analysis/fit.py": "issue 25 (performance)",
+    "ionochem/analysis/fit_problem.py": "issue 25 (split from fit.py)",
     "ionochem/analysis/sampling.py": "issue 25 (performance)",
     "ionochem/analysis/sweep.py": "issue 25 (performance)",
+    "ionochem/analysis/sweep_run.py": "issue 25 (split from sweep.py)",
     "ionochem/analysis/sweep_axes.py": "issue 25 (performance)",
     "ionochem/analysis/uncertainty.py": "issue 25 (performance)",
 }

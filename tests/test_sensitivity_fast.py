@@ -5,7 +5,7 @@ References outside the code under test:
 - the former algorithm, kept here as a plain reference: one LAPACK solve per level
   (``np.linalg.solve``, or one SuperLU factorisation of the whole transported column) with
   every reaction's ν_j r_j as a right-hand side, then each reported species as its row of
-  the mechanism's affine map (SCIENCE.md §6);
+  the mechanism's affine map (docs/physics.md §6);
 - central differences (h = 3e-4 in ln Te) of steady states re-solved with the whole
   electron-temperature profile scaled (numerical differentiation; on
   ``Model.steady_densities`` of independently built models).

@@ -191,7 +191,7 @@ def _mid_with_transport(tmp_path, extra="", stop=600.0):
 
 def test_day_column_has_an_f2_peak_in_the_published_range(tmp_path):
     """Noon, equinox, 40° N, F10.7 = 150: hmF2 within 250–350 km and NmF2 within
-    5e5–3e6 cm-3 (mid-latitude daytime range from solar minimum to maximum; SCIENCE.md §4a
+    5e5–3e6 cm-3 (mid-latitude daytime range from solar minimum to maximum; docs/physics.md §4a
     *(common practice)*; foF2 of 6–15 MHz by day, Davies 1990, *Ionospheric Radio*,
     *(from memory)*, NmF2 = 1.24e4 foF2²); the topside falls with roughly the plasma scale
     height; below 170 km the E and F1 regions stay within 5 % of the photochemical column."""
@@ -234,7 +234,7 @@ def test_day_column_has_an_f2_peak_in_the_published_range(tmp_path):
 def test_sensitivities_with_transport_match_finite_differences(tmp_path):
     """Exact ∂ln n/∂ln k of the coupled column (one sparse factorisation) against central
     differences of two re-solved columns (k × e^(±1e-4)), the textbook check of an
-    adjoint-free local sensitivity (SCIENCE.md §6)."""
+    adjoint-free local sensitivity (docs/physics.md §6)."""
     scen = _mid_with_transport(tmp_path, stop=500.0)
     model = ionochem.Model(scen)
     ds = model.solve()
@@ -334,7 +334,7 @@ def test_twilight_column_with_transport_solves_into_the_shadow(tmp_path):
 def test_f_layer_decays_through_the_night_with_transport(tmp_path):
     """A transient run from a sunlit afternoon (15 LT) to local midnight with a moving sun
     and transport keeps a decaying F layer: NmF2 at midnight within 1e5–3e5 cm-3 and
-    hmF2 within 250–400 km at mid latitude (SCIENCE.md §4a, *common practice*;
+    hmF2 within 250–400 km at mid latitude (docs/physics.md §4a, *common practice*;
     Rishbeth & Garriott 1969, ch. 7, *from memory*), while the E layer falls to what the
     scattered night-time sources keep, (1–4)e3 cm-3 near 110 km (Strobel, Opal & Meier 1980,
     Planet. Space Sci. 28, 1027)."""

@@ -2,7 +2,7 @@
 
 At steady state f(n, k) = 0, so J ∂n/∂ln k_j = −∂f/∂ln k_j = −ν_j r_j (ν_j the net
 stoichiometry of reaction j, r_j its rate): one LU factorisation of the Jacobian per level
-serves every reaction at once (SCIENCE.md §6). The photo, photoelectron and prescribed
+serves every reaction at once (docs/physics.md §6). The photo, photoelectron and prescribed
 sources are reactions like any other, so their sensitivities are those of the production.
 Algebraic species (electrons, or the balance ion) follow through their affine dependence on
 the solved densities; derived totals are sums of their members.

@@ -9,7 +9,7 @@ A sweep varies scenario keys over a grid. Each axis is one key and its values:
   included; ``(stop − start)/step`` must be a whole number (the rule of ``[grid]``).
 
 Each axis becomes a dimension named after the key's last part (``f107``, ``latitude_deg``,
-``local_hour``, ``day_of_year``: DESIGN.md §4). Points are the Cartesian product of the axes,
+``local_hour``, ``day_of_year``: docs/design.md §4). Points are the Cartesian product of the axes,
 the first ``--vary`` outermost (C order), numbered 0 … N − 1.
 
 Only the form is checked here (a known shape of key, a non-empty list, a non-zero step,

@@ -17,7 +17,7 @@ understate their spread; they would also make every profile jagged.
 A ``table`` rate with ``_low``/``_high`` band columns (``Model.rate_bands()``) is sampled
 between its band instead of with ``f``. The band is read as the **one-sigma (68 %)
 range**, the same meaning the reaction-list format gives ``f`` (k/f .. k·f is the 68 %
-range, DESIGN.md §5): ln k = ln k_mid + ε σ with σ = ln(high/k_mid) for ε > 0 and
+range, docs/design.md §5): ln k = ln k_mid + ε σ with σ = ln(high/k_mid) for ε > 0 and
 σ = ln(k_mid/low) for ε < 0 (a two-piece log-normal whose median is the tabulated value and
 whose 16 % and 84 % points are the band edges, so an asymmetric band stays asymmetric).
 Its symmetric equivalent (ln high − ln low)/2 is what the first-order variance uses.

@@ -81,7 +81,7 @@ _R_GRID_A = np.linspace(0.75, 2.2, 3000)
 CM_TO_K = 1.438776877
 
 #: Term values of O+(2D) and O+(2P) above O+(4S), cm-1: 26817 and 40467 (O II levels of the
-#: ADAS adf04 file nlike_dhbl94#o, read; shared/SOURCES.md section 1.4).
+#: ADAS adf04 file nlike_dhbl94#o, read; docs/physics.md §10.4).
 OPLUS_LEVELS_CM = MappingProxyType({"2D": 26817.0, "2P": 40467.0})
 
 #: Ionization energies, eV: O 13.618 and N2 (into N2+ X v=0) 15.581 (NIST *(from memory)*).
@@ -299,12 +299,12 @@ def statistical_level_distribution(available_eV: float, levels: Sequence[int]) -
 
 # --------------------------------------------------------------------------- bin by bin
 
-#: Ionization energy of N2 into N2+ X(v=0), eV (SCIENCE.md section 4; NIST *(from memory)*).
+#: Ionization energy of N2 into N2+ X(v=0), eV (docs/physics.md §4; NIST *(from memory)*).
 IONIZATION_EV = 15.581
 
 #: Photon-energy range (eV) where autoionizing Rydberg series dominate N2 photoionization:
 #: from the X threshold to the B(v=0) threshold, 15.58-18.75 eV (796-661 angstrom;
-#: SCIENCE.md section 4b). There the X(v) distribution is not Franck-Condon.
+#: docs/physics.md §4b). There the X(v) distribution is not Franck-Condon.
 AUTOIONIZATION_EV = (15.581, 18.75)
 
 #: Share of X-state ions made in v >= 1 in the autoionization range: measured vibrational

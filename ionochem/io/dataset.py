@@ -1,4 +1,4 @@
-"""Build the result dataset of a solved column (DESIGN.md §7).
+"""Build the result dataset of a solved column (docs/design.md §7).
 
 Dimensions ``species`` and ``altitude`` (km), ``reaction`` for per-reaction data, ``time`` for
 transient runs. Every variable carries ``units`` and ``long_name`` (CF conventions); the
