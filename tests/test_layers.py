@@ -60,13 +60,7 @@ ALLOWED_CIRCLES: dict[frozenset, str] = {
 }
 
 #: Physical constants still defined outside constants.py: (module, name) -> owner's issue.
-ALLOWED_CONSTANTS = {
-    # issue 26 (N2+ level kinetics) owns environment/n2plus_levels.py: h, c and h c / e there
-    # are to come from ionochem.constants (PLANCK_J_S, the speed of light, HC_EV_A).
-    ("ionochem.environment.n2plus_levels", "_H"): "issue 26",
-    ("ionochem.environment.n2plus_levels", "CM_TO_EV"): "issue 26",
-    ("ionochem.environment.n2plus_levels", "_C_CM"): "issue 26",
-}
+ALLOWED_CONSTANTS: dict[tuple, str] = {}
 
 #: Values of physical constants (CODATA 2018 and the other entries of constants.py), in the
 #: units a module might write them in. A module-level number within REL_TOL of one of them

@@ -346,9 +346,6 @@ def report_altitudes(altitude_km, wanted=DEFAULT_REPORT_KM):
     return rows
 
 
-#: The old name, still imported by cli/run.py (the lead's file).
-report_levels = report_altitudes
-
 
 def fmt_value(v, width=11):
     """A density or rate for the terminal: 3 significant digits; below 1e-30 is shown as 0."""

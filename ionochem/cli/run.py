@@ -20,7 +20,7 @@ from ionochem.cli.options import (
     load_model,
     parse_budget,
     print_warnings,
-    report_levels,
+    report_altitudes,
     scenario_inputs,
     stamp_history,
     write_outputs,
@@ -175,7 +175,7 @@ def density_table(ds, heights):
     """The main densities (cm-3) at the grid altitudes nearest ``heights``."""
     species = [s for s in MAIN_SPECIES if s in ds["species"].values]
     table = Table(["alt_km", *species])
-    for a in report_levels(ds["altitude"].values, heights):
+    for a in report_altitudes(ds["altitude"].values, heights):
         vals = ds["density"].sel(altitude=a, species=species).values
         table.add(f"{a:.1f}", *(fmt_value(v).strip() for v in vals))
     return table

@@ -68,10 +68,10 @@ SPECTROSCOPIC_CONSTANTS = MappingProxyType({
 #: where most N2 ionization happens; the shares vary with wavelength)*.
 STATE_BRANCHING = MappingProxyType({"X": 0.40, "A": 0.45, "B": 0.15})
 
-_H = 6.62607015e-34          # J s (CODATA 2018, exact)
-#: eV per cm-1: h c / e (CODATA 2018, exact constants).
-CM_TO_EV = 1.239841984e-4
-_C_CM = 2.99792458e10        # cm s-1 (exact)
+_H = constants.PLANCK_J_S
+#: eV per cm-1: h c / e (constants.HC_EV_CM).
+CM_TO_EV = constants.HC_EV_CM
+_C_CM = constants.SPEED_OF_LIGHT_CM_S
 _AMU = constants.AMU_KG
 _MU_N2 = 0.5 * 14.0030740048 * _AMU  # reduced mass of 14N2 (AME atomic mass of 14N)
 _R_GRID_A = np.linspace(0.75, 2.2, 3000)
@@ -356,7 +356,7 @@ def photon_energy_eV(wl_lo_A, wl_hi_A) -> np.ndarray:
     ionization threshold, the middle of the part shortward of it (as the photoelectron
     energies of :mod:`ionochem.environment.photorates`).
     """
-    from ionochem.environment.crosssections import HC_EV_A
+    HC_EV_A = constants.HC_EV_A
     lo = np.asarray(wl_lo_A, float)
     hi = np.asarray(wl_hi_A, float)
     lam_th = HC_EV_A / IONIZATION_EV
