@@ -14,7 +14,6 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-import xarray as xr
 
 from ionochem.environment.column import build_environment
 from ionochem.errors import MechanismError, SolverError
@@ -30,6 +29,8 @@ from ionochem.system.assembly import (
     RowLabels,
     compile_mechanism,
     given_densities,
+    initial_state,
+    integration_failure,
     list_warnings,
     solver_failure,
 )
@@ -280,24 +281,13 @@ class Model:
         absolute tolerance, default 1e-6 cm-3 (far below any density of interest, far above
         the round-off of the largest).
         """
-        A, S = self.altitude_km.size, len(self.species)
-        if initial is None:
-            n0 = np.zeros((A, S))
-        elif isinstance(initial, xr.Dataset):
-            n0 = np.stack([initial["density"].sel(species=s).values for s in self.species], -1)
-        else:
-            n0 = np.asarray(initial, float).reshape(A, S)
+        n0 = initial_state(initial, self.species, self.altitude_km.size)
         times = np.asarray(times_s, float)
         try:
             out = self.system.integrate(times, n0, method=method, rtol=rtol,
                                         atol=1e-6 if atol is None else atol)
         except SolverError as exc:
-            if exc.file is not None:
-                raise
-            raise SolverError(f"{exc.message}; try fewer or closer output times, or check "
-                              "the rate laws for values far outside their physical bounds",
-                              file=self.scenario.source, key="solve.times_s",
-                              levels=exc.levels) from None
+            raise integration_failure(exc, self.scenario.source) from None
         return transient_dataset(self, times, out)
 
     def sensitivity(self, **kw):

@@ -381,6 +381,18 @@ TRANSIENT_NOTE = (
     "operations.")
 
 
+def _fixed_by_time(model, times):
+    """Fixed densities (time, altitude, given) and neutrals ({name: (time, altitude)}) of a
+    run whose environment follows time, else (None, None)."""
+    timeline = getattr(model, "timeline", None)
+    if timeline is None:
+        return None, None
+    given = np.stack([model.given_at(float(t)) for t in times])
+    neutrals = {name: np.stack([timeline.field(float(t), lambda e, s=name: e.neutrals[s])
+                                for t in times]) for name in model.environment.neutrals}
+    return given, neutrals
+
+
 def transient_dataset(model, times, n):
     """Dataset of a time integration: n shaped (time, altitude, species).
 
@@ -390,11 +402,7 @@ def transient_dataset(model, times, n):
     """
     mech = model.mechanism
     n = np.maximum(n, 0.0) if n.size else n
-    timeline = getattr(model, "timeline", None)
-    given_t = np.stack([model.given_at(float(t)) for t in times]) if timeline else None
-    neutrals_t = ({name: np.stack([timeline.field(float(t), lambda e, s=name: e.neutrals[s])
-                                   for t in times]) for name in model.environment.neutrals}
-                  if timeline else None)
+    given_t, neutrals_t = _fixed_by_time(model, times)
     dens, names, roles = species_table(model, n, given_t, neutrals_t)
     T = len(times)
     keep = [mech.index(s) for s in names if s in mech.all_species]
@@ -456,12 +464,11 @@ def transient_dataset(model, times, n):
         ds["solar_zenith_angle"] = ("time", np.array([env.solar_zenith_angle(t)
                                                       for t in times], float),
                                     {"units": "degree", "long_name": "solar zenith angle"})
-    ds.attrs["mode"] = "transient"
-    ds.attrs["environment"] = (
+    ds.attrs.update(mode="transient", environment=(
         "follows time: neutrals, temperatures and photo rates rebuilt every "
-        f"{timeline.step_s:g} s and interpolated linearly, the sun every 60 s; transport "
-        "coefficients and prescribed production of the start" if timeline else
-        "frozen at the scenario time (the sun moves)")
+        f"{model.timeline.step_s:g} s and interpolated linearly, the sun every 60 s; transport "
+        "coefficients and prescribed production of the start" if given_t is not None else
+        "frozen at the scenario time (the sun moves)"))
     if model.transport is not None:
         ds.attrs.update(_transport_attrs(model, transient=True))
     return ds

@@ -109,3 +109,23 @@ def solver_failure(exc, rtol, scenario_file):
               "settles"]
     return SolverError(f"{exc.message}; try: {'; '.join(hints)}", file=scenario_file,
                        key="solve", levels=exc.levels, species=exc.species)
+
+
+def initial_state(initial, species, n_rows):
+    """Solved densities (altitude, species) to start a time integration from: zero ions
+    (``None``), a steady result dataset's densities, or an array."""
+    if initial is None:
+        return np.zeros((n_rows, len(species)))
+    if hasattr(initial, "data_vars"):
+        return np.stack([initial["density"].sel(species=s).values for s in species], -1)
+    return np.asarray(initial, float).reshape(n_rows, len(species))
+
+
+def integration_failure(exc, scenario_file):
+    """A time integration's ``SolverError`` at the scenario's ``solve.times_s`` with what
+    to try (one that already names a file is returned as it is)."""
+    if exc.file is not None:
+        return exc
+    return SolverError(f"{exc.message}; try fewer or closer output times, or check the rate "
+                       "laws for values far outside their physical bounds",
+                       file=scenario_file, key="solve.times_s", levels=exc.levels)
