@@ -157,3 +157,22 @@ def test_analyses_refuse_a_diurnal_scenario_at_solve_mode(tmp_path, capsys, comm
     err = capsys.readouterr().err
     assert code == 2
     assert f"{path}: solve.mode: is 'diurnal'" in err
+
+
+@pytest.mark.slow  # two simulated days, ~25 s
+def test_diurnal_command_says_what_periodicity_it_reached(tmp_path, capsys):
+    """``ionochem run`` of a two-day diurnal scenario prints the largest day-to-day change
+    of ln(n + 1), equal to the dataset's ``diurnal_change`` maximum (recomputed here with
+    numpy from the two days' densities)."""
+    text = MIDNIGHT.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
+    text = text.replace("stop = 600.0, step = 2.0", "stop = 415.0, step = 25.0")
+    path = tmp_path / "d.toml"
+    path.write_text(text + '\n[solve]\nmode = "diurnal"\ndays = 2\nstep_minutes = 120\n')
+    out = tmp_path / "d.nc"
+    assert main(["run", str(path), "-o", str(out)]) == 0
+    line = [ln for ln in capsys.readouterr().out.splitlines()
+            if ln.startswith("periodicity:")]
+    assert len(line) == 1
+    with xr.open_dataset(out) as ds:
+        worst = float(ds["diurnal_change"].max())
+    assert f"{worst:.2g}" in line[0]

@@ -109,6 +109,8 @@ def cmd_run(args):
     stamp_history(ds, args)
     print(ds.attrs.get("title", ""))
     print(table.text())
+    if "diurnal_change" in ds:
+        print(periodicity_line(ds))
     if not transient:
         _print_steady_notes(ds, model)
     if observed is not None:
@@ -179,6 +181,18 @@ def density_table(ds, heights):
         vals = ds["density"].sel(altitude=a, species=species).values
         table.add(f"{a:.1f}", *(fmt_value(v).strip() for v in vals))
     return table
+
+
+def periodicity_line(ds):
+    """How close a diurnal run came to a repeating day: the largest day-to-day change of
+    ln(n + 1) between its last two days, where and for which species."""
+    change = ds["diurnal_change"]
+    flat = int(change.values.argmax())
+    i, a = divmod(flat, change.sizes["altitude"])
+    worst = float(change.values.flat[flat])
+    return (f"periodicity: the last two days differ by at most {worst:.2g} in ln(n + 1) "
+            f"({change['species'].values[i]} at {float(change['altitude'].values[a]):g} km"
+            f"{'; give more days for a repeating day' if worst > 0.01 else ''})")
 
 
 def _with_output_times(scen):
