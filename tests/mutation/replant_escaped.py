@@ -1,11 +1,11 @@
-"""Re-plant, one at a time, the five physics mutants that escaped the suite in the audit of
-issue 9, and show which tests now kill each.
+"""Re-plant, one at a time, the physics mutants that escaped the suite (five in the audit of
+issue 9, two more in that of issue 30), and show which tests now kill each.
 
 Each mutant is applied to a throw-away copy of the repository (the working tree is never
 touched), then the given test selection runs against the copy. A mutant is *killed* when
 pytest fails. Run from the repository root:
 
-    python tests/mutation/replant_escaped.py            # all five
+    python tests/mutation/replant_escaped.py            # all seven
     python tests/mutation/replant_escaped.py distance   # one by name
 
 Not part of the test run (no ``test_`` prefix); see docs/validation.md, "Mutation testing".
@@ -50,6 +50,17 @@ MUTANTS = {
         "ranked(contrib > 0, contrib), ranked(contrib < 0, -contrib))",
         "ranked(contrib < 0, -contrib), ranked(contrib > 0, contrib))",
         ["tests/test_budget.py"]),
+    # The two that escaped the whole suite in the second audit (issue 30).
+    "dataset_gross_swapped": (
+        "ionochem/mechanism/mechanism.py",
+        "return r @ cached[0], r @ cached[1]",
+        "return r @ cached[1], r @ cached[0]",
+        ["tests/test_dataset_outside.py"]),
+    "n2plus_fallback_level_low": (
+        "ionochem/model.py",
+        "val = val * self._level_fractions[ions[0].base][ions[0].vib]",
+        "val = val * self._level_fractions[ions[0].base][max(ions[0].vib - 1, 0)]",
+        ["tests/test_n2plus_split_outside.py"]),
 }
 
 
