@@ -162,32 +162,60 @@ def _mutmut(work, args, children):
     return subprocess.run(cmd, cwd=work, env=env, capture_output=True, text=True)
 
 
+def _verify(work, names, tests):
+    """Survivors killed by the part's whole test selection (mutmut runs, per mutant, only
+    the tests it saw call the mutated function; a call made while a module-scoped fixture is
+    built is credited to the first test using it, so the other tests of that fixture never
+    see the mutant). The mutant is switched on by MUTANT_UNDER_TEST in mutmut's copy."""
+    killed = []
+    env = dict(os.environ, IONOCHEM_TIME_BUDGET="off", OMP_NUM_THREADS="1",
+               OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
+    env.pop("PYTHONPATH", None)
+    for name in names:
+        env["MUTANT_UNDER_TEST"] = name
+        p = subprocess.run(["nice", "-n", "19", sys.executable, "-m", "pytest", "-x", "-q",
+                            "-p", "no:cacheprovider", "-m", "not slow", *tests],
+                           cwd=work / "mutants", env=env, capture_output=True, text=True)
+        if p.returncode == 1:  # a test failed (2-5: pytest itself could not run)
+            killed.append(name)
+    return killed
+
+
 def _status(code):
     from mutmut.__main__ import status_by_exit_code
     return "not checked" if code is None else status_by_exit_code.get(code, f"exit {code}")
 
 
 def _collect(part, work, cpu_s, wall_s):
-    """Counts per module and the survivors' diffs, from mutmut's .meta files."""
+    """Counts per module and the survivors' diffs, from mutmut's .meta files, after the
+    survivors were re-run on the whole selection (:func:`_verify`). ``cpu_s``/``wall_s``:
+    the time spent before; the verification's own is added."""
+    cpu0, t0 = _children_cpu(), time.perf_counter()
+    old = _load(part) or {}
     out = {"part": part, "modules": {}, "tests": PARTS[part][1],
-           "cpu_minutes": round(cpu_s / 60, 1), "wall_minutes": round(wall_s / 60, 1),
            "date": time.strftime("%Y-%m-%d"), "mutmut": _mutmut_version()}
-    old = _load(part)
-    if old:  # a recheck adds to the CPU of the first run
-        out["cpu_minutes"] = round(old.get("cpu_minutes", 0) + cpu_s / 60, 1)
-        out["wall_minutes"] = round(old.get("wall_minutes", 0) + wall_s / 60, 1)
     for meta in sorted((work / "mutants").glob("ionochem/**/*.py.meta")):
         codes = json.loads(meta.read_text()).get("exit_code_by_key", {})
         rel = str(meta.relative_to(work / "mutants")).removesuffix(".meta")
         c = Counter(_status(v) for v in codes.values())
         surv = sorted(k for k, v in codes.items() if _status(v) == "survived")
+        full = _verify(work, surv, PARTS[part][1])
+        surv = [n for n in surv if n not in full]
+        c["killed"] += len(full)
+        c["survived"] -= len(full)
         diffs = {}
         for name in surv:
             p = _mutmut(work, ["show", name], 1)
             diffs[name] = "\n".join(line for line in p.stdout.splitlines()
                                     if line.startswith(("+", "-", "@@"))
                                     and not line.startswith(("+++", "---")))
-        out["modules"][rel] = {"counts": dict(c), "survivors": diffs}
+        out["modules"][rel] = {"counts": dict(c), "survivors": diffs,
+                               "killed_by_whole_selection": len(full)}
+    # A recheck or re-collection adds to the time of the first run.
+    cpu_s += _children_cpu() - cpu0
+    wall_s += time.perf_counter() - t0
+    out["cpu_minutes"] = round(old.get("cpu_minutes", 0) + cpu_s / 60, 1)
+    out["wall_minutes"] = round(old.get("wall_minutes", 0) + wall_s / 60, 1)
     return out
 
 
@@ -245,8 +273,12 @@ def run_part(part, work_root, children, *, recheck=False, force=False):
         print(f"{part}: mutmut exited {proc.returncode}; see {work / 'mutmut-run.log'}")
         print((proc.stdout + proc.stderr)[-2000:])
         return _children_cpu() - cpu0
+    if recheck:  # only the survivors ran: the others keep their verdicts
+        data = _collect(part, work, _children_cpu() - cpu0, time.perf_counter() - t0)
+    else:
+        _save(part, {})  # the time of this run, not of an earlier --force'd one
+        data = _collect(part, work, _children_cpu() - cpu0, time.perf_counter() - t0)
     cpu = _children_cpu() - cpu0
-    data = _collect(part, work, cpu, time.perf_counter() - t0)
     _save(part, data)
     for mod, m in data["modules"].items():
         c = m["counts"]
@@ -278,7 +310,7 @@ def table():
     ran, notrun = [], []
     for part in PARTS:
         data = _load(part)
-        if data is None:
+        if not data:
             notrun.append(part)
             continue
         ran.append(f"`{part}` ({data['cpu_minutes']} CPU-min)")
@@ -360,6 +392,8 @@ def main(argv):
     ap.add_argument("--table", action="store_true", help="rewrite the docs section")
     ap.add_argument("--recheck", action="store_true", help="re-run the survivors only")
     ap.add_argument("--force", action="store_true", help="re-run parts with results")
+    ap.add_argument("--collect", action="store_true",
+                    help="only re-read the work folder of each part named (verify survivors)")
     ap.add_argument("--children", type=int, default=1, help="mutmut workers (default 1)")
     ap.add_argument("--budget-min", type=float, default=None,
                     help="stop starting parts after this many CPU-minutes")
@@ -377,6 +411,10 @@ def main(argv):
         print(f"run_parts: unknown part(s) {', '.join(unknown)}; --list shows them",
               file=sys.stderr)
         return 2
+    if a.collect:
+        for part in a.parts:
+            _save(part, _collect(part, a.work / part, 0.0, 0.0))
+        a.parts = []
     spent = 0.0
     for part in (list(PARTS) if a.all else a.parts):
         if a.budget_min is not None and spent / 60 >= a.budget_min:
