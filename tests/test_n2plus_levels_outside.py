@@ -17,6 +17,7 @@ import pytest
 
 from ionochem.environment.n2plus_levels import (
     compute_level_fractions,
+    n2plus_level_fractions,
     photoionization_split,
     statistical_level_distribution,
 )
@@ -46,6 +47,9 @@ def test_photon_energy_of_each_bin_is_hc_over_its_wavelength():
     expect = HC_EV_A / np.array([584.33, 1215.67, 725.0, 0.5 * (750.0 + lam_th)])
     np.testing.assert_allclose(out["photon_eV"], expect, rtol=1e-6)
     np.testing.assert_allclose(out["fraction"].sum(-1), [1.0, 0.0, 1.0, 1.0], atol=1e-12)
+    every = photoionization_split(lo, hi)                 # default: every level kept
+    assert every["fraction"].shape == (4, 16)
+    np.testing.assert_allclose(every["fraction"].sum(-1), [1.0, 0.0, 1.0, 1.0], atol=1e-12)
 
 
 def test_state_shares_are_normalised_whatever_their_scale():
@@ -58,6 +62,7 @@ def test_state_shares_are_normalised_whatever_their_scale():
     for part in ("direct_X", "via_A", "via_B"):
         np.testing.assert_allclose(scaled[part], ref[part], rtol=1e-12)
     np.testing.assert_allclose(scaled["fraction"].sum(), 1.0, rtol=1e-9)
+    np.testing.assert_array_equal(scaled["v"], np.arange(9))
 
 
 @pytest.mark.parametrize("branching", [{"X": 0.0, "A": 0.0, "B": 0.0},
@@ -81,3 +86,17 @@ def test_statistical_prior_below_one_ev_follows_the_morse_levels():
     np.testing.assert_allclose(p, w / w.sum(), rtol=2e-3, atol=1e-12)
     with pytest.raises(InputError):
         statistical_level_distribution(0.0, [0, 1, 2])
+
+
+@pytest.mark.parametrize("levels", [[], [1, 2], [0, 1, 1], [0, 2, 1]],
+                         ids=["empty", "not-from-0", "repeated", "decreasing"])
+@pytest.mark.parametrize("split", [
+    n2plus_level_fractions,
+    lambda lv: statistical_level_distribution(1.36, lv),
+    lambda lv: photoionization_split([584.33], [584.33], lv),
+], ids=["table", "prior", "bin-by-bin"])
+def test_level_lists_that_are_no_partition_are_refused(split, levels):
+    """Resolved levels must partition v = 0, 1, ... (strictly increasing from 0): otherwise
+    a level would be counted twice or some production lost, so each split refuses them."""
+    with pytest.raises(InputError):
+        split(levels)

@@ -199,18 +199,26 @@ def _collect(part, work, cpu_s, wall_s):
         rel = str(meta.relative_to(work / "mutants")).removesuffix(".meta")
         c = Counter(_status(v) for v in codes.values())
         surv = sorted(k for k, v in codes.items() if _status(v) == "survived")
-        full = _verify(work, surv, PARTS[part][1])
-        surv = [n for n in surv if n not in full]
-        c["killed"] += len(full)
-        c["survived"] -= len(full)
         diffs = {}
         for name in surv:
             p = _mutmut(work, ["show", name], 1)
             diffs[name] = "\n".join(line for line in p.stdout.splitlines()
                                     if line.startswith(("+", "-", "@@"))
                                     and not line.startswith(("+++", "---")))
+        # Survivors a [rules] entry judges harmless are not re-run (CPU).
+        judged = _judgements()
+        full = _verify(work, [n for n in surv if not _judge(n, diffs[n], judged)
+                              .startswith("harmless")], PARTS[part][1])
+        for name in full:
+            del diffs[name]
+        c["killed"] += len(full)
+        c["survived"] -= len(full)
+        before = old.get("modules", {}).get(rel, {})
+        first = sorted(set(before.get("first_survivors", before.get("survivors", {})))
+                       | set(diffs))
         out["modules"][rel] = {"counts": dict(c), "survivors": diffs,
-                               "killed_by_whole_selection": len(full)}
+                               "killed_by_whole_selection": len(full),
+                               "first_survivors": first}
     # A recheck or re-collection adds to the time of the first run.
     cpu_s += _children_cpu() - cpu0
     wall_s += time.perf_counter() - t0
@@ -291,7 +299,22 @@ def run_part(part, work_root, children, *, recheck=False, force=False):
 # --------------------------------------------------------------------------- the table
 
 def _judgements():
-    return tomllib.loads(JUDGEMENTS.read_text()) if JUDGEMENTS.exists() else {}
+    """``[mutants]`` name -> judgement, and ``[rules]`` regular expression -> judgement for
+    the mechanical kinds (message text, zip strictness, ...), tried on the mutant's diff
+    when its name has no judgement of its own."""
+    data = tomllib.loads(JUDGEMENTS.read_text()) if JUDGEMENTS.exists() else {}
+    return data.get("mutants", {}), [(re.compile(k, re.M), v)
+                                     for k, v in data.get("rules", {}).items()]
+
+
+def _judge(name, diff, judged):
+    by_name, rules = judged
+    if name in by_name:
+        return by_name[name]
+    for pattern, verdict in rules:
+        if pattern.search(diff):
+            return verdict
+    return ""
 
 
 def _short(name):
@@ -318,8 +341,15 @@ def table():
             c = m["counts"]
             killed, surv = c.get("killed", 0), c.get("survived", 0)
             other = sum(v for k, v in c.items() if k not in ("killed", "survived", "not checked"))
-            harmless = [n for n in m["survivors"] if judged.get(n, "").startswith("harmless")]
-            closed = [n for n in m["survivors"] if judged.get(n, "").startswith("closed")]
+            verdict = {n: _judge(n, d, judged) for n, d in m["survivors"].items()}
+            harmless = [n for n in m["survivors"] if verdict[n].startswith("harmless")]
+            # Closed: judged so, whether still listed (not rechecked yet) or killed by now.
+            dotted = mod.removesuffix(".py").replace("/", ".") + "."
+            first = set(m.get("first_survivors", m["survivors"]))
+            closed = sorted({n for n, v in judged[0].items()
+                             if n.startswith(dotted) and v.startswith("closed") and n in first}
+                            | {n for n in m["survivors"] if verdict[n].startswith("closed")})
+            verdict.update({n: judged[0][n] for n in closed})
             open_ = [n for n in m["survivors"] if n not in harmless and n not in closed]
             run = killed + surv
             nonequiv = run - len(harmless)
@@ -328,17 +358,18 @@ def table():
             for label, names in (("harmless", harmless), ("closed", closed)):
                 by_reason = {}
                 for n in names:
-                    by_reason.setdefault(judged[n].split(":", 1)[1].strip(), []).append(_short(n))
+                    by_reason.setdefault(verdict[n].split(":", 1)[1].strip(), []).append(_short(n))
                 for why, ns in by_reason.items():
                     notes.append(f"{label} ({', '.join(ns)}): {why}")
             if open_:
                 notes.append("not judged: " + ", ".join(
-                    _short(n) + (f" ({judged[n].split(':', 1)[1].strip()})" if n in judged
+                    _short(n) + (f" ({verdict[n].split(':', 1)[1].strip()})" if verdict[n]
                                  else "") for n in open_))
             rows.append(f"| `{mod.removeprefix('ionochem/')}` | {killed} / {run} | {rate} | "
                         f"{other} | {'; '.join(notes) or '–'} |")
             tot.update(killed=killed, run=run, harmless=len(harmless), other=other,
                        closed=len(closed), open=len(open_))
+            # a closed survivor still listed is not killed yet: it stays out of "killed"
     nonequiv = tot["run"] - tot["harmless"]
     rate = f"{100 * tot['killed'] / nonequiv:.0f} %" if nonequiv else "–"
     lines = [
