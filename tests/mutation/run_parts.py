@@ -17,7 +17,8 @@ it), and a part stopped half-way resumes where mutmut stopped (its work folder i
     python tests/mutation/run_parts.py --table                # rewrite the docs section
 
 ``--recheck`` copies the current tests into the part's work folder and re-runs only its
-surviving mutants (after a test was added to close them); the results file is updated.
+surviving mutants not judged harmless (after a test was added to close them); the results
+file is updated.
 
 Each survivor is judged by hand in ``tests/mutation/judgements.toml``: mutant name ->
 ``"harmless: why"`` (equivalent, or changes no physical number: a message, a guard that
@@ -266,7 +267,9 @@ def run_part(part, work_root, children, *, recheck=False, force=False):
         data = _load(part)
         if not data or not work.exists():
             raise SystemExit(f"{part}: nothing to recheck (run the part first)")
-        names = [n for m in data["modules"].values() for n in m["survivors"]]
+        judged = _judgements()
+        names = [n for m in data["modules"].values() for n, d in m["survivors"].items()
+                 if not _judge(n, d, judged).startswith("harmless")]
         if not names:
             print(f"{part}: no survivors")
             return 0.0
@@ -360,7 +363,8 @@ def table():
                 for n in names:
                     by_reason.setdefault(verdict[n].split(":", 1)[1].strip(), []).append(_short(n))
                 for why, ns in by_reason.items():
-                    notes.append(f"{label} ({', '.join(ns)}): {why}")
+                    funcs = sorted({n.rsplit(" #", 1)[0] for n in ns})
+                    notes.append(f"{len(ns)} {label}: {why} (in {', '.join(funcs)})")
             if open_:
                 notes.append("not judged: " + ", ".join(
                     _short(n) + (f" ({verdict[n].split(':', 1)[1].strip()})" if verdict[n]
