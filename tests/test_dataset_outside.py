@@ -200,3 +200,24 @@ def test_transient_production_and_loss_equal_the_independent_sums():
             np.testing.assert_allclose(at["loss"].sel(species=s).values, loss[s],
                                        rtol=1e-9, atol=_scale(loss[s]) + 1e-300,
                                        err_msg=f"loss of {s} at t = {t} s")
+
+
+def test_derived_totals_are_the_vibrational_families_and_electronic_state_groups(demo):
+    """The dataset's derived totals are exactly: one per vibrational family of solved
+    species (``N2+`` for N2+(v=0..4)), and one ``<formula>(total)`` per group of solved
+    species with the same elements and charge in more than one electronic state (``O+`` with
+    O+(2D) and O+(2P); docs/outputs.md), worked out here from the parsed species."""
+    model, ds = demo
+    info = _species_info(model)
+    solved = [s for s, role in zip(ds["species"].values, ds["role"].values)
+              if role == "solved"]
+    expect = {info[s].base for s in solved if info[s].vib is not None}
+    groups = defaultdict(list)
+    for s in solved:
+        groups[(info[s].elements, info[s].charge)].append(s)
+    for members in groups.values():
+        if len({info[m].electronic for m in members}) > 1:
+            expect.add(min(members, key=len).split("(")[0] + "(total)")
+    derived = {s for s, role in zip(ds["species"].values, ds["role"].values)
+               if role == "derived"}
+    assert derived == expect
