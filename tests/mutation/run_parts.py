@@ -64,10 +64,13 @@ PARTS: dict[str, tuple[list[str], list[str]]] = {
          "tests/test_pipeline_factors.py", "tests/test_photorates.py",
          "tests/test_vibrational_data.py"]),
     "secondary": (
-        ["ionochem/environment/secondary.py", "ionochem/environment/crosssections.py",
-         "ionochem/environment/xrays.py"],
+        ["ionochem/environment/secondary.py", "ionochem/environment/xrays.py"],
         ["tests/test_secondary.py", "tests/test_xrays.py", "tests/test_photorates.py",
          "tests/test_pipeline_factors.py"]),
+    "crosssections": (
+        ["ionochem/environment/crosssections.py"],
+        ["tests/test_photorates.py", "tests/test_pipeline_factors.py", "tests/test_secondary.py",
+         "tests/test_xrays.py", "tests/test_night_sources.py"]),
     "night": (
         ["ionochem/environment/night_sources.py", "ionochem/environment/lyman_alpha.py"],
         ["tests/test_night_sources.py", "tests/test_photorates.py",
