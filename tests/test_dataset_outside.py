@@ -221,3 +221,22 @@ def test_derived_totals_are_the_vibrational_families_and_electronic_state_groups
     derived = {s for s, role in zip(ds["species"].values, ds["role"].values)
                if role == "derived"}
     assert derived == expect
+
+
+def test_roles_follow_from_the_environment_and_the_list(demo):
+    """Each species' ``role`` is what the inputs make it (docs/outputs.md): ``electron`` for
+    e, ``fixed`` for exactly the neutral source's species in the list, ``derived`` for the
+    totals, ``balance`` for the balance ion with a given Ne, else ``solved``."""
+    model, ds = demo
+    neutrals = set(model.environment.neutrals)
+    balance = (model.scenario.solve.balance_ion
+               if model.scenario.solve.electrons == "table" else None)
+    for s, role in zip(ds["species"].values, ds["role"].values):
+        if s == "e":
+            assert role == "electron"
+        elif s in neutrals:
+            assert role == "fixed", s
+        elif s == balance:
+            assert role == "balance", s
+        else:
+            assert role in ("solved", "derived"), (s, role)

@@ -13,6 +13,7 @@ from __future__ import annotations
 from collections import defaultdict
 
 import numpy as np
+import pytest
 
 import ionochem
 
@@ -154,3 +155,17 @@ def test_two_electronic_states_get_their_total(column):
                                rtol=1e-12)
     np.testing.assert_allclose(ds["production"].sel(species="O+(total)").values,
                                (1e-7 + 5e-8) * 1e10, rtol=1e-12)
+
+
+def test_a_reactant_nobody_makes_is_an_error(column):
+    """A solved species that reactions consume but none produces would sit at zero and turn
+    its reactions off without a word (docs/scenario.md, "Species the list needs"): the model
+    refuses it, naming the species and the first reaction that needs it."""
+    text = ("P1: N2 -> N + N | k = 1e-10 | ref = invented test\n"
+            "L1: N + N + M -> N2 + M | k = 1e-32 | ref = invented test\n"
+            "L2: N + O3 -> NO + O2 | k = 1e-11 | ref = invented test\n"
+            "L3: NO -> N + O | k = 1e-6 | ref = invented test\n"
+            "L4: O + O + M -> O2 + M | k = 1e-32 | ref = invented test\n")
+    path = column(text, ALT, neutrals=NEUTRALS, Tn=800.0, name="o3")
+    with pytest.raises(ionochem.MechanismError, match="O3.*L2"):
+        ionochem.Model(ionochem.load_scenario(path))
