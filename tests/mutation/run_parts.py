@@ -16,9 +16,9 @@ it), and a part stopped half-way resumes where mutmut stopped (its work folder i
     python tests/mutation/run_parts.py --recheck mechanism    # survivors only, current tests
     python tests/mutation/run_parts.py --table                # rewrite the docs section
 
-``--recheck`` copies the current tests into the part's work folder and re-runs only its
-surviving mutants not judged harmless (after a test was added to close them); the results
-file is updated.
+``--recheck`` copies the current tests into the part's work folder and re-runs its
+surviving mutants not judged harmless on the part's whole current selection (after a test
+was added to close them); the results file is updated.
 
 Each survivor is judged by hand in ``tests/mutation/judgements.toml``: mutant name ->
 ``"harmless: why"`` (equivalent, or changes no physical number: a message, a guard that
@@ -57,12 +57,12 @@ PARTS: dict[str, tuple[list[str], list[str]]] = {
     "mechanism": (
         ["ionochem/mechanism/mechanism.py", "ionochem/mechanism/rows.py"],
         ["tests/test_dataset_outside.py", "tests/test_engine.py", "tests/test_default_list.py",
-         "tests/test_budget.py"]),
+         "tests/test_budget.py", "tests/test_mechanism_outside.py"]),
     "n2plus": (
         ["ionochem/environment/n2plus_levels.py"],
         ["tests/test_n2plus_production.py", "tests/test_n2plus_split_outside.py",
          "tests/test_pipeline_factors.py", "tests/test_photorates.py",
-         "tests/test_vibrational_data.py"]),
+         "tests/test_vibrational_data.py", "tests/test_n2plus_levels_outside.py"]),
     "secondary": (
         ["ionochem/environment/secondary.py", "ionochem/environment/xrays.py"],
         ["tests/test_secondary.py", "tests/test_xrays.py", "tests/test_photorates.py",
@@ -281,6 +281,14 @@ def run_part(part, work_root, children, *, recheck=False, force=False):
             return 0.0
         _sync_tests(work)
     cpu0, t0 = _children_cpu(), time.perf_counter()
+    if recheck:
+        # The survivors are re-run on the part's whole (current) selection only: mutmut's
+        # own re-run would keep its old map of which tests call which function.
+        print(f"{part}: recheck of {len(names)} survivors on the whole selection", flush=True)
+        data = _collect(part, work, 0.0, 0.0)
+        _save(part, data)
+        print(f"{part}: {(_children_cpu() - cpu0) / 60:.1f} CPU-min")
+        return _children_cpu() - cpu0
     print(f"{part}: mutmut on {', '.join(PARTS[part][0])} "
           f"({'recheck of ' + str(len(names)) + ' survivors' if recheck else 'run'})",
           flush=True)
@@ -401,6 +409,18 @@ def table():
         f"| all (second pass) | {tot['killed']} / {tot['run']} | {rate} | {tot['other']} | "
         f"{tot['harmless']} judged harmless, {tot['closed']} closed by a new test, "
         f"{tot['open']} open |",
+        "",
+        "Survivors are re-run on the part's whole test selection before they are counted "
+        "(mutmut runs, per mutant, only the tests it saw call the mutated function, and a "
+        "call made while a shared fixture is built is credited to one test only).",
+        "",
+        "The two physics mutants that escaped the whole suite in the audit of issue 30 are "
+        "re-planted by `tests/mutation/replant_escaped.py` and killed: production and loss "
+        "swapped in `Mechanism.gross_rates` (`dataset_gross_swapped`, by "
+        "`test_dataset_outside.py::test_production_and_loss_of_every_species_equal_an_"
+        "independent_sum`) and the fallback N2+ level fraction read one level low "
+        "(`n2plus_fallback_level_low`, by `test_n2plus_split_outside.py::test_fallback_split_"
+        "gives_each_level_its_published_share`).",
         "",
         f"Parts run: {', '.join(ran) or 'none'}. Not run this pass: "
         f"{', '.join(f'`{p}`' for p in notrun if p not in NOT_RUN_REASON) or 'none'} "
