@@ -1,11 +1,11 @@
-"""Re-plant, one at a time, the five physics mutants that escaped the suite in the audit of
-issue 9, and show which tests now kill each.
+"""Re-plant, one at a time, the physics mutants that escaped the suite (five in the audit of
+issue 9, two more in that of issue 30), and show which tests now kill each.
 
 Each mutant is applied to a throw-away copy of the repository (the working tree is never
 touched), then the given test selection runs against the copy. A mutant is *killed* when
 pytest fails. Run from the repository root:
 
-    python tests/mutation/replant_escaped.py            # all five
+    python tests/mutation/replant_escaped.py            # all seven
     python tests/mutation/replant_escaped.py distance   # one by name
 
 Not part of the test run (no ``test_`` prefix); see docs/validation.md, "Mutation testing".
@@ -40,16 +40,29 @@ MUTANTS = {
         's2d = t["O+_2D"] + 0.5 * t["O+_2Pstar"]\n    s2p = t["O+_2P"] + 0.5 * t["O+_2Pstar"]',
         's2d = t["O+_2D"] + 0.7 * t["O+_2Pstar"]\n    s2p = t["O+_2P"] + 0.3 * t["O+_2Pstar"]',
         ["tests/test_pipeline_factors.py"]),
+    # The steady solvers' gross rates now come from mechanism/rows.py (BoundRows); the
+    # original site, solve/batch.py, is left only for objects that are not a Mechanism.
     "solver_gross_swapped": (
-        "ionochem/solve/batch.py",
-        "return P[:, :S], L[:, :S]",
-        "return L[:, :S], P[:, :S]",
+        "ionochem/mechanism/rows.py",
+        "return out[:self.S], out[self.S:]",
+        "return out[self.S:], out[:self.S]",
         ["tests/test_engine.py", "tests/test_default_ionosphere.py"]),
     "budget_swapped": (
         "ionochem/analysis/budget.py",
-        "ranked(contrib > 0, contrib), ranked(contrib < 0, -contrib))",
-        "ranked(contrib < 0, -contrib), ranked(contrib > 0, contrib))",
+        "ranked(contrib > 0, contrib), ranked(contrib < 0, -contrib), members)",
+        "ranked(contrib < 0, -contrib), ranked(contrib > 0, contrib), members)",
         ["tests/test_budget.py"]),
+    # The two that escaped the whole suite in the second audit (issue 30).
+    "dataset_gross_swapped": (
+        "ionochem/mechanism/mechanism.py",
+        "return r @ cached[0], r @ cached[1]",
+        "return r @ cached[1], r @ cached[0]",
+        ["tests/test_dataset_outside.py"]),
+    "n2plus_fallback_level_low": (
+        "ionochem/model.py",
+        "val = val * self._level_fractions[ions[0].base][ions[0].vib]",
+        "val = val * self._level_fractions[ions[0].base][max(ions[0].vib - 1, 0)]",
+        ["tests/test_n2plus_split_outside.py"]),
 }
 
 
