@@ -37,8 +37,8 @@ ROW_START_RTOL = 1e-6
 
 
 class _RowSum:
-    """The row processes of a system as one rows-last kernel (``both_t``, ``gross_t``,
-    ``jacobian_t``) and rows-first callables, for :func:`solve_steady`."""
+    """The row processes of a system as one set of rows-first callables for
+    :func:`solve_steady` (which wraps them rows last in its ``RowsCallables``)."""
 
     def __init__(self, processes):
         self.processes = processes
@@ -57,16 +57,12 @@ class _RowSum:
     def jacobian(self, n, rows):
         return sum(p.blocks(n, rows) for p in self.processes)
 
-    def both_t(self, n_t, rows):
-        f, P, L = self.both(np.ascontiguousarray(n_t.T), rows)
-        return f.T, P.T, L.T
 
-    def gross_t(self, n_t, rows):
-        P, L = self.gross(np.ascontiguousarray(n_t.T), rows)
-        return P.T, L.T
 
-    def jacobian_t(self, n_t, rows):
-        return self.jacobian(np.ascontiguousarray(n_t.T), rows)
+def _kernel(rows):
+    """The rows-last kernel Newton uses: the chemistry's own (BoundRows) when it has one,
+    else None (solve_steady then wraps the callables)."""
+    return rows if hasattr(rows, "both_t") else None
 
 
 class ColumnSystem:
@@ -195,8 +191,8 @@ class ColumnSystem:
             start = np.zeros((self.n_rows, len(self.unknowns))) if n0 is None else n0
             return solve_steady(start, rows.tendency, rows.jacobian, rows.gross, rtol=rtol,
                                 atol=atol, row_labels=self.row_labels,
-                                species_names=self.unknowns, both=rows.both, kernel=rows,
-                                warm=n0 is not None)
+                                species_names=self.unknowns, both=rows.both,
+                                kernel=_kernel(rows), warm=n0 is not None)
         if self.n_rows % self.coupling_processes[0].rows_per_column:
             raise ValueError("the rows are not a whole number of columns")
         if n0 is not None:
@@ -205,7 +201,7 @@ class ColumnSystem:
             try:
                 start = solve_steady(np.zeros((self.n_rows, len(self.unknowns))),
                                      rows.tendency, rows.jacobian, rows.gross,
-                                     rtol=max(rtol, ROW_START_RTOL), kernel=rows).n
+                                     rtol=max(rtol, ROW_START_RTOL), kernel=_kernel(rows)).n
             except SolverError:
                 start = np.zeros((self.n_rows, len(self.unknowns)))
         return solve_column(start, self.tendency, self.jacobian, self.gross, rtol=rtol,
