@@ -128,11 +128,12 @@ class ColumnJacobian:
     """The column's sparse Jacobian from its blocks, with the CSC structure built once.
 
     The matrix is block diagonal (dense (S, S) chemistry blocks of B rows) plus a
-    constant sparse coupling (transport); only the values change between Newton
-    iterations. The index arrays (rows of every column, column starts) and the place of
-    every block entry and coupling entry in them are computed here once; each call fills
-    the values: the same matrix as ``block_diagonal(blocks) + coupling`` (entries that are
-    zero kept as explicit zeros), without a COO→CSC sort and a sparse sum per iteration
+    sparse coupling (transport, conduction) whose structure is fixed; only the values
+    change between Newton iterations. The index arrays (rows of every column, column
+    starts) and the place of every block entry and coupling entry in them are computed
+    here once; each call fills the values: the same matrix as
+    ``block_diagonal(blocks) + coupling`` (entries that are zero kept as explicit zeros),
+    without a COO→CSC sort and a sparse sum per iteration
     (measured with benchmarks/bench_column_solver.py).
 
     Parameters
@@ -140,7 +141,8 @@ class ColumnJacobian:
     n_rows, n_species : int
         B and S.
     coupling : scipy.sparse matrix (B·S, B·S)
-        Constant part, e.g. :meth:`SpeciesTransport.matrix`.
+        Coupling part, e.g. :meth:`SpeciesTransport.matrix`: its values are used unless a
+        call gives others; its stored entries are the structure a call's coupling must fit.
     """
 
     def __init__(self, n_rows, n_species, coupling):
@@ -159,17 +161,34 @@ class ColumnJacobian:
         self._blocks = where[:rows.size]
         self._coupling = where[rows.size:]
         self._values = T.data.astype(float)
+        self._keys = unique
         self._indices = (unique % N).astype(np.int32)
         self._indptr = np.searchsorted(unique // N, np.arange(N + 1)).astype(np.int32)
 
-    def __call__(self, blocks):
-        """CSC (B·S, B·S) matrix for chemistry blocks shaped (B, S, S)."""
+    def __call__(self, blocks, coupling=None):
+        """CSC (B·S, B·S) matrix for chemistry blocks shaped (B, S, S), with the coupling
+        given at construction or, when given, ``coupling`` (same shape, entries within the
+        structure given at construction)."""
         data = np.zeros(self._indices.size)
         data[self._blocks] = np.asarray(blocks, float).ravel()
-        data[self._coupling] += self._values
+        if coupling is None:
+            data[self._coupling] += self._values
+        else:
+            C = sp.coo_matrix(coupling)
+            np.add.at(data, self._places(C), C.data)
         J = sp.csc_matrix((data, self._indices, self._indptr), shape=self.shape)
         J.has_sorted_indices = True
         return J
+
+    def _places(self, coupling):
+        """Where each stored entry of the COO matrix ``coupling`` goes in the CSC values."""
+        N = self.shape[0]
+        key = coupling.col.astype(np.int64) * N + coupling.row
+        place = np.searchsorted(self._keys, key)
+        if np.any(place >= self._keys.size) or np.any(self._keys[np.minimum(
+                place, self._keys.size - 1)] != key):
+            raise ValueError("the coupling has an entry outside the structure it declared")
+        return place
 
 
 #: Largest total bandwidth (kl + ku + 1) for which the LU is banded (LAPACK ``dgbtrf``)

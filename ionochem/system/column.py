@@ -4,8 +4,9 @@
 (:mod:`ionochem.system.process`) that change them. It assembles
 
 - the tendency and the gross production and loss (sums over the processes);
-- the Jacobian: the row processes' dense blocks, plus the coupling processes' constant
-  sparse matrices, in one sparse CSC matrix whose structure is built once per system
+- the Jacobian: the row processes' dense blocks, plus the coupling processes' sparse
+  matrices (constant, or refilled at each state for a nonlinear coupling), in one sparse
+  CSC matrix whose structure is built once per system
   (:class:`ionochem.solve.column.ColumnJacobian`; each call only fills values);
 
 and hands them to the solvers, which know nothing of the physics:
@@ -26,6 +27,7 @@ are the same solution of the same equations.
 from __future__ import annotations
 
 import numpy as np
+import scipy.sparse as sp
 
 from ionochem.errors import SolverError
 from ionochem.solve.column import ColumnJacobian, block_diagonal, solve_column
@@ -141,39 +143,73 @@ class ColumnSystem:
     def row_jacobian(self, n):
         """The Jacobian's blocks within each row, (B, U, U), coupling processes' own-row
         entries included (the whole matrix is :meth:`jacobian`)."""
-        J = np.array(self._rows().jacobian(np.asarray(n, float), self._all))
+        n = np.asarray(n, float)
+        J = np.array(self._rows().jacobian(n, self._all))
+        U = len(self.unknowns)
         for p in self.coupling_processes:
-            C = p.coupling(self.n_columns).tocsr()
-            U = len(self.unknowns)
+            C = self._coupling_of(p, n).tocsr()
             d = C.diagonal().reshape(self.n_rows, U)
             J[:, np.arange(U), np.arange(U)] += d
+            if U > 1:
+                # Entries linking two unknowns of one row (a nonlinear coupling may have
+                # them: conduction's dependence on a density).
+                coo = C.tocoo()
+                same = (coo.row // U == coo.col // U) & (coo.row != coo.col)
+                np.add.at(J, (coo.row[same] // U, coo.row[same] % U, coo.col[same] % U),
+                          coo.data[same])
         return J
 
-    def coupling(self):
-        """Sum of the coupling processes' constant sparse matrices, or None."""
-        mats = [p.coupling(self.n_columns) for p in self.coupling_processes]
+    @property
+    def constant_coupling(self) -> bool:
+        """True when every coupling process's Jacobian is constant (or there is none)."""
+        return all(p.constant_coupling for p in self.coupling_processes)
+
+    def _coupling_of(self, p, n):
+        """Process ``p``'s coupling Jacobian at the state ``n``."""
+        if p.constant_coupling:
+            return p.coupling(self.n_columns)
+        return p.coupling(self.n_columns, n)
+
+    def coupling(self, n=None):
+        """Sum of the coupling processes' sparse Jacobians at the state ``n`` (their
+        structure when ``n`` is None and one is nonlinear), or None without any."""
+        if n is None:
+            mats = [p.coupling(self.n_columns) for p in self.coupling_processes]
+        else:
+            mats = [self._coupling_of(p, np.asarray(n, float)) for p in self.coupling_processes]
         return sum(mats[1:], mats[0]) if mats else None
 
     def jacobian(self, n):
         """The whole Jacobian, scipy.sparse CSC (B·U, B·U); its structure is built once."""
-        blocks = self._rows().jacobian(np.asarray(n, float), self._all)
+        n = np.asarray(n, float)
+        blocks = self._rows().jacobian(n, self._all)
         if not self.coupled:
             return block_diagonal(np.asarray(blocks))
         if self._assembler is None:
             self._assembler = self._kept_assembler()
-        return self._assembler(blocks)
+        if self.constant_coupling:
+            return self._assembler(blocks)
+        return self._assembler(blocks, self.coupling(n))
 
     def _kept_assembler(self):
         """The CSC structure of the whole Jacobian, kept by the coupling process when there
-        is one (its matrix is constant): every system that shares it — a model and its
-        changed copies on the same environment — builds the structure once."""
+        is one (its structure does not change): every system that shares it — a model and
+        its changed copies on the same environment — builds the structure once."""
         key = (self.n_rows, len(self.unknowns), self.n_columns)
         store = None
         if len(self.coupling_processes) == 1:
             store = self.coupling_processes[0].kept_structures()
             if key in store:
                 return store[key]
-        assembler = ColumnJacobian(self.n_rows, len(self.unknowns), self.coupling())
+        if self.constant_coupling:
+            structure = self.coupling()
+        else:
+            # Ones where any process may have an entry: no sum cancels an entry away.
+            parts = [sp.coo_matrix(p.coupling(self.n_columns))
+                     for p in self.coupling_processes]
+            structure = sum(sp.coo_matrix((np.ones(c.nnz), (c.row, c.col)), shape=c.shape)
+                            for c in parts)
+        assembler = ColumnJacobian(self.n_rows, len(self.unknowns), structure)
         if store is not None:
             store[key] = assembler
         return assembler

@@ -11,8 +11,12 @@ A process is either
 - a **row process**: its tendency at a row depends only on that row's unknowns. It may be
   evaluated on a subset of rows (the steady Newton drops converged rows), and its Jacobian
   is one dense (U, U) block per row; or
-- a **coupling process**: linear in the state, with a constant sparse Jacobian that links
-  rows (a discretised flux divergence). It is evaluated on whole columns.
+- a **coupling process**: its Jacobian is a sparse matrix that links rows (a discretised
+  flux divergence). It is evaluated on whole columns. Most are linear in the state, with a
+  constant Jacobian (``constant_coupling = True``: transport of one ion by given
+  coefficients); a nonlinear one (heat conduction with a conductivity ∝ Te^(5/2), diffusion
+  in the polarisation field of all ions) sets ``constant_coupling = False`` and gives its
+  Jacobian at each state, on a sparsity structure that does not change.
 
 Both kinds give gross production and loss (non-negative, shaped like the state): the steady
 solver's convergence rule measures each residual against them (:mod:`ionochem.solve.steady`).
@@ -37,6 +41,10 @@ class Process:
         State blocks it reads.
     couples_rows : bool
         True for a coupling process (see the module docstring).
+    constant_coupling : bool
+        Coupling process: True when its Jacobian does not depend on the state.
+    rows_per_column : int
+        Coupling process: altitude rows of one column (the state stacks whole columns).
 
     Row processes implement :meth:`tendency`, :meth:`gross` and :meth:`blocks` for a
     subset ``rows`` (sorted unique row indices; all rows needs no copy) and may offer
@@ -49,6 +57,7 @@ class Process:
     unknowns: tuple[str, ...] = ()
     reads: tuple[str, ...] = ()
     couples_rows = False
+    constant_coupling = True
 
     def tendency(self, n, rows):
         """d(state)/dt of this process on ``rows``, shaped (len(rows), U)."""
@@ -72,14 +81,20 @@ class Process:
         """Row process: Jacobian blocks J[b, i, j] = ∂f_{b,i}/∂n_{b,j}, (len(rows), U, U)."""
         raise NotImplementedError
 
-    def coupling(self, n_columns):
-        """Coupling process: its constant Jacobian, scipy.sparse (B·U, B·U) for
-        ``n_columns`` stacked columns (entry (b·U + i, c·U + j) = ∂f_{b,i}/∂n_{c,j})."""
+    def coupling(self, n_columns, n=None):
+        """Coupling process: its Jacobian, scipy.sparse (B·U, B·U) for ``n_columns`` stacked
+        columns (entry (b·U + i, c·U + j) = ∂f_{b,i}/∂n_{c,j}).
+
+        A constant coupling ignores ``n``. A nonlinear one (``constant_coupling = False``)
+        returns its Jacobian at the state ``n`` (B, U); with ``n=None``, its structure: every
+        entry that can be nonzero at some state stored (values arbitrary). The entries at any
+        state must lie within that structure.
+        """
         raise NotImplementedError
 
     def kept_structures(self):
         """Coupling process: a dict where the system keeps the assembled Jacobian's
-        structure for this (constant) coupling, shared by every system using the process's
+        structure for this coupling, shared by every system using the process's
         operator."""
         return self.__dict__.setdefault("_kept_structures", {})
 
