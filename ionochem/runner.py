@@ -62,5 +62,6 @@ def run_model(model):
         start = diurnal_start_utc(scen, solve.days)
         if start != scen.time.utc:
             model = model.at_time(start)
-        return diurnal_dataset(model, solve.days, solve.step_minutes * 60.0)
+        return diurnal_dataset(model, solve.days, solve.step_minutes * 60.0,
+                               compare_days=solve.compare_days)
     return model.solve()

@@ -132,7 +132,7 @@ def test_diurnal_run_reports_its_last_day_on_local_hours():
 @pytest.mark.parametrize("extra, key", [
     ("days = 0", "solve.days"), ("days = 1.5", "solve.days"), ("days = 400", "solve.days"),
     ("step_minutes = 7", "solve.step_minutes"), ("step_minutes = 0", "solve.step_minutes"),
-    ("times_s = [0.0, 60.0]", "solve.times_s"),
+    ("times_s = [0.0, 60.0]", "solve.times_s"), ("compare_days = 1", "solve.compare_days"),
 ])
 def test_diurnal_keys_are_checked_at_their_key(tmp_path, extra, key):
     """Bad ``days`` / ``step_minutes`` (and ``times_s``, which a diurnal run makes itself)
@@ -143,6 +143,41 @@ def test_diurnal_keys_are_checked_at_their_key(tmp_path, extra, key):
     with pytest.raises(ionochem.ScenarioError) as info:
         ionochem.load_scenario(path)
     assert str(info.value).startswith(f"{path}: {key}:")
+
+
+def test_compare_days_is_refused_outside_a_diurnal_run(tmp_path):
+    """``compare_days`` belongs to diurnal runs: a steady scenario that gives it is refused
+    at its key."""
+    text = MIDNIGHT.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
+    path = tmp_path / "s.toml"
+    path.write_text(text + '\n[solve]\ncompare_days = true\n')
+    with pytest.raises(ionochem.ScenarioError) as info:
+        ionochem.load_scenario(path)
+    assert str(info.value).startswith(f"{path}: solve.compare_days:")
+
+
+def test_periodicity_is_reported_always_and_the_day_before_only_when_asked():
+    """The day-to-day change of a diurnal result, on two invented days of three species ×
+    four altitudes × five local times: ``periodicity`` is the largest
+    |ln((n + 1)/(n_prev + 1))| of each species (numpy, here), at ``periodicity_altitude``;
+    ``diurnal_change`` and ``previous_day_density`` appear only with ``compare_days``."""
+    from ionochem.analysis.diurnal import _add_periodicity
+    rng = np.random.default_rng(3)
+    dims = ("time", "species", "altitude")
+    coords = {"species": ["O+", "NO+", "O2+"], "altitude": [150.0, 200.0, 250.0, 300.0]}
+    prev = xr.DataArray(rng.uniform(0, 1e5, (5, 3, 4)), dims=dims, coords=coords)
+    now = prev * np.exp(rng.normal(0, 0.1, (5, 3, 4)))
+    change = np.abs(np.log((now.values + 1) / (prev.values + 1))).max(axis=0)
+    for compare in (False, True):
+        out = xr.Dataset({"density": now.rename(time="local_hour")})
+        _add_periodicity(out, prev, now, compare)
+        np.testing.assert_allclose(out["periodicity"], change.max(axis=1), rtol=1e-14)
+        np.testing.assert_array_equal(out["periodicity_altitude"],
+                                      np.array(coords["altitude"])[change.argmax(axis=1)])
+        assert ("diurnal_change" in out) is compare
+        assert ("previous_day_density" in out) is compare
+    np.testing.assert_allclose(out["diurnal_change"], change, rtol=1e-14)
+    np.testing.assert_array_equal(out["previous_day_density"].values, prev.values)
 
 
 @pytest.mark.parametrize("command", [["rank", "--species", "N2+"], ["sweep", "--vary",
@@ -161,18 +196,27 @@ def test_analyses_refuse_a_diurnal_scenario_at_solve_mode(tmp_path, capsys, comm
 
 @pytest.mark.slow  # two simulated days, ~25 s
 def test_diurnal_command_says_what_periodicity_it_reached(tmp_path, capsys):
-    """``ionochem run`` of a two-day diurnal scenario prints the largest day-to-day change
-    of ln(n + 1), equal to the dataset's ``diurnal_change`` maximum (recomputed here with
-    numpy from the two days' densities)."""
+    """``ionochem run`` of a two-day diurnal scenario with ``compare_days`` prints the
+    largest day-to-day change of ln(n + 1); the dataset's day-to-day change is recomputed
+    here with numpy from the reported day and the day before it carries, and its largest
+    value per species is ``periodicity``."""
     text = MIDNIGHT.read_text().replace('"../reactions/', f'"{ROOT}/reactions/')
     text = text.replace("stop = 600.0, step = 2.0", "stop = 415.0, step = 25.0")
     path = tmp_path / "d.toml"
-    path.write_text(text + '\n[solve]\nmode = "diurnal"\ndays = 2\nstep_minutes = 120\n')
+    path.write_text(text + '\n[solve]\nmode = "diurnal"\ndays = 2\nstep_minutes = 120\n'
+                    'compare_days = true\n')
     out = tmp_path / "d.nc"
     assert main(["run", str(path), "-o", str(out)]) == 0
     line = [ln for ln in capsys.readouterr().out.splitlines()
             if ln.startswith("periodicity:")]
     assert len(line) == 1
     with xr.open_dataset(out) as ds:
-        worst = float(ds["diurnal_change"].max())
+        now = ds["density"].transpose("species", "altitude", "local_hour").values
+        before = ds["previous_day_density"].transpose("species", "altitude",
+                                                      "local_hour").values
+        change = np.abs(np.log((now + 1.0) / (before + 1.0))).max(axis=2)
+        np.testing.assert_allclose(ds["diurnal_change"].transpose("species", "altitude"),
+                                   change, rtol=1e-12)
+        np.testing.assert_allclose(ds["periodicity"], change.max(axis=1), rtol=1e-12)
+        worst = float(ds["periodicity"].max())
     assert f"{worst:.2g}" in line[0]

@@ -9,11 +9,16 @@ apparent midnight (0 … 24, both ends). The true solar time of an output differ
 ``local_hour`` by the drift of the equation of time over the elapsed time, under 30 s a day
 (Meeus 1998, ch. 28).
 
-With ``days ≥ 2`` the day-to-day change ``diurnal_change(species, altitude)`` — the largest
-|ln((n_last + 1)/(n_previous + 1))| over the day at equal local times, densities in cm-3 —
-says how close the column is to a periodic state. Molecular ions and metastables forget
-their start within minutes of sunrise; O+ near the F2 peak keeps a memory of a night (hours),
-so two days are the default and a third changes O+ little *(common practice)*.
+With ``days ≥ 2`` the run says what periodicity it reached: ``periodicity(species)``, the
+largest |ln((n_last + 1)/(n_previous + 1))| over the day and the column at equal local times
+(densities in cm-3), and ``periodicity_altitude(species)`` where it occurs. Only when asked
+(``compare_days``) does it report the last day against the one before in full:
+``diurnal_change(species, altitude)`` (that largest change at each altitude) and
+``previous_day_density``, the day before on the same ``local_hour`` axis.
+
+Molecular ions and metastables forget their start within minutes of sunrise; O+ near the F2
+peak keeps a memory of a night (hours), so two days are the default and a third changes O+
+little *(common practice)*.
 
 This module works on a built model; it must not read files.
 """
@@ -58,7 +63,7 @@ def check_step(step_minutes: float):
                          file="--step-minutes")
 
 
-def diurnal_dataset(model, days: int, step_s: float):
+def diurnal_dataset(model, days: int, step_s: float, *, compare_days: bool = False):
     """Integrate ``model`` (its scenario time at a local apparent midnight) over ``days``
     days and return the last day on ``local_hour``.
 
@@ -70,13 +75,18 @@ def diurnal_dataset(model, days: int, step_s: float):
         Days integrated, ≥ 1.
     step_s : float
         Seconds between outputs (a divisor of a day).
+    compare_days : bool
+        Also report the last day against the one before (``days ≥ 2``): the day-to-day
+        change at each altitude and the previous day's densities.
 
     Returns
     -------
     xarray.Dataset
         The transient dataset of the last day with ``time`` replaced by ``local_hour``
         (h), ``time_s`` kept as a coordinate (s after the start), and, for ``days ≥ 2``,
-        ``diurnal_change(species, altitude)``.
+        ``periodicity(species)`` and ``periodicity_altitude(species)`` (with
+        ``compare_days``, ``diurnal_change(species, altitude)`` and
+        ``previous_day_density``).
     """
     times = diurnal_times(days, step_s)
     ds = model.integrate(times)
@@ -91,15 +101,37 @@ def diurnal_dataset(model, days: int, step_s: float):
                                "equation of time)"}
     if days >= 2:
         prev = ds["density"].isel(time=slice((days - 2) * per_day, (days - 1) * per_day + 1))
-        now = ds["density"].isel(time=last)
-        change = np.abs(np.log((now.values + CHANGE_FLOOR_CM3)
-                               / (prev.values + CHANGE_FLOOR_CM3))).max(axis=0)
-        out["diurnal_change"] = (("species", "altitude"), change,
-                                 {"units": "1", "long_name": "largest |ln((n + 1)/(n_prev + 1))| "
-                                  "between the last two days at equal local times (n in cm-3)"})
+        _add_periodicity(out, prev, ds["density"].isel(time=last), compare_days)
     out.attrs["diurnal_days"] = int(days)
     out.attrs["diurnal_step_s"] = float(step_s)
     return out
+
+
+def _add_periodicity(out, prev, now, compare_days):
+    """Put the day-to-day change of the last day ``now`` against ``prev`` (density, each on
+    the last day's times) into ``out``: its largest value per species always, in full only
+    with ``compare_days``."""
+    # (species, altitude): the largest change over the day's times.
+    change = np.abs(np.log((now.values + CHANGE_FLOOR_CM3) / (prev.values + CHANGE_FLOOR_CM3)))
+    change = np.moveaxis(change, [now.dims.index(d) for d in ("species", "altitude", "time")],
+                         [0, 1, 2]).max(axis=2)
+    altitude = out["altitude"].values
+    out["periodicity"] = (("species",), change.max(axis=1),
+                          {"units": "1", "long_name": "largest |ln((n + 1)/(n_prev + 1))| "
+                           "over the column between the last two days at equal local times "
+                           "(n in cm-3); small means periodic"})
+    out["periodicity_altitude"] = (("species",), altitude[change.argmax(axis=1)],
+                                   {"units": "km", "long_name": "altitude of the largest "
+                                    "day-to-day change of the species"})
+    if compare_days:
+        out["diurnal_change"] = (("species", "altitude"), change,
+                                 {"units": "1", "long_name": "largest |ln((n + 1)/(n_prev + 1))| "
+                                  "between the last two days at equal local times (n in cm-3)"})
+        # The same dimension order as the last day's (time → local_hour).
+        previous = out["density"].copy(data=prev.values)
+        previous.attrs = dict(out["density"].attrs, long_name="number density on the day "
+                              "before the reported one, at equal local times")
+        out["previous_day_density"] = previous
 
 
 def diurnal_start_utc(scenario, days: int):

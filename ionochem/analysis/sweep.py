@@ -26,9 +26,10 @@ read after the other overrides of the point):
     at the site, keeping the scenario's local solar time of day (or ``time.local_hour``);
     without ``[location]`` the UTC date, keeping the UTC time of day.
 
-Diurnal mode (``diurnal=(days, step_s)``): each point runs through whole days with the sun
-moving and reports its last day on a ``local_hour`` axis (:mod:`ionochem.analysis.diurnal`);
-the point's scenario becomes transient, starting at local apparent midnight.
+Diurnal mode (``diurnal=(days, step_s, compare_days)``): each point runs through whole days
+with the sun moving and reports its last day on a ``local_hour`` axis
+(:mod:`ionochem.analysis.diurnal`); the point's scenario becomes transient, starting at
+local apparent midnight.
 
 Execution
 ---------
@@ -97,8 +98,9 @@ class SweepSpec:
         Folder the table paths inside ``sets`` resolve against.
     sensitivity : bool
         Add the exact sensitivities (``Model.sensitivity()``) of every point.
-    diurnal : (int, float) or None
-        ``(days, step_s)`` of diurnal mode.
+    diurnal : (int, float, bool) or None
+        ``(days, step_s, compare_days)`` of diurnal mode (compare_days: the last day
+        against the one before in full, :func:`ionochem.analysis.diurnal.diurnal_dataset`).
     """
 
     raw: dict
@@ -132,8 +134,9 @@ def make_spec(scenario, axes, *, reaction_list=None, sets=None, scales=None, set
                      reaction_list=reaction_list, sets=dict(sets or {}),
                      scales=dict(scales or {}), set_dir=None if set_dir is None
                      else Path(set_dir), sensitivity=bool(sensitivity),
-                     diurnal=None if diurnal is None else (int(diurnal[0]),
-                                                           float(diurnal[1])))
+                     diurnal=None if diurnal is None else (
+                         int(diurnal[0]), float(diurnal[1]),
+                         bool(diurnal[2]) if len(diurnal) > 2 else False))
 
 
 # ----------------------------------------------------------------------------- scenarios
@@ -287,7 +290,8 @@ def point_dataset(spec: SweepSpec, index: int):
             model = model.with_changes(spec.sets, scale=spec.scales, base_dir=spec.set_dir)
         if spec.diurnal:
             from ionochem.analysis.diurnal import diurnal_dataset
-            ds = diurnal_dataset(model, spec.diurnal[0], spec.diurnal[1])
+            ds = diurnal_dataset(model, spec.diurnal[0], spec.diurnal[1],
+                                 compare_days=spec.diurnal[2])
         elif scen.solve.mode == "transient":
             initial = model.solve() if scen.solve.start == "steady" else None
             ds = model.integrate(np.asarray(scen.solve.times_s, float), initial=initial)

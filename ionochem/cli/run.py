@@ -109,7 +109,7 @@ def cmd_run(args):
     stamp_history(ds, args)
     print(ds.attrs.get("title", ""))
     print(table.text())
-    if "diurnal_change" in ds:
+    if "periodicity" in ds:
         print(periodicity_line(ds))
     if not transient:
         _print_steady_notes(ds, model)
@@ -186,12 +186,12 @@ def density_table(ds, heights):
 def periodicity_line(ds):
     """How close a diurnal run came to a repeating day: the largest day-to-day change of
     ln(n + 1) between its last two days, where and for which species."""
-    change = ds["diurnal_change"]
-    flat = int(change.values.argmax())
-    i, a = divmod(flat, change.sizes["altitude"])
-    worst = float(change.values.flat[flat])
+    change = ds["periodicity"]
+    i = int(change.values.argmax())
+    worst = float(change.values[i])
+    where = float(ds["periodicity_altitude"].values[i])
     return (f"periodicity: the last two days differ by at most {worst:.2g} in ln(n + 1) "
-            f"({change['species'].values[i]} at {float(change['altitude'].values[a]):g} km"
+            f"({change['species'].values[i]} at {where:g} km"
             f"{'; give more days for a repeating day' if worst > 0.01 else ''})")
 
 

@@ -47,6 +47,10 @@ def register(subparsers):
                         "periodic state)")
     s.add_argument("--step-minutes", type=float, default=15.0, metavar="M",
                    help="--diurnal: minutes between outputs (default 15; divides 1440)")
+    s.add_argument("--compare-days", action="store_true",
+                   help="--diurnal: also store the last day against the day before "
+                        "(diurnal_change by altitude, previous_day_density); without it "
+                        "only the periodicity reached (periodicity per species)")
     s.add_argument("--sensitivity", action="store_true",
                    help="store the exact sensitivities dln n/dln k of every species to every "
                         "reaction at every point (steady points)")
@@ -139,7 +143,11 @@ def cmd_sweep(args):
         raise ScenarioError("is 'diurnal': a sweep runs whole days only with --diurnal "
                             "(--days, --step-minutes); give them, or a steady or transient "
                             "scenario", file=scen.source, key="solve.mode")
-    diurnal = (args.days, 60.0 * args.step_minutes) if args.diurnal else None
+    if args.compare_days and not args.diurnal:
+        raise InputError("goes with --diurnal (it compares the last two days of a diurnal "
+                         "run)", file="--compare-days")
+    diurnal = (args.days, 60.0 * args.step_minutes, args.compare_days) if args.diurnal \
+        else None
     spec = make_spec(scen, axes, sets=sets, scales=scales, set_dir=Path.cwd(),
                      sensitivity=args.sensitivity, diurnal=diurnal)
     check_axes(spec)

@@ -236,7 +236,7 @@ class SchemaValidator(ValueChecks):
         key = "solve"
         sec = self.table(value, key, ("mode", "times_s", "electrons", "electron_table",
                                       "balance_ion", "rtol", "start", "days", "step_minutes",
-                                      "freeze_environment"))
+                                      "freeze_environment", "compare_days"))
         mode = self.choice(sec.get("mode", "steady"), f"{key}.mode",
                            ("steady", "transient", "diurnal"))
         times = None
@@ -258,10 +258,14 @@ class SchemaValidator(ValueChecks):
             freeze = sec["freeze_environment"]
             if not isinstance(freeze, bool):
                 raise self.fail(f"{key}.freeze_environment", "must be true or false")
+        compare = False
         if mode == "diurnal":
             days, step = self.diurnal(sec, key)
+            compare = sec.get("compare_days", False)
+            if not isinstance(compare, bool):
+                raise self.fail(f"{key}.compare_days", "must be true or false")
         else:
-            for name in ("days", "step_minutes"):
+            for name in ("days", "step_minutes", "compare_days"):
                 self.inapplicable(sec, name, key, "mode = 'diurnal'")
         electrons = self.choice(sec.get("electrons", "neutrality"), f"{key}.electrons",
                                 ("neutrality", "table"))
@@ -281,7 +285,7 @@ class SchemaValidator(ValueChecks):
         rtol = self.physical(sec.get("rtol", 1e-10), f"{key}.rtol")
         return Solve(mode=mode, times_s=times, electrons=electrons, electron_table=etable,
                      balance_ion=balance, rtol=rtol, start=start, days=days,
-                     step_minutes=step, freeze_environment=freeze)
+                     step_minutes=step, freeze_environment=freeze, compare_days=compare)
 
     def diurnal(self, sec, key):
         """``days`` (whole, 1 to MAX_DIURNAL_DAYS, default 2) and ``step_minutes`` (a divisor of a

@@ -163,6 +163,10 @@ class Solve:
         Transient and diurnal runs: hold the neutral atmosphere and the temperatures at
         their values at ``[time] utc`` (default False: they follow time, the sun always
         moves).
+    compare_days : bool
+        Diurnal runs: also report the last day against the day before in full
+        (``diurnal_change``, ``previous_day_density``); by default only the periodicity
+        reached (``periodicity``).
     """
 
     mode: str = "steady"
@@ -175,6 +179,7 @@ class Solve:
     days: int = 2
     step_minutes: float = 15.0
     freeze_environment: bool = False
+    compare_days: bool = False
 
 
 @dataclass(frozen=True)
